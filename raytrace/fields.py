@@ -1,0 +1,168 @@
+"""Typed reads of JSON values that report problems instead of raising.
+
+Each reader takes the containing object, the key, the JSON path of the object and the Problems
+collector; it returns the value (or a default) and records what was wrong, so one pass over a
+file finds every problem."""
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from .errors import Problems
+
+MISSING = "<missing>"
+
+
+class NonFinite:
+    """Stands in for NaN/Infinity tokens, which JSON does not allow but Python's parser reads."""
+
+    def __init__(self, token: str):
+        self.token = token
+
+    def __repr__(self) -> str:
+        return self.token
+
+
+def type_name(value: Any) -> str:
+    if isinstance(value, NonFinite):
+        return value.token
+    if value is None:
+        return "null"
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, (int, float)):
+        return repr(value)
+    if isinstance(value, str):
+        return repr(value) if len(value) < 40 else repr(value[:37] + "...")
+    if isinstance(value, list):
+        return f"a list of {len(value)}"
+    if isinstance(value, dict):
+        return "an object"
+    return type(value).__name__
+
+
+def is_number(value: Any) -> bool:
+    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+
+
+def check_keys(obj: dict, accepted: tuple[str, ...], path: str, problems: Problems) -> None:
+    for key in obj:
+        if key not in accepted:
+            problems.add(f"{path}.{key}", f"<unknown key {key!r}>", f"one of the keys {', '.join(accepted)}")
+
+
+def number(obj: dict, key: str, path: str, problems: Problems, default: Any = MISSING,
+           minimum: float | None = None, exclusive: bool = False, maximum: float | None = None,
+           what: str = "a number") -> float | None:
+    if key not in obj:
+        if default is MISSING:
+            problems.add(f"{path}.{key}", MISSING, _number_phrase(what, minimum, exclusive, maximum))
+            return None
+        return default
+    return number_value(obj[key], f"{path}.{key}", problems, minimum, exclusive, maximum, what)
+
+
+def number_value(value: Any, where: str, problems: Problems, minimum: float | None = None,
+                 exclusive: bool = False, maximum: float | None = None, what: str = "a number") -> float | None:
+    phrase = _number_phrase(what, minimum, exclusive, maximum)
+    if not is_number(value):
+        problems.add(where, f"<{type_name(value)}>", phrase)
+        return None
+    v = float(value)
+    if minimum is not None and (v < minimum or (exclusive and v == minimum)):
+        problems.add(where, value, phrase)
+        return None
+    if maximum is not None and v > maximum:
+        problems.add(where, value, phrase)
+        return None
+    return v
+
+
+def _number_phrase(what: str, minimum, exclusive, maximum) -> str:
+    phrase = f"{what} (finite)" if minimum is None and maximum is None else what
+    if minimum is not None and maximum is not None:
+        return f"{what} from {minimum:g} to {maximum:g}"
+    if minimum is not None:
+        return f"{what} {'greater than' if exclusive else 'at least'} {minimum:g}"
+    if maximum is not None:
+        return f"{what} at most {maximum:g}"
+    return phrase
+
+
+def integer(obj: dict, key: str, path: str, problems: Problems, default: Any = MISSING,
+            minimum: int | None = None) -> int | None:
+    if key not in obj:
+        if default is MISSING:
+            problems.add(f"{path}.{key}", MISSING, "a whole number")
+            return None
+        return default
+    v = obj[key]
+    expected = "a whole number" + (f" at least {minimum}" if minimum is not None else "")
+    if not is_number(v) or float(v) != int(v):
+        problems.add(f"{path}.{key}", f"<{type_name(v)}>", expected)
+        return None
+    if minimum is not None and v < minimum:
+        problems.add(f"{path}.{key}", v, expected)
+        return None
+    return int(v)
+
+
+def string(obj: dict, key: str, path: str, problems: Problems, default: Any = MISSING,
+           choices: tuple[str, ...] | None = None, nonempty: bool = False) -> str | None:
+    if key not in obj:
+        if default is MISSING:
+            problems.add(f"{path}.{key}", MISSING, "a text" if not choices else f"one of {', '.join(choices)}")
+            return None
+        return default
+    v = obj[key]
+    if not isinstance(v, str) or (nonempty and not v.strip()):
+        problems.add(f"{path}.{key}", f"<{type_name(v)}>", "a non-empty text" if nonempty else "a text")
+        return None
+    if choices is not None and v not in choices:
+        problems.add(f"{path}.{key}", v, f"one of {', '.join(choices)}")
+        return None
+    return v
+
+
+def boolean(obj: dict, key: str, path: str, problems: Problems, default: Any = MISSING) -> bool | None:
+    if key not in obj:
+        if default is MISSING:
+            problems.add(f"{path}.{key}", MISSING, "true or false")
+            return None
+        return default
+    v = obj[key]
+    if not isinstance(v, bool):
+        problems.add(f"{path}.{key}", f"<{type_name(v)}>", "true or false")
+        return None
+    return v
+
+
+def point(obj: dict, key: str, path: str, problems: Problems, default: Any = MISSING) -> tuple[float, float] | None:
+    if key not in obj:
+        if default is MISSING:
+            problems.add(f"{path}.{key}", MISSING, "a point [x, y] in mm")
+            return None
+        return default
+    return point_value(obj[key], f"{path}.{key}", problems)
+
+
+def point_value(v: Any, where: str, problems: Problems) -> tuple[float, float] | None:
+    if not (isinstance(v, list) and len(v) == 2 and all(is_number(c) for c in v)):
+        problems.add(where, f"<{type_name(v)}>" if not isinstance(v, list) else v if len(v) != 2 else
+                     [type_name(c) for c in v], "a point [x, y] of two finite numbers (mm)")
+        return None
+    return (float(v[0]), float(v[1]))
+
+
+def obj(value: Any, where: str, problems: Problems) -> dict | None:
+    if not isinstance(value, dict):
+        problems.add(where, f"<{type_name(value)}>", "an object {...}")
+        return None
+    return value
+
+
+def array(value: Any, where: str, problems: Problems) -> list | None:
+    if not isinstance(value, list):
+        problems.add(where, f"<{type_name(value)}>", "a list [...]")
+        return None
+    return value

@@ -1,0 +1,118 @@
+"""What a trace gives back to a user: the ledger, detector records, the ray table, paths, stats."""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .compile import CompiledScene
+from .ledger import Ledger
+from .tracer import BORN, END, EVENT_KINDS, N_EVENT_KINDS, RawTrace
+
+
+@dataclass
+class DetectorHits:
+    """Every ray that reached one detector (arrays of equal length)."""
+
+    name: str
+    length: float
+    position: np.ndarray        # mm from the detector's start point
+    angle_deg: np.ndarray       # from the detector normal, signed
+    flux_s: np.ndarray
+    flux_p: np.ndarray
+    wavelength_nm: np.ndarray
+    optical_path: np.ndarray    # sum of n*L in mm; divide by c for the time of flight
+    path: np.ndarray            # path node of each hit
+    source_ray: np.ndarray
+
+    @property
+    def flux(self) -> np.ndarray:
+        return self.flux_s + self.flux_p
+
+    @property
+    def total(self) -> float:
+        return float(self.flux.sum())
+
+
+@dataclass
+class TraceResult:
+    compiled: CompiledScene
+    raw: RawTrace
+    ledger: Ledger
+    mode: str
+    settings: dict = field(default_factory=dict)
+
+    @property
+    def source_flux(self) -> float:
+        return self.ledger.source_flux
+
+    @property
+    def stats(self) -> dict:
+        return self.raw.stats
+
+    def detector(self, name: str) -> DetectorHits:
+        cs = self.compiled
+        index = next(i for i, d in enumerate(cs.detectors) if d.name == name)
+        det = cs.detectors[index]
+        h = self.raw.hits
+        if not h:
+            sel = np.zeros(0, dtype=bool)
+            h = {k: np.zeros(0) for k in ("position", "angle_deg", "flux_s", "flux_p", "wavelength_nm",
+                                          "optical_path", "path", "root", "detector")}
+        sel = h["detector"] == index
+        length = float(np.hypot(det.end[0] - det.start[0], det.end[1] - det.start[1]))
+        return DetectorHits(name, length, h["position"][sel], h["angle_deg"][sel], h["flux_s"][sel],
+                            h["flux_p"][sel], h["wavelength_nm"][sel], h["optical_path"][sel],
+                            h["path"][sel].astype(np.int64), h["root"][sel].astype(np.int64))
+
+    def efficiency(self, detector: str) -> float:
+        return self.ledger.efficiency(detector)
+
+    @property
+    def segments(self) -> dict[str, np.ndarray] | None:
+        """Recorded ray segments as columns, or None when recording was off."""
+        return self.raw.segments
+
+    def describe_path(self, node: int) -> list[str]:
+        """Readable events of a path node, from the source onward."""
+        cs = self.compiled
+        parent, code = self.raw.path_parent, self.raw.path_code
+        steps: list[str] = []
+        while node >= 0 and parent[node] != -1_000_000:
+            c = code[node]
+            if c < 0:
+                steps.append(f"from source {cs_source_name(self, -1 - parent[node])}")
+                break
+            edge, kind = divmod(int(c), N_EVENT_KINDS)
+            steps.append(f"{EVENT_KINDS[kind]} {_edge_name(cs, edge)}")
+            node = parent[node]
+        else:
+            if node >= 0:
+                steps.append("(other paths)")
+        return steps[::-1]
+
+    def to_summary_dict(self) -> dict:
+        return {
+            "source_flux": self.source_flux,
+            "mode": self.mode,
+            "buckets": [b.to_dict() for b in self.ledger.buckets],
+            "efficiency": {d.name: self.efficiency(d.name) for d in self.compiled.detectors},
+            "stats": {k: v for k, v in self.stats.items()},
+            "settings": self.settings,
+        }
+
+
+def cs_source_name(result: TraceResult, index: int) -> str:
+    names = result.settings.get("source_names", [])
+    return names[index] if 0 <= index < len(names) else str(index)
+
+
+def _edge_name(cs: CompiledScene, edge: int) -> str:
+    if cs.detector[edge] >= 0:
+        return f"detector {cs.detectors[cs.detector[edge]].name}"
+    part, face = cs.face_labels[cs.face[edge]]
+    return f"{part} / {face}"
+
+
+BORN_NAMES = BORN
+END_NAMES = END

@@ -1,0 +1,519 @@
+"""Scene files: JSON with our own format name and version; load -> validate -> Scene, and save.
+
+Loading never writes to the file.  Every problem found is reported at once, each naming the
+file, the JSON path, what was found and what was expected.  Saving is atomic (write a
+temporary file beside the target, then rename), so a failed save leaves the old file intact.
+"""
+from __future__ import annotations
+
+import json
+import math
+import os
+import tempfile
+from dataclasses import replace
+from pathlib import Path
+from typing import Any
+
+from . import fields as F
+from .compile import check_geometry, resolve_materials
+from .errors import Problems, SceneError
+from .geometry import (MIRROR, TREATMENT_KINDS, Edge, Loop, Part, ShapeSpec, Treatment)
+from .materials import material_from_dict
+from .scene import (DISTRIBUTIONS, POLARIZATIONS, SAMPLINGS, SOURCE_KINDS, Detector, Scene,
+                    Source, Spectrum, TraceSettings)
+
+FORMAT_NAME = "raytrace2d-scene"
+FORMAT_VERSION = 1
+UNITS = {"length": "mm", "wavelength": "nm"}
+TOP_KEYS = ("format", "version", "units", "name", "story", "ambient", "materials", "parts",
+            "sources", "detectors", "trace")
+PART_KEYS = ("name", "material", "boundary", "holes", "shape", "faces")
+EDGE_KEYS = ("from", "face", "treatment", "arc")
+SOURCE_KEYS = ("name", "kind", "position", "direction_deg", "width", "half_angle_deg",
+               "distribution", "cos_power", "flux", "spectrum", "polarization", "sampling", "note")
+DETECTOR_KEYS = ("name", "start", "end", "absorbing", "bins", "angle_bins", "central_fraction")
+TRACE_KEYS = ("rays", "mode", "min_relative_flux", "max_depth", "max_segments", "seed")
+MODES = ("branching", "monte_carlo")
+
+
+# ----------------------------------------------------------------------------- loading
+
+def load_scene(path: str | os.PathLike) -> Scene:
+    """Read, validate and build a scene.  Raises SceneError listing every problem."""
+    path = Path(path)
+    problems = Problems(file=str(path))
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        problems.add("$", "<no such file>", "an existing scene file")
+        raise SceneError(problems.items)
+    except (OSError, UnicodeDecodeError) as exc:
+        problems.add("$", f"<unreadable file: {exc}>", "a readable UTF-8 JSON file")
+        raise SceneError(problems.items)
+    return scene_from_text(text, problems)
+
+
+def scene_from_text(text: str, problems: Problems | None = None) -> Scene:
+    problems = problems or Problems()
+    try:
+        data = json.loads(text, parse_constant=F.NonFinite)
+    except json.JSONDecodeError as exc:
+        problems.add("$", f"<malformed JSON at line {exc.lineno} column {exc.colno}: {exc.msg}>",
+                     "valid JSON")
+        raise SceneError(problems.items)
+    except RecursionError:
+        problems.add("$", "<JSON nested too deeply>", "a scene file of ordinary depth")
+        raise SceneError(problems.items)
+    return scene_from_dict(data, problems)
+
+
+def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
+    problems = problems or Problems()
+    top = F.obj(data, "$", problems)
+    if top is None:
+        raise SceneError(problems.items)
+    F.check_keys(top, TOP_KEYS, "$", problems)
+    fmt = top.get("format", F.MISSING)
+    if fmt != FORMAT_NAME:
+        problems.add("$.format", fmt, f"{FORMAT_NAME!r}")
+    version = top.get("version", F.MISSING)
+    if not (F.is_number(version) and version == FORMAT_VERSION):
+        problems.add("$.version", version if not isinstance(version, F.NonFinite) else f"<{version}>",
+                     f"{FORMAT_VERSION} (the version this program reads)")
+    units = top.get("units", F.MISSING)
+    if units != UNITS:
+        problems.add("$.units", units, f'{json.dumps(UNITS)}: lengths in mm, wavelengths in nm')
+
+    name = F.string(top, "name", "$", problems, default="")
+    story = F.string(top, "story", "$", problems, default="")
+    ambient = F.string(top, "ambient", "$", problems, default="air", nonempty=True)
+
+    materials = {}
+    mats = top.get("materials", {})
+    if F.obj(mats, "$.materials", problems) is not None:
+        for mname, mdata in mats.items():
+            m = material_from_dict(mname, mdata, f"$.materials.{_key(mname)}", problems)
+            if m is not None:
+                materials[mname] = m
+
+    parts = []
+    for i, pdata in enumerate(_list(top, "parts", "$", problems)):
+        part = _part(pdata, f"$.parts[{i}]", problems)
+        if part is not None:
+            parts.append(part)
+    sources = []
+    for i, sdata in enumerate(_list(top, "sources", "$", problems)):
+        src = _source(sdata, f"$.sources[{i}]", problems)
+        if src is not None:
+            sources.append(src)
+    detectors = []
+    for i, ddata in enumerate(_list(top, "detectors", "$", problems)):
+        det = _detector(ddata, f"$.detectors[{i}]", problems)
+        if det is not None:
+            detectors.append(det)
+    _unique_names(sources, "$.sources", problems)
+    _unique_names(detectors, "$.detectors", problems)
+    settings = _settings(top.get("trace", {}), "$.trace", problems)
+
+    scene = Scene(parts=parts, sources=sources, detectors=detectors, materials=materials,
+                  ambient=ambient or "air", settings=settings or TraceSettings(), story=story or "",
+                  name=name or "")
+    # scene-level checks only make sense once every part was read
+    if not problems.errors:
+        resolve_materials(scene, problems)
+        check_geometry(scene, problems)
+    problems.raise_if_errors()
+    return scene
+
+
+def _key(name: str) -> str:
+    return name if name.replace("_", "").isalnum() else json.dumps(name)
+
+
+def _list(top: dict, key: str, path: str, problems: Problems) -> list:
+    if key not in top:
+        return []
+    value = F.array(top[key], f"{path}.{key}", problems)
+    return value or []
+
+
+def _unique_names(items, path: str, problems: Problems) -> None:
+    seen: dict[str, int] = {}
+    for i, it in enumerate(items):
+        if it.name in seen:
+            problems.add(f"{path}[{i}].name", it.name, f"a name not already used by {path}[{seen[it.name]}]")
+        seen.setdefault(it.name, i)
+
+
+def _treatment(value: Any, where: str, problems: Problems) -> Treatment | None:
+    if isinstance(value, str):
+        if value in TREATMENT_KINDS and value != MIRROR:
+            return Treatment(value)
+        if value == MIRROR:
+            return Treatment(MIRROR, 1.0)
+        problems.add(where, value, f"one of {', '.join(TREATMENT_KINDS)}, or {{\"kind\": \"mirror\", \"reflectance\": R}}")
+        return None
+    d = F.obj(value, where, problems)
+    if d is None:
+        return None
+    F.check_keys(d, ("kind", "reflectance"), where, problems)
+    kind = F.string(d, "kind", where, problems, choices=TREATMENT_KINDS)
+    refl = F.number(d, "reflectance", where, problems, default=1.0, minimum=0.0, maximum=1.0,
+                    what="a reflectance")
+    if kind is None or refl is None:
+        return None
+    return Treatment(kind, refl)
+
+
+def _loop(value: Any, where: str, problems: Problems) -> Loop | None:
+    items = F.array(value, where, problems)
+    if items is None:
+        return None
+    if len(items) < 2:
+        problems.add(where, f"{len(items)} vertex entries", "at least 3 entries (or 2 when one edge is an arc)")
+        return None
+    starts: list = []
+    extras: list[dict] = []
+    ok = True
+    for j, item in enumerate(items):
+        w = f"{where}[{j}]"
+        d = F.obj(item, w, problems)
+        if d is None:
+            ok = False
+            continue
+        F.check_keys(d, EDGE_KEYS, w, problems)
+        p = F.point(d, "from", w, problems)
+        face = F.string(d, "face", w, problems, default=None)
+        treat = _treatment(d["treatment"], f"{w}.treatment", problems) if "treatment" in d else Treatment()
+        arc = None
+        if "arc" in d:
+            a = F.obj(d["arc"], f"{w}.arc", problems)
+            if a is not None:
+                F.check_keys(a, ("center", "direction"), f"{w}.arc", problems)
+                c = F.point(a, "center", f"{w}.arc", problems)
+                direction = F.string(a, "direction", f"{w}.arc", problems, choices=("ccw", "cw"))
+                arc = (c, direction) if c is not None and direction is not None else None
+                ok = ok and arc is not None
+        if p is None or treat is None:
+            ok = False
+        starts.append(p)
+        extras.append({"face": face, "treatment": treat, "arc": arc})
+    if not ok:
+        return None
+    edges = []
+    n = len(starts)
+    for j in range(n):
+        ex = extras[j]
+        arc = ex["arc"]
+        edges.append(Edge(start=starts[j], end=starts[(j + 1) % n],
+                          arc_center=arc[0] if arc else None, ccw=(arc[1] == "ccw") if arc else True,
+                          face=ex["face"], treatment=ex["treatment"] or Treatment()))
+    return Loop(tuple(edges))
+
+
+def _part(value: Any, where: str, problems: Problems) -> Part | None:
+    from .shapes import BUILDERS, build
+    d = F.obj(value, where, problems)
+    if d is None:
+        return None
+    F.check_keys(d, PART_KEYS, where, problems)
+    name = F.string(d, "name", where, problems, nonempty=True)
+    material = F.string(d, "material", where, problems, nonempty=True)
+    has_b, has_s = "boundary" in d, "shape" in d
+    if has_b == has_s:
+        problems.add(where, "both 'boundary' and 'shape'" if has_b else "<neither 'boundary' nor 'shape'>",
+                     "exactly one of 'boundary' (a list of edges) or 'shape' (a shape builder)")
+        return None
+    spec = None
+    outer = None
+    if has_b:
+        outer = _loop(d["boundary"], f"{where}.boundary", problems)
+    else:
+        s = F.obj(d["shape"], f"{where}.shape", problems)
+        if s is not None:
+            F.check_keys(s, ("kind", "params", "position", "rotation_deg"), f"{where}.shape", problems)
+            kind = F.string(s, "kind", f"{where}.shape", problems, choices=tuple(BUILDERS))
+            params = F.obj(s.get("params", {}), f"{where}.shape.params", problems)
+            pos = F.point(s, "position", f"{where}.shape", problems, default=(0.0, 0.0))
+            rot = F.number(s, "rotation_deg", f"{where}.shape", problems, default=0.0)
+            if kind is not None and params is not None and pos is not None and rot is not None:
+                spec = ShapeSpec(kind, dict(params), pos, rot)
+                try:
+                    outer = build(spec)
+                except ValueError as exc:
+                    param = getattr(exc, "param", None)
+                    if param is not None:
+                        problems.add(f"{where}.shape.params.{param}", exc.found, exc.expected)
+                    else:
+                        problems.add(f"{where}.shape.params", "<invalid parameters>", str(exc))
+    holes = []
+    for k, h in enumerate(F.array(d.get("holes", []), f"{where}.holes", problems) or []):
+        loop = _loop(h, f"{where}.holes[{k}]", problems)
+        if loop is not None:
+            holes.append(loop)
+    if outer is not None and "faces" in d:
+        outer = _apply_faces(outer, d["faces"], f"{where}.faces", problems)
+    if name is None or material is None or outer is None:
+        return None
+    return Part(name, material, outer, tuple(holes), spec)
+
+
+def _apply_faces(loop: Loop, value: Any, where: str, problems: Problems) -> Loop | None:
+    """Per-face treatments for a built shape: {"output": {"treatment": "anti-reflection"}}."""
+    d = F.obj(value, where, problems)
+    if d is None:
+        return loop
+    names = {e.face for e in loop.edges}
+    edges = list(loop.edges)
+    for face, spec in d.items():
+        w = f"{where}.{_key(face)}"
+        if face not in names:
+            problems.add(w, face, f"a face of this shape: {', '.join(sorted(n for n in names if n))}")
+            continue
+        s = F.obj(spec, w, problems)
+        if s is None:
+            continue
+        F.check_keys(s, ("treatment",), w, problems)
+        if "treatment" in s:
+            t = _treatment(s["treatment"], f"{w}.treatment", problems)
+            if t is not None:
+                edges = [replace(e, treatment=t) if e.face == face else e for e in edges]
+    return Loop(tuple(edges))
+
+
+def _spectrum(value: Any, where: str, problems: Problems) -> Spectrum | None:
+    d = F.obj(value, where, problems)
+    if d is None:
+        return None
+    F.check_keys(d, ("wavelength_nm", "lines", "band"), where, problems)
+    given = [k for k in ("wavelength_nm", "lines", "band") if k in d]
+    if len(given) != 1:
+        problems.add(where, f"<{' and '.join(given) or 'none'} of wavelength_nm, lines, band>",
+                     "exactly one of wavelength_nm, lines [[nm, weight], ...] or band {center_nm, fwhm_nm}")
+        return None
+    wl_rule = dict(minimum=100.0, maximum=20000.0, what="a wavelength in nm")
+    if "wavelength_nm" in d:
+        wl = F.number(d, "wavelength_nm", where, problems, **wl_rule)
+        return None if wl is None else Spectrum.line(wl)
+    if "band" in d:
+        b = F.obj(d["band"], f"{where}.band", problems)
+        if b is None:
+            return None
+        F.check_keys(b, ("center_nm", "fwhm_nm"), f"{where}.band", problems)
+        c = F.number(b, "center_nm", f"{where}.band", problems, **wl_rule)
+        f = F.number(b, "fwhm_nm", f"{where}.band", problems, minimum=0.0, exclusive=True,
+                     what="a width in nm")
+        return None if c is None or f is None else Spectrum.band(c, f)
+    lines = F.array(d["lines"], f"{where}.lines", problems)
+    if not lines:
+        if lines is not None:
+            problems.add(f"{where}.lines", "an empty list", "at least one [wavelength_nm, weight] pair")
+        return None
+    wls, ws = [], []
+    for k, item in enumerate(lines):
+        w = f"{where}.lines[{k}]"
+        if not (isinstance(item, list) and len(item) == 2):
+            problems.add(w, f"<{F.type_name(item)}>", "a pair [wavelength_nm, weight]")
+            continue
+        wl = F.number_value(item[0], f"{w}[0]", problems, **wl_rule)
+        wt = F.number_value(item[1], f"{w}[1]", problems, minimum=0.0, exclusive=True, what="a weight")
+        if wl is not None and wt is not None:
+            wls.append(wl)
+            ws.append(wt)
+    if len(wls) != len(lines):
+        return None
+    return Spectrum(tuple(wls), tuple(ws))
+
+
+def _source(value: Any, where: str, problems: Problems) -> Source | None:
+    d = F.obj(value, where, problems)
+    if d is None:
+        return None
+    F.check_keys(d, SOURCE_KEYS, where, problems)
+    before = len(problems.errors)
+    kw = dict(
+        name=F.string(d, "name", where, problems, nonempty=True),
+        kind=F.string(d, "kind", where, problems, choices=SOURCE_KINDS),
+        position=F.point(d, "position", where, problems),
+        direction_deg=F.number(d, "direction_deg", where, problems, default=0.0, what="an angle in degrees"),
+        width=F.number(d, "width", where, problems, default=1.0, minimum=0.0,
+                       exclusive=d.get("kind") == "beam", what="a width in mm"),
+        half_angle_deg=F.number(d, "half_angle_deg", where, problems, default=90.0, minimum=0.0,
+                                maximum=180.0, what="a half angle in degrees"),
+        distribution=F.string(d, "distribution", where, problems, default="uniform", choices=DISTRIBUTIONS),
+        cos_power=F.number(d, "cos_power", where, problems, default=1.0, minimum=0.0, exclusive=True,
+                           what="an exponent m of cos^m"),
+        flux=F.number(d, "flux", where, problems, default=1.0, minimum=0.0, what="a flux"),
+        polarization=F.string(d, "polarization", where, problems, default="unpolarized", choices=POLARIZATIONS),
+        sampling=F.string(d, "sampling", where, problems, default="even", choices=SAMPLINGS),
+        note=F.string(d, "note", where, problems, default=""),
+    )
+    spectrum = _spectrum(d["spectrum"], f"{where}.spectrum", problems) if "spectrum" in d else Spectrum()
+    if kw["kind"] in ("point", "emitter") and kw["distribution"] != "uniform" and (kw["half_angle_deg"] or 0) > 90:
+        problems.add(f"{where}.half_angle_deg", kw["half_angle_deg"],
+                     "at most 90 for a lambertian or cos_power distribution")
+    if len(problems.errors) > before or spectrum is None:
+        return None
+    return Source(spectrum=spectrum, **kw)
+
+
+def _detector(value: Any, where: str, problems: Problems) -> Detector | None:
+    d = F.obj(value, where, problems)
+    if d is None:
+        return None
+    F.check_keys(d, DETECTOR_KEYS, where, problems)
+    before = len(problems.errors)
+    kw = dict(
+        name=F.string(d, "name", where, problems, nonempty=True),
+        start=F.point(d, "start", where, problems),
+        end=F.point(d, "end", where, problems),
+        absorbing=F.boolean(d, "absorbing", where, problems, default=True),
+        bins=F.integer(d, "bins", where, problems, default=50, minimum=1),
+        angle_bins=F.integer(d, "angle_bins", where, problems, default=36, minimum=1),
+        central_fraction=F.number(d, "central_fraction", where, problems, default=0.8, minimum=0.0,
+                                  exclusive=True, maximum=1.0, what="a fraction"),
+    )
+    if len(problems.errors) > before:
+        return None
+    if math.dist(kw["start"], kw["end"]) <= 0:
+        problems.add(f"{where}.end", list(kw["end"]), "a point different from start (a detector has length)")
+        return None
+    return Detector(**kw)
+
+
+def _settings(value: Any, where: str, problems: Problems) -> TraceSettings | None:
+    d = F.obj(value, where, problems)
+    if d is None:
+        return None
+    F.check_keys(d, TRACE_KEYS, where, problems)
+    base = TraceSettings()
+    kw = dict(
+        rays=F.integer(d, "rays", where, problems, default=base.rays, minimum=0),
+        mode=F.string(d, "mode", where, problems, default=base.mode, choices=MODES),
+        min_relative_flux=F.number(d, "min_relative_flux", where, problems, default=base.min_relative_flux,
+                                   minimum=0.0, maximum=1.0, what="a relative flux"),
+        max_depth=F.integer(d, "max_depth", where, problems, default=base.max_depth, minimum=1),
+        max_segments=F.integer(d, "max_segments", where, problems, default=base.max_segments, minimum=1),
+        seed=F.integer(d, "seed", where, problems, default=base.seed, minimum=0),
+    )
+    if any(v is None for v in kw.values()):
+        return None
+    return TraceSettings(**kw)
+
+
+# ----------------------------------------------------------------------------- saving
+
+def scene_to_dict(scene: Scene) -> dict:
+    out: dict[str, Any] = {"format": FORMAT_NAME, "version": FORMAT_VERSION, "units": dict(UNITS)}
+    if scene.name:
+        out["name"] = scene.name
+    if scene.story:
+        out["story"] = scene.story
+    out["ambient"] = scene.ambient
+    if scene.materials:
+        out["materials"] = {k: m.to_dict() for k, m in scene.materials.items()}
+    out["parts"] = [_part_dict(p) for p in scene.parts]
+    out["sources"] = [_source_dict(s) for s in scene.sources]
+    out["detectors"] = [_detector_dict(d) for d in scene.detectors]
+    out["trace"] = dict(vars(scene.settings))
+    return out
+
+
+def _loop_list(loop: Loop) -> list[dict]:
+    items = []
+    for e in loop.edges:
+        item: dict[str, Any] = {"from": list(e.start)}
+        if e.face:
+            item["face"] = e.face
+        if e.treatment != Treatment():
+            item["treatment"] = e.treatment.to_dict()
+        if e.is_arc:
+            item["arc"] = {"center": list(e.arc_center), "direction": "ccw" if e.ccw else "cw"}
+        items.append(item)
+    return items
+
+
+def _part_dict(p: Part) -> dict:
+    from .shapes import build
+    d: dict[str, Any] = {"name": p.name, "material": p.material}
+    if p.shape is not None:
+        built = build(p.shape)
+        if _same_geometry(built, p.outer):
+            d["shape"] = {"kind": p.shape.kind, "params": p.shape.params,
+                          "position": list(p.shape.position), "rotation_deg": p.shape.rotation_deg}
+            faces = {}
+            for b, e in zip(built.edges, p.outer.edges):
+                if e.treatment != b.treatment and e.face:
+                    faces[e.face] = {"treatment": e.treatment.to_dict()}
+            if faces:
+                d["faces"] = faces
+        else:   # edited by hand since it was built: keep the edges
+            d["boundary"] = _loop_list(p.outer)
+    else:
+        d["boundary"] = _loop_list(p.outer)
+    if p.holes:
+        d["holes"] = [_loop_list(h) for h in p.holes]
+    return d
+
+
+def _same_geometry(a: Loop, b: Loop) -> bool:
+    if len(a.edges) != len(b.edges):
+        return False
+    return all(x.start == y.start and x.end == y.end and x.arc_center == y.arc_center
+               and x.ccw == y.ccw and x.face == y.face for x, y in zip(a.edges, b.edges))
+
+
+def _source_dict(s: Source) -> dict:
+    d: dict[str, Any] = {"name": s.name, "kind": s.kind, "position": list(s.position),
+                         "direction_deg": s.direction_deg}
+    if s.kind in ("beam", "emitter"):
+        d["width"] = s.width
+    if s.kind in ("point", "emitter"):
+        d["half_angle_deg"] = s.half_angle_deg
+        d["distribution"] = s.distribution
+        if s.distribution == "cos_power":
+            d["cos_power"] = s.cos_power
+    d["flux"] = s.flux
+    sp = s.spectrum
+    if sp.is_band:
+        d["spectrum"] = {"band": {"center_nm": sp.band_center_nm, "fwhm_nm": sp.band_fwhm_nm}}
+    elif len(sp.wavelengths_nm) == 1:
+        d["spectrum"] = {"wavelength_nm": sp.wavelengths_nm[0]}
+    else:
+        d["spectrum"] = {"lines": [[w, v] for w, v in zip(sp.wavelengths_nm, sp.weights)]}
+    d["polarization"] = s.polarization
+    d["sampling"] = s.sampling
+    if s.note:
+        d["note"] = s.note
+    return d
+
+
+def _detector_dict(det: Detector) -> dict:
+    return {"name": det.name, "start": list(det.start), "end": list(det.end), "absorbing": det.absorbing,
+            "bins": det.bins, "angle_bins": det.angle_bins, "central_fraction": det.central_fraction}
+
+
+def scene_to_text(scene: Scene) -> str:
+    return json.dumps(scene_to_dict(scene), indent=2, allow_nan=False) + "\n"
+
+
+def atomic_write_text(path: str | os.PathLike, text: str) -> None:
+    """Write beside the target, flush to disk, then rename over it: all or nothing."""
+    path = Path(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=str(path.parent or "."))
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+
+
+def save_scene(scene: Scene, path: str | os.PathLike) -> None:
+    atomic_write_text(path, scene_to_text(scene))

@@ -1,0 +1,193 @@
+"""Turn source descriptions into starting rays (structure of arrays).
+
+Two sampling styles:
+- even:   a regular fan (for display and for deterministic figures); rays are spaced evenly in
+          position and angle and each ray carries the flux its share of the distribution holds;
+- random: seeded and stratified (one random point in each of n equal-probability strata), every
+          ray carrying the same flux; this is what statistics want.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from .scene import (BEAM, COS_POWER, EMITTER, EVEN, LAMBERTIAN, P_POL, POINT, S_POL, Source,
+                    Spectrum)
+
+
+@dataclass
+class StartRays:
+    x: np.ndarray
+    y: np.ndarray
+    dx: np.ndarray
+    dy: np.ndarray
+    wavelength: np.ndarray
+    flux_s: np.ndarray
+    flux_p: np.ndarray
+    source: np.ndarray     # index of the source each ray came from
+
+    def __len__(self) -> int:
+        return len(self.x)
+
+    @property
+    def flux(self) -> np.ndarray:
+        return self.flux_s + self.flux_p
+
+    @classmethod
+    def concat(cls, parts: list["StartRays"]) -> "StartRays":
+        if not parts:
+            z = np.zeros(0)
+            return cls(z, z, z, z, z, z, z, np.zeros(0, dtype=np.int64))
+        return cls(*(np.concatenate([getattr(p, f) for p in parts]) for f in
+                     ("x", "y", "dx", "dy", "wavelength", "flux_s", "flux_p", "source")))
+
+    def take(self, idx) -> "StartRays":
+        return StartRays(*(getattr(self, f)[idx] for f in
+                           ("x", "y", "dx", "dy", "wavelength", "flux_s", "flux_p", "source")))
+
+
+def allocate_rays(sources: list[Source], n_rays: int) -> list[int]:
+    """Split n_rays over the sources in proportion to their flux, at least one each."""
+    fluxes = np.array([max(s.flux, 0.0) for s in sources], dtype=float)
+    if len(sources) == 0 or n_rays <= 0:
+        return [0] * len(sources)
+    if fluxes.sum() <= 0:
+        fluxes = np.ones(len(sources))
+    share = fluxes / fluxes.sum() * n_rays
+    counts = np.maximum(np.floor(share).astype(int), 1)
+    # hand the remainder to the largest fractional parts, deterministically
+    while counts.sum() < n_rays:
+        counts[int(np.argmax(share - counts))] += 1
+    return [int(c) for c in counts]
+
+
+def sample_sources(sources: list[Source], n_rays: int, seed: int = 1,
+                   sampling: str | None = None) -> StartRays:
+    """Starting rays for all sources.  `sampling` overrides each source's own style."""
+    rng = np.random.default_rng(seed)
+    out = []
+    for index, (src, count) in enumerate(zip(sources, allocate_rays(sources, n_rays))):
+        if count == 0:
+            continue
+        rays = sample_source(src, count, rng, sampling or src.sampling)
+        rays.source[:] = index
+        out.append(rays)
+    return StartRays.concat(out)
+
+
+def sample_source(src: Source, n: int, rng: np.random.Generator, sampling: str) -> StartRays:
+    even = sampling == EVEN
+    base = math.radians(src.direction_deg)
+    if src.kind == BEAM:
+        offsets = _positions(src.width, n, rng, even)
+        angles = np.zeros(n)
+        weights = np.full(n, 1.0 / n)
+    elif src.kind == POINT:
+        offsets = np.zeros(n)
+        angles, weights = _angles(src, n, rng, even)
+    elif src.kind == EMITTER:
+        if even:
+            n_pos = max(1, int(round(math.sqrt(n))))
+            n_ang = max(1, n // n_pos)
+            pos = _positions(src.width, n_pos, rng, True)
+            ang, w = _angles(src, n_ang, rng, True)
+            offsets = np.repeat(pos, n_ang)
+            angles = np.tile(ang, n_pos)
+            weights = np.tile(w, n_pos) / n_pos
+            # fill up to n with a second, finer fan at the centre so the count is exact
+            extra = n - len(offsets)
+            if extra > 0:
+                ea, ew = _angles(src, extra, rng, True)
+                offsets = np.concatenate([offsets, np.zeros(extra)])
+                angles = np.concatenate([angles, ea])
+                weights = np.concatenate([weights * (len(weights) / n), ew * (extra / n)])
+        else:
+            offsets = _positions(src.width, n, rng, False)
+            angles, weights = _angles(src, n, rng, False)
+            rng.shuffle(offsets)   # decorrelate the two stratifications
+    else:
+        raise ValueError(f"source {src.name!r}: unknown kind {src.kind!r}")
+
+    theta = base + angles
+    # positions spread along the line across the main direction
+    px, py = -math.sin(base), math.cos(base)
+    x = src.position[0] + offsets * px
+    y = src.position[1] + offsets * py
+    flux = src.flux * weights / weights.sum()
+    wl = sample_spectrum(src.spectrum, n, rng, even)
+    if src.polarization == S_POL:
+        fs, fp = flux, np.zeros(n)
+    elif src.polarization == P_POL:
+        fs, fp = np.zeros(n), flux
+    else:
+        fs, fp = flux / 2, flux / 2
+    return StartRays(x, y, np.cos(theta), np.sin(theta), wl, fs, fp, np.zeros(n, dtype=np.int64))
+
+
+def _strata(n: int, rng: np.random.Generator, even: bool) -> np.ndarray:
+    """n points in (0, 1): centres of n equal strata, or one random point in each."""
+    k = np.arange(n)
+    return (k + (0.5 if even else rng.random(n))) / n
+
+
+def _positions(width: float, n: int, rng, even: bool) -> np.ndarray:
+    return (_strata(n, rng, even) - 0.5) * width
+
+
+def _intensity(src: Source, theta: np.ndarray) -> np.ndarray:
+    c = np.clip(np.cos(theta), 0.0, None)
+    if src.distribution == LAMBERTIAN:
+        return c
+    if src.distribution == COS_POWER:
+        return c ** src.cos_power
+    return np.ones_like(theta)
+
+
+def _angles(src: Source, n: int, rng, even: bool) -> tuple[np.ndarray, np.ndarray]:
+    """Angles about the source direction and the flux weight each carries."""
+    h = math.radians(min(max(src.half_angle_deg, 0.0), 90.0 if src.distribution != "uniform" else 180.0))
+    if even:
+        # an even fan: equal angle steps, each ray weighted by the intensity it stands for
+        theta = (_strata(n, rng, True) - 0.5) * 2 * h
+        w = _intensity(src, theta)
+        if w.sum() <= 0:
+            w = np.ones(n)
+        return theta, w
+    u = _strata(n, rng, False)
+    rng.shuffle(u)
+    if src.distribution == LAMBERTIAN:
+        # inverse CDF of cos t on [-h, h]: sin t is uniform
+        s = math.sin(h)
+        return np.arcsin((2 * u - 1) * s), np.ones(n)
+    if src.distribution == COS_POWER:
+        grid = np.linspace(-h, h, 4097)
+        pdf = np.clip(np.cos(grid), 0, None) ** src.cos_power
+        cdf = np.concatenate([[0.0], np.cumsum(0.5 * (pdf[1:] + pdf[:-1]) * np.diff(grid))])
+        cdf /= cdf[-1]
+        return np.interp(u, cdf, grid), np.ones(n)
+    return (2 * u - 1) * h, np.ones(n)
+
+
+def sample_spectrum(spec: Spectrum, n: int, rng, even: bool) -> np.ndarray:
+    if spec.is_band:
+        sigma = spec.band_fwhm_nm / (2 * math.sqrt(2 * math.log(2)))
+        if even:
+            # a fixed set of Gaussian quantiles, repeated: few distinct wavelengths keep the
+            # per-wavelength index table small
+            k = min(n, 64)
+            from statistics import NormalDist
+            q = np.array([NormalDist(spec.band_center_nm, sigma).inv_cdf((i + 0.5) / k) for i in range(k)])
+            return np.resize(q, n)
+        return rng.normal(spec.band_center_nm, sigma, n)
+    wls = np.asarray(spec.wavelengths_nm, dtype=float)
+    if len(wls) == 1:
+        return np.full(n, wls[0])
+    w = np.asarray(spec.weights, dtype=float)
+    p = w / w.sum()
+    if even:
+        # deterministic allocation in proportion to the weights, interleaved
+        edges = np.cumsum(p)
+        return wls[np.searchsorted(edges, _strata(n, rng, True))]
+    return rng.permutation(wls[np.searchsorted(np.cumsum(p), _strata(n, rng, False))])
