@@ -3,6 +3,8 @@ from __future__ import annotations
 
 from dataclasses import asdict
 
+import numpy as np
+
 from .compile import CompiledScene, compile_scene
 from .ledger import Ledger
 from .results import TraceResult
@@ -38,4 +40,7 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
     ledger = Ledger(cs, raw.bins, raw.source_flux)
     settings = {"rays": rays, "mode": mode, "seed": seed, **asdict(limits),
                 "sampling": sampling or "per source", "source_names": [src.name for src in scene.sources]}
+    if len(start) and bool((start.source[1:] >= start.source[:-1]).all()):
+        # rays are numbered source by source: lets the ray table name each ray's source
+        settings["source_ray_counts"] = np.bincount(start.source, minlength=len(scene.sources)).tolist()
     return TraceResult(cs, raw, ledger, mode, settings)
