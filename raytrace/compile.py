@@ -80,15 +80,22 @@ def flatten_tolerance(scene: Scene) -> float:
     return 1e-5 * scene.size_hint()
 
 
-def resolve_materials(scene: Scene, problems: Problems) -> dict[str, Material]:
-    """Every material name used by the scene, resolved against user materials then the catalog."""
+def resolve_materials(scene: Scene, problems: Problems, part_paths: list[str] | None = None,
+                      skip: frozenset[str] = frozenset()) -> dict[str, Material]:
+    """Every material name used by the scene, resolved against user materials then the catalog.
+
+    `part_paths` gives each part's JSON path when the parts list skips parts that failed to
+    load; names in `skip` (user materials that failed to load) are not reported a second time."""
     from .catalog import CATALOG, close_matches
     found: dict[str, Material] = {}
-    wanted = [("$.ambient", scene.ambient)] + [(f"$.parts[{i}].material", p.material)
+    paths = part_paths or [f"$.parts[{i}]" for i in range(len(scene.parts))]
+    wanted = [("$.ambient", scene.ambient)] + [(f"{paths[i]}.material", p.material)
                                                for i, p in enumerate(scene.parts)]
     for path, name in wanted:
         m = lookup(name, scene.materials)
         if m is None:
+            if name in skip:
+                continue
             names = sorted(set(CATALOG) | set(scene.materials))
             hint = close_matches(name, names)
             expected = "a catalog or user material name"
@@ -99,56 +106,85 @@ def resolve_materials(scene: Scene, problems: Problems) -> dict[str, Material]:
     return found
 
 
-def check_geometry(scene: Scene, problems: Problems) -> None:
+def check_geometry(scene: Scene, problems: Problems, part_paths: list[str] | None = None) -> None:
     """Report every geometric problem: open, degenerate or self-intersecting loops, bad holes,
-    duplicate part names, and partial overlaps between parts."""
-    import shapely
+    duplicate part names, and partial overlaps between parts.
+
+    `part_paths` gives each part's JSON path (parts that failed to load are not in the list)."""
     tol = flatten_tolerance(scene)
-    size = scene.size_hint()
+    paths = part_paths or [f"$.parts[{i}]" for i in range(len(scene.parts))]
     polys: list = []
     seen: dict[str, int] = {}
     for i, part in enumerate(scene.parts):
-        path = f"$.parts[{i}]"
+        path = paths[i]
         if part.name in seen:
-            problems.add(f"{path}.name", part.name, f"a name not already used by $.parts[{seen[part.name]}]")
+            problems.add(f"{path}.name", part.name, f"a name not already used by {paths[seen[part.name]]}")
         seen.setdefault(part.name, i)
-        ok = True
-        for k, loop in enumerate(part.loops):
-            lpath = f"{path}.boundary" if k == 0 else f"{path}.holes[{k - 1}]"
-            if len(loop.edges) < 2 or (len(loop.edges) == 2 and not any(e.is_arc for e in loop.edges)):
-                problems.add(lpath, f"{len(loop.edges)} edge(s)", "a closed boundary of at least 3 edges (or 2 with an arc)")
-                ok = False
-                continue
-            gap = loop.closure_gap()
-            if gap > 1e-9 * max(size, 1.0):
-                problems.add(lpath, f"a gap of {gap:.3g} mm between consecutive edges", "a closed boundary")
-                ok = False
-            for j, e in enumerate(loop.edges):
-                if e.is_arc and abs(math.dist(e.start, e.arc_center) - math.dist(e.end, e.arc_center)) > 1e-7 * max(e.radius, 1e-9):
-                    problems.add(f"{lpath}[{j}].arc.center", list(e.arc_center),
-                                 "a centre equally far from the edge's start and end")
-                    ok = False
-                if e.length() <= 1e-12 * max(size, 1.0):
-                    problems.add(f"{lpath}[{j}]", "an edge of zero length", "distinct start and end points")
-                    ok = False
-            if ok and abs(loop.signed_area()) <= 1e-12 * max(size, 1e-6) ** 2:
-                problems.add(lpath, "zero enclosed area", "a boundary that encloses an area")
-                ok = False
-            if ok:
-                ring = shapely.LinearRing(loop.coords(tol))
-                if not ring.is_simple:
-                    where = _self_crossing(ring)
-                    problems.add(lpath, f"a boundary that crosses itself{where}", "a simple (non-self-intersecting) boundary")
-                    ok = False
-        if ok:
-            poly = part.to_shapely(tol)
-            if not poly.is_valid:
-                problems.add(f"{path}.holes", shapely.is_valid_reason(poly), "holes strictly inside the outer boundary and apart from each other")
-                ok = False
-            polys.append(poly if ok else None)
-        else:
+        try:
+            polys.append(_check_part(part, path, scene.size_hint(), tol, problems))
+        except (ArithmeticError, ValueError, shapely_error()) as exc:
+            # coordinates so extreme that measuring them fails: say so instead of crashing
+            problems.add(path, f"<geometry that cannot be measured: {exc}>",
+                         "coordinates and radii of ordinary size (mm)")
             polys.append(None)
-    # partial overlaps: nesting (one inside the other) and touching are fine
+    _check_overlaps(scene, polys, paths, tol, problems)
+
+
+def shapely_error():
+    import shapely.errors
+    return shapely.errors.ShapelyError
+
+
+def _check_part(part: Part, path: str, size: float, tol: float, problems: Problems):
+    """Check one part's loops; return its shapely polygon, or None when it is unusable."""
+    import shapely
+    ok = True
+    for k, loop in enumerate(part.loops):
+        lpath = f"{path}.boundary" if k == 0 else f"{path}.holes[{k - 1}]"
+        if part.shape is not None and k == 0:
+            lpath = f"{path}.shape"
+        if len(loop.edges) < 2 or (len(loop.edges) == 2 and not any(e.is_arc for e in loop.edges)):
+            problems.add(lpath, f"<{len(loop.edges)} edge(s)>", "a closed boundary of at least 3 edges (or 2 with an arc)")
+            ok = False
+            continue
+        loop_ok = True
+        gap = loop.closure_gap()
+        if gap > 1e-9 * max(size, 1.0):
+            problems.add(lpath, f"<a gap of {gap:.3g} mm between consecutive edges>", "a closed boundary")
+            loop_ok = False
+        for j, e in enumerate(loop.edges):
+            if e.is_arc and abs(math.dist(e.start, e.arc_center) - math.dist(e.end, e.arc_center)) > 1e-7 * max(e.radius, 1e-9):
+                problems.add(f"{lpath}[{j}].arc.center", list(e.arc_center),
+                             "a centre equally far from the edge's start and end")
+                loop_ok = False
+            if e.length() <= 1e-12 * max(size, 1.0):
+                problems.add(f"{lpath}[{j}]", "<an edge of zero length>", "distinct start and end points")
+                loop_ok = False
+        if loop_ok:
+            # a crossing first: a symmetric figure-eight also has zero signed area, and the
+            # crossing is what the user has to fix
+            ring = shapely.LinearRing(loop.coords(tol))
+            if not ring.is_simple:
+                where = _self_crossing(ring)
+                problems.add(lpath, f"<a boundary that crosses itself{where}>", "a simple (non-self-intersecting) boundary")
+                loop_ok = False
+            elif abs(loop.signed_area()) <= 1e-12 * max(size, 1e-6) ** 2:
+                problems.add(lpath, "<zero enclosed area>", "a boundary that encloses an area")
+                loop_ok = False
+        ok = ok and loop_ok
+    if not ok:
+        return None
+    poly = part.to_shapely(tol)
+    if not poly.is_valid:
+        problems.add(f"{path}.holes", f"<{shapely.is_valid_reason(poly)}>",
+                     "holes strictly inside the outer boundary and apart from each other")
+        return None
+    return poly
+
+
+def _check_overlaps(scene: Scene, polys: list, paths: list[str], tol: float, problems: Problems) -> None:
+    """Partial overlaps are errors; nesting (one inside the other) and touching are fine."""
+    size = scene.size_hint()
     for i in range(len(polys)):
         for j in range(i + 1, len(polys)):
             a, b = polys[i], polys[j]
@@ -160,7 +196,8 @@ def check_geometry(scene: Scene, problems: Problems) -> None:
                 continue
             if b.difference(a).area <= area_tol or a.difference(b).area <= area_tol:
                 continue   # nested
-            problems.add(f"$.parts[{j}]", f"part {scene.parts[j].name!r} overlapping part {scene.parts[i].name!r} by {inter:.6g} mm^2",
+            problems.add(paths[j], f"<part {scene.parts[j].name!r} overlapping part {scene.parts[i].name!r} "
+                                   f"({paths[i]}) by {inter:.6g} mm^2>",
                          "parts that are apart, touch along a boundary, or lie wholly one inside the other")
 
 

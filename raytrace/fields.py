@@ -11,6 +11,11 @@ from typing import Any
 from .errors import Problems
 
 MISSING = "<missing>"
+# Largest coordinate or length a scene may hold (mm): 1 km is far beyond any bench, and keeps
+# squared distances and tolerances well inside double precision.
+MAX_COORD = 1e6
+# Largest repeat count a shape builder may be asked for (prisms in a strip, polygon sides).
+MAX_COUNT = 100_000
 
 
 class NonFinite:
@@ -42,7 +47,13 @@ def type_name(value: Any) -> str:
 
 
 def is_number(value: Any) -> bool:
-    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+    """A finite JSON number.  Integers too large for a float (JSON allows any digits) are not."""
+    if not isinstance(value, (int, float)) or isinstance(value, bool):
+        return False
+    try:
+        return math.isfinite(value)
+    except OverflowError:
+        return False
 
 
 def check_keys(obj: dict, accepted: tuple[str, ...], path: str, problems: Problems) -> None:
@@ -81,6 +92,8 @@ def number_value(value: Any, where: str, problems: Problems, minimum: float | No
 def _number_phrase(what: str, minimum, exclusive, maximum) -> str:
     phrase = f"{what} (finite)" if minimum is None and maximum is None else what
     if minimum is not None and maximum is not None:
+        if exclusive:
+            return f"{what} greater than {minimum:g} and at most {maximum:g}"
         return f"{what} from {minimum:g} to {maximum:g}"
     if minimum is not None:
         return f"{what} {'greater than' if exclusive else 'at least'} {minimum:g}"
@@ -90,18 +103,20 @@ def _number_phrase(what: str, minimum, exclusive, maximum) -> str:
 
 
 def integer(obj: dict, key: str, path: str, problems: Problems, default: Any = MISSING,
-            minimum: int | None = None) -> int | None:
+            minimum: int | None = None, maximum: int | None = None) -> int | None:
+    expected = "a whole number" + (f" at least {minimum}" if minimum is not None else "")
+    if maximum is not None:
+        expected += f"{' and' if minimum is not None else ''} at most {maximum}"
     if key not in obj:
         if default is MISSING:
-            problems.add(f"{path}.{key}", MISSING, "a whole number")
+            problems.add(f"{path}.{key}", MISSING, expected)
             return None
         return default
     v = obj[key]
-    expected = "a whole number" + (f" at least {minimum}" if minimum is not None else "")
     if not is_number(v) or float(v) != int(v):
         problems.add(f"{path}.{key}", f"<{type_name(v)}>", expected)
         return None
-    if minimum is not None and v < minimum:
+    if (minimum is not None and v < minimum) or (maximum is not None and v > maximum):
         problems.add(f"{path}.{key}", v, expected)
         return None
     return int(v)
@@ -147,9 +162,16 @@ def point(obj: dict, key: str, path: str, problems: Problems, default: Any = MIS
 
 
 def point_value(v: Any, where: str, problems: Problems) -> tuple[float, float] | None:
+    expected = f"a point [x, y] of two finite numbers (mm) of magnitude at most {MAX_COORD:g}"
     if not (isinstance(v, list) and len(v) == 2 and all(is_number(c) for c in v)):
-        problems.add(where, f"<{type_name(v)}>" if not isinstance(v, list) else v if len(v) != 2 else
-                     [type_name(c) for c in v], "a point [x, y] of two finite numbers (mm)")
+        if isinstance(v, list) and len(v) <= 4:
+            found = "<[" + ", ".join(type_name(c) for c in v) + "]>"
+        else:
+            found = f"<{type_name(v)}>"
+        problems.add(where, found, expected)
+        return None
+    if any(abs(c) > MAX_COORD for c in v):
+        problems.add(where, v, expected)
         return None
     return (float(v[0]), float(v[1]))
 

@@ -34,6 +34,7 @@ SOURCE_KEYS = ("name", "kind", "position", "direction_deg", "width", "half_angle
 DETECTOR_KEYS = ("name", "start", "end", "absorbing", "bins", "angle_bins", "central_fraction")
 TRACE_KEYS = ("rays", "mode", "min_relative_flux", "max_depth", "max_segments", "seed")
 MODES = ("branching", "monte_carlo")
+MAX_BINS = 1_000_000   # histogram bins per detector: beyond this a histogram is only memory
 
 
 # ----------------------------------------------------------------------------- loading
@@ -89,18 +90,22 @@ def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
     ambient = F.string(top, "ambient", "$", problems, default="air", nonempty=True)
 
     materials = {}
+    failed_materials: set[str] = set()
     mats = top.get("materials", {})
     if F.obj(mats, "$.materials", problems) is not None:
         for mname, mdata in mats.items():
             m = material_from_dict(mname, mdata, f"$.materials.{_key(mname)}", problems)
             if m is not None:
                 materials[mname] = m
+            else:
+                failed_materials.add(mname)
 
-    parts = []
+    parts, part_paths = [], []
     for i, pdata in enumerate(_list(top, "parts", "$", problems)):
         part = _part(pdata, f"$.parts[{i}]", problems)
         if part is not None:
             parts.append(part)
+            part_paths.append(f"$.parts[{i}]")
     sources = []
     for i, sdata in enumerate(_list(top, "sources", "$", problems)):
         src = _source(sdata, f"$.sources[{i}]", problems)
@@ -118,10 +123,9 @@ def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
     scene = Scene(parts=parts, sources=sources, detectors=detectors, materials=materials,
                   ambient=ambient or "air", settings=settings or TraceSettings(), story=story or "",
                   name=name or "")
-    # scene-level checks only make sense once every part was read
-    if not problems.errors:
-        resolve_materials(scene, problems)
-        check_geometry(scene, problems)
+    # scene-level checks run on every part that could be read, so one pass reports all problems
+    resolve_materials(scene, problems, part_paths, skip=frozenset(failed_materials))
+    check_geometry(scene, problems, part_paths)
     problems.raise_if_errors()
     return scene
 
@@ -236,11 +240,13 @@ def _part(value: Any, where: str, problems: Problems) -> Part | None:
             params = F.obj(s.get("params", {}), f"{where}.shape.params", problems)
             pos = F.point(s, "position", f"{where}.shape", problems, default=(0.0, 0.0))
             rot = F.number(s, "rotation_deg", f"{where}.shape", problems, default=0.0)
+            if params is not None and kind is not None and not _params_in_range(kind, params, f"{where}.shape.params", problems):
+                params = None
             if kind is not None and params is not None and pos is not None and rot is not None:
                 spec = ShapeSpec(kind, dict(params), pos, rot)
                 try:
                     outer = build(spec)
-                except ValueError as exc:
+                except (ValueError, ArithmeticError) as exc:
                     param = getattr(exc, "param", None)
                     if param is not None:
                         problems.add(f"{where}.shape.params.{param}", exc.found, exc.expected)
@@ -256,6 +262,30 @@ def _part(value: Any, where: str, problems: Problems) -> Part | None:
     if name is None or material is None or outer is None:
         return None
     return Part(name, material, outer, tuple(holes), spec)
+
+
+def _params_in_range(kind: str, params: dict, where: str, problems: Problems) -> bool:
+    """Screen builder parameters for sizes no scene needs before building: a radius of 1e308
+    breaks arc flattening, and a count of a billion prisms would hang the loader."""
+    from .shapes import PARAMETERS
+    ok = True
+    counts = {p.name for p in PARAMETERS.get(kind, ()) if p.type == "integer"}
+
+    def walk(value, w, key):
+        nonlocal ok
+        if isinstance(value, dict):
+            for k, v in value.items():
+                walk(v, f"{w}.{_key(str(k))}", k)
+        elif isinstance(value, list):
+            for k, v in enumerate(value):
+                walk(v, f"{w}[{k}]", key)
+        elif F.is_number(value):
+            limit = F.MAX_COUNT if key in counts else F.MAX_COORD
+            if abs(value) > limit:
+                problems.add(w, value, f"a value of magnitude at most {limit:g}")
+                ok = False
+    walk(params, where, None)
+    return ok
 
 
 def _apply_faces(loop: Loop, value: Any, where: str, problems: Problems) -> Loop | None:
@@ -336,7 +366,7 @@ def _source(value: Any, where: str, problems: Problems) -> Source | None:
         kind=F.string(d, "kind", where, problems, choices=SOURCE_KINDS),
         position=F.point(d, "position", where, problems),
         direction_deg=F.number(d, "direction_deg", where, problems, default=0.0, what="an angle in degrees"),
-        width=F.number(d, "width", where, problems, default=1.0, minimum=0.0,
+        width=F.number(d, "width", where, problems, default=1.0, minimum=0.0, maximum=F.MAX_COORD,
                        exclusive=d.get("kind") == "beam", what="a width in mm"),
         half_angle_deg=F.number(d, "half_angle_deg", where, problems, default=90.0, minimum=0.0,
                                 maximum=180.0, what="a half angle in degrees"),
@@ -368,8 +398,8 @@ def _detector(value: Any, where: str, problems: Problems) -> Detector | None:
         start=F.point(d, "start", where, problems),
         end=F.point(d, "end", where, problems),
         absorbing=F.boolean(d, "absorbing", where, problems, default=True),
-        bins=F.integer(d, "bins", where, problems, default=50, minimum=1),
-        angle_bins=F.integer(d, "angle_bins", where, problems, default=36, minimum=1),
+        bins=F.integer(d, "bins", where, problems, default=50, minimum=1, maximum=MAX_BINS),
+        angle_bins=F.integer(d, "angle_bins", where, problems, default=36, minimum=1, maximum=MAX_BINS),
         central_fraction=F.number(d, "central_fraction", where, problems, default=0.8, minimum=0.0,
                                   exclusive=True, maximum=1.0, what="a fraction"),
     )
