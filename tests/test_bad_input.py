@@ -1,0 +1,238 @@
+"""Bad scene files: every problem is reported at once, readably, and the file is left alone.
+
+Each problem must name the file, the JSON path of the field, what was found and what was
+expected (common practice for validators: report all problems, point at the field).
+"""
+from __future__ import annotations
+
+import copy
+import json
+import os
+from pathlib import Path
+
+import pytest
+
+from raytrace.cli import main
+from raytrace.errors import SceneError
+from raytrace.scene_io import load_scene
+
+SAMPLES = Path(__file__).parent.parent / "samples"
+WINDOW = json.loads((SAMPLES / "oblique-window.json").read_text(encoding="utf-8"))
+
+
+def _square(name, x0, y0, side, material="PMMA"):
+    pts = [[x0, y0], [x0 + side, y0], [x0 + side, y0 + side], [x0, y0 + side]]
+    return {"name": name, "material": material, "boundary": [{"from": p} for p in pts]}
+
+
+def _write(tmp_path: Path, data=None, text: str | None = None, name="scene.json") -> Path:
+    f = tmp_path / name
+    f.write_text(text if text is not None else json.dumps(data, indent=2), encoding="utf-8")
+    return f
+
+
+def _problems(f: Path):
+    """Load `f`, expecting failure; check the file is unchanged and every message is complete."""
+    before, mtime = f.read_bytes(), os.stat(f).st_mtime_ns
+    with pytest.raises(SceneError) as info:
+        load_scene(f)
+    assert f.read_bytes() == before and os.stat(f).st_mtime_ns == mtime, "a failed load changed the file"
+    for p in info.value.problems:
+        text = str(p)
+        assert text.startswith(f"{f}: $"), text
+        assert "found " in text and "; expected " in text, text
+        assert "Traceback" not in text
+    return info.value.problems
+
+
+def _one(problems, path):
+    hits = [p for p in problems if p.path == path]
+    assert len(hits) == 1, [str(p) for p in problems]
+    return hits[0]
+
+
+def _scene(**changes):
+    d = copy.deepcopy(WINDOW)
+    d.update(changes)
+    return d
+
+
+def test_malformed_json_names_line_and_column(tmp_path):
+    f = _write(tmp_path, text='{\n  "format": "raytrace2d-scene",\n  "version": 1,,\n}\n')
+    (p,) = _problems(f)
+    assert p.path == "$"
+    assert "line 3 column 16" in p.found, p.found   # the second comma
+    assert p.expected == "valid JSON"
+
+
+def test_truncated_file_is_malformed_json(tmp_path):
+    text = (SAMPLES / "oblique-window.json").read_text(encoding="utf-8")
+    f = _write(tmp_path, text=text[: len(text) // 2])
+    (p,) = _problems(f)
+    assert "malformed JSON at line" in p.found
+
+
+def test_missing_field_is_named(tmp_path):
+    d = _scene()
+    del d["parts"][0]["material"]
+    p = _one(_problems(_write(tmp_path, d)), "$.parts[0].material")
+    assert p.found == "<missing>"
+
+
+def test_mistyped_field_says_what_was_found(tmp_path):
+    d = _scene()
+    d["detectors"][0]["bins"] = "sixty"
+    d["sources"][0]["position"] = "here"
+    probs = _problems(_write(tmp_path, d))
+    assert "'sixty'" in _one(probs, "$.detectors[0].bins").found
+    p = _one(probs, "$.sources[0].position")
+    assert "'here'" in p.found and "point [x, y]" in p.expected
+
+
+def test_unknown_keys_are_reported_with_the_accepted_ones(tmp_path):
+    d = _scene()
+    d["colour"] = "red"
+    d["sources"][0]["power"] = 2
+    probs = _problems(_write(tmp_path, d))
+    assert "flux" in _one(probs, "$.sources[0].power").expected
+    assert "parts" in _one(probs, "$.colour").expected
+
+
+def test_unknown_material_suggests_close_names(tmp_path):
+    d = _scene()
+    d["parts"][0]["material"] = "fused silca"
+    p = _one(_problems(_write(tmp_path, d)), "$.parts[0].material")
+    assert p.found == "'fused silca'"
+    assert "'fused silica'" in p.expected
+
+
+def test_unknown_material_in_another_case_suggests_the_right_case(tmp_path):
+    d = _scene()
+    d["parts"][0]["material"] = "pmma"
+    p = _one(_problems(_write(tmp_path, d)), "$.parts[0].material")
+    assert "'PMMA'" in p.expected
+
+
+@pytest.mark.parametrize("where, value", [
+    (("parts", 0, "shape", "params", "thickness"), 0),
+    (("parts", 0, "shape", "params", "height"), -4.0),
+    (("sources", 0, "width"), 0),
+    (("detectors", 0, "bins"), 0),
+])
+def test_non_positive_sizes_are_rejected(tmp_path, where, value):
+    d = _scene()
+    node = d
+    for k in where[:-1]:
+        node = node[k]
+    node[where[-1]] = value
+    path = "$." + ".".join(f"{k}" if isinstance(k, str) else f"[{k}]" for k in where).replace(".[", "[")
+    p = _one(_problems(_write(tmp_path, d)), path)
+    assert p.found == json.dumps(value)
+    assert "greater than 0" in p.expected or "at least 1" in p.expected
+
+
+@pytest.mark.parametrize("token", ["NaN", "Infinity", "-Infinity"])
+def test_non_finite_numbers_are_rejected(tmp_path, token):
+    text = json.dumps(_scene(), indent=2)
+    text = text.replace('"direction_deg": 45.0', f'"direction_deg": {token}')
+    text = text.replace('"thickness": 10.0', f'"thickness": {token}')
+    text = text.replace('"start": [\n        30.0', f'"start": [\n        {token}')
+    probs = _problems(_write(tmp_path, text=text))
+    assert token in _one(probs, "$.sources[0].direction_deg").found
+    assert token in _one(probs, "$.parts[0].shape.params.thickness").found
+    assert token in _one(probs, "$.detectors[0].start").found
+
+
+def test_self_intersecting_boundary(tmp_path):
+    # a bow tie: the edges (0,0)-(10,10) and (10,0)-(0,10) cross at (5,5)
+    d = _scene(parts=[{"name": "bow tie", "material": "PMMA", "boundary": [
+        {"from": [0, 0]}, {"from": [10, 10]}, {"from": [10, 0]}, {"from": [0, 10]}]}])
+    p = _one(_problems(_write(tmp_path, d)), "$.parts[0].boundary")
+    assert "crosses itself" in p.found and "5 5" in p.found
+    assert "simple" in p.expected
+
+
+def test_overlapping_parts_name_both_and_the_overlap_area(tmp_path):
+    # squares [0,10]^2 and [6,16]x[7,17] overlap in a 4 x 3 = 12 mm^2 rectangle
+    a = _square("left block", 0, 0, 10)
+    b = _square("right block", 6, 7, 10)
+    d = _scene(parts=[a, b])
+    p = _one(_problems(_write(tmp_path, d)), "$.parts[1]")
+    assert "'left block'" in p.found and "'right block'" in p.found
+    assert "by 12 mm^2" in p.found
+
+
+def test_index_below_one_needs_to_be_asked_for(tmp_path):
+    d = _scene(materials={"plasma": {"model": "constant", "n": 0.9}})
+    d["parts"][0]["material"] = "plasma"
+    p = _one(_problems(_write(tmp_path, d)), "$.materials.plasma.n")
+    assert "allow_index_below_one" in p.expected
+    # the same material with the flag set loads
+    d["materials"]["plasma"]["allow_index_below_one"] = True
+    scene = load_scene(_write(tmp_path, d, name="asked.json"))
+    assert scene.materials["plasma"].allow_index_below_one
+
+
+def test_failed_user_material_is_not_also_reported_as_unknown(tmp_path):
+    d = _scene(materials={"resin": {"model": "constant", "n": "1.5"}})
+    d["parts"][0]["material"] = "resin"
+    probs = _problems(_write(tmp_path, d))
+    assert [p.path for p in probs] == ["$.materials.resin.n"]
+
+
+def test_five_distinct_problems_give_five_messages(tmp_path):
+    d = _scene()
+    d["parts"][0]["material"] = "crown glas"                # unknown material
+    d["sources"][0]["flux"] = -1                            # negative flux
+    d["detectors"][0]["central_fraction"] = 2               # out of range
+    d["trace"]["mode"] = "fast"                             # not a mode
+    d["parts"].append({"name": "bow tie", "material": "PMMA", "boundary": [   # crosses itself
+        {"from": [50, 0]}, {"from": [60, 10]}, {"from": [60, 0]}, {"from": [50, 10]}]})
+    probs = _problems(_write(tmp_path, d))
+    assert sorted(p.path for p in probs) == sorted([
+        "$.parts[0].material", "$.sources[0].flux", "$.detectors[0].central_fraction",
+        "$.trace.mode", "$.parts[1].boundary"])
+
+
+def test_missing_file_is_a_scene_error(tmp_path):
+    with pytest.raises(SceneError) as info:
+        load_scene(tmp_path / "nope.json")
+    assert "no such file" in str(info.value)
+
+
+def test_not_utf8_is_a_scene_error(tmp_path):
+    f = tmp_path / "latin1.json"
+    f.write_bytes(b'{"name": "caf\xe9"}')
+    with pytest.raises(SceneError) as info:
+        load_scene(f)
+    assert "UTF-8" in info.value.problems[0].expected
+
+
+def test_check_command_prints_every_problem_and_fails(tmp_path, capsys):
+    d = _scene()
+    d["parts"][0]["material"] = "fused silca"
+    d["sources"][0]["flux"] = "bright"
+    bad = _write(tmp_path, d, name="bad.json")
+    good = SAMPLES / "oblique-window.json"
+    code = main(["check", str(good), str(bad)])
+    out = capsys.readouterr().out
+    assert code == 1
+    assert f"{good}: ok" in out
+    lines = [ln for ln in out.splitlines() if ln.startswith("error:")]
+    assert len(lines) == 2, out
+    assert any(f"{bad}: $.parts[0].material: found 'fused silca'" in ln for ln in lines)
+    assert any(f"{bad}: $.sources[0].flux: found <'bright'>" in ln for ln in lines)
+    assert "Traceback" not in out
+
+
+def test_check_command_on_malformed_json(tmp_path, capsys):
+    bad = _write(tmp_path, text="{\n  \"format\": }\n", name="broken.json")
+    assert main(["check", str(bad)]) == 1
+    out = capsys.readouterr().out
+    assert "line 2 column 13" in out and str(bad) in out
+
+
+def test_check_command_passes_on_every_sample(capsys):
+    samples = sorted(str(p) for p in SAMPLES.glob("*.json"))
+    assert main(["check", *samples]) == 0
+    assert capsys.readouterr().out.count(": ok (") == len(samples)
