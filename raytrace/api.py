@@ -39,7 +39,8 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
                      track_paths=track_paths, n_sources=len(scene.sources), progress=progress)
     ledger = Ledger(cs, raw.bins, raw.source_flux)
     settings = {"rays": rays, "mode": mode, "seed": seed, **asdict(limits),
-                "sampling": sampling or "per source", "source_names": [src.name for src in scene.sources]}
+                "sampling": sampling or "per source", "source_names": [src.name for src in scene.sources],
+                "source_positions": [list(src.position) for src in scene.sources]}
     if len(start) and bool((start.source[1:] >= start.source[:-1]).all()):
         # rays are numbered source by source: lets the ray table name each ray's source
         settings["source_ray_counts"] = np.bincount(start.source, minlength=len(scene.sources)).tolist()
