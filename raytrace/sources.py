@@ -89,20 +89,7 @@ def sample_source(src: Source, n: int, rng: np.random.Generator, sampling: str) 
         angles, weights = _angles(src, n, rng, even)
     elif src.kind == EMITTER:
         if even:
-            n_pos = max(1, int(round(math.sqrt(n))))
-            n_ang = max(1, n // n_pos)
-            pos = _positions(src.width, n_pos, rng, True)
-            ang, w = _angles(src, n_ang, rng, True)
-            offsets = np.repeat(pos, n_ang)
-            angles = np.tile(ang, n_pos)
-            weights = np.tile(w, n_pos) / n_pos
-            # fill up to n with a second, finer fan at the centre so the count is exact
-            extra = n - len(offsets)
-            if extra > 0:
-                ea, ew = _angles(src, extra, rng, True)
-                offsets = np.concatenate([offsets, np.zeros(extra)])
-                angles = np.concatenate([angles, ea])
-                weights = np.concatenate([weights * (len(weights) / n), ew * (extra / n)])
+            offsets, angles, weights = _even_emitter(src, n, rng)
         else:
             offsets = _positions(src.width, n, rng, False)
             angles, weights = _angles(src, n, rng, False)
@@ -124,6 +111,27 @@ def sample_source(src: Source, n: int, rng: np.random.Generator, sampling: str) 
     else:
         fs, fp = flux / 2, flux / 2
     return StartRays(x, y, np.cos(theta), np.sin(theta), wl, fs, fp, np.zeros(n, dtype=np.int64))
+
+
+def _even_emitter(src: Source, n: int, rng) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """A fan from each of ~sqrt(n) evenly spaced points across the die, exactly n rays.
+
+    Every point carries the same flux; within a point's fan each ray carries the share of the
+    angular distribution it stands for.  When n is not a product, the first points get one
+    ray more than the others (their rays then carry a little less flux each)."""
+    n_pos = max(1, min(n, int(round(math.sqrt(n)))))
+    base, extra = divmod(n, n_pos)
+    pos = _positions(src.width, n_pos, rng, True)
+    counts = np.full(n_pos, base)
+    counts[:extra] += 1
+    offsets = np.repeat(pos, counts)
+    fans = {}
+    for k in set(counts.tolist()):    # at most two distinct fan sizes
+        ang, w = _angles(src, k, rng, True)
+        fans[k] = (ang, w / w.sum())
+    angles = np.concatenate([fans[k][0] for k in counts.tolist()])
+    weights = np.concatenate([fans[k][1] for k in counts.tolist()]) / n_pos
+    return offsets, angles, weights
 
 
 def _strata(n: int, rng: np.random.Generator, even: bool) -> np.ndarray:
@@ -171,23 +179,42 @@ def _angles(src: Source, n: int, rng, even: bool) -> tuple[np.ndarray, np.ndarra
 
 
 def sample_spectrum(spec: Spectrum, n: int, rng, even: bool) -> np.ndarray:
+    """Wavelengths for n rays.
+
+    even: the wavelengths sit at the centres of n equal-weight strata of the spectrum (so the
+    proportions are exact), then are dealt out in a golden-ratio order rather than in blocks, so
+    that wavelength is not tied to a ray's place in the fan (a two-line beam would otherwise be
+    red on one side and blue on the other).
+    random: drawn from the spectrum (lines: stratified, then shuffled; band: Gaussian draws).
+    """
     if spec.is_band:
         sigma = spec.band_fwhm_nm / (2 * math.sqrt(2 * math.log(2)))
-        if even:
-            # a fixed set of Gaussian quantiles, repeated: few distinct wavelengths keep the
-            # per-wavelength index table small
-            k = min(n, 64)
-            from statistics import NormalDist
-            q = np.array([NormalDist(spec.band_center_nm, sigma).inv_cdf((i + 0.5) / k) for i in range(k)])
-            return np.resize(q, n)
-        return rng.normal(spec.band_center_nm, sigma, n)
+        if not even:
+            return rng.normal(spec.band_center_nm, sigma, n)
+        # a fixed set of at most 64 Gaussian quantiles: few distinct wavelengths keep the
+        # per-wavelength index table small
+        from statistics import NormalDist
+        k = min(n, 64)
+        dist = NormalDist(spec.band_center_nm, sigma)
+        q = np.array([dist.inv_cdf((i + 0.5) / k) for i in range(k)])
+        return _golden_deal(q[np.minimum((_strata(n, rng, True) * k).astype(int), k - 1)])
     wls = np.asarray(spec.wavelengths_nm, dtype=float)
     if len(wls) == 1:
         return np.full(n, wls[0])
     w = np.asarray(spec.weights, dtype=float)
-    p = w / w.sum()
+    edges = np.cumsum(w / w.sum())
+    edges[-1] = 1.0
     if even:
-        # deterministic allocation in proportion to the weights, interleaved
-        edges = np.cumsum(p)
-        return wls[np.searchsorted(edges, _strata(n, rng, True))]
-    return rng.permutation(wls[np.searchsorted(np.cumsum(p), _strata(n, rng, False))])
+        return _golden_deal(wls[np.searchsorted(edges, _strata(n, rng, True))])
+    return rng.permutation(wls[np.searchsorted(edges, _strata(n, rng, False))])
+
+
+_GOLDEN = (math.sqrt(5.0) - 1.0) / 2.0
+
+
+def _golden_deal(sorted_values: np.ndarray) -> np.ndarray:
+    """Reorder values so that ray k gets the value ranked by frac(k * golden ratio): each
+    stretch of consecutive rays samples the whole spectrum."""
+    n = len(sorted_values)
+    rank = np.argsort(np.argsort((np.arange(n) * _GOLDEN) % 1.0, kind="stable"), kind="stable")
+    return sorted_values[rank]

@@ -1,0 +1,182 @@
+"""Per-detector figures from a trace: total flux and efficiency, irradiance and angular profiles,
+uniformity over the central part, and the spread of arrival times.
+
+Conventions (2D, so "irradiance" is flux per mm of detector length):
+- position is measured in mm from the detector's start point toward its end point;
+- the angle of arrival is in degrees from the detector normal, signed (positive when the ray
+  runs toward the detector's end point), in [-90, 90];
+- the irradiance profile uses the detector's `bins` equal bins over its length; the angular
+  profile uses `angle_bins` equal bins over [-90, 90] degrees (flux per degree);
+- uniformity is computed over the central `central_fraction` of the length, binned with
+  round(bins * central_fraction) bins of its own so the figure covers exactly that part;
+- arrival time = optical path (sum of n * L, mm) / c.  All rays start at time zero.
+"""
+from __future__ import annotations
+
+import csv
+import io
+from dataclasses import dataclass
+
+import numpy as np
+
+from .results import DetectorHits, TraceResult
+
+C_MM_PER_PS = 0.299792458   # speed of light in vacuum, mm per picosecond (exact by definition)
+
+
+@dataclass
+class Profile:
+    """A binned distribution: `flux` per bin and `density` = flux / bin width."""
+
+    edges: np.ndarray        # bin edges, len(flux) + 1
+    flux: np.ndarray
+    axis_unit: str           # "mm" or "deg"
+
+    @property
+    def centers(self) -> np.ndarray:
+        return 0.5 * (self.edges[1:] + self.edges[:-1])
+
+    @property
+    def density(self) -> np.ndarray:
+        return self.flux / np.diff(self.edges)
+
+    @property
+    def density_unit(self) -> str:
+        return f"flux/{self.axis_unit}"
+
+
+@dataclass
+class Uniformity:
+    min_over_mean: float      # nan when nothing reached the central part
+    max_over_mean: float
+    fraction: float           # the central fraction used
+    bins: int                 # bins across the central part
+
+
+@dataclass
+class ArrivalTimes:
+    """Arrival times in ps of the rays that reached the detector (nan when none did)."""
+
+    first_ps: float
+    last_ps: float
+    mean_ps: float            # flux-weighted
+    rms_ps: float             # flux-weighted standard deviation about the mean
+
+    @property
+    def spread_ps(self) -> float:
+        return self.last_ps - self.first_ps
+
+
+@dataclass
+class DetectorReport:
+    name: str
+    length_mm: float
+    absorbing: bool
+    hits: int                 # ray arrivals counted (rays carrying no flux are skipped)
+    total_flux: float
+    flux_s: float
+    flux_p: float
+    efficiency: float         # total flux / source flux
+    centroid_mm: float        # flux-weighted mean position (nan when empty)
+    mean_angle_deg: float     # flux-weighted mean angle of arrival (nan when empty)
+    irradiance: Profile
+    angular: Profile
+    uniformity: Uniformity
+    times: ArrivalTimes
+
+    def summary_line(self) -> str:
+        u, t = self.uniformity, self.times
+        parts = [f"{self.name}: {self.total_flux:.6g} ({100 * self.efficiency:.3f} %)"]
+        if self.hits:
+            parts.append(f"centroid {self.centroid_mm:.3f} mm, mean angle {self.mean_angle_deg:+.3f} deg")
+            parts.append(f"uniformity (central {100 * u.fraction:.0f} %) min/mean {u.min_over_mean:.3f} "
+                         f"max/mean {u.max_over_mean:.3f}")
+            parts.append(f"arrival {t.first_ps:.4g}..{t.last_ps:.4g} ps (spread {t.spread_ps:.4g} ps)")
+        return "; ".join(parts)
+
+
+def detector_report(result: TraceResult, name: str) -> DetectorReport:
+    """All figures for the detector called `name`."""
+    det = next(d for d in result.compiled.detectors if d.name == name)
+    hits = result.detector(name)
+    f = hits.flux
+    live = f > 0
+    total = float(f.sum())
+    irr = _profile(hits.position, f, 0.0, hits.length, det.bins, "mm")
+    ang = _profile(hits.angle_deg, f, -90.0, 90.0, det.angle_bins, "deg")
+    return DetectorReport(
+        name=name, length_mm=hits.length, absorbing=det.absorbing, hits=int(live.sum()),
+        total_flux=total, flux_s=float(hits.flux_s.sum()), flux_p=float(hits.flux_p.sum()),
+        efficiency=total / result.source_flux if result.source_flux else 0.0,
+        centroid_mm=_weighted_mean(hits.position, f), mean_angle_deg=_weighted_mean(hits.angle_deg, f),
+        irradiance=irr, angular=ang, uniformity=uniformity(hits, det.bins, det.central_fraction),
+        times=arrival_times(hits))
+
+
+def detector_reports(result: TraceResult) -> list[DetectorReport]:
+    return [detector_report(result, d.name) for d in result.compiled.detectors]
+
+
+def _profile(values: np.ndarray, flux: np.ndarray, lo: float, hi: float, bins: int, unit: str) -> Profile:
+    edges = np.linspace(lo, hi, int(bins) + 1)
+    # values exactly at the upper edge belong to the last bin (np.histogram does the same)
+    counts, _ = np.histogram(np.clip(values, lo, hi), bins=edges, weights=flux)
+    return Profile(edges, counts.astype(float), unit)
+
+
+def uniformity(hits: DetectorHits, bins: int, fraction: float) -> Uniformity:
+    """min/mean and max/mean of the irradiance over the central `fraction` of the detector."""
+    n = max(1, int(round(bins * fraction)))
+    lo = 0.5 * (1.0 - fraction) * hits.length
+    hi = lo + fraction * hits.length
+    inside = (hits.position >= lo) & (hits.position <= hi)
+    counts, _ = np.histogram(hits.position[inside], bins=np.linspace(lo, hi, n + 1),
+                             weights=hits.flux[inside])
+    mean = counts.mean()
+    if mean <= 0:
+        return Uniformity(float("nan"), float("nan"), fraction, n)
+    return Uniformity(float(counts.min() / mean), float(counts.max() / mean), fraction, n)
+
+
+def arrival_times(hits: DetectorHits) -> ArrivalTimes:
+    f = hits.flux
+    live = f > 0
+    if not live.any():
+        nan = float("nan")
+        return ArrivalTimes(nan, nan, nan, nan)
+    t = hits.optical_path[live] / C_MM_PER_PS
+    w = f[live]
+    mean = float(np.average(t, weights=w))
+    rms = float(np.sqrt(np.average((t - mean) ** 2, weights=w)))
+    return ArrivalTimes(float(t.min()), float(t.max()), mean, rms)
+
+
+def _weighted_mean(values: np.ndarray, flux: np.ndarray) -> float:
+    total = flux.sum()
+    return float((values * flux).sum() / total) if total > 0 else float("nan")
+
+
+# ----------------------------------------------------------------------------- CSV export
+
+PROFILE_HEADER = ("detector", "profile", "bin", "low", "high", "center", "axis_unit", "flux",
+                  "density", "density_unit")
+
+
+def profiles_rows(reports: list[DetectorReport]) -> list[list]:
+    """Long-format rows: one per bin of each detector's irradiance and angular profile."""
+    rows: list[list] = []
+    for r in reports:
+        for kind, prof in (("irradiance", r.irradiance), ("angular", r.angular)):
+            for i, (lo, hi, c, fl, de) in enumerate(zip(prof.edges[:-1].tolist(), prof.edges[1:].tolist(),
+                                                        prof.centers.tolist(), prof.flux.tolist(),
+                                                        prof.density.tolist())):
+                rows.append([r.name, kind, i, lo, hi, c, prof.axis_unit, fl, de, prof.density_unit])
+    return rows
+
+
+def profiles_csv(reports: list[DetectorReport]) -> str:
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(PROFILE_HEADER)
+    w.writerows(profiles_rows(reports))
+    return buf.getvalue()
