@@ -1,11 +1,16 @@
-"""Command line: `raytrace check`, `raytrace trace`, and friends.
+"""Command line: `raytrace check`, `raytrace trace`, `raytrace sweep`, `raytrace materials`.
 
 Exit codes (documented in the README):
     0  success
     1  the scene has problems (printed, one per line)
-    2  bad command-line usage
+    2  bad command-line usage (including a --vary name or range that cannot be used)
     3  the trace stopped at a resource limit
     4  an output file could not be written
+    5  a sweep finished but some points could not be traced (their rows in the CSV say why)
+  130  interrupted (Ctrl-C)
+
+A progress line is shown on stderr for long runs, only when stderr is a terminal and
+--quiet is not given.
 """
 from __future__ import annotations
 
@@ -16,7 +21,7 @@ from pathlib import Path
 
 from .errors import BudgetExceeded, RaytraceError, SceneError
 
-EXIT_OK, EXIT_SCENE, EXIT_USAGE, EXIT_LIMIT, EXIT_OUTPUT = 0, 1, 2, 3, 4
+EXIT_OK, EXIT_SCENE, EXIT_USAGE, EXIT_LIMIT, EXIT_OUTPUT, EXIT_SWEEP_POINTS = 0, 1, 2, 3, 4, 5
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -30,7 +35,43 @@ def build_parser() -> argparse.ArgumentParser:
     t.add_argument("scene", metavar="SCENE")
     add_trace_options(t)
     t.add_argument("--json", metavar="FILE", help="write the summary (ledger, efficiencies, stats) as JSON")
+    t.add_argument("--csv", metavar="FILE", help="write the ray table (one row per segment) as CSV")
+    t.add_argument("--record", metavar="first:N|all|none", type=parse_record, default=None,
+                   help="which source rays the ray table holds (default with --csv: first:1000)")
+    t.add_argument("--detectors-csv", metavar="FILE", dest="detectors_csv",
+                   help="write each detector's irradiance and angular profiles as CSV")
+    t.add_argument("--paths", metavar="N", type=int, nargs="?", const=10, default=None,
+                   help="print the N paths carrying the most flux to each detector and to losses (default 10)")
+
+    w = sub.add_parser("sweep", help="trace a scene over a range of one or two named numbers",
+                       description="Trace SCENE at every point of a range and write one CSV row per point: "
+                                   "efficiency per detector and the share of every ledger bucket.",
+                       epilog="NAME forms: PART.PARAM (guide.segments[1].bend.radius), SOURCE.FIELD "
+                              "(LED.direction_deg), DETECTOR.FIELD (return.start[0]), wavelength, "
+                              "trace.FIELD, $.JSON.PATH; KIND:NAME (part:, source:, detector:) when "
+                              "names clash.  Values: START:STOP:COUNT or v1,v2,...")
+    w.add_argument("scene", metavar="SCENE")
+    w.add_argument("--vary", metavar="NAME=START:STOP:COUNT", action="append", required=True,
+                   help="a number to vary (once or twice; two make a grid)")
+    w.add_argument("--csv", metavar="OUT", required=True, help="the table to write")
+    w.add_argument("--workers", type=int, help="local worker processes (default: CPU count; 1 = in this process)")
+    w.add_argument("--dask", metavar="ADDRESS",
+                   help="run the points on the Dask scheduler at ADDRESS (needs the dask extra)")
+    add_trace_options(w)
+
+    sub.add_parser("materials", help="list the material catalog with its sources")
     return p
+
+
+def parse_record(text: str) -> tuple[str, int]:
+    """--record value: none, all, or first:N."""
+    text = text.strip()
+    if text in ("none", "all"):
+        return text, 0
+    kind, _, count = text.partition(":")
+    if kind == "first" and count.isdigit() and int(count) > 0:
+        return "first", int(count)
+    raise argparse.ArgumentTypeError(f"found {text!r}; expected none, all, or first:N with N a whole number > 0")
 
 
 def add_trace_options(t: argparse.ArgumentParser) -> None:
@@ -66,6 +107,11 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # output piped into a reader that stopped early (| head): not an error
+        import os
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return EXIT_OK
 
 
 def cmd_check(args) -> int:
@@ -91,15 +137,95 @@ def trace_kwargs(args) -> dict:
 
 def cmd_trace(args) -> int:
     from .api import trace
-    from .report import summary_text
+    from .report import Progress, detectors_text, summary_text
     from .scene_io import load_scene
     scene = load_scene(args.scene)
-    result = trace(scene, **trace_kwargs(args))
+    record = args.record or (("first", 1000) if args.csv else ("none", 0))
+    progress = Progress(enabled=not args.quiet)
+    try:
+        result = trace(scene, record=record[0], record_count=record[1], progress=progress.trace,
+                       track_paths=args.paths is not None, **trace_kwargs(args))
+    finally:
+        progress.close()
     if not args.quiet:
         print(summary_text(result, title=scene.name or Path(args.scene).stem, story=scene.story))
+        if scene.detectors:
+            print(detectors_text(result))
+        if args.paths is not None:
+            from .paths import paths_text
+            print(paths_text(result, max(args.paths, 1)))
     if args.json:
         if not write_output(args.json, json.dumps(result.to_summary_dict(), indent=2) + "\n"):
             return EXIT_OUTPUT
+    if args.csv:
+        from .raytable import ray_table
+        table = ray_table(result)
+        if table is None or not write_output(args.csv, table.to_csv()):
+            return EXIT_OUTPUT
+        if not args.quiet and record[0] == "first" and record[1] < result.stats["source_rays"]:
+            print(f"note: the ray table holds the first {record[1]:,} of {result.stats['source_rays']:,} "
+                  f"source rays ({len(table):,} segments); use --record all for every ray", file=sys.stderr)
+    if args.detectors_csv:
+        from .detectors import detector_reports, profiles_csv
+        if not write_output(args.detectors_csv, profiles_csv(detector_reports(result))):
+            return EXIT_OUTPUT
+    return EXIT_OK
+
+
+def cmd_sweep(args) -> int:
+    from .report import Progress
+    from .scene_io import load_scene, scene_to_dict
+    from .sweep import SweepError, parse_vary, sweep
+    scene = load_scene(args.scene)
+    try:
+        variables = [parse_vary(v) for v in args.vary]
+        if len(variables) > 2:
+            print("error: --vary: found more than two names; expected one or two", file=sys.stderr)
+            return EXIT_USAGE
+        if args.workers is not None and args.workers < 1:
+            print(f"error: --workers: found {args.workers}; expected a whole number >= 1", file=sys.stderr)
+            return EXIT_USAGE
+        executor, client = None, None
+        if args.dask:
+            try:
+                from distributed import Client
+            except ImportError:
+                print("error: --dask needs the optional dask extra (pip install 'raytrace2d[dask]')",
+                      file=sys.stderr)
+                return EXIT_USAGE
+            try:
+                client = Client(args.dask, timeout=30)
+            except (OSError, TimeoutError) as exc:
+                print(f"error: --dask: could not reach the scheduler at {args.dask}: {exc}", file=sys.stderr)
+                return EXIT_USAGE
+            executor = client.get_executor()
+        progress = Progress(enabled=not args.quiet)
+        try:
+            result = sweep(scene_to_dict(scene), variables, trace_kwargs(args), executor=executor,
+                           workers=args.workers, progress=progress.points, file=args.scene)
+        finally:
+            progress.close()
+            if client is not None:
+                client.close()
+    except SweepError as exc:
+        for p in exc.problems:
+            print(f"error: {p}", file=sys.stderr)
+        return EXIT_USAGE
+    if not write_output(args.csv, result.to_csv()):
+        return EXIT_OUTPUT
+    if not args.quiet:
+        from .report import sweep_text
+        print(sweep_text(result))
+    for row in result.failed:
+        print(f"point {row['point']} ({', '.join(f'{n} = {row[n]:g}' for n in result.names)}): {row['status']}",
+              file=sys.stderr)
+    return EXIT_SWEEP_POINTS if result.failed else EXIT_OK
+
+
+def cmd_materials(args) -> int:
+    from .catalog import catalog_table
+    from .report import materials_text
+    print(materials_text(catalog_table()))
     return EXIT_OK
 
 
@@ -113,7 +239,7 @@ def write_output(path: str, text: str) -> bool:
         return False
 
 
-COMMANDS = {"check": cmd_check, "trace": cmd_trace}
+COMMANDS = {"check": cmd_check, "trace": cmd_trace, "sweep": cmd_sweep, "materials": cmd_materials}
 
 if __name__ == "__main__":
     sys.exit(main())

@@ -26,7 +26,7 @@ import os
 import numpy as np
 
 from .results import TraceResult
-from .tracer import B_SOURCE, BORN, END
+from .tracer import BORN, END
 
 NONE = "-"     # written where a column does not apply
 
@@ -113,9 +113,7 @@ def ray_table(result: TraceResult) -> RayTable | None:
         idx = np.where(edges >= 0, edges, len(edge_part) - 1)
         return edge_part[idx], edge_face[idx], edge_det[idx]
 
-    bp, bf, bd = where(start_edge)
-    is_source = born == B_SOURCE
-    bp = np.where(is_source, source, bp)   # a source ray began at its source
+    bp, bf, bd = where(start_edge)   # a source ray began at its source: "-" here
     ep, ef, ed = where(end_edge)
     x0, y0, x1, y1 = (seg[k].astype(float) for k in ("x0", "y0", "x1", "y1"))
     dx, dy = seg["dx"].astype(float), seg["dy"].astype(float)

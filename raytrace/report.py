@@ -35,3 +35,85 @@ def summary_text(result: TraceResult, title: str = "", story: str = "") -> str:
         lines.append(f"Edge cases: {st['vertex_hits']} hits at a vertex, {st['grazing_hits']} grazing hits, "
                      f"{st['medium_mismatches']} medium mismatches (traced deterministically)")
     return "\n".join(lines)
+
+
+def detectors_text(result: TraceResult) -> str:
+    """One line per detector: flux, efficiency, centroid, uniformity, arrival times."""
+    from .detectors import detector_reports
+    reports = detector_reports(result)
+    if not reports:
+        return ""
+    return "\n".join(["Detector figures:"] + ["  " + r.summary_line() for r in reports])
+
+
+def materials_text(rows: list[dict]) -> str:
+    """The material catalog as a table: name, model, nd, Vd and where the data come from."""
+    width = max([len("material")] + [len(r["name"]) for r in rows])
+    mwidth = max([len("model")] + [len(r["model"]) for r in rows])
+    lines = [f"{'material':<{width}}  {'model':<{mwidth}}  {'nd':>8}  {'Vd':>6}  source"]
+    for r in rows:
+        vd = f"{r['vd']:6.2f}" if r["vd"] is not None else f"{'-':>6}"
+        lines.append(f"{r['name']:<{width}}  {r['model']:<{mwidth}}  {r['nd']:8.5f}  {vd}  {r['source']}")
+    return "\n".join(lines)
+
+
+class Progress:
+    """A one-line progress display on stderr for long runs.
+
+    Silent unless enabled and the stream is a terminal; shows nothing for the first
+    `delay_s` seconds so quick runs stay clean; redraws at most every `interval_s`."""
+
+    def __init__(self, enabled: bool = True, stream=None, delay_s: float = 0.5, interval_s: float = 0.1):
+        import sys
+        import time
+        self.stream = stream if stream is not None else sys.stderr
+        isatty = getattr(self.stream, "isatty", None)
+        self.enabled = bool(enabled and isatty and isatty())
+        self._clock = time.monotonic
+        self._start = self._clock()
+        self._last = 0.0
+        self._shown = False
+        self.delay_s, self.interval_s = delay_s, interval_s
+
+    def _draw(self, text: str, force: bool = False) -> None:
+        if not self.enabled:
+            return
+        now = self._clock()
+        if not force and (now - self._start < self.delay_s or now - self._last < self.interval_s):
+            return
+        self._last = now
+        self._shown = True
+        self.stream.write("\r" + text[:79].ljust(79))
+        self.stream.flush()
+
+    def trace(self, stats: dict) -> None:
+        """Callback for `raytrace.trace(progress=...)`: called once per generation."""
+        self._draw(f"tracing: generation {stats.get('generations', 0):,}, "
+                   f"{stats.get('segments', 0):,} segments")
+
+    def points(self, done: int, total: int) -> None:
+        """Callback for sweeps: a bar of finished points."""
+        n = 30
+        filled = int(n * done / total) if total else n
+        self._draw(f"sweep [{'#' * filled}{'-' * (n - filled)}] {done}/{total} points", force=done == total)
+
+    def close(self) -> None:
+        if self.enabled and self._shown:
+            self.stream.write("\r" + " " * 79 + "\r")
+            self.stream.flush()
+
+
+def sweep_text(result) -> str:
+    """The swept values and each detector's efficiency, one line per point."""
+    head = result.names + [f"eff. {d}" for d in result.detectors]
+    widths = [max(12, len(h)) for h in head]
+    lines = ["  ".join(f"{h:>{w}}" for h, w in zip(head, widths))]
+    for row in result.rows:
+        cells = [f"{row[n]:>{w}.6g}" for n, w in zip(result.names, widths)]
+        if row["status"] == "ok":
+            cells += [f"{100 * row[f'efficiency: {d}']:>{w - 2}.3f} %"
+                      for d, w in zip(result.detectors, widths[len(result.names):])]
+        else:
+            cells.append("  (not traced: see below)")
+        lines.append("  ".join(cells))
+    return "\n".join(lines)
