@@ -445,20 +445,22 @@ def scene_to_dict(scene: Scene) -> dict:
     out["parts"] = [_part_dict(p) for p in scene.parts]
     out["sources"] = [_source_dict(s) for s in scene.sources]
     out["detectors"] = [_detector_dict(d) for d in scene.detectors]
-    out["trace"] = dict(vars(scene.settings))
+    t = scene.settings
+    out["trace"] = {"rays": int(t.rays), "mode": t.mode, "min_relative_flux": float(t.min_relative_flux),
+                    "max_depth": int(t.max_depth), "max_segments": int(t.max_segments), "seed": int(t.seed)}
     return out
 
 
 def _loop_list(loop: Loop) -> list[dict]:
     items = []
     for e in loop.edges:
-        item: dict[str, Any] = {"from": list(e.start)}
+        item: dict[str, Any] = {"from": _xy(e.start)}
         if e.face:
             item["face"] = e.face
         if e.treatment != Treatment():
             item["treatment"] = e.treatment.to_dict()
         if e.is_arc:
-            item["arc"] = {"center": list(e.arc_center), "direction": "ccw" if e.ccw else "cw"}
+            item["arc"] = {"center": _xy(e.arc_center), "direction": "ccw" if e.ccw else "cw"}
         items.append(item)
     return items
 
@@ -470,7 +472,7 @@ def _part_dict(p: Part) -> dict:
         built = build(p.shape)
         if _same_geometry(built, p.outer):
             d["shape"] = {"kind": p.shape.kind, "params": p.shape.params,
-                          "position": list(p.shape.position), "rotation_deg": p.shape.rotation_deg}
+                          "position": _xy(p.shape.position), "rotation_deg": float(p.shape.rotation_deg)}
             faces = {}
             for b, e in zip(built.edges, p.outer.edges):
                 if e.treatment != b.treatment and e.face:
@@ -493,24 +495,33 @@ def _same_geometry(a: Loop, b: Loop) -> bool:
                and x.ccw == y.ccw and x.face == y.face for x, y in zip(a.edges, b.edges))
 
 
+def _xy(p) -> list[float]:
+    """A point as written: floats always, so an int from code saves as 3.0 the first time too."""
+    return [float(p[0]), float(p[1])]
+
+
 def _source_dict(s: Source) -> dict:
-    d: dict[str, Any] = {"name": s.name, "kind": s.kind, "position": list(s.position),
-                         "direction_deg": s.direction_deg}
-    if s.kind in ("beam", "emitter"):
-        d["width"] = s.width
-    if s.kind in ("point", "emitter"):
-        d["half_angle_deg"] = s.half_angle_deg
+    """Fields a kind does not use are still written when they differ from the default, so a
+    source switched from point to beam and back keeps its cone: saving loses nothing."""
+    base = Source(s.name)
+    d: dict[str, Any] = {"name": s.name, "kind": s.kind, "position": _xy(s.position),
+                         "direction_deg": float(s.direction_deg)}
+    if s.kind in ("beam", "emitter") or s.width != base.width:
+        d["width"] = float(s.width)
+    if s.kind in ("point", "emitter") or s.half_angle_deg != base.half_angle_deg:
+        d["half_angle_deg"] = float(s.half_angle_deg)
+    if s.kind in ("point", "emitter") or s.distribution != base.distribution:
         d["distribution"] = s.distribution
-        if s.distribution == "cos_power":
-            d["cos_power"] = s.cos_power
-    d["flux"] = s.flux
+    if s.distribution == "cos_power" or s.cos_power != base.cos_power:
+        d["cos_power"] = float(s.cos_power)
+    d["flux"] = float(s.flux)
     sp = s.spectrum
     if sp.is_band:
-        d["spectrum"] = {"band": {"center_nm": sp.band_center_nm, "fwhm_nm": sp.band_fwhm_nm}}
-    elif len(sp.wavelengths_nm) == 1:
-        d["spectrum"] = {"wavelength_nm": sp.wavelengths_nm[0]}
+        d["spectrum"] = {"band": {"center_nm": float(sp.band_center_nm), "fwhm_nm": float(sp.band_fwhm_nm)}}
+    elif len(sp.wavelengths_nm) == 1 and sp.weights == (1.0,):
+        d["spectrum"] = {"wavelength_nm": float(sp.wavelengths_nm[0])}
     else:
-        d["spectrum"] = {"lines": [[w, v] for w, v in zip(sp.wavelengths_nm, sp.weights)]}
+        d["spectrum"] = {"lines": [[float(w), float(v)] for w, v in zip(sp.wavelengths_nm, sp.weights)]}
     d["polarization"] = s.polarization
     d["sampling"] = s.sampling
     if s.note:
@@ -519,8 +530,8 @@ def _source_dict(s: Source) -> dict:
 
 
 def _detector_dict(det: Detector) -> dict:
-    return {"name": det.name, "start": list(det.start), "end": list(det.end), "absorbing": det.absorbing,
-            "bins": det.bins, "angle_bins": det.angle_bins, "central_fraction": det.central_fraction}
+    return {"name": det.name, "start": _xy(det.start), "end": _xy(det.end), "absorbing": det.absorbing,
+            "bins": det.bins, "angle_bins": det.angle_bins, "central_fraction": float(det.central_fraction)}
 
 
 def scene_to_text(scene: Scene) -> str:

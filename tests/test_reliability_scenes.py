@@ -103,7 +103,12 @@ def _scaled(loop: Loop, centre, k: float, reverse: bool = False) -> Loop:
     edges = tuple(Edge(sc(e.start), sc(e.end), None if e.arc_center is None else sc(e.arc_center),
                        e.ccw, e.face, e.treatment) for e in loop.edges)
     out = Loop(edges)
-    return Loop(tuple(e.reversed() for e in reversed(out.edges))) if reverse else out
+    if not reverse:
+        return out
+    # Edge.reversed() also flips `ccw` of straight edges, where it means nothing; keep it True
+    # as the loader does, so round-trip equality compares what a file can hold
+    return Loop(tuple(e.reversed() if e.is_arc else Edge(e.end, e.start, None, True, e.face, e.treatment)
+                      for e in reversed(out.edges)))
 
 
 def _rect(x0, y0, x1, y1, treat=Treatment()):

@@ -1,0 +1,65 @@
+"""Scene files round-trip losslessly: load -> save -> load gives an equal Scene, and
+save -> load -> save gives identical text, for every sample and for random scenes."""
+from __future__ import annotations
+
+import json
+import os
+from pathlib import Path
+
+import pytest
+from hypothesis import HealthCheck, given, settings
+
+from raytrace.errors import SceneError
+from raytrace.scene_io import load_scene, save_scene, scene_from_text, scene_to_text
+from test_reliability_scenes import scenes
+
+SAMPLES = sorted((Path(__file__).parent.parent / "samples").glob("*.json"))
+
+
+@pytest.mark.parametrize("sample", SAMPLES, ids=lambda p: p.stem)
+def test_sample_round_trips(sample, tmp_path):
+    scene = load_scene(sample)
+    out = tmp_path / sample.name
+    save_scene(scene, out)
+    again = load_scene(out)
+    assert again == scene
+    assert scene_to_text(again) == out.read_text(encoding="utf-8")
+
+
+@pytest.mark.parametrize("sample", SAMPLES, ids=lambda p: p.stem)
+def test_samples_are_saved_as_they_are_written(sample):
+    """The bundled samples are in the saver's own form, so saving one changes nothing."""
+    assert scene_to_text(load_scene(sample)) == sample.read_text(encoding="utf-8")
+
+
+@settings(max_examples=int(os.environ.get("RAYTRACE_PROPERTY_EXAMPLES", "150")), deadline=None,
+          derandomize=True, suppress_health_check=[HealthCheck.too_slow, HealthCheck.filter_too_much])
+@given(scene=scenes())
+def test_random_scenes_round_trip(scene):
+    text = scene_to_text(scene)
+    loaded = scene_from_text(text)
+    assert loaded == scene
+    assert scene_to_text(loaded) == text
+    json.loads(text)   # strict JSON: no NaN or Infinity tokens
+
+
+def test_save_is_atomic_and_keeps_the_old_file_on_failure(tmp_path, monkeypatch):
+    scene = load_scene(SAMPLES[0])
+    target = tmp_path / "scene.json"
+    target.write_text("old contents", encoding="utf-8")
+
+    def broken_replace(src, dst):
+        raise OSError(28, "No space left on device")
+    monkeypatch.setattr(os, "replace", broken_replace)
+    with pytest.raises(OSError):
+        save_scene(scene, target)
+    assert target.read_text(encoding="utf-8") == "old contents"
+    assert [p.name for p in tmp_path.iterdir()] == ["scene.json"], "temporary file left behind"
+
+
+def test_format_name_and_version_are_checked(tmp_path):
+    data = json.loads(SAMPLES[0].read_text(encoding="utf-8"))
+    data["format"], data["version"] = "some-other-format", 2
+    with pytest.raises(SceneError) as info:
+        scene_from_text(json.dumps(data))
+    assert {p.path for p in info.value.problems} == {"$.format", "$.version"}
