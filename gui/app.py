@@ -1,0 +1,81 @@
+"""`raytrace-gui [SCENE] [--screenshot PNG]`: start the desktop application.
+
+With --screenshot the scene is traced, the window rendered to the PNG, and the program exits
+(0 on success, 1 when the scene has problems, 4 when the image cannot be written)."""
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(prog="raytrace-gui", description="Draw parts and watch ray fans and losses live.")
+    p.add_argument("scene", nargs="?", metavar="SCENE", help="scene file to open")
+    p.add_argument("--screenshot", metavar="PNG", help="trace, render the window to PNG and exit")
+    p.add_argument("--size", default="1400x900", metavar="WxH", help="window size for --screenshot")
+    return p
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = build_parser().parse_args(argv)
+    if args.screenshot and not os.environ.get("QT_QPA_PLATFORM") and not (
+            os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY")) and sys.platform.startswith("linux"):
+        os.environ["QT_QPA_PLATFORM"] = "offscreen"   # no screen needed for a picture
+    from PySide6.QtWidgets import QApplication
+
+    app = QApplication.instance() or QApplication(sys.argv[:1])
+    app.setApplicationName("raytrace2d")
+    app.setOrganizationName("raytrace2d")
+    from .main_window import MainWindow
+
+    win = MainWindow()
+    if args.screenshot:
+        return screenshot(app, win, args.scene, args.screenshot, args.size)
+    win.show()
+    if args.scene:
+        win.open_file(args.scene)
+    else:
+        win.offer_recovery()
+    return app.exec()
+
+
+def screenshot(app, win, scene_path, png, size) -> int:
+    from raytrace.errors import SceneError
+
+    from .export import save_widget_png
+    try:
+        w, h = (int(v) for v in size.lower().split("x"))
+    except ValueError:
+        print(f"error: --size: expected WxH such as 1400x900, found {size!r}", file=sys.stderr)
+        return 2
+    win.controls.live.setChecked(False)      # one trace, on this thread
+    win.resize(w, h)
+    win.show()
+    if scene_path:
+        try:
+            win.doc.open(scene_path)
+        except SceneError as exc:
+            for p in exc.problems:
+                print(f"error: {p}", file=sys.stderr)
+            return 1
+    app.processEvents()
+    win.canvas.fit()
+    out = win.trace_blocking()
+    if out.error:
+        print(f"error: not traced: {out.error}", file=sys.stderr)
+    app.processEvents()
+    win.canvas.fit()
+    app.processEvents()
+    try:
+        save_widget_png(win, png)
+    except OSError as exc:
+        print(f"error: could not write {png}: {exc.strerror or exc}", file=sys.stderr)
+        return 4
+    win.worker.shutdown()
+    win.autosaver.discard()
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,514 @@
+"""The drawing: parts, sources, detectors, rays and markers on mm axes that pan and zoom.
+
+Geometry is drawn in scene millimetres with cosmetic (screen-width) pens; source and detector
+glyphs are sized in screen pixels and rebuilt when the view range changes.  Rays come grouped
+by kind and brightness from `raydraw`, one line item per group.
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import QPointF, Qt, Signal
+from PySide6.QtGui import QBrush, QPainterPath, QPen
+from PySide6.QtWidgets import (QGraphicsPathItem, QHBoxLayout, QLabel, QToolTip, QVBoxLayout,
+                               QWidget)
+
+from raytrace.scene import BEAM, EMITTER, POINT, Scene
+
+from . import edits, style
+from .raydraw import KINDS, LEVEL_ALPHA, LEVELS, RayDrawing, ray_drawing
+from .tools import TOOLS, SELECT
+
+KIND_COLOUR = {"ray": style.RAY, "escaping": style.ESCAPING, "tir": style.TIR}
+KIND_LABEL = {"ray": "ray (fades with flux)", "escaping": "escaping ray", "tir": "after TIR"}
+
+
+def _pen(colour, width=1.5, style_=Qt.SolidLine):
+    p = QPen(colour)
+    p.setWidthF(width)
+    p.setCosmetic(True)
+    p.setStyle(style_)
+    return p
+
+
+class _View(pg.ViewBox):
+    """A view box that offers mouse events to the current tool before panning."""
+
+    def __init__(self, canvas: "Canvas"):
+        super().__init__(lockAspect=True, enableMenu=False)
+        self.canvas = canvas
+        self._tool_drag = False
+
+    def mouseClickEvent(self, ev):
+        if ev.button() == Qt.LeftButton:
+            p = self.mapSceneToView(ev.scenePos())
+            if self.canvas.tool.click(p.x(), p.y(), ev.double()):
+                ev.accept()
+                return
+        super().mouseClickEvent(ev)
+
+    def mouseDragEvent(self, ev, axis=None):
+        if ev.button() == Qt.LeftButton:
+            if ev.isStart():
+                p = self.mapSceneToView(ev.buttonDownScenePos())
+                self._tool_drag = self.canvas.tool.press(p.x(), p.y())
+            if self._tool_drag:
+                ev.accept()
+                p = self.mapSceneToView(ev.scenePos())
+                if ev.isFinish():
+                    self._tool_drag = False
+                    self.canvas.tool.release(p.x(), p.y())
+                else:
+                    self.canvas.tool.move(p.x(), p.y())
+                return
+        super().mouseDragEvent(ev, axis)
+
+
+class LegendBar(QWidget):
+    """The legend sits under the drawing, never on it."""
+
+    def __init__(self, parent=None):
+        super().__init__(parent)
+        lay = QHBoxLayout(self)
+        lay.setContentsMargins(6, 2, 6, 2)
+        lay.setSpacing(14)
+        items = [(style.RAY, "line", KIND_LABEL["ray"]), (style.TIR, "line", KIND_LABEL["tir"]),
+                 (style.ESCAPING, "line", KIND_LABEL["escaping"]), (style.HIT, "dot", "detector hit"),
+                 (style.ESCAPE_MARK, "ring", "flux escapes here (size = share)"),
+                 (style.SOURCE, "dot", "source"), (style.DETECTOR, "bar", "detector")]
+        for colour, shape, text in items:
+            lab = QLabel()
+            c = colour.name()
+            css = {"line": f"background:{c}; min-height:3px; max-height:3px; min-width:22px;",
+                   "dot": f"background:{c}; border-radius:5px; min-width:10px; max-width:10px; "
+                          f"min-height:10px; max-height:10px;",
+                   "ring": f"border:2px solid {c}; border-radius:6px; min-width:9px; max-width:9px; "
+                           f"min-height:9px; max-height:9px;",
+                   "bar": f"background:{c}; min-height:5px; max-height:5px; min-width:22px;"}[shape]
+            lab.setStyleSheet(css)
+            lay.addWidget(lab)
+            lay.addWidget(QLabel(text))
+        lay.addStretch(1)
+        self.setToolTip("Ray colours: legs inside and between parts fade as their flux drops; "
+                        "legs that began with total internal reflection and legs leaving the scene "
+                        "have their own colours.")
+
+
+class Canvas(QWidget):
+    selection_changed = Signal(object)     # (kind, index) or None
+    cursor_moved = Signal(float, float)
+    status_message = Signal(str)
+
+    def __init__(self, doc, parent=None):
+        super().__init__(parent)
+        self.doc = doc
+        self.scene: Scene = doc.scene
+        self.result = None
+        self.drawing = RayDrawing()
+        self.selection = None
+        self.snapping = False
+        self.grid_step = 1.0
+        self.default_material = "PMMA"
+        self._preview = None
+
+        self.view = _View(self)
+        self.plot = pg.PlotWidget(viewBox=self.view, background=style.BACKGROUND)
+        self.plot.setLabel("bottom", "x", units="mm")
+        self.plot.setLabel("left", "y", units="mm")
+        for ax in ("bottom", "left"):
+            a = self.plot.getAxis(ax)
+            a.enableAutoSIPrefix(False)
+            a.setTextPen(style.AXIS)
+            a.setPen(style.AXIS)
+        self.plot.showGrid(x=True, y=True, alpha=0.18)
+        self.legend = LegendBar()
+        lay = QVBoxLayout(self)
+        lay.setContentsMargins(0, 0, 0, 0)
+        lay.setSpacing(0)
+        lay.addWidget(self.plot, 1)
+        lay.addWidget(self.legend)
+
+        self._part_items: list[QGraphicsPathItem] = []
+        self._part_paths: list[QPainterPath] = []
+        self._edge_polys: list[tuple[int, int, np.ndarray]] = []   # (part, edge, points)
+        self._glyph_items: list[QGraphicsPathItem] = []
+        self._ray_items = {}
+        for k in KINDS:
+            self._ray_items[k] = []
+            for lv, alpha in enumerate(LEVEL_ALPHA):
+                c = KIND_COLOUR[k]
+                item = pg.PlotCurveItem(pen=_pen(pg.mkColor(c.red(), c.green(), c.blue(), alpha),
+                                                 1.0 if lv else 1.3), connect="pairs", antialias=False)
+                item.setZValue(5 + KINDS.index(k))
+                self.plot.addItem(item)
+                self._ray_items[k].append(item)
+        self._hits = pg.ScatterPlotItem(size=4, pen=None, brush=pg.mkBrush(style.HIT), pxMode=True)
+        self._hits.setZValue(16)
+        self._escapes = pg.ScatterPlotItem(pxMode=True, brush=None, pen=_pen(style.ESCAPE_MARK, 2))
+        self._escapes.setZValue(11)
+        self._handles = pg.ScatterPlotItem(size=style.HANDLE_PX, pxMode=True, symbol="s",
+                                           pen=pg.mkPen(style.HANDLE_EDGE, width=1.2),
+                                           brush=pg.mkBrush(style.HANDLE))
+        self._handles.setZValue(20)
+        self._preview_item = pg.PlotCurveItem(pen=_pen(style.PREVIEW, 1.5, Qt.DashLine))
+        self._preview_item.setZValue(21)
+        for it in (self._hits, self._escapes, self._handles, self._preview_item):
+            self.plot.addItem(it)
+
+        self.tools = {name: cls(self) for name, cls in TOOLS.items()}
+        self.tool = self.tools[SELECT]
+        self.view.sigRangeChanged.connect(lambda *_: self._draw_glyphs())
+        self.plot.scene().sigMouseMoved.connect(self._mouse_moved)
+        self.setMouseTracking(True)
+
+    # ------------------------------------------------------------------ tool API
+    def set_tool(self, name: str) -> None:
+        self.tool.cancel()
+        self.tool = self.tools[name]
+        self.status_message.emit(self.tool.hint)
+
+    def drag(self, start, end, steps: int = 5, tool: str | None = None) -> None:
+        """Drive the current (or named) tool through a drag, as the mouse would."""
+        t = self.tools[tool] if tool else self.tool
+        if not t.press(*start):
+            return
+        for k in range(1, steps + 1):
+            u = k / steps
+            t.move(start[0] + u * (end[0] - start[0]), start[1] + u * (end[1] - start[1]))
+        t.release(*end)
+
+    def keyPressEvent(self, ev):
+        if ev.key() == Qt.Key_Escape:
+            self.tool.cancel()
+        elif ev.key() in (Qt.Key_Return, Qt.Key_Enter):
+            self.tool.key_enter()
+        elif ev.key() == Qt.Key_Backspace:
+            self.tool.key_backspace()
+        else:
+            super().keyPressEvent(ev)
+
+    # ------------------------------------------------------------------ geometry helpers
+    def pixel_mm(self) -> float:
+        """Millimetres per screen pixel (the view keeps x and y scales equal)."""
+        px = self.view.viewPixelSize()
+        v = float(max(px[0], px[1])) if px is not None else 0.0
+        if not math.isfinite(v) or v <= 0:
+            v = max(self.scene.size_hint(), 1.0) / 600
+        return v
+
+    def snap(self, p):
+        if not self.snapping or self.grid_step <= 0:
+            return (float(p[0]), float(p[1]))
+        g = self.grid_step
+        return (round(round(p[0] / g) * g, 9), round(round(p[1] / g) * g, 9))
+
+    def snap_delta(self, anchor, dx, dy):
+        """A movement that lands `anchor` on the grid when snapping."""
+        if not self.snapping:
+            return dx, dy
+        x, y = self.snap((anchor[0] + dx, anchor[1] + dy))
+        return x - anchor[0], y - anchor[1]
+
+    def near(self, p, q, px: float = style.PICK_PX) -> bool:
+        return math.dist(p, q) <= px * self.pixel_mm()
+
+    def pick(self, x, y):
+        """What is under (x, y): (kind, index, sub) with sub a vertex, handle or None."""
+        s = self.scene
+        tol = style.PICK_PX * self.pixel_mm()
+        sel = self.selection
+        if sel and sel[0] == edits.PART and sel[1] < len(s.parts):
+            for k, v in enumerate(s.parts[sel[1]].outer.vertices):
+                if math.dist(v, (x, y)) <= tol:
+                    return (edits.PART, sel[1], ("vertex", k))
+        for i, src in enumerate(s.sources):
+            if math.dist(self.aim_handle(src), (x, y)) <= tol:
+                return (edits.SOURCE, i, "aim")
+        for i, d in enumerate(s.detectors):
+            for end in ("start", "end"):
+                if math.dist(getattr(d, end), (x, y)) <= tol:
+                    return (edits.DETECTOR, i, end)
+        for i, src in enumerate(s.sources):
+            if _segment_distance((x, y), *self.source_span(src)) <= tol:
+                return (edits.SOURCE, i, None)
+        for i, d in enumerate(s.detectors):
+            if _segment_distance((x, y), d.start, d.end) <= tol:
+                return (edits.DETECTOR, i, None)
+        inside = [i for i, path in enumerate(self._part_paths) if path.contains(QPointF(x, y))]
+        if inside:   # the smallest part under the cursor is the one meant (nested parts)
+            i = min(inside, key=lambda k: s.parts[k].area())
+            return (edits.PART, i, None)
+        return None
+
+    def face_at(self, x, y):
+        """(part index, edge index) of the face under (x, y), or None."""
+        tol = style.PICK_PX * self.pixel_mm()
+        best, best_d = None, tol
+        for pi, ei, pts in self._edge_polys:
+            d = _polyline_distance((x, y), pts)
+            if d <= best_d:
+                best, best_d = (pi, ei), d
+        return best
+
+    def aim_handle(self, src):
+        L = 3.2 * style.GLYPH_PX * self.pixel_mm()
+        a = math.radians(src.direction_deg)
+        return (src.position[0] + L * math.cos(a), src.position[1] + L * math.sin(a))
+
+    def source_span(self, src):
+        """The emitting extent of a source across its axis (a point for a point source)."""
+        if src.kind == POINT:
+            return src.position, src.position
+        a = math.radians(src.direction_deg)
+        h = src.width / 2
+        nx, ny = -math.sin(a) * h, math.cos(a) * h
+        return ((src.position[0] - nx, src.position[1] - ny), (src.position[0] + nx, src.position[1] + ny))
+
+    # ------------------------------------------------------------------ selection and messages
+    def select(self, sel) -> None:
+        if sel == self.selection:
+            return
+        self.selection = sel
+        self._draw_parts()
+        self._draw_glyphs()
+        self.selection_changed.emit(sel)
+
+    def message(self, text: str) -> None:
+        self.status_message.emit(text)
+
+    def set_preview(self, points, closed: bool = False) -> None:
+        self._preview = points
+        if not points:
+            self._preview_item.setData([], [])
+            return
+        xs = [p[0] for p in points] + ([points[0][0]] if closed else [])
+        ys = [p[1] for p in points] + ([points[0][1]] if closed else [])
+        self._preview_item.setData(xs, ys)
+
+    def show_grid(self, on: bool) -> None:
+        self.plot.showGrid(x=on, y=on, alpha=0.18 if on else 0.0)
+
+    # ------------------------------------------------------------------ drawing
+    def set_scene(self, scene: Scene) -> None:
+        self.scene = scene
+        if self.selection:
+            kind, index = self.selection
+            n = {edits.PART: len(scene.parts), edits.SOURCE: len(scene.sources),
+                 edits.DETECTOR: len(scene.detectors)}[kind]
+            if index >= n:
+                self.selection = None
+                self.selection_changed.emit(None)
+        self._draw_parts()
+        self._draw_glyphs()
+
+    def fit(self) -> None:
+        """Frame the scene: parts, sources, detectors and a margin."""
+        s = self.scene
+        xs, ys = [], []
+        for p in s.parts:
+            x0, y0, x1, y1 = p.outer.bounds()
+            xs += [x0, x1]
+            ys += [y0, y1]
+        for src in s.sources:
+            for q in self.source_span(src):
+                xs.append(q[0])
+                ys.append(q[1])
+        for d in s.detectors:
+            xs += [d.start[0], d.end[0]]
+            ys += [d.start[1], d.end[1]]
+        if not xs:
+            xs, ys = [-10, 10], [-10, 10]
+        w = max(max(xs) - min(xs), max(ys) - min(ys), 1e-3)
+        m = 0.12 * w
+        self.view.setRange(xRange=(min(xs) - m, max(xs) + m), yRange=(min(ys) - m, max(ys) + m), padding=0)
+
+    def _draw_parts(self) -> None:
+        for it in self._part_items:
+            self.plot.removeItem(it)
+        self._part_items, self._part_paths, self._edge_polys = [], [], []
+        tol = 2e-4 * max(self.scene.size_hint(), 1e-6)
+        handles = []
+        for i, part in enumerate(self.scene.parts):
+            path = QPainterPath()
+            path.setFillRule(Qt.OddEvenFill)
+            for loop in part.loops:
+                pts = loop.coords(tol)
+                path.moveTo(*pts[0])
+                for q in pts[1:]:
+                    path.lineTo(*q)
+                path.closeSubpath()
+            for ei, e in enumerate(part.outer.edges):
+                pts = e.flattened(tol) + [e.end]
+                self._edge_polys.append((i, ei, np.asarray(pts, dtype=float)))
+            selected = self.selection == (edits.PART, i)
+            item = QGraphicsPathItem(path)
+            item.setBrush(QBrush(style.material_tint(part.material)))
+            item.setPen(_pen(style.SELECTED if selected else style.material_outline(part.material),
+                             2.4 if selected else 1.4))
+            item.setZValue(1)
+            item.setToolTip(f"{part.name} ({part.material})")
+            self.plot.addItem(item)
+            self._part_items.append(item)
+            self._part_paths.append(path)
+            if selected:
+                handles += part.outer.vertices
+        self._vertex_handles = handles
+
+    def _draw_glyphs(self) -> None:
+        for it in self._glyph_items:
+            self.plot.removeItem(it)
+        self._glyph_items = []
+        px = self.pixel_mm()
+        g = style.GLYPH_PX * px
+        handles = list(getattr(self, "_vertex_handles", []))
+        for i, src in enumerate(self.scene.sources):
+            selected = self.selection == (edits.SOURCE, i)
+            self._add_path(_source_path(self, src, g), style.SOURCE_EDGE, style.SOURCE, 2.2 if selected else 1.3,
+                           f"source {src.name} ({src.kind})", selected)
+            handles.append(self.aim_handle(src))
+        for i, det in enumerate(self.scene.detectors):
+            selected = self.selection == (edits.DETECTOR, i)
+            self._add_path(_detector_ticks(det, g), style.DETECTOR, None, 1.2, f"detector {det.name}", selected)
+            line = QPainterPath()
+            line.moveTo(*det.start)
+            line.lineTo(*det.end)
+            self._add_path(line, style.SELECTED if selected else style.DETECTOR, None, 4.0,
+                           f"detector {det.name}" + ("" if det.absorbing else " (monitor: rays pass)"),
+                           False, Qt.SolidLine if det.absorbing else Qt.DashLine)
+            handles += [det.start, det.end]
+        if handles:
+            self._handles.setData([h[0] for h in handles], [h[1] for h in handles])
+        else:
+            self._handles.setData([], [])
+
+    def _add_path(self, path, colour, fill, width, tip, selected, line_style=Qt.SolidLine):
+        item = QGraphicsPathItem(path)
+        item.setPen(_pen(style.SELECTED if selected else colour, width, line_style))
+        item.setBrush(QBrush(fill) if fill is not None else QBrush(Qt.NoBrush))
+        item.setZValue(15)
+        item.setToolTip(tip)
+        self.plot.addItem(item)
+        self._glyph_items.append(item)
+
+    def set_result(self, result) -> None:
+        """Draw a trace result (None clears the rays)."""
+        self.result = result
+        self.drawing = ray_drawing(result) if result is not None else RayDrawing()
+        for k in KINDS:
+            groups = self.drawing.lines.get(k)
+            for lv, item in enumerate(self._ray_items[k]):
+                if groups is None or not len(groups[lv][0]):
+                    item.setData([], [])
+                else:
+                    item.setData(groups[lv][0], groups[lv][1], connect="pairs")
+        self._hits.setData(self.drawing.hits_x, self.drawing.hits_y)
+        esc = self.drawing.escapes
+        if esc:
+            sizes = [max(6.0, 60.0 * math.sqrt(share)) for _, _, share, _ in esc]
+            self._escapes.setData([e[0] for e in esc], [e[1] for e in esc], size=sizes,
+                                  data=[f"{e[3]}: {100 * e[2]:.2f} % escapes" for e in esc])
+        else:
+            self._escapes.setData([], [])
+
+    # ------------------------------------------------------------------ hover
+    def _mouse_moved(self, scene_pos):
+        if not self.plot.plotItem.sceneBoundingRect().contains(scene_pos):
+            return
+        p = self.view.mapSceneToView(scene_pos)
+        x, y = p.x(), p.y()
+        self.cursor_moved.emit(x, y)
+        self.tool.hover(x, y)
+        tip = self.hover_text(x, y)
+        if tip:
+            QToolTip.showText(self.plot.mapToGlobal(self.plot.mapFromScene(scene_pos)), tip, self.plot)
+        else:
+            QToolTip.hideText()
+
+    def hover_text(self, x, y) -> str:
+        """What the tooltip says at (x, y): the face name and treatment, or an escape figure."""
+        tol = style.PICK_PX * self.pixel_mm()
+        for ex, ey, share, label in self.drawing.escapes:
+            if math.dist((ex, ey), (x, y)) <= tol:
+                return f"{label}: {100 * share:.2f} % of the source flux escapes here"
+        f = self.face_at(x, y)
+        if f is None:
+            return ""
+        part = self.scene.parts[f[0]]
+        e = part.outer.edges[f[1]]
+        t = e.treatment.kind + (f" R={e.treatment.reflectance:g}" if e.treatment.kind == "mirror" else "")
+        return f"{part.name} / {e.face or f'edge {f[1] + 1}'} ({t})"
+
+
+# ---------------------------------------------------------------------- glyph shapes
+
+def _source_path(canvas: Canvas, src, g: float) -> QPainterPath:
+    """Our own source glyphs: a beam is a bar across its width with an arrow; an emitter is a
+    die (a thin box on its back side) with an arrow; a point source is a dot with its cone."""
+    path = QPainterPath()
+    a = math.radians(src.direction_deg)
+    ux, uy = math.cos(a), math.sin(a)
+    nx, ny = -uy, ux
+    px_, py_ = src.position
+    (x0, y0), (x1, y1) = canvas.source_span(src)
+    hx, hy = canvas.aim_handle(src)
+    if src.kind == POINT:
+        r = 0.45 * g
+        path.addEllipse(QPointF(px_, py_), r, r)
+        half = math.radians(min(src.half_angle_deg, 89.0))
+        for sgn in (-1, 1):
+            c, s = math.cos(a + sgn * half), math.sin(a + sgn * half)
+            path.moveTo(px_ + r * c, py_ + r * s)
+            path.lineTo(px_ + 2.2 * g * c, py_ + 2.2 * g * s)
+    else:
+        back = 0.35 * g if src.kind == EMITTER else 0.2 * g
+        path.moveTo(x0, y0)
+        path.lineTo(x1, y1)
+        path.lineTo(x1 - back * ux, y1 - back * uy)
+        path.lineTo(x0 - back * ux, y0 - back * uy)
+        path.closeSubpath()
+    # axis arrow to the aim handle
+    path.moveTo(px_, py_)
+    path.lineTo(hx, hy)
+    head = 0.55 * g
+    path.moveTo(hx, hy)
+    path.lineTo(hx - head * ux + 0.5 * head * nx, hy - head * uy + 0.5 * head * ny)
+    path.lineTo(hx - head * ux - 0.5 * head * nx, hy - head * uy - 0.5 * head * ny)
+    path.closeSubpath()
+    return path
+
+
+def _detector_ticks(det, g: float) -> QPainterPath:
+    """Short ticks on the back of a detector; the front (the side it counts) is left clear."""
+    path = QPainterPath()
+    (sx, sy), (ex, ey) = det.start, det.end
+    L = math.dist(det.start, det.end)
+    ux, uy = (ex - sx) / L, (ey - sy) / L
+    bx, by = -uy, ux            # left of start->end: the back; the front is to the right
+    n = max(2, min(60, int(L / (0.6 * g))))
+    for k in range(n + 1):
+        t = L * k / n
+        x, y = sx + ux * t, sy + uy * t
+        path.moveTo(x, y)
+        path.lineTo(x + 0.45 * g * (bx - 0.5 * ux), y + 0.45 * g * (by - 0.5 * uy))
+    return path
+
+
+def _segment_distance(p, a, b) -> float:
+    ax, ay = a
+    bx, by = b
+    dx, dy = bx - ax, by - ay
+    L2 = dx * dx + dy * dy
+    t = 0.0 if L2 == 0 else max(0.0, min(1.0, ((p[0] - ax) * dx + (p[1] - ay) * dy) / L2))
+    return math.hypot(p[0] - ax - t * dx, p[1] - ay - t * dy)
+
+
+def _polyline_distance(p, pts: np.ndarray) -> float:
+    a, b = pts[:-1], pts[1:]
+    d = b - a
+    L2 = (d * d).sum(axis=1)
+    q = np.asarray(p)
+    t = np.clip(np.divide(((q - a) * d).sum(axis=1), L2, out=np.zeros_like(L2), where=L2 > 0), 0, 1)
+    c = a + t[:, None] * d
+    return float(np.min(np.hypot(*(q - c).T)))

@@ -1,0 +1,1 @@
+"""Dialogs: shape builder, material, sweep."""

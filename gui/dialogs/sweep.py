@@ -1,0 +1,231 @@
+"""Sweep one number of the scene over a range, in the background, and plot the efficiencies.
+
+The sweep runs `raytrace.sweep.sweep` in a worker thread one point at a time; its progress
+callback moves the bar and stops the run when Cancel is pressed (the point being traced is
+finished first, the rest are skipped).
+"""
+from __future__ import annotations
+
+import threading
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import QObject, Signal
+from PySide6.QtWidgets import (QComboBox, QDialog, QDoubleSpinBox, QFormLayout, QHBoxLayout,
+                               QLabel, QProgressBar, QPushButton, QSpinBox, QVBoxLayout)
+
+from raytrace.errors import RaytraceError, SceneError
+from raytrace.shapes import PARAMETERS
+from raytrace.sweep import Variable, sweep
+
+from .. import style
+
+
+class SweepCancelled(Exception):
+    pass
+
+
+def sweep_names(scene) -> list[str]:
+    """Numbers of the scene a user is likely to sweep, named as `raytrace.sweep` reads them."""
+    names = []
+    for p in scene.parts:
+        if p.shape is not None:
+            for info in PARAMETERS[p.shape.kind]:
+                if info.type in ("number", "integer"):
+                    names.append(f"{p.name}.{info.name}")
+            names += [f"{p.name}.rotation_deg", f"{p.name}.position[0]", f"{p.name}.position[1]"]
+    for s in scene.sources:
+        names += [f"{s.name}.direction_deg", f"{s.name}.position[0]", f"{s.name}.position[1]"]
+        if s.kind != "point":
+            names.append(f"{s.name}.width")
+        if s.kind != "beam":
+            names.append(f"{s.name}.half_angle_deg")
+    names.append("wavelength")
+    for d in scene.detectors:
+        names += [f"{d.name}.start[0]", f"{d.name}.start[1]", f"{d.name}.end[0]", f"{d.name}.end[1]"]
+    return names
+
+
+def current_value(scene, name: str) -> float | None:
+    """The value `name` has now (for the dialog's default range), when it can be read simply."""
+    obj, _, field = name.rpartition(".")
+    idx = None
+    if field.endswith("]"):
+        field, _, i = field[:-1].partition("[")
+        idx = int(i)
+    for p in scene.parts:
+        if p.name == obj and p.shape is not None:
+            v = p.shape.params.get(field) if field in p.shape.params else getattr(p.shape, field, None)
+            return float(v[idx] if idx is not None else v) if v is not None else None
+    for group in (scene.sources, scene.detectors):
+        for it in group:
+            if it.name == obj and hasattr(it, field):
+                v = getattr(it, field)
+                return float(v[idx] if idx is not None else v)
+    if name == "wavelength" and scene.sources:
+        return float(scene.sources[0].spectrum.mean_nm)
+    return None
+
+
+class _Runner(QObject):
+    progress = Signal(int, int)
+    done = Signal(object, str)     # SweepResult or None, message
+
+    def __init__(self):
+        super().__init__()
+        self.cancel = threading.Event()
+
+    def run(self, scene, variable, options):
+        def progress(done, total):
+            self.progress.emit(done, total)
+            if self.cancel.is_set():
+                raise SweepCancelled()
+        try:
+            result = sweep(scene, [variable], options, workers=1, progress=progress)
+        except SweepCancelled:
+            self.done.emit(None, "cancelled")
+        except SceneError as exc:
+            self.done.emit(None, "; ".join(str(p) for p in exc.problems))
+        except RaytraceError as exc:
+            self.done.emit(None, str(exc))
+        else:
+            self.done.emit(result, "")
+
+
+class SweepDialog(QDialog):
+    def __init__(self, scene, options: dict | None = None, parent=None):
+        super().__init__(parent)
+        self.setWindowTitle("Sweep a number of the scene")
+        self.scene = scene
+        self.options = options or {}
+        self.result = None
+        self.message = ""
+        self.name = QComboBox()
+        self.name.setEditable(True)
+        self.name.addItems(sweep_names(scene))
+        self.name.setToolTip("OBJECT.FIELD, e.g. guide.width, LED.direction_deg, wavelength, or a JSON path $.parts[0]...")
+        self.start = _spin()
+        self.stop = _spin()
+        self.count = QSpinBox()
+        self.count.setRange(1, 10_000)
+        self.count.setValue(11)
+        self.rays = QSpinBox()
+        self.rays.setRange(1, 10_000_000)
+        self.rays.setValue(scene.settings.rays)
+        self.rays.setToolTip("Source rays per point")
+        self.bar = QProgressBar()
+        self.status = QLabel("")
+        self.status.setWordWrap(True)
+        self.plot = pg.PlotWidget(background=style.BACKGROUND)
+        self.plot.setLabel("left", "efficiency", units="%")
+        self.plot.getAxis("left").enableAutoSIPrefix(False)
+        self.plot.getAxis("bottom").enableAutoSIPrefix(False)
+        self.plot.addLegend(offset=(-10, 10))
+        self.plot.setMinimumSize(420, 260)
+        self.run_btn = QPushButton("Run")
+        self.cancel_btn = QPushButton("Cancel")
+        self.cancel_btn.setEnabled(False)
+        close = QPushButton("Close")
+        self.run_btn.clicked.connect(self.run)
+        self.cancel_btn.clicked.connect(self.cancel)
+        close.clicked.connect(self.reject)
+        form = QFormLayout()
+        form.addRow("Number to vary", self.name)
+        rng = QHBoxLayout()
+        rng.addWidget(self.start)
+        rng.addWidget(QLabel("to"))
+        rng.addWidget(self.stop)
+        rng.addWidget(QLabel("in"))
+        rng.addWidget(self.count)
+        rng.addWidget(QLabel("steps"))
+        form.addRow("Range", rng)
+        form.addRow("Rays per point", self.rays)
+        buttons = QHBoxLayout()
+        buttons.addWidget(self.run_btn)
+        buttons.addWidget(self.cancel_btn)
+        buttons.addStretch(1)
+        buttons.addWidget(close)
+        lay = QVBoxLayout(self)
+        lay.addLayout(form)
+        lay.addWidget(self.bar)
+        lay.addWidget(self.status)
+        lay.addWidget(self.plot, 1)
+        lay.addLayout(buttons)
+        self.name.currentTextChanged.connect(self._default_range)
+        self._default_range(self.name.currentText())
+        self._runner = None
+        self._thread = None
+
+    def _default_range(self, name):
+        v = current_value(self.scene, name)
+        if v is None:
+            return
+        span = abs(v) * 0.2 if v else 1.0
+        self.start.setValue(v - span)
+        self.stop.setValue(v + span)
+
+    def run(self):
+        if self._thread is not None:
+            return
+        n = self.count.value()
+        a, b = self.start.value(), self.stop.value()
+        values = tuple(a + (b - a) * k / (n - 1) for k in range(n)) if n > 1 else (a,)
+        variable = Variable(self.name.currentText().strip(), values)
+        options = dict(self.options, rays=self.rays.value())
+        self._runner = _Runner()
+        self._runner.progress.connect(self._progress)
+        self._runner.done.connect(self._done)
+        self.bar.setRange(0, n)
+        self.bar.setValue(0)
+        self.status.setText("running...")
+        self.run_btn.setEnabled(False)
+        self.cancel_btn.setEnabled(True)
+        self._thread = threading.Thread(target=self._runner.run, args=(self.scene, variable, options),
+                                        name="sweep", daemon=True)
+        self._thread.start()
+
+    def cancel(self):
+        if self._runner is not None:
+            self._runner.cancel.set()
+            self.status.setText("cancelling after the current point...")
+
+    def running(self) -> bool:
+        return self._thread is not None
+
+    def _progress(self, done, total):
+        self.bar.setValue(done)
+
+    def _done(self, result, message):
+        self._thread = None
+        self.run_btn.setEnabled(True)
+        self.cancel_btn.setEnabled(False)
+        self.result, self.message = result, message
+        if result is None:
+            self.status.setText(f"Sweep stopped: {message}")
+            return
+        failed = result.failed
+        self.status.setText(f"{len(result.rows)} points" + (f"; {len(failed)} failed: {failed[0]['status']}" if failed else ""))
+        self.plot_result(result)
+
+    def plot_result(self, result):
+        self.plot.clear()
+        name = result.names[0]
+        self.plot.setLabel("bottom", name)
+        ok = [r for r in result.rows if r["status"] == "ok"]
+        x = np.array([r[name] for r in ok], dtype=float)
+        for k, det in enumerate(result.detectors):
+            y = np.array([100 * r[f"efficiency: {det}"] for r in ok], dtype=float)
+            colour = pg.intColor(k, hues=max(3, len(result.detectors)), values=1, maxValue=200)
+            self.plot.plot(x, y, pen=pg.mkPen(colour, width=2), symbol="o", symbolSize=6,
+                           symbolBrush=colour, name=det)
+
+    def reject(self):
+        self.cancel()
+        super().reject()
+
+
+def _spin():
+    s = QDoubleSpinBox()
+    s.setRange(-1e6, 1e6)
+    s.setDecimals(5)
+    return s

@@ -1,0 +1,53 @@
+"""Exports that never leave a half-written file: write beside the target, then rename."""
+from __future__ import annotations
+
+import os
+import tempfile
+from pathlib import Path
+
+from raytrace.raytable import ray_table
+
+
+def _atomic(path: str | os.PathLike, write) -> None:
+    """Call write(temp_path) for a temporary file next to `path`, then rename it over `path`."""
+    path = Path(path)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=path.suffix, dir=str(path.parent or "."))
+    os.close(fd)
+    try:
+        write(tmp)
+        if os.path.getsize(tmp) == 0:
+            raise OSError(f"nothing was written to {path}")
+        with open(tmp, "rb+") as fh:
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+
+
+def save_widget_png(widget, path) -> None:
+    """A PNG of a widget as it is on screen (the canvas with its legend, or the whole window)."""
+    def write(tmp):
+        if not widget.grab().save(tmp, "PNG"):
+            raise OSError(f"could not encode the image for {path}")
+    _atomic(path, write)
+
+
+def save_plot_svg(plot_item, path) -> None:
+    import pyqtgraph.exporters as exporters
+
+    def write(tmp):
+        exporters.SVGExporter(plot_item).export(tmp)
+    _atomic(path, write)
+
+
+def save_ray_table_csv(result, path) -> int:
+    """Write the recorded ray segments as CSV; returns the number of rows."""
+    table = ray_table(result)
+    if table is None:
+        raise ValueError("this trace recorded no ray segments (set Drawn rays above 0)")
+    table.to_csv(path)      # atomic inside raytable
+    return len(table)

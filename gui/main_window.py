@@ -1,0 +1,479 @@
+"""The main window: drawing in the middle, editing and results beside it, menus around it.
+
+User questions (file names, unsaved changes, errors) go through small `ask_*` / `show_*`
+methods so tests can answer them without opening modal dialogs.
+"""
+from __future__ import annotations
+
+import time
+from pathlib import Path
+
+from PySide6.QtCore import Qt
+from PySide6.QtGui import QAction, QActionGroup, QKeySequence
+from PySide6.QtWidgets import (QDockWidget, QDoubleSpinBox, QFileDialog, QLabel, QMainWindow,
+                               QMessageBox, QTabWidget, QToolBar)
+
+from raytrace.errors import SceneError
+from raytrace.scene import Scene
+from raytrace.scene_io import scene_from_text
+
+from . import edits, help as help_text
+from .autosave import Autosaver, find_recoveries
+from .canvas import Canvas
+from .document import Document
+from .export import save_plot_svg, save_ray_table_csv, save_widget_png
+from .panels.controls import TraceControls
+from .panels.ledger import LedgerPanel
+from .panels.plots import ProfilePanel
+from .panels.properties import PropertiesPanel
+from .recent import add_recent, recent_files
+from .tools import DETECTOR_TOOL, POLYGON, RECTANGLE, ROTATE, SELECT, SOURCE_TOOL
+from .tracing import TraceCancelled, run_trace
+from .worker import TraceOutcome, TraceRequest, TraceWorker
+
+SCENE_FILTER = "Scene files (*.json);;All files (*)"
+
+
+class MainWindow(QMainWindow):
+    def __init__(self, autosave_s: float = 60.0):
+        super().__init__()
+        self.doc = Document(self)
+        self.worker = TraceWorker(self)
+        self.autosaver = Autosaver(self.doc, autosave_s, self)
+        self.last_error = ""
+        self.last_outcome: TraceOutcome | None = None
+        self.traces_shown = 0
+        self.redraw_times: list[float] = []   # seconds from a request to its drawn rays
+
+        self.canvas = Canvas(self.doc)
+        self.setCentralWidget(self.canvas)
+        self.properties = PropertiesPanel(self.doc, self.status_note, self.ask_material)
+        self.controls = TraceControls(self.doc)
+        self.ledger = LedgerPanel()
+        self.profiles = ProfilePanel()
+        edit_tabs = QTabWidget()
+        edit_tabs.addTab(self.properties, "Selection")
+        edit_tabs.addTab(self.controls, "Trace")
+        result_tabs = QTabWidget()
+        result_tabs.addTab(self.ledger, "Where the flux went")
+        result_tabs.addTab(self.profiles, "Detector profiles")
+        self.edit_tabs, self.result_tabs = edit_tabs, result_tabs
+        for title, w, name in (("Edit", edit_tabs, "edit"), ("Results", result_tabs, "results")):
+            dock = QDockWidget(title, self)
+            dock.setObjectName(name)
+            dock.setWidget(w)
+            dock.setFeatures(QDockWidget.DockWidgetMovable | QDockWidget.DockWidgetFloatable)
+            self.addDockWidget(Qt.RightDockWidgetArea, dock)
+
+        self.cursor_label = QLabel("x -, y - mm")
+        self.cursor_label.setMinimumWidth(190)
+        self.trace_label = QLabel("")
+        self.statusBar().addPermanentWidget(self.trace_label)
+        self.statusBar().addPermanentWidget(self.cursor_label)
+
+        self._build_actions()
+        self.doc.changed.connect(self._scene_changed)
+        self.doc.file_changed.connect(self._update_title)
+        self.canvas.selection_changed.connect(self._selection_changed)
+        self.canvas.cursor_moved.connect(lambda x, y: self.cursor_label.setText(f"x {x:.3f}, y {y:.3f} mm"))
+        self.canvas.status_message.connect(self.status_note)
+        self.worker.finished.connect(self._show_outcome)
+        self.worker.busy.connect(lambda b: self.trace_label.setText("tracing..." if b else self.trace_label.text()))
+        self.controls.options_changed.connect(self.request_trace)
+        self.controls.trace_now.connect(lambda: self.request_trace(force=True))
+        self.controls.stop.connect(self.stop_trace)
+        self.resize(1400, 900)
+        self._scene_changed()
+        self._update_title()
+
+    # ------------------------------------------------------------------ actions and menus
+    def _act(self, menu, text, slot, shortcut=None, tip="", checkable=False):
+        a = QAction(text, self)
+        if shortcut:
+            a.setShortcut(QKeySequence(shortcut))
+        if tip:
+            a.setStatusTip(tip)
+            a.setToolTip(tip)
+        a.setCheckable(checkable)
+        a.triggered.connect(slot)
+        menu.addAction(a)
+        return a
+
+    def _build_actions(self):
+        mb = self.menuBar()
+        f = mb.addMenu("&File")
+        self._act(f, "&New", self.new_scene, QKeySequence.New, "Start an empty scene")
+        self._act(f, "&Open...", lambda: self.open_file(), QKeySequence.Open, "Open a scene file")
+        self.recent_menu = f.addMenu("Open &recent")
+        self.recent_menu.aboutToShow.connect(self._fill_recent)
+        self._act(f, "&Save", lambda: self.save(), QKeySequence.Save, "Save the scene")
+        self._act(f, "Save &as...", lambda: self.save_as(), QKeySequence.SaveAs, "Save under another name")
+        f.addSeparator()
+        self._act(f, "Export ray table (CSV)...", lambda: self.export_csv(), None,
+                  "The drawn rays' segments, one row each")
+        self._act(f, "Export drawing (PNG)...", lambda: self.export_png(), None, "The drawing with its legend")
+        self._act(f, "Export drawing (SVG)...", lambda: self.export_svg(), None, "The drawing as vector graphics")
+        f.addSeparator()
+        self._act(f, "&Quit", self.close, QKeySequence.Quit)
+
+        e = mb.addMenu("&Edit")
+        self.undo_action = self.doc.undo_stack.createUndoAction(self, "&Undo")
+        self.undo_action.setShortcut(QKeySequence.Undo)
+        self.redo_action = self.doc.undo_stack.createRedoAction(self, "&Redo")
+        self.redo_action.setShortcuts([QKeySequence.Redo, QKeySequence("Ctrl+Y")])
+        e.addAction(self.undo_action)
+        e.addAction(self.redo_action)
+        e.addSeparator()
+        self._act(e, "&Delete selected", self.delete_selected, QKeySequence.Delete,
+                  "Delete the selected part, source or detector")
+        self._act(e, "Add part from a &shape...", lambda: self.add_shape(), "Ctrl+Shift+A",
+                  "Prism, roof prism, light-pipe path, microprism strip, window, lens...")
+        self._act(e, "Define a &material...", lambda: self.properties.define_material(), None,
+                  "A material of your own: constant index or nd/Vd glass")
+
+        v = mb.addMenu("&View")
+        self._act(v, "&Fit scene", self.canvas.fit, "Ctrl+0", "Show the whole scene")
+        self.grid_action = self._act(v, "&Grid", self.canvas.show_grid, "G", "Show the grid", True)
+        self.grid_action.setChecked(True)
+        self.snap_action = self._act(v, "&Snap to grid", self._set_snap, "Shift+G",
+                                     "Vertices, parts and ends land on the grid", True)
+
+        t = mb.addMenu("&Tools")
+        tb = QToolBar("Tools")
+        tb.setObjectName("tools")
+        self.addToolBar(Qt.LeftToolBarArea, tb)
+        group = QActionGroup(self)
+        self.tool_actions = {}
+        for name, text, key, tip in (
+                (SELECT, "Select", "V", "Select and drag parts, vertices, sources, aim handles, detectors"),
+                (ROTATE, "Rotate", "R", "Drag to rotate a part, source or detector"),
+                (POLYGON, "Polygon", "P", "Add a part by clicking its vertices"),
+                (RECTANGLE, "Rectangle", "B", "Add a rectangular part by dragging"),
+                (SOURCE_TOOL, "Source", "L", "Place a light source; drag to aim it"),
+                (DETECTOR_TOOL, "Detector", "D", "Drag to place a detector")):
+            a = self._act(t, text, lambda _c=False, n=name: self.set_tool(n), key, tip, True)
+            group.addAction(a)
+            tb.addAction(a)
+            self.tool_actions[name] = a
+        self.tool_actions[SELECT].setChecked(True)
+        tb.addSeparator()
+        shape = QAction("Shape...", self)
+        shape.setToolTip("Add a part from a shape builder")
+        shape.triggered.connect(lambda: self.add_shape())
+        tb.addAction(shape)
+        tb.addSeparator()
+        tb.addWidget(QLabel(" grid"))
+        self.grid_step = QDoubleSpinBox()
+        self.grid_step.setRange(0.001, 1000)
+        self.grid_step.setDecimals(3)
+        self.grid_step.setValue(1.0)
+        self.grid_step.setSuffix(" mm")
+        self.grid_step.setToolTip("Snapping step")
+        self.grid_step.valueChanged.connect(lambda v: setattr(self.canvas, "grid_step", v))
+        tb.addWidget(self.grid_step)
+
+        r = mb.addMenu("T&race")
+        self._act(r, "Trace &now", lambda: self.request_trace(force=True), "F5")
+        self._act(r, "&Stop trace", self.stop_trace, "Shift+F5")
+        self._act(r, "S&weep...", self.open_sweep, "Ctrl+W", "Vary one number and plot the efficiencies")
+
+        h = mb.addMenu("&Help")
+        self._act(h, "&Safety cautions", lambda: self.show_info("Safety cautions", help_text.SAFETY))
+        self._act(h, "&Keys and mouse", lambda: self.show_info("Keys and mouse", help_text.SHORTCUTS), QKeySequence.HelpContents)
+        self._act(h, "&About", lambda: self.show_info("About", help_text.ABOUT))
+
+    def set_tool(self, name: str) -> None:
+        self.canvas.set_tool(name)
+        self.tool_actions[name].setChecked(True)
+
+    def _set_snap(self, on: bool) -> None:
+        self.canvas.snapping = on
+        self.canvas.grid_step = self.grid_step.value()
+
+    def _fill_recent(self):
+        self.recent_menu.clear()
+        items = recent_files()
+        if not items:
+            self.recent_menu.addAction("(none)").setEnabled(False)
+        for p in items:
+            a = self.recent_menu.addAction(p)
+            a.triggered.connect(lambda _c=False, path=p: self.open_file(path))
+
+    # ------------------------------------------------------------------ hooks (tests replace these)
+    def ask_open_path(self) -> str:
+        path, _ = QFileDialog.getOpenFileName(self, "Open a scene", str(self._dir()), SCENE_FILTER)
+        return path
+
+    def ask_save_path(self, title="Save the scene", filt=SCENE_FILTER, suffix=".json") -> str:
+        start = str(self.doc.path) if self.doc.path else str(self._dir() / f"untitled{suffix}")
+        if suffix != ".json":
+            start = str(Path(start).with_suffix(suffix))
+        path, _ = QFileDialog.getSaveFileName(self, title, start, filt)
+        return path
+
+    def ask_unsaved(self) -> str:
+        """"save", "discard" or "cancel"."""
+        box = QMessageBox(QMessageBox.Warning, "Unsaved changes",
+                          f"{self.doc.title} has changes that are not saved.", parent=self)
+        box.setStandardButtons(QMessageBox.Save | QMessageBox.Discard | QMessageBox.Cancel)
+        return {QMessageBox.Save: "save", QMessageBox.Discard: "discard"}.get(box.exec(), "cancel")
+
+    def ask_recovery(self, description: str) -> str:
+        """"restore", "discard" or "keep"."""
+        box = QMessageBox(QMessageBox.Question, "Recover unsaved work",
+                          f"Work on {description} was not saved when the program last ended.\n"
+                          "Restore it?", parent=self)
+        restore = box.addButton("Restore", QMessageBox.AcceptRole)
+        discard = box.addButton("Discard", QMessageBox.DestructiveRole)
+        box.addButton("Not now", QMessageBox.RejectRole)
+        box.exec()
+        clicked = box.clickedButton()
+        return "restore" if clicked is restore else "discard" if clicked is discard else "keep"
+
+    def ask_material(self, taken):
+        from .dialogs.material import MaterialDialog
+        dlg = MaterialDialog(taken, self)
+        return dlg.material() if dlg.exec() else None
+
+    def show_error(self, title: str, text: str) -> None:
+        self.last_error = text
+        self.statusBar().showMessage(text, 15000)
+        QMessageBox.warning(self, title, text)
+
+    def show_info(self, title: str, html: str) -> None:
+        QMessageBox.information(self, title, html)
+
+    def status_note(self, text: str) -> None:
+        self.statusBar().showMessage(text, 8000)
+
+    def _dir(self) -> Path:
+        return self.doc.path.parent if self.doc.path else Path.cwd()
+
+    # ------------------------------------------------------------------ files
+    def maybe_discard(self) -> bool:
+        """True when the current work may be replaced (saved, discarded, or unchanged)."""
+        if not self.doc.modified:
+            return True
+        answer = self.ask_unsaved()
+        if answer == "save":
+            return self.save()
+        return answer == "discard"
+
+    def new_scene(self) -> None:
+        if self.maybe_discard():
+            self.autosaver.discard()
+            self.doc.replace(Scene(name="untitled"), None)
+            self.canvas.fit()
+
+    def open_file(self, path: str | None = None) -> bool:
+        if not self.maybe_discard():
+            return False
+        path = path or self.ask_open_path()
+        if not path:
+            return False
+        try:
+            self.doc.open(path)
+        except SceneError as exc:
+            lines = [str(p) for p in exc.problems]
+            self.show_error("Cannot open the scene", f"{path} has {len(lines)} problem(s):\n" + "\n".join(lines[:20]))
+            return False
+        except OSError as exc:
+            self.show_error("Cannot open the scene", f"Could not read {path}: {exc.strerror or exc}")
+            return False
+        self.autosaver.discard()
+        add_recent(path)
+        self.canvas.select(None)
+        self.canvas.fit()
+        self.status_note(f"Opened {path}")
+        return True
+
+    def save(self) -> bool:
+        if self.doc.path is None:
+            return self.save_as()
+        return self._save_to(self.doc.path)
+
+    def save_as(self, path: str | None = None) -> bool:
+        path = path or self.ask_save_path()
+        if not path:
+            return False
+        return self._save_to(Path(path))
+
+    def _save_to(self, path: Path) -> bool:
+        try:
+            self.doc.save(path)
+        except OSError as exc:
+            reason = exc.strerror or str(exc)
+            self.show_error("Not saved", f"Could not save {path}: {reason}. "
+                                         "The scene is still open with its changes unsaved.")
+            self._update_title()
+            return False
+        add_recent(path)
+        self.autosaver.discard()
+        self.status_note(f"Saved {path}")
+        return True
+
+    def _export(self, what: str, suffix: str, filt: str, write) -> bool:
+        path = self.ask_save_path(f"Export {what}", filt, suffix)
+        if not path:
+            return False
+        try:
+            n = write(path)
+        except (OSError, ValueError) as exc:
+            self.show_error("Not exported", f"Could not write {path}: {getattr(exc, 'strerror', None) or exc}")
+            return False
+        self.status_note(f"Exported {what} to {path}" + (f" ({n} rows)" if isinstance(n, int) else ""))
+        return True
+
+    def export_csv(self) -> bool:
+        if self.canvas.result is None:
+            self.show_error("Not exported", "There is no trace to export yet.")
+            return False
+        return self._export("the ray table", ".csv", "CSV (*.csv)",
+                            lambda p: save_ray_table_csv(self.canvas.result, p))
+
+    def export_png(self) -> bool:
+        return self._export("the drawing", ".png", "PNG image (*.png)", lambda p: save_widget_png(self.canvas, p))
+
+    def export_svg(self) -> bool:
+        return self._export("the drawing", ".svg", "SVG image (*.svg)",
+                            lambda p: save_plot_svg(self.canvas.plot.plotItem, p))
+
+    def offer_recovery(self) -> bool:
+        """After a crash: offer the newest recovery copy; True when one was restored."""
+        for rec in find_recoveries():
+            answer = self.ask_recovery(rec.describe())
+            if answer == "keep":
+                return False
+            if answer == "discard":
+                rec.discard()
+                continue
+            try:
+                scene = scene_from_text(rec.scene_file.read_text(encoding="utf-8"))
+            except (SceneError, OSError) as exc:
+                self.show_error("Cannot restore", f"The recovery copy {rec.scene_file} cannot be read: {exc}")
+                return False
+            self.doc.replace(scene, Path(rec.original) if rec.original else None, dirty=True)
+            self.autosaver.save_now()      # our own copy first, then drop the old one
+            rec.discard()
+            self.canvas.fit()
+            self.status_note(f"Restored {rec.describe()}; save it to keep it")
+            return True
+        return False
+
+    def closeEvent(self, ev):
+        if not self.maybe_discard():
+            ev.ignore()
+            return
+        self.worker.shutdown()
+        self.autosaver.discard()
+        ev.accept()
+
+    def _update_title(self) -> None:
+        mark = "*" if self.doc.modified else ""
+        name = self.doc.scene.name
+        self.setWindowTitle(f"{mark}{self.doc.title}" + (f" - {name}" if name and name != "untitled" else "")
+                            + " - 2D ray tracer")
+
+    # ------------------------------------------------------------------ editing
+    def delete_selected(self) -> None:
+        sel = self.canvas.selection
+        if not sel:
+            return
+        kind, index = sel
+        name = {edits.PART: self.doc.scene.parts, edits.SOURCE: self.doc.scene.sources,
+                edits.DETECTOR: self.doc.scene.detectors}[kind][index].name
+        self.canvas.select(None)
+        self.doc.apply(edits.delete_item(self.doc.scene, kind, index), f"delete {name}")
+
+    def add_shape(self, kind: str | None = None) -> None:
+        from raytrace.catalog import CATALOG
+        from .dialogs.shape import ShapeDialog
+        r = self.canvas.view.viewRange()
+        centre = ((r[0][0] + r[0][1]) / 2, (r[1][0] + r[1][1]) / 2)
+        mats = list(CATALOG) + [m for m in self.doc.scene.materials if m not in CATALOG]
+        dlg = ShapeDialog(mats, self.canvas.default_material, (round(centre[0], 3), round(centre[1], 3)), self)
+        if kind:
+            dlg.set_kind(kind)
+        if not dlg.exec():
+            return
+        part = edits.shape_part(dlg.spec(), dlg.material.currentText(), dlg.name.text().strip())
+        scene = edits.add_part(self.doc.scene, part)
+        self.doc.apply(scene, f"add {scene.parts[-1].name}")
+        self.canvas.select((edits.PART, len(scene.parts) - 1))
+
+    def open_sweep(self) -> None:
+        from .dialogs.sweep import SweepDialog
+        s = self.doc.scene.settings
+        dlg = SweepDialog(self.doc.scene, {"mode": s.mode, "min_relative_flux": s.min_relative_flux,
+                                           "max_depth": s.max_depth}, self)
+        dlg.exec()
+
+    def _selection_changed(self, sel) -> None:
+        self.properties.show_selection(self.doc.scene, sel)
+        if sel:
+            self.edit_tabs.setCurrentWidget(self.properties)
+
+    def _scene_changed(self) -> None:
+        scene = self.doc.scene
+        self.canvas.set_scene(scene)
+        self.properties.show_selection(scene, self.canvas.selection)
+        self.controls.show_scene(scene)
+        self._update_title()
+        self.request_trace()
+
+    # ------------------------------------------------------------------ tracing
+    def request_trace(self, force: bool = False) -> int | None:
+        if not force and not self.controls.live.isChecked():
+            return None
+        scene = self.doc.scene
+        if not scene.sources:
+            self.canvas.set_result(None)
+            self.ledger.show_result(None)
+            self.profiles.show_result(None)
+            self.trace_label.setText("no source to trace")
+            return None
+        return self.worker.submit(scene, self.controls.options(), self.doc.epoch)
+
+    def stop_trace(self) -> None:
+        self.worker.cancel()
+        self.trace_label.setText("trace stopped")
+
+    def trace_blocking(self) -> TraceOutcome:
+        """Trace on this thread and show the result (screenshots, scripts)."""
+        req = TraceRequest(-1, self.doc.epoch, self.doc.scene, self.controls.options(), time.perf_counter())
+        out = TraceOutcome(req)
+        t0 = time.perf_counter()
+        try:
+            out.result = run_trace(req.scene, req.options)
+        except TraceCancelled:
+            out.cancelled = True
+        except SceneError as exc:
+            out.error = "; ".join(str(p) for p in exc.problems)
+        except Exception as exc:  # noqa: BLE001 - shown to the user, not swallowed
+            out.error = f"{type(exc).__name__}: {exc}"
+        out.elapsed_s = time.perf_counter() - t0
+        self._show_outcome(out)
+        return out
+
+    def _show_outcome(self, out: TraceOutcome) -> None:
+        if out.request.epoch != self.doc.epoch:
+            return
+        self.last_outcome = out
+        if out.error:
+            self.canvas.set_result(None)
+            self.ledger.show_result(None)
+            self.profiles.show_result(None)
+            self.ledger.summary.setText(f"<b>Not traced:</b> {out.error}")
+            self.trace_label.setText("not traced: see the flux panel")
+            self.status_note(out.error)
+            return
+        if out.result is None:
+            return
+        self.canvas.set_result(out.result)
+        self.ledger.show_result(out.result)
+        self.profiles.show_result(out.result)
+        self.traces_shown += 1
+        self.redraw_times.append(time.perf_counter() - out.request.submitted)
+        st = out.result.stats
+        self.trace_label.setText(f"{st['source_rays']:,} rays, {st['segments']:,} segments, "
+                                 f"{out.elapsed_s * 1000:.0f} ms")

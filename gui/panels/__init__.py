@@ -1,0 +1,1 @@
+"""Side panels beside the drawing."""

@@ -1,0 +1,498 @@
+"""Numeric editing of whatever is selected: a part (material, builder parameters, every vertex,
+face names and treatments), a source, a detector, or the scene itself.
+
+Widgets are refreshed from the scene with their signals blocked; a finished edit builds a new
+scene through `edits` and hands it to the document, so every change is one undo step.
+"""
+from __future__ import annotations
+
+from dataclasses import replace
+
+from PySide6.QtCore import Qt
+from PySide6.QtWidgets import (QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QGroupBox,
+                               QHBoxLayout, QLabel, QLineEdit, QPushButton, QSpinBox,
+                               QStackedWidget, QTableWidget, QTableWidgetItem, QVBoxLayout,
+                               QWidget)
+
+from raytrace.catalog import CATALOG
+from raytrace.geometry import TREATMENT_KINDS
+from raytrace.scene import DISTRIBUTIONS, POLARIZATIONS, SAMPLINGS, SOURCE_KINDS, Spectrum
+from raytrace.shapes import PARAMETERS, ShapeParameterError
+
+from .. import edits
+from ..dialogs.shape import SHAPE_LABELS, param_value, param_widget
+
+
+def _dspin(lo=-1e6, hi=1e6, decimals=4, suffix=" mm", tip=""):
+    w = QDoubleSpinBox()
+    w.setRange(lo, hi)
+    w.setDecimals(decimals)
+    w.setSuffix(suffix)
+    w.setKeyboardTracking(False)
+    w.setToolTip(tip)
+    return w
+
+
+def _set(widget, value):
+    widget.blockSignals(True)
+    if isinstance(widget, (QDoubleSpinBox, QSpinBox)):
+        widget.setValue(value)
+    elif isinstance(widget, QLineEdit):
+        widget.setText(value)
+    elif isinstance(widget, QCheckBox):
+        widget.setChecked(value)
+    elif isinstance(widget, QComboBox):
+        i = widget.findData(value)
+        if i < 0:
+            i = widget.findText(value)
+        if i < 0 and widget.isEditable():
+            widget.setEditText(value)
+        else:
+            widget.setCurrentIndex(i)
+    widget.blockSignals(False)
+
+
+class _Page(QWidget):
+    def __init__(self, panel: "PropertiesPanel"):
+        super().__init__()
+        self.panel = panel
+        self.index = 0
+
+    @property
+    def doc(self):
+        return self.panel.doc
+
+    def apply(self, scene, text):
+        self.doc.apply(scene, text)
+
+    def error(self, text):
+        self.panel.message(text)
+
+
+class ScenePage(_Page):
+    def __init__(self, panel):
+        super().__init__(panel)
+        self.name = QLineEdit()
+        self.story = QLineEdit()
+        self.story.setToolTip("One line: what this scene is for")
+        self.ambient = QComboBox()
+        self.seed = QSpinBox()
+        self.seed.setRange(0, 2**31 - 1)
+        self.seed.setToolTip("Random seed for Monte Carlo and random sampling")
+        self.materials = QLabel("")
+        self.materials.setWordWrap(True)
+        define = QPushButton("Define a material...")
+        define.clicked.connect(lambda: panel.define_material())
+        form = QFormLayout(self)
+        form.addRow(QLabel("<b>Scene</b> (nothing selected)"))
+        form.addRow("Name", self.name)
+        form.addRow("Purpose", self.story)
+        form.addRow("Surrounding medium", self.ambient)
+        form.addRow("Random seed", self.seed)
+        form.addRow("Own materials", self.materials)
+        form.addRow(define)
+        self.name.editingFinished.connect(lambda: self._fields(name=self.name.text()))
+        self.story.editingFinished.connect(lambda: self._fields(story=self.story.text()))
+        self.ambient.activated.connect(lambda _i: self._fields(ambient=self.ambient.currentText()))
+        self.seed.editingFinished.connect(
+            lambda: self.apply(edits.set_settings(self.doc.scene, seed=self.seed.value()), "change seed"))
+
+    def _fields(self, **changes):
+        s = self.doc.scene
+        if all(getattr(s, k) == v for k, v in changes.items()):
+            return
+        self.apply(edits.set_fields(s, **changes), "change scene " + ", ".join(changes))
+
+    def show(self, scene, index):
+        _set(self.name, scene.name)
+        _set(self.story, scene.story)
+        self.panel.fill_materials(self.ambient, scene)
+        _set(self.ambient, scene.ambient)
+        _set(self.seed, scene.settings.seed)
+        self.materials.setText(", ".join(scene.materials) or "(none)")
+
+
+class PartPage(_Page):
+    COLS = ("x (mm)", "y (mm)", "face", "treatment", "mirror R")
+
+    def __init__(self, panel):
+        super().__init__(panel)
+        self.name = QLineEdit()
+        self.material = QComboBox()
+        self.material.setToolTip("Catalog materials, then the scene's own")
+        define = QPushButton("New...")
+        define.setToolTip("Define a material of your own for this part")
+        define.clicked.connect(lambda: panel.define_material(for_part=self.index))
+        mat = QHBoxLayout()
+        mat.addWidget(self.material, 1)
+        mat.addWidget(define)
+        self.turn = _dspin(-360, 360, 3, " deg", "Angle to turn the part by (counter-clockwise)")
+        turn_btn = QPushButton("Rotate")
+        turn_btn.clicked.connect(self._rotate)
+        turn = QHBoxLayout()
+        turn.addWidget(self.turn, 1)
+        turn_btn.setToolTip("Turn the part about its origin (builder parts) or its centre")
+        turn.addWidget(turn_btn)
+        top = QFormLayout()
+        top.addRow("Name", self.name)
+        top.addRow("Material", mat)
+        top.addRow("Rotate by", turn)
+
+        self.shape_box = QGroupBox("Shape")
+        self.shape_form = QFormLayout(self.shape_box)
+        self.shape_kind = None
+        self.shape_widgets = {}
+        self.pos_x, self.pos_y = _dspin(), _dspin()
+        self.rotation = _dspin(-360, 360, 4, " deg")
+        for w in (self.pos_x, self.pos_y, self.rotation):
+            w.valueChanged.connect(lambda _v: self._shape_changed())
+
+        self.table = QTableWidget(0, len(self.COLS))
+        self.table.setHorizontalHeaderLabels(self.COLS)
+        self.table.setToolTip("Row i: vertex i (start of edge i) and the face from it to the next vertex")
+        self.table.itemChanged.connect(self._cell_changed)
+        lay = QVBoxLayout(self)
+        lay.addWidget(QLabel("<b>Part</b>"))
+        lay.addLayout(top)
+        lay.addWidget(self.shape_box)
+        lay.addWidget(QLabel("Vertices and faces"))
+        lay.addWidget(self.table, 1)
+        self.name.editingFinished.connect(self._rename)
+        self.material.activated.connect(lambda _i: self._material(self.material.currentText()))
+
+    def part(self):
+        return self.doc.scene.parts[self.index]
+
+    def _replace(self, part, text):
+        self.apply(edits.replace_part(self.doc.scene, self.index, part), text)
+
+    def _rename(self):
+        name = self.name.text().strip()
+        p = self.part()
+        if not name or name == p.name:
+            return
+        if name in {q.name for q in self.doc.scene.parts}:
+            self.error(f"a part called {name!r} already exists")
+            _set(self.name, p.name)
+            return
+        self._replace(replace(p, name=name), f"rename {p.name} to {name}")
+
+    def _material(self, name):
+        p = self.part()
+        if name and name != p.material:
+            self._replace(replace(p, material=name), f"set material of {p.name} to {name}")
+
+    def _rotate(self):
+        a = self.turn.value()
+        if a:
+            p = self.part()
+            self._replace(edits.rotate_part(p, a), f"rotate {p.name}")
+
+    def _shape_changed(self):
+        p = self.part()
+        if p.shape is None:
+            return
+        try:
+            params = {name: param_value(info, w) for name, (info, w) in self.shape_widgets.items()}
+            spec = replace(p.shape, params=params, position=(self.pos_x.value(), self.pos_y.value()),
+                           rotation_deg=self.rotation.value())
+            new = edits.rebuild(p, spec)
+        except ShapeParameterError as exc:
+            self.error(f"{p.name}: {exc}")
+            return
+        self._replace(new, f"change shape of {p.name}")
+
+    def _cell_changed(self, item):
+        row, col = item.row(), item.column()
+        p = self.part()
+        text = item.text().strip()
+        try:
+            if col in (0, 1):
+                v = float(text)
+                new = edits.set_vertex_xy(p, row, **({"x": v} if col == 0 else {"y": v}))
+                what = f"move vertex {row + 1} of {p.name}"
+            elif col == 2:
+                new = edits.set_edge(p, row, face=text or None)
+                what = f"rename face of {p.name}"
+            elif col == 4:
+                R = float(text)
+                if not 0.0 <= R <= 1.0:
+                    raise ValueError("a mirror reflectance from 0 to 1")
+                new = edits.set_edge(p, row, treatment=edits.treatment("mirror", R))
+                what = f"set mirror reflectance on {p.name}"
+            else:
+                return
+        except ValueError as exc:
+            self.error(f"row {row + 1}: expected {exc}" if "expected" not in str(exc) else str(exc))
+            self.show(self.doc.scene, self.index)
+            return
+        self._replace(new, what)
+
+    def _treatment(self, row, kind):
+        p = self.part()
+        old = p.outer.edges[row].treatment
+        R = old.reflectance if kind == "mirror" else 1.0
+        self._replace(edits.set_edge(p, row, treatment=edits.treatment(kind, R)),
+                      f"set {kind} on {p.name} / {p.outer.edges[row].face or f'edge {row + 1}'}")
+
+    def show(self, scene, index):
+        self.index = index
+        p = scene.parts[index]
+        _set(self.name, p.name)
+        self.panel.fill_materials(self.material, scene)
+        _set(self.material, p.material)
+        self._show_shape(p)
+        self.table.blockSignals(True)
+        edges = p.outer.edges
+        self.table.setRowCount(len(edges))
+        for r, e in enumerate(edges):
+            cells = [f"{e.start[0]:.6g}", f"{e.start[1]:.6g}", e.face or ""]
+            for c, text in enumerate(cells):
+                it = QTableWidgetItem(text)
+                if e.is_arc and c == 2:
+                    it.setToolTip(f"arc about ({e.arc_center[0]:.4g}, {e.arc_center[1]:.4g}), "
+                                  f"radius {e.radius:.4g} mm")
+                self.table.setItem(r, c, it)
+            combo = QComboBox()
+            combo.addItems(TREATMENT_KINDS)
+            combo.setCurrentText(e.treatment.kind)
+            combo.currentTextChanged.connect(lambda k, row=r: self._treatment(row, k))
+            self.table.setCellWidget(r, 3, combo)
+            rit = QTableWidgetItem(f"{e.treatment.reflectance:g}" if e.treatment.kind == "mirror" else "")
+            if e.treatment.kind != "mirror":
+                rit.setFlags(rit.flags() & ~Qt.ItemIsEditable)
+            self.table.setItem(r, 4, rit)
+        self.table.resizeColumnsToContents()
+        self.table.blockSignals(False)
+
+    def _show_shape(self, p):
+        if p.shape is None:
+            self.shape_box.setVisible(False)
+            self.shape_kind = None
+            return
+        self.shape_box.setVisible(True)
+        spec = p.shape
+        if spec.kind != self.shape_kind:
+            while self.shape_form.rowCount():
+                self.shape_form.takeRow(0)
+            self.shape_form.addRow("Position x", self.pos_x)
+            self.shape_form.addRow("Position y", self.pos_y)
+            self.shape_form.addRow("Rotation", self.rotation)
+            self.shape_widgets = {}
+            for info in PARAMETERS[spec.kind]:
+                w = param_widget(info, spec.params.get(info.name, info.default))
+                if hasattr(w, "setKeyboardTracking"):
+                    w.setKeyboardTracking(False)
+                    w.valueChanged.connect(lambda _v: self._shape_changed())
+                else:
+                    w.editingFinished.connect(self._shape_changed)
+                self.shape_widgets[info.name] = (info, w)
+                self.shape_form.addRow(info.name.replace("_", " "), w)
+            self.shape_kind = spec.kind
+        self.shape_box.setTitle(f"Shape: {SHAPE_LABELS.get(spec.kind, spec.kind)}")
+        _set(self.pos_x, spec.position[0])
+        _set(self.pos_y, spec.position[1])
+        _set(self.rotation, spec.rotation_deg)
+        import json
+        for name, (info, w) in self.shape_widgets.items():
+            v = spec.params.get(name, info.default)
+            _set(w, json.dumps(v) if info.type == "segments" else v)
+
+
+class SourcePage(_Page):
+    def __init__(self, panel):
+        super().__init__(panel)
+        self.name = QLineEdit()
+        self.kind = QComboBox()
+        self.kind.addItems(SOURCE_KINDS)
+        self.kind.setToolTip("beam: collimated; point: rays from one point; emitter: a flat emitting die")
+        self.x, self.y = _dspin(), _dspin()
+        self.direction = _dspin(-360, 360, 4, " deg", "Direction of the axis, counter-clockwise from +x")
+        self.width = _dspin(0, 1e6, 4, " mm", "Width of a beam or emitter")
+        self.half = _dspin(0, 180, 3, " deg", "Half angle of a point source or emitter")
+        self.dist = QComboBox()
+        self.dist.addItems(DISTRIBUTIONS)
+        self.cos_power = _dspin(0.001, 1000, 3, "", "Exponent m of cos^m for cos_power")
+        self.flux = _dspin(0, 1e9, 6, "", "Source flux (any unit; the ledger uses the same unit)")
+        self.spec_kind = QComboBox()
+        self.spec_kind.addItems(["one wavelength", "band (Gaussian)", "lines"])
+        self.wl = _dspin(100, 20000, 3, " nm", "Wavelength, or band centre")
+        self.fwhm = _dspin(0.001, 10000, 3, " nm", "Band full width at half maximum")
+        self.lines = QLineEdit()
+        self.lines.setToolTip("Lines as 'nm:weight, nm:weight', e.g. 486.1:1, 587.6:1, 656.3:1")
+        self.pol = QComboBox()
+        self.pol.addItems(POLARIZATIONS)
+        self.sampling = QComboBox()
+        self.sampling.addItems(SAMPLINGS)
+        self.sampling.setToolTip("even: a regular fan; random: seeded stratified sampling")
+        self.note = QLineEdit()
+        self.note.setToolTip("Free text, e.g. the safety class of the light source")
+        form = QFormLayout(self)
+        form.addRow(QLabel("<b>Source</b>"))
+        rows = [("Name", self.name), ("Kind", self.kind), ("Position x", self.x), ("Position y", self.y),
+                ("Direction", self.direction), ("Width", self.width), ("Half angle", self.half),
+                ("Distribution", self.dist), ("cos power", self.cos_power), ("Flux", self.flux),
+                ("Spectrum", self.spec_kind), ("Wavelength", self.wl), ("Band FWHM", self.fwhm),
+                ("Lines", self.lines), ("Polarization", self.pol), ("Sampling", self.sampling),
+                ("Note", self.note)]
+        for label, w in rows:
+            form.addRow(label, w)
+        for w in (self.x, self.y, self.direction, self.width, self.half, self.cos_power, self.flux,
+                  self.wl, self.fwhm):
+            w.valueChanged.connect(lambda _v: self._commit())
+        for w in (self.kind, self.dist, self.pol, self.sampling, self.spec_kind):
+            w.activated.connect(lambda _i: self._commit())
+        for w in (self.name, self.note, self.lines):
+            w.editingFinished.connect(self._commit)
+
+    def _spectrum(self) -> Spectrum:
+        k = self.spec_kind.currentIndex()
+        if k == 0:
+            return Spectrum.line(self.wl.value())
+        if k == 1:
+            return Spectrum.band(self.wl.value(), self.fwhm.value())
+        wls, ws = [], []
+        for item in self.lines.text().split(","):
+            if item.strip():
+                wl, _, w = item.partition(":")
+                wls.append(float(wl))
+                ws.append(float(w or 1.0))
+        if not wls:
+            raise ValueError("at least one line 'nm:weight'")
+        return Spectrum(tuple(wls), tuple(ws))
+
+    def _commit(self):
+        scene = self.doc.scene
+        src = scene.sources[self.index]
+        try:
+            spectrum = self._spectrum()
+        except ValueError as exc:
+            self.error(f"spectrum lines: expected 'nm:weight, ...' ({exc})")
+            return
+        name = self.name.text().strip() or src.name
+        if name != src.name and name in {s.name for s in scene.sources}:
+            self.error(f"a source called {name!r} already exists")
+            name = src.name
+        new = replace(src, name=name, kind=self.kind.currentText(), position=(self.x.value(), self.y.value()),
+                      direction_deg=self.direction.value(), width=self.width.value(),
+                      half_angle_deg=self.half.value(), distribution=self.dist.currentText(),
+                      cos_power=self.cos_power.value(), flux=self.flux.value(), spectrum=spectrum,
+                      polarization=self.pol.currentText(), sampling=self.sampling.currentText(),
+                      note=self.note.text())
+        if new != src:
+            self.apply(edits.replace_source(scene, self.index, new), f"edit source {src.name}")
+
+    def show(self, scene, index):
+        self.index = index
+        s = scene.sources[index]
+        for w, v in ((self.name, s.name), (self.kind, s.kind), (self.x, s.position[0]), (self.y, s.position[1]),
+                     (self.direction, s.direction_deg), (self.width, s.width), (self.half, s.half_angle_deg),
+                     (self.dist, s.distribution), (self.cos_power, s.cos_power), (self.flux, s.flux),
+                     (self.pol, s.polarization), (self.sampling, s.sampling), (self.note, s.note)):
+            _set(w, v)
+        sp = s.spectrum
+        kind = 1 if sp.is_band else 0 if len(sp.wavelengths_nm) == 1 else 2
+        self.spec_kind.blockSignals(True)
+        self.spec_kind.setCurrentIndex(kind)
+        self.spec_kind.blockSignals(False)
+        _set(self.wl, sp.band_center_nm if sp.is_band else sp.wavelengths_nm[0])
+        _set(self.fwhm, sp.band_fwhm_nm or 10.0)
+        _set(self.lines, ", ".join(f"{w:g}:{v:g}" for w, v in zip(sp.wavelengths_nm, sp.weights)))
+        self.width.setEnabled(s.kind != "point")
+        self.half.setEnabled(s.kind != "beam")
+        self.dist.setEnabled(s.kind != "beam")
+        self.cos_power.setEnabled(s.distribution == "cos_power")
+        self.fwhm.setEnabled(kind == 1)
+        self.lines.setEnabled(kind == 2)
+        self.wl.setEnabled(kind != 2)
+
+
+class DetectorPage(_Page):
+    def __init__(self, panel):
+        super().__init__(panel)
+        self.name = QLineEdit()
+        self.sx, self.sy, self.ex, self.ey = _dspin(), _dspin(), _dspin(), _dspin()
+        self.absorbing = QCheckBox("absorbs the rays (a sensor); off: rays pass on (a monitor)")
+        self.bins = QSpinBox()
+        self.bins.setRange(1, 100_000)
+        self.bins.setToolTip("Bins of the irradiance profile")
+        self.angle_bins = QSpinBox()
+        self.angle_bins.setRange(1, 100_000)
+        self.angle_bins.setToolTip("Bins of the angular profile (-90..90 deg)")
+        self.central = _dspin(0.001, 1.0, 3, "", "Central part of the detector used for uniformity figures")
+        form = QFormLayout(self)
+        form.addRow(QLabel("<b>Detector</b> (counts rays arriving on its right-hand side, "
+                           "start to end; ticks mark the back)"))
+        for label, w in (("Name", self.name), ("Start x", self.sx), ("Start y", self.sy), ("End x", self.ex),
+                         ("End y", self.ey), ("", self.absorbing), ("Position bins", self.bins),
+                         ("Angle bins", self.angle_bins), ("Central fraction", self.central)):
+            form.addRow(label, w)
+        for w in (self.sx, self.sy, self.ex, self.ey, self.central):
+            w.valueChanged.connect(lambda _v: self._commit())
+        for w in (self.bins, self.angle_bins):
+            w.editingFinished.connect(self._commit)
+        self.absorbing.toggled.connect(lambda _b: self._commit())
+        self.name.editingFinished.connect(self._commit)
+
+    def _commit(self):
+        scene = self.doc.scene
+        d = scene.detectors[self.index]
+        start, end = (self.sx.value(), self.sy.value()), (self.ex.value(), self.ey.value())
+        if start == end:
+            self.error("a detector needs two different end points")
+            return
+        name = self.name.text().strip() or d.name
+        if name != d.name and name in {x.name for x in scene.detectors}:
+            self.error(f"a detector called {name!r} already exists")
+            name = d.name
+        new = replace(d, name=name, start=start, end=end, absorbing=self.absorbing.isChecked(),
+                      bins=self.bins.value(), angle_bins=self.angle_bins.value(),
+                      central_fraction=self.central.value())
+        if new != d:
+            self.apply(edits.replace_detector(scene, self.index, new), f"edit detector {d.name}")
+
+    def show(self, scene, index):
+        self.index = index
+        d = scene.detectors[index]
+        for w, v in ((self.name, d.name), (self.sx, d.start[0]), (self.sy, d.start[1]), (self.ex, d.end[0]),
+                     (self.ey, d.end[1]), (self.absorbing, d.absorbing), (self.bins, d.bins),
+                     (self.angle_bins, d.angle_bins), (self.central, d.central_fraction)):
+            _set(w, v)
+
+
+class PropertiesPanel(QStackedWidget):
+    def __init__(self, doc, message=lambda text: None, ask_material=None, parent=None):
+        super().__init__(parent)
+        self.doc = doc
+        self.message = message
+        self.ask_material = ask_material     # callable(taken) -> Material | None
+        self.pages = {None: ScenePage(self), edits.PART: PartPage(self),
+                      edits.SOURCE: SourcePage(self), edits.DETECTOR: DetectorPage(self)}
+        for p in self.pages.values():
+            self.addWidget(p)
+        self.selection = None
+
+    def show_selection(self, scene, selection) -> None:
+        self.selection = selection
+        kind, index = selection if selection else (None, 0)
+        page = self.pages[kind]
+        self.setCurrentWidget(page)
+        page.show(scene, index)
+
+    def fill_materials(self, combo: QComboBox, scene) -> None:
+        combo.blockSignals(True)
+        combo.clear()
+        combo.addItems(list(CATALOG) + [m for m in scene.materials if m not in CATALOG])
+        combo.blockSignals(False)
+
+    def define_material(self, for_part: int | None = None) -> None:
+        if self.ask_material is None:
+            return
+        scene = self.doc.scene
+        m = self.ask_material(set(CATALOG) | set(scene.materials))
+        if m is None:
+            return
+        new = edits.set_material(scene, m.name, m)
+        if isinstance(for_part, int) and for_part < len(new.parts):
+            new = edits.replace_part(new, for_part, replace(new.parts[for_part], material=m.name))
+        self.doc.apply(new, f"define material {m.name}")

@@ -1,0 +1,104 @@
+"""Turn a trace result into what the canvas draws: ray segments grouped by kind and by
+brightness, detector hit points, and escape markers sized by the flux lost at each face.
+
+Pure numpy; no Qt.  Grouping keeps the number of drawn items small (one line item per kind and
+brightness level) however many segments there are.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from raytrace.ledger import BinLayout
+from raytrace.tracer import B_TIR, E_ESCAPED
+
+# Segment kinds, in drawing order (later ones on top).
+INSIDE, ESCAPING, TIR = "ray", "escaping", "tir"
+KINDS = (INSIDE, ESCAPING, TIR)
+# Brightness levels: a segment's flux relative to its source ray's starting flux.
+LEVELS = (0.5, 0.1, 1e-2, 1e-3, 0.0)
+LEVEL_ALPHA = (210, 120, 55, 24, 10)
+
+
+@dataclass
+class RayDrawing:
+    # kind -> list over LEVELS of (x, y) arrays with pairs of points (connect="pairs")
+    lines: dict[str, list[tuple[np.ndarray, np.ndarray]]] = field(default_factory=dict)
+    hits_x: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    hits_y: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    escapes: list[tuple[float, float, float, str]] = field(default_factory=list)  # x, y, share, label
+    n_segments: int = 0
+
+
+def brightness_level(rel: np.ndarray) -> np.ndarray:
+    """Index into LEVELS for each relative flux (0 = brightest)."""
+    out = np.full(len(rel), len(LEVELS) - 1, dtype=np.int64)
+    for k in range(len(LEVELS) - 2, -1, -1):
+        out[rel >= LEVELS[k]] = k
+    return out
+
+
+def ray_drawing(result, min_escape_share: float = 1e-3) -> RayDrawing:
+    d = RayDrawing()
+    seg = result.segments
+    if seg is not None and len(seg["x0"]):
+        flux = seg["flux_s"] + seg["flux_p"]
+        root = seg["source_ray"].astype(np.int64)
+        start_flux = np.zeros(int(root.max()) + 1)
+        first = seg["generation"] == 0
+        start_flux[root[first]] = flux[first]
+        ref = start_flux[root]
+        rel = np.divide(flux, ref, out=np.zeros_like(flux), where=ref > 0)
+        level = brightness_level(rel)
+        kind = np.full(len(flux), 0, dtype=np.int64)
+        kind[seg["end"] == E_ESCAPED] = 1
+        kind[seg["born"] == B_TIR] = 2
+        d.n_segments = len(flux)
+        for k, name in enumerate(KINDS):
+            per_level = []
+            for lv in range(len(LEVELS)):
+                sel = (kind == k) & (level == lv)
+                n = int(sel.sum())
+                x = np.empty(2 * n)
+                y = np.empty(2 * n)
+                x[0::2], x[1::2] = seg["x0"][sel], seg["x1"][sel]
+                y[0::2], y[1::2] = seg["y0"][sel], seg["y1"][sel]
+                per_level.append((x, y))
+            d.lines[name] = per_level
+    d.hits_x, d.hits_y = hit_points(result)
+    d.escapes = escape_markers(result, min_escape_share)
+    return d
+
+
+def hit_points(result) -> tuple[np.ndarray, np.ndarray]:
+    h = result.raw.hits
+    if not h or not len(h.get("position", [])):
+        return np.zeros(0), np.zeros(0)
+    dets = result.compiled.detectors
+    idx = h["detector"].astype(np.int64)
+    sx = np.array([d.start[0] for d in dets])[idx]
+    sy = np.array([d.start[1] for d in dets])[idx]
+    ex = np.array([d.end[0] for d in dets])[idx]
+    ey = np.array([d.end[1] for d in dets])[idx]
+    L = np.hypot(ex - sx, ey - sy)
+    u = h["position"] / L
+    return sx + u * (ex - sx), sy + u * (ey - sy)
+
+
+def escape_markers(result, min_share: float) -> list[tuple[float, float, float, str]]:
+    """One marker per edge where flux escaped: at the edge's midpoint, with its share of the
+    source flux and a label "part / face"."""
+    cs = result.compiled
+    layout = BinLayout(cs)
+    total = result.ledger.source_flux or 1.0
+    esc = result.ledger.bins[layout.escape0:layout.escape0 + layout.E] / total
+    out = []
+    for e in np.flatnonzero(esc >= min_share):
+        if cs.detector[e] >= 0 or e >= len(cs.edges):
+            continue
+        x, y = cs.edges[e].point_at(0.5)
+        part, face = cs.face_labels[cs.face[e]]
+        out.append((x, y, float(esc[e]), f"{part} / {face}"))
+    return out
+
