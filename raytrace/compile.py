@@ -375,11 +375,14 @@ def compile_scene(scene: Scene, check: bool = True) -> CompiledScene:
         parent[i] = best
 
     pieces: list[_Piece] = []
+    from dataclasses import replace
     for pi, part in enumerate(scene.parts):
-        for k, loop in enumerate(_oriented_loops(part)):
-            for j, e in enumerate(loop.edges):
-                face = e.face or (f"edge {j + 1}" if k == 0 else f"hole {k} edge {j + 1}")
-                pieces.append(_Piece(e, pi, (part.name, face)))
+        # name unnamed edges in the order written, before clockwise loops are reversed
+        named = [Loop(tuple(e if e.face else replace(e, face=f"edge {j + 1}" if k == 0 else f"hole {k} edge {j + 1}")
+                            for j, e in enumerate(loop.edges))) for k, loop in enumerate(part.loops)]
+        for loop in _oriented_loops(replace(part, outer=named[0], holes=tuple(named[1:]))):
+            for e in loop.edges:
+                pieces.append(_Piece(e, pi, (part.name, e.face)))
     pieces = _shared_pieces(pieces, tol * 1e3)
 
     groups = _coincident_groups(pieces, tol * 1e3)
