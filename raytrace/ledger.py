@@ -89,9 +89,11 @@ class Ledger:
             add((ABSORBED, cs.medium_names[m], "bulk", "", ""), bins[layout.bulk0 + m])
         for r, reason in enumerate(TRUNCATION_REASONS):
             add((TRUNCATED, "", "", "", reason), bins[layout.trunc0 + r])
-        # keep every detector listed, even when it received nothing
+        # keep every absorbing detector listed, even when it received nothing; a monitoring
+        # detector lets rays pass, so flux never ends there and it has no bucket
         for det in cs.detectors:
-            merged.setdefault((DETECTOR, "", "", det.name, ""), 0.0)
+            if det.absorbing:
+                merged.setdefault((DETECTOR, "", "", det.name, ""), 0.0)
         self.buckets = [Bucket(k[0], f, k[1], k[2], k[3], k[4]) for k, f in merged.items()]
         order = {DETECTOR: 0, ESCAPED: 1, ABSORBED: 2, TRUNCATED: 3}
         self.buckets.sort(key=lambda b: (order[b.kind], -b.flux))

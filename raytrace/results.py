@@ -66,6 +66,10 @@ class TraceResult:
                             h["path"][sel].astype(np.int64), h["root"][sel].astype(np.int64))
 
     def efficiency(self, detector: str) -> float:
+        """Flux that reached (absorbing) or crossed (monitoring) the detector, over the source flux."""
+        det = next(d for d in self.compiled.detectors if d.name == detector)
+        if not det.absorbing:
+            return self.detector(detector).total / self.source_flux if self.source_flux else 0.0
         return self.ledger.efficiency(detector)
 
     @property
