@@ -17,11 +17,12 @@ import math
 from dataclasses import replace
 
 import numpy as np
+import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 from conftest import make_scene, shaped_part
 from raytrace import trace
-from raytrace.geometry import ABSORBER, ANTI_REFLECTION, BARE, MIRROR, Treatment
+from raytrace.geometry import ABSORBER, ANTI_REFLECTION, BARE, MIRROR, Loop, Part, Treatment
 from raytrace.ledger import ABSORBED, DETECTOR, ESCAPED, TRUNCATED
 from raytrace.materials import ConstantIndex
 from raytrace.scene import Detector, Source
@@ -150,3 +151,35 @@ def test_ledger_closes_branching(case):
 def test_ledger_closes_monte_carlo(case, seed):
     scene, sampling, source_flux = case
     check_closes(trace(scene, mode="monte_carlo", seed=seed, sampling=sampling), source_flux)
+
+
+def test_monitoring_detector_is_not_a_bucket_and_reports_what_crossed():
+    """common practice: a monitoring detector records what crosses it and lets it pass, so it is
+    not where flux ends (no ledger bucket), and its efficiency is the flux that crossed it over
+    the source flux: here the whole beam, 1 within 1e-12, through empty space."""
+    beam = Source("beam", kind="beam", position=(-5.0, 0.0), direction_deg=0.0, width=1.0)
+    mon = Detector("monitor", (0.0, -5.0), (0.0, 5.0), absorbing=False)
+    end = Detector("end", (10.0, -5.0), (10.0, 5.0), absorbing=True)
+    result = trace(make_scene([], [beam], [mon, end], rays=7))
+    assert [b.detector for b in result.ledger.buckets if b.kind == DETECTOR] == ["end"]
+    assert result.efficiency("end") == pytest.approx(1.0, abs=1e-12)
+    assert result.efficiency("monitor") == pytest.approx(1.0, abs=1e-12)
+    assert result.to_summary_dict()["efficiency"] == pytest.approx({"monitor": 1.0, "end": 1.0}, abs=1e-12)
+
+
+def test_unnamed_edges_are_numbered_in_the_order_written():
+    """The ledger names an unnamed edge "edge N", N its place in the boundary as written, also
+    when the boundary runs clockwise (the compiler reverses such loops internally).
+
+    A beam enters the first edge written (the left side x = 0) at normal incidence, is totally
+    reflected by the hypotenuse (45 deg > 41.8 deg) onto the bottom, which it meets normally.
+    Summing the reflections r = 0.04 (Hecht 4.6) between left side and bottom as for a plate
+    (Born & Wolf): (1-r)/(1+r) leaves through the bottom ("edge 3"), 2r/(1+r) through the left
+    side ("edge 1"), within 1e-12."""
+    tri = Part("tri", "glass", Loop.polygon([(0.0, 0.0), (0.0, 10.0), (10.0, 0.0)]))   # clockwise
+    beam = Source("beam", kind="beam", position=(-5.0, 5.0), direction_deg=0.0, width=1.0)
+    led = trace(make_scene([tri], [beam], materials={"glass": 1.5}, rays=3, min_relative_flux=1e-15)).ledger
+    r = 0.04
+    assert led.flux("escaped", part="tri", face="edge 1") == pytest.approx(2 * r / (1 + r), abs=1e-12)
+    assert led.flux("escaped", part="tri", face="edge 3") == pytest.approx((1 - r) / (1 + r), abs=1e-12)
+    assert led.flux("escaped", part="tri", face="edge 2") == 0.0
