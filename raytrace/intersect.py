@@ -1,7 +1,11 @@
 """Nearest hit of many rays against all edges, one vectorized step.
 
 This is the plain method: every ray against every edge, in blocks that bound the size of the
-ray x edge matrices.  `accel` builds on it for scenes with many edges.
+ray x edge matrices.  It is the reference the accelerated methods in `accel` are checked
+against, so both use the same pair formulas below (`line_t`, `arc_t`): they use only +, -, *,
+/ and sqrt, which IEEE rounds exactly, so a pair gives the same bits whatever the array shape.
+(Transcendental functions such as arctan2 may take SIMD or scalar paths by memory layout and
+differ in the last bit; they are kept out of the hit test for that reason.)
 """
 from __future__ import annotations
 
@@ -11,7 +15,63 @@ from .compile import CompiledScene
 
 # Rays per block: keeps each rays x edges matrix near 2 million entries.
 BLOCK_ENTRIES = 2_000_000
-TWO_PI = 2 * np.pi
+# Angular slack (radians) that lets an arc's own end points count as on the arc.
+ARC_SLACK = 1e-12
+
+
+def line_t(x, y, dx, dy, ax, ay, ex, ey, eps):
+    """Distance along each ray to the segment a -> a + e, inf where it misses (or t <= eps).
+
+    A parallel pair has denom 0, so u is inf or nan and fails the range test."""
+    denom = dx * ey - dy * ex
+    wx = ax - x
+    wy = ay - y
+    with np.errstate(divide="ignore", invalid="ignore"):
+        inv = 1.0 / denom
+        t = (wx * ey - wy * ex) * inv
+        u = (wx * dy - wy * dx) * inv
+    ok = (u >= 0.0) & (u <= 1.0) & (t > eps)
+    return np.where(ok, t, np.inf)
+
+
+def arc_t(x, y, dx, dy, cx, cy, r2, sx, sy, qx, qy, major, tol, eps):
+    """Distance along each ray to an arc, inf where it misses.
+
+    Both roots of |p + t d - c|^2 = r^2 are tried; a root counts if it lies on the arc's span.
+    (sx, sy) and (qx, qy) are the span's ends relative to the centre in counter-clockwise order;
+    a point h is on a span of at most pi if it is left of s and right of q, on a longer span if
+    it is not strictly inside the complementary short span.  `tol` = ARC_SLACK * r^2."""
+    fx = x - cx
+    fy = y - cy
+    b = fx * dx + fy * dy
+    c = fx * fx + fy * fy - r2
+    disc = b * b - c
+    has = disc >= 0.0
+    sq = np.sqrt(np.where(has, disc, 0.0))
+    best = None
+    for t in (-b - sq, -b + sq):
+        hx = fx + t * dx
+        hy = fy + t * dy
+        c1 = sx * hy - sy * hx >= -tol
+        c2 = hx * qy - hy * qx >= -tol
+        on = np.where(major, c1 | c2, c1 & c2)
+        tt = np.where(has & on & (t > eps), t, np.inf)
+        best = tt if best is None else np.minimum(best, tt)
+    return best
+
+
+def arc_constants(cs: CompiledScene, arcs: np.ndarray) -> dict[str, np.ndarray]:
+    """Per-arc values the hit test needs, computed once per compiled scene."""
+    ccw = cs.sweep[arcs] > 0
+    sx0, sy0 = cs.x0[arcs] - cs.cx[arcs], cs.y0[arcs] - cs.cy[arcs]
+    sx1, sy1 = cs.x1[arcs] - cs.cx[arcs], cs.y1[arcs] - cs.cy[arcs]
+    r = cs.radius[arcs]
+    return {
+        "cx": cs.cx[arcs], "cy": cs.cy[arcs], "r2": r * r,
+        "sx": np.where(ccw, sx0, sx1), "sy": np.where(ccw, sy0, sy1),
+        "qx": np.where(ccw, sx1, sx0), "qy": np.where(ccw, sy1, sy0),
+        "major": np.abs(cs.sweep[arcs]) > np.pi, "tol": ARC_SLACK * r * r,
+    }
 
 
 def nearest_hit(cs: CompiledScene, x, y, dx, dy, last_edge, edge_ids=None):
@@ -20,6 +80,7 @@ def nearest_hit(cs: CompiledScene, x, y, dx, dy, last_edge, edge_ids=None):
     `last_edge` is the edge each ray starts on (-1 if none).  A ray never re-hits the point it
     left: hits closer than cs.eps are ignored, and a straight edge cannot be hit again by a ray
     leaving it.  An arc can (a concave wall seen from inside), so only the distance test applies.
+    Equal distances go to the line of lowest index, then the arc of lowest index.
     """
     n = len(x)
     t_best = np.full(n, np.inf)
@@ -34,6 +95,7 @@ def nearest_hit(cs: CompiledScene, x, y, dx, dy, last_edge, edge_ids=None):
         arcs = edge_ids[cs.is_arc[edge_ids]]
     n_e = max(len(lines) + len(arcs), 1)
     step = max(1, BLOCK_ENTRIES // n_e)
+    last_edge = np.asarray(last_edge)
     for lo in range(0, n, step):
         sl = slice(lo, min(n, lo + step))
         t, e = _block(cs, x[sl], y[sl], dx[sl], dy[sl], last_edge[sl], lines, arcs)
@@ -66,46 +128,18 @@ def line_hits(cs, lines, x, y, dx, dy, last_edge, eps):
     ay = cs.y0[lines][None, :]
     ex = (cs.x1[lines] - cs.x0[lines])[None, :]
     ey = (cs.y1[lines] - cs.y0[lines])[None, :]
-    X, Y, DX, DY = x[:, None], y[:, None], dx[:, None], dy[:, None]
-    denom = DX * ey - DY * ex
-    wx = ax - X
-    wy = ay - Y
-    with np.errstate(divide="ignore", invalid="ignore"):
-        inv = 1.0 / denom
-        t = (wx * ey - wy * ex) * inv
-        u = (wx * DY - wy * DX) * inv
-    ok = (u >= 0.0) & (u <= 1.0) & (t > eps) & (denom != 0.0)
-    ok &= lines[None, :] != last_edge[:, None]
-    t = np.where(ok, t, np.inf)
+    t = line_t(x[:, None], y[:, None], dx[:, None], dy[:, None], ax, ay, ex, ey, eps)
+    t[lines[None, :] == last_edge[:, None]] = np.inf
     k = np.argmin(t, axis=1)
     return t[np.arange(len(x)), k], k
 
 
 def arc_hits(cs, arcs, x, y, dx, dy, eps):
-    """Nearest arc hit per ray: both roots of |p + t d - c| = r, kept if on the arc's span."""
-    cx = cs.cx[arcs][None, :]
-    cy = cs.cy[arcs][None, :]
-    r = cs.radius[arcs][None, :]
-    a0 = cs.a0[arcs][None, :]
-    sw = cs.sweep[arcs][None, :]
-    fx = x[:, None] - cx
-    fy = y[:, None] - cy
-    DX, DY = dx[:, None], dy[:, None]
-    b = fx * DX + fy * DY
-    c = fx * fx + fy * fy - r * r
-    disc = b * b - c
-    has = disc >= 0.0
-    sq = np.sqrt(np.where(has, disc, 0.0))
-    best = np.full(disc.shape, np.inf)
-    for t in (-b - sq, -b + sq):
-        hx = fx + t * DX
-        hy = fy + t * DY
-        ang = np.arctan2(hy, hx)
-        rel = np.where(sw > 0, (ang - a0) % TWO_PI, (a0 - ang) % TWO_PI)
-        # tolerance in angle so an arc's own end points count as on it
-        on = rel <= np.abs(sw) + 1e-12
-        ok = has & on & (t > eps)
-        best = np.minimum(best, np.where(ok, t, np.inf))
+    """Nearest arc hit per ray: (t, index into `arcs`)."""
+    k_ = arc_constants(cs, arcs)
+    row = {k: v[None, :] for k, v in k_.items()}
+    best = arc_t(x[:, None], y[:, None], dx[:, None], dy[:, None], row["cx"], row["cy"], row["r2"],
+                 row["sx"], row["sy"], row["qx"], row["qy"], row["major"], row["tol"], eps)
     k = np.argmin(best, axis=1)
     return best[np.arange(len(x)), k], k
 

@@ -3,6 +3,12 @@
 All rays of a generation are handled together as arrays.  The loop runs over generations, never
 over rays.  Every unit of flux that leaves the tree is deposited in a ledger bin as it leaves,
 so the ledger closes by construction and is then checked.
+
+Speed notes (see DEVELOPERS.md, Performance): every ray of a generation has the same depth, so
+depth is one number; per-edge constants come from a table built once per compiled scene
+(`accel.edge_table`); ledger deposits of a generation are summed with one bincount; ray ids,
+parents and birth codes are carried only when a ray table is recorded; path tracking uses a
+hashed trie (`pathtrie`) and can be switched off.
 """
 from __future__ import annotations
 
@@ -12,10 +18,13 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import fresnel
+from .accel import edge_table, hit_function
 from .compile import (T_ABSORBER, T_AR, T_BARE, T_DETECT_ABSORB, T_DETECT_MONITOR, T_MIRROR,
                       CompiledScene)
+from .errors import BudgetExceeded
 from .intersect import edge_normal, nearest_hit
 from .ledger import TRUNC_BUDGET, TRUNC_DEPTH, TRUNC_FLUX, BinLayout
+from .pathtrie import PathTrie
 from .sources import StartRays
 
 BRANCHING, MONTE_CARLO = "branching", "monte_carlo"
@@ -33,9 +42,15 @@ EVENT_KINDS = ("through", "reflected off", "TIR at", "mirror at", "through detec
 EV_THROUGH, EV_REFLECT, EV_TIR, EV_MIRROR, EV_PASS = range(5)
 N_EVENT_KINDS = len(EVENT_KINDS)
 MAX_PATH_NODES = 500_000     # past this, new paths are lumped as "other paths"
+T_ESCAPE = 6                 # treatment code of "no edge": index -1 of the extended tables
 
-FIELDS = ("x", "y", "dx", "dy", "wli", "fs", "fp", "med", "gen", "rid", "parent", "root",
-          "ref", "opl", "start_edge", "last", "path", "born")
+# Ray state carried from generation to generation; the last three only with a ray table.
+CORE = ("x", "y", "dx", "dy", "fs", "fp", "opl", "wli", "med", "root", "start", "last", "path")
+TABLE = ("rid", "parent", "born")
+# Bytes a live ray costs during one generation: its state plus the temporaries of the hit
+# search and the interface physics (measured with tracemalloc on the samples, rounded up).
+BYTES_PER_LIVE_RAY = 1200
+BYTES_PER_SEGMENT_ROW = 18 * 8
 
 
 @dataclass
@@ -43,6 +58,7 @@ class Limits:
     min_relative_flux: float = 1e-4
     max_depth: int = 200
     max_segments: int = 50_000_000
+    max_memory_mb: float = 4096.0
 
 
 @dataclass
@@ -73,344 +89,464 @@ class RawTrace:
     path_flux: dict[tuple[int, int], float]   # (bin, path node) -> flux
     wavelengths: np.ndarray
     stats: dict = field(default_factory=dict)
+    histograms: dict | None = None            # per detector, when hits are binned instead of kept
 
 
-class _Paths:
-    """A trie of event sequences: node ids for (parent node, event code) pairs."""
+class _SceneArrays:
+    """Per-edge lookups extended by one entry (index -1) that stands for "no edge hit"."""
 
-    def __init__(self, n_roots: int, enabled: bool):
-        self.enabled = enabled
-        self.parent = list(range(-1, -1 - n_roots, -1))  # roots: -1 - source index
-        self.code = [-1] * n_roots
-        self.index: dict[int, int] = {}
-        self.flux: dict[tuple[int, int], float] = {}
-        self.other = -1
+    def __init__(self, cs: CompiledScene):
+        ne = cs.n_edges
+        layout = BinLayout(cs)
+        self.layout = layout
+        ext = lambda a, v: np.append(np.asarray(a), v)
+        self.treat = ext(cs.treatment.astype(np.int64), T_ESCAPE)
+        self.escape_code = ext(layout.escape0 + np.arange(ne), layout.escape_none)
+        tab = edge_table(cs)
+        self.nx, self.ny = tab.nx, tab.ny
+        self.has_arcs = bool(cs.is_arc.any())
+        present = set(np.unique(cs.treatment).tolist())
+        self.has = {k: k in present for k in (T_BARE, T_MIRROR, T_ABSORBER, T_AR, T_DETECT_ABSORB,
+                                              T_DETECT_MONITOR)}
+        self.alpha = np.array([m.absorption_per_mm for m in cs.media], dtype=float)
+        self.absorbing = bool((self.alpha > 0).any())
+        self.n_codes = ne * N_EVENT_KINDS
 
-    def extend(self, node: np.ndarray, code: np.ndarray, n_codes: int) -> np.ndarray:
-        if not self.enabled or len(node) == 0:
-            return node
-        keys = node.astype(np.int64) * n_codes + code
-        uniq, inv = np.unique(keys, return_inverse=True)
-        ids = np.empty(len(uniq), dtype=np.int64)
-        for i, k in enumerate(uniq.tolist()):
-            nid = self.index.get(k)
-            if nid is None:
-                if len(self.parent) >= MAX_PATH_NODES:
-                    nid = self._other()
-                else:
-                    nid = len(self.parent)
-                    self.parent.append(k // n_codes)
-                    self.code.append(k % n_codes)
-                    self.index[k] = nid
-            ids[i] = nid
-        return ids[inv]
 
-    def _other(self) -> int:
-        if self.other < 0:
-            self.other = len(self.parent)
-            self.parent.append(-1_000_000)   # marker: lumped paths
-            self.code.append(-1)
-        return self.other
-
-    def deposit(self, bins: np.ndarray, node: np.ndarray, flux: np.ndarray) -> None:
-        if not self.enabled or len(bins) == 0:
-            return
-        keys = bins.astype(np.int64) * (1 << 32) + node
-        uniq, inv = np.unique(keys, return_inverse=True)
-        sums = np.bincount(inv, weights=flux)
-        for k, f in zip(uniq.tolist(), sums.tolist()):
-            key = (k >> 32, k & 0xFFFFFFFF)
-            self.flux[key] = self.flux.get(key, 0.0) + f
+def _scene_arrays(cs: CompiledScene) -> _SceneArrays:
+    cache = cs.__dict__.setdefault("_accel_cache", {})
+    if "tracer" not in cache:
+        cache["tracer"] = _SceneArrays(cs)
+    return cache["tracer"]
 
 
 def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
-               limits: Limits | None = None, seed: int = 1, record: Recording | None = None,
+               limits: Limits | None = None, seed: int | list[int] = 1, record: Recording | None = None,
                track_paths: bool = True, hit_fn=None, n_sources: int | None = None,
-               progress=None) -> RawTrace:
-    """Trace `start` rays through the compiled scene and return the raw tallies."""
+               progress=None, accel: str = "auto", root_offset: int = 0,
+               keep_hits: bool = True) -> RawTrace:
+    """Trace `start` rays through the compiled scene and return the raw tallies.
+
+    hit_fn: a nearest-hit function (default: the fastest exact method for the scene, see
+    `accel.hit_function`; `intersect.nearest_hit` is the plain reference).  root_offset: the
+    index of start[0] among all source rays of a chunked trace (recording and hit records use
+    global source-ray numbers).  keep_hits=False bins detector hits into histograms instead
+    of keeping one record per hit."""
     if mode not in MODES:
         raise ValueError(f"mode: expected one of {', '.join(MODES)}, found {mode!r}")
     limits = limits or Limits()
     record = record or Recording()
-    hit_fn = hit_fn or nearest_hit
+    hit_fn = hit_fn or hit_function(cs, accel)
     rng = np.random.default_rng(seed)
     t0 = time.perf_counter()
-
-    layout = BinLayout(cs)
+    K = _scene_arrays(cs)
+    layout = K.layout
     bins = np.zeros(layout.size)
     n_sources = n_sources if n_sources is not None else (int(start.source.max()) + 1 if len(start) else 0)
-    paths = _Paths(n_sources, track_paths)
+    paths = PathTrie(n_sources, track_paths, MAX_PATH_NODES)
 
     wavelengths, wli = np.unique(start.wavelength, return_inverse=True)
+    W = len(wavelengths)
     n_table = np.array([np.broadcast_to(np.asarray(m.index(wavelengths), dtype=float), wavelengths.shape)
                         for m in cs.media])          # (media, wavelengths)
-    alpha = np.array([m.absorption_per_mm for m in cs.media], dtype=float)
+    n_flat = n_table.reshape(-1)
 
     n = len(start)
     flux0 = start.flux_s + start.flux_p
-    rays = {
+    thr_root = limits.min_relative_flux * flux0      # children below this end (per source ray)
+    recording = record.mode != "none"
+    r = {
         "x": start.x.astype(float), "y": start.y.astype(float),
         "dx": start.dx.astype(float), "dy": start.dy.astype(float),
-        "wli": wli.astype(np.int64), "fs": start.flux_s.astype(float), "fp": start.flux_p.astype(float),
-        "med": _medium_at(cs, start.x, start.y), "gen": np.zeros(n, dtype=np.int64),
-        "rid": np.arange(n, dtype=np.int64), "parent": np.full(n, -1, dtype=np.int64),
-        "root": np.arange(n, dtype=np.int64), "ref": flux0.astype(float), "opl": np.zeros(n),
-        "start_edge": np.full(n, -1, dtype=np.int64), "last": np.full(n, -1, dtype=np.int64),
-        "path": start.source.astype(np.int64),   # path roots: node i is source i
-        "born": np.full(n, B_SOURCE, dtype=np.int64),
+        "fs": start.flux_s.astype(float), "fp": start.flux_p.astype(float), "opl": np.zeros(n),
+        "wli": wli.astype(np.int64), "med": medium_at(cs, start.x, start.y),
+        "root": np.arange(n, dtype=np.int64), "start": np.full(n, -1, dtype=np.int64),
+        "last": np.full(n, -1, dtype=np.int64), "path": start.source.astype(np.int64),
     }
+    if recording:
+        r.update(rid=np.arange(n, dtype=np.int64) + root_offset, parent=np.full(n, -1, dtype=np.int64),
+                 born=np.full(n, B_SOURCE, dtype=np.int64))
+    fields = CORE + (TABLE if recording else ())
     source_flux = float(flux0.sum())
-    next_id = n
-    seg_store: dict[str, list[np.ndarray]] | None = {} if record.mode != "none" else None
+    next_id = n + root_offset
+    seg_store: dict[str, list[np.ndarray]] | None = {} if recording else None
     hit_store: dict[str, list[np.ndarray]] = {}
+    hist = _Histograms(cs) if not keep_hits else None
     stats = {"segments": 0, "generations": 0, "vertex_hits": 0, "grazing_hits": 0,
              "medium_mismatches": 0, "tir_events": 0, "source_rays": n}
+    budget = limits.max_memory_mb * 1e6
+    vertex_tol2 = (1e3 * cs.eps) ** 2
+    gen = 0
 
-    def deposit(code, flux, node):
-        np.add.at(bins, code, flux) if len(code) < 64 else _bincount_add(bins, code, flux)
-        paths.deposit(code, node, flux)
-
-    def truncate(r, mask, reason, record_it):
-        if not mask.any():
-            return
-        f = r["fs"][mask] + r["fp"][mask]
-        deposit(np.full(int(mask.sum()), layout.trunc0 + reason), f, r["path"][mask])
-        if record_it and seg_store is not None:
-            want = record.wants(r["root"][mask])
-            if want is not None and want.any():
-                sub = {k: v[mask][want] for k, v in r.items()}
-                _store_segments(seg_store, sub, sub["x"], sub["y"], np.full(len(sub["x"]), E_TRUNCATED),
-                                np.full(len(sub["x"]), -1), wavelengths)
-
-    while len(rays["x"]):
+    while len(r["x"]):
+        m = len(r["x"])
         # --- limits that end rays before they are traced
-        too_deep = rays["gen"] > limits.max_depth
-        truncate(rays, too_deep, TRUNC_DEPTH, True)
-        if too_deep.any():
-            rays = _take(rays, ~too_deep)
-        room = limits.max_segments - stats["segments"]
-        if len(rays["x"]) > room:
-            over = np.zeros(len(rays["x"]), dtype=bool)
-            over[max(room, 0):] = True
-            truncate(rays, over, TRUNC_BUDGET, True)
-            rays = _take(rays, ~over)
-        m = len(rays["x"])
-        if m == 0:
+        if gen > limits.max_depth:
+            _truncate(r, np.ones(m, dtype=bool), layout.trunc0 + TRUNC_DEPTH, bins, paths, seg_store,
+                      record, root_offset, gen, wavelengths)
             break
+        room = limits.max_segments - stats["segments"]
+        if m > room:
+            over = np.zeros(m, dtype=bool)
+            over[max(room, 0):] = True
+            _truncate(r, over, layout.trunc0 + TRUNC_BUDGET, bins, paths, seg_store, record,
+                      root_offset, gen, wavelengths)
+            r = {k: v[~over] for k, v in r.items()}
+            m = len(r["x"])
+            if m == 0:
+                break
+        if m * BYTES_PER_LIVE_RAY > budget:
+            raise BudgetExceeded(
+                f"generation {gen} has {m:,} live rays, about {m * BYTES_PER_LIVE_RAY / 1e6:,.0f} MB, "
+                f"more than the memory limit max_memory_mb={limits.max_memory_mb:g}; raise max_memory_mb, "
+                f"trace fewer rays per chunk (chunk_size) or raise min_relative_flux")
         stats["generations"] += 1
         stats["segments"] += m
         if progress is not None:
             progress(stats)
 
+        x, y, dx, dy = r["x"], r["y"], r["dx"], r["dy"]
+        fs, fp, med = r["fs"], r["fp"], r["med"]
         # --- nearest hit, then travel to it
-        t, e = hit_fn(cs, rays["x"], rays["y"], rays["dx"], rays["dy"], rays["start_edge"])
+        t, e = hit_fn(cs, x, y, dx, dy, r["start"])
         esc = e < 0
-        med = rays["med"]
-        n_here = n_table[med, rays["wli"]]
-        a = alpha[med]
         L = np.where(esc, 0.0, t)
-        keep = np.exp(-a * L)
-        keep[esc & (a > 0)] = 0.0          # an absorbing ambient swallows what leaves
-        fs_start, fp_start = rays["fs"], rays["fp"]
-        lost = (fs_start + fp_start) * (1.0 - keep)
-        absorbed = lost > 0
-        if absorbed.any():
-            deposit(layout.bulk0 + med[absorbed], lost[absorbed], rays["path"][absorbed])
-        rays["fs"] = rays["fs"] * keep
-        rays["fp"] = rays["fp"] * keep
-        rays["opl"] = rays["opl"] + n_here * L
-        hx = rays["x"] + L * rays["dx"]
-        hy = rays["y"] + L * rays["dy"]
+        codes: list[np.ndarray] = []      # ledger deposits of this generation
+        fluxes: list[np.ndarray] = []
+        nodes: list[np.ndarray] = []
+        path = r["path"]
+
+        def deposit(code, flux, node):
+            codes.append(code)
+            fluxes.append(flux)
+            nodes.append(node)
+
+        fs_start, fp_start = fs, fp
+        if K.absorbing:
+            a = K.alpha[med]
+            keep = np.exp(-a * L)
+            keep[esc & (a > 0)] = 0.0          # an absorbing ambient swallows what leaves
+            lost = (fs + fp) * (1.0 - keep)
+            ab = np.flatnonzero(lost > 0)
+            if len(ab):
+                deposit(layout.bulk0 + med[ab], lost[ab], path[ab])
+            fs = fs * keep
+            fp = fp * keep
+            esc_live = esc & (keep > 0)
+        else:
+            esc_live = esc
+        mw = med * W + r["wli"] if W > 1 else med
+        opl = r["opl"] + n_flat[mw] * L
+        hx = x + L * dx
+        hy = y + L * dy
+        treat = K.treat[e]
+        end = np.full(m, E_ESCAPED, dtype=np.int64) if recording else None
+        if recording and K.absorbing:
+            end[esc & ~esc_live] = E_ABSORBED
 
         # --- escapes
-        esc_live = esc & (keep > 0)
-        if esc_live.any():
-            last = rays["last"][esc_live]
-            code = np.where(last >= 0, layout.escape0 + last, layout.escape_none)
-            deposit(code, (rays["fs"] + rays["fp"])[esc_live], rays["path"][esc_live])
+        ie = np.flatnonzero(esc_live)
+        if len(ie):
+            deposit(K.escape_code[r["last"][ie]], fs[ie] + fp[ie], path[ie])
 
-        e_safe = np.where(esc, 0, e)
-        treat = np.where(esc, -1, cs.treatment[e_safe])
-        end = np.full(m, E_ESCAPED, dtype=np.int64)
-        end[esc & (keep == 0)] = E_ABSORBED
-
-        children: list[dict[str, np.ndarray]] = []
-
-        def spawn(idx, x, y, dx, dy, fs, fp, medium, born, edge, event_kind, last=None):
-            nonlocal next_id
-            k = len(idx)
-            if k == 0:
-                return
-            node = paths.extend(rays["path"][idx], edge * N_EVENT_KINDS + event_kind, cs.n_edges * N_EVENT_KINDS)
-            child = {
-                "x": x, "y": y, "dx": dx, "dy": dy, "wli": rays["wli"][idx], "fs": fs, "fp": fp,
-                "med": medium, "gen": rays["gen"][idx] + 1, "rid": np.arange(next_id, next_id + k),
-                "parent": rays["rid"][idx], "root": rays["root"][idx], "ref": rays["ref"][idx],
-                "opl": rays["opl"][idx], "start_edge": edge, "last": edge if last is None else last,
-                "path": node, "born": np.full(k, born, dtype=np.int64),
-            }
-            next_id += k
-            # children too faint to matter end here, their flux booked as truncated
-            faint = (fs + fp) < limits.min_relative_flux * child["ref"]
-            if faint.any():
-                deposit(np.full(int(faint.sum()), layout.trunc0 + TRUNC_FLUX), (fs + fp)[faint],
-                        rays["path"][idx][faint])
-                child = _take(child, ~faint)
-            children.append(child)
+        kids: list[tuple] = []   # (parent index, x, y, dx, dy, fs, fp, med, start, last, event, born)
 
         # --- detectors
-        det = (treat == T_DETECT_ABSORB) | (treat == T_DETECT_MONITOR)
-        if det.any():
-            idx = np.flatnonzero(det)
-            ed = e[idx]
-            _store_hits(hit_store, cs, rays, idx, ed, hx[idx], hy[idx], wavelengths)
-            absorb = treat[idx] == T_DETECT_ABSORB
-            ia = idx[absorb]
-            if len(ia):
-                deposit(cs.detector[e[ia]], (rays["fs"] + rays["fp"])[ia], rays["path"][ia])
-                end[ia] = E_DETECTED
-            ip = idx[~absorb]
-            if len(ip):
-                end[ip] = E_PASSED
-                spawn(ip, hx[ip], hy[ip], rays["dx"][ip], rays["dy"][ip], rays["fs"][ip], rays["fp"][ip],
-                      med[ip], B_PASSED, e[ip], EV_PASS, last=rays["last"][ip])
+        if K.has[T_DETECT_ABSORB] or K.has[T_DETECT_MONITOR]:
+            idet = np.flatnonzero(treat == T_DETECT_ABSORB) if not K.has[T_DETECT_MONITOR] else \
+                np.flatnonzero((treat == T_DETECT_ABSORB) | (treat == T_DETECT_MONITOR))
+            if len(idet):
+                ed = e[idet]
+                _store_hits(hit_store, hist, cs, idet, ed, hx[idet], hy[idet], dx[idet], dy[idet],
+                            fs[idet], fp[idet], wavelengths[r["wli"][idet]], opl[idet], path[idet],
+                            r["root"][idet] + root_offset)
+                absorb = treat[idet] == T_DETECT_ABSORB
+                ia = idet[absorb]
+                if len(ia):
+                    deposit(cs.detector[e[ia]], fs[ia] + fp[ia], path[ia])
+                    if recording:
+                        end[ia] = E_DETECTED
+                ip = idet[~absorb]
+                if len(ip):
+                    if recording:
+                        end[ip] = E_PASSED
+                    kids.append((ip, hx[ip], hy[ip], dx[ip], dy[ip], fs[ip], fp[ip], med[ip], e[ip],
+                                 r["last"][ip], EV_PASS, B_PASSED))
 
         # --- absorbing faces
-        ab = treat == T_ABSORBER
-        if ab.any():
-            deposit(layout.face0 + e[ab], (rays["fs"] + rays["fp"])[ab], rays["path"][ab])
-            end[ab] = E_ABSORBED
+        if K.has[T_ABSORBER]:
+            ab = np.flatnonzero(treat == T_ABSORBER)
+            if len(ab):
+                deposit(layout.face0 + e[ab], fs[ab] + fp[ab], path[ab])
+                if recording:
+                    end[ab] = E_ABSORBED
 
         # --- mirrors: reflect R, absorb the rest at the face
-        mi = np.flatnonzero(treat == T_MIRROR)
-        if len(mi):
-            em = e[mi]
-            nx, ny = edge_normal(cs, em, hx[mi], hy[mi])
-            rdx, rdy = fresnel.reflect(rays["dx"][mi], rays["dy"][mi], nx, ny)
-            R = cs.reflectance[em]
-            lost_m = (rays["fs"][mi] + rays["fp"][mi]) * (1 - R)
-            deposit(layout.face0 + em, lost_m, rays["path"][mi])
-            end[mi] = E_REFLECTED
-            spawn(mi, hx[mi], hy[mi], rdx, rdy, rays["fs"][mi] * R, rays["fp"][mi] * R, med[mi],
-                  B_MIRROR, em, EV_MIRROR)
+        if K.has[T_MIRROR]:
+            mi = np.flatnonzero(treat == T_MIRROR)
+            if len(mi):
+                em = e[mi]
+                nx, ny = _normals(cs, K, em, hx[mi], hy[mi])
+                rdx, rdy = fresnel.reflect(dx[mi], dy[mi], nx, ny)
+                R = cs.reflectance[em]
+                deposit(layout.face0 + em, (fs[mi] + fp[mi]) * (1 - R), path[mi])
+                if recording:
+                    end[mi] = E_REFLECTED
+                kids.append((mi, hx[mi], hy[mi], rdx, rdy, fs[mi] * R, fp[mi] * R, med[mi], em, em,
+                             EV_MIRROR, B_MIRROR))
 
         # --- dielectric interfaces (bare or anti-reflection)
-        di = np.flatnonzero((treat == T_BARE) | (treat == T_AR))
-        if len(di):
-            _interfaces(cs, rays, di, e[di], hx[di], hy[di], treat[di], n_table, mode, rng, stats, end, spawn)
+        if K.has[T_BARE] or K.has[T_AR]:
+            di = np.flatnonzero(treat == T_BARE) if not K.has[T_AR] else \
+                np.flatnonzero((treat == T_BARE) | (treat == T_AR))
+            if len(di):
+                _interfaces(cs, K, r, di, e[di], hx[di], hy[di], fs[di], fp[di], treat[di], n_flat, W,
+                            mode, rng, stats, end, kids)
 
-        # --- where rays start a segment exactly at a vertex or graze, keep count
-        hit = ~esc & (treat < T_DETECT_ABSORB)
-        if hit.any():
-            ih = np.flatnonzero(hit)
-            eh = e[ih]
-            d0 = np.hypot(hx[ih] - cs.x0[eh], hy[ih] - cs.y0[eh])
-            d1 = np.hypot(hx[ih] - cs.x1[eh], hy[ih] - cs.y1[eh])
-            stats["vertex_hits"] += int(np.count_nonzero(np.minimum(d0, d1) < 1e3 * cs.eps))
+        # --- where rays end a segment at a vertex, keep count
+        hit = np.flatnonzero(treat < T_DETECT_ABSORB)
+        if len(hit):
+            eh = e[hit]
+            px, py = hx[hit], hy[hit]
+            d0 = (px - cs.x0[eh]) ** 2 + (py - cs.y0[eh]) ** 2
+            d1 = (px - cs.x1[eh]) ** 2 + (py - cs.y1[eh]) ** 2
+            stats["vertex_hits"] += int(np.count_nonzero(np.minimum(d0, d1) < vertex_tol2))
 
         if seg_store is not None:
-            want = record.wants(rays["root"])
+            want = record.wants(r["root"] + root_offset)
             if want is not None and want.any():
-                sub = {k: v[want] for k, v in rays.items()}
-                sub["fs"], sub["fp"] = fs_start[want], fp_start[want]
-                ex = np.where(esc, hx + 3 * cs.scale * rays["dx"], hx)[want]
-                ey = np.where(esc, hy + 3 * cs.scale * rays["dy"], hy)[want]
-                _store_segments(seg_store, sub, ex, ey, end[want], e[want], wavelengths)
+                ex = np.where(esc, hx + 3 * cs.scale * dx, hx)
+                ey = np.where(esc, hy + 3 * cs.scale * dy, hy)
+                cols = {"x": x, "y": y, "ex": ex, "ey": ey, "dx": dx, "dy": dy, "fs": fs_start,
+                        "fp": fp_start, "med": med, "opl": opl, "root": r["root"] + root_offset,
+                        "rid": r["rid"], "parent": r["parent"], "born": r["born"], "end": end,
+                        "edge": e, "wli": r["wli"]}
+                if not want.all():
+                    cols = {k: v[want] for k, v in cols.items()}
+                cols["gen"] = np.full(len(cols["x"]), gen, dtype=np.int64)
+                for k, v in cols.items():
+                    seg_store.setdefault(k, []).append(v)
 
-        rays = _concat(children) if children else _take(rays, np.zeros(m, dtype=bool))
+        if codes:
+            code = np.concatenate(codes)
+            flux = np.concatenate(fluxes)
+            bins += np.bincount(code, weights=flux, minlength=len(bins))
+            if paths.enabled:
+                paths.deposit(code, np.concatenate(nodes), flux)
+
+        # --- the next generation: children that carry enough flux
+        r, next_id = _next_generation(r, kids, thr_root, bins, paths, layout, K, fields, recording,
+                                      next_id, opl)
+        gen += 1
 
     stats["elapsed_s"] = time.perf_counter() - t0
     stats["events"] = stats["segments"]
+    if seg_store is not None and seg_store:
+        segments = _segment_table(seg_store, wavelengths)
+    elif seg_store is not None:
+        segments = _segment_table({}, wavelengths)
+    else:
+        segments = None
     return RawTrace(
-        bins=bins, source_flux=source_flux,
-        segments=None if seg_store is None else {k: np.concatenate(v) for k, v in seg_store.items()},
+        bins=bins, source_flux=source_flux, segments=segments,
         hits={k: np.concatenate(v) for k, v in hit_store.items()},
-        path_parent=np.array(paths.parent, dtype=np.int64), path_code=np.array(paths.code, dtype=np.int64),
-        path_flux=paths.flux, wavelengths=wavelengths, stats=stats)
+        path_parent=paths.parent.copy(), path_code=paths.code.copy(),
+        path_flux=paths.flux_dict() if paths.enabled else {}, wavelengths=wavelengths, stats=stats,
+        histograms=hist.to_dict() if hist is not None else None)
 
 
-def _interfaces(cs, rays, idx, e, hx, hy, treat, n_table, mode, rng, stats, end, spawn):
-    dx, dy = rays["dx"][idx], rays["dy"][idx]
-    nx, ny = edge_normal(cs, e, hx, hy)
+def _normals(cs, K, e, hx, hy):
+    """Unit geometric normals at hit points: table lookups for lines, computed for arcs."""
+    nx = K.nx[e]
+    ny = K.ny[e]
+    if K.has_arcs:
+        arc = np.flatnonzero(cs.is_arc[e])
+        if len(arc):
+            ea = e[arc]
+            r = cs.radius[ea]
+            nx[arc] = (hx[arc] - cs.cx[ea]) / r
+            ny[arc] = (hy[arc] - cs.cy[ea]) / r
+    return nx, ny
+
+
+def _interfaces(cs, K, r, idx, e, hx, hy, fs, fp, treat, n_flat, W, mode, rng, stats, end, kids):
+    dx, dy = r["dx"][idx], r["dy"][idx]
+    nx, ny = _normals(cs, K, e, hx, hy)
     cos_raw = dx * nx + dy * ny
     from_plus = cos_raw < 0                      # travelling against the normal
-    m_from = np.where(from_plus, cs.med_plus[e], cs.med_minus[e])
-    m_to = np.where(from_plus, cs.med_minus[e], cs.med_plus[e])
-    stats["medium_mismatches"] += int(np.count_nonzero(m_from != rays["med"][idx]))
-    wli = rays["wli"][idx]
-    n1 = n_table[m_from, wli]
-    n2 = n_table[m_to, wli]
+    mp, mm = cs.med_plus[e], cs.med_minus[e]
+    m_from = np.where(from_plus, mp, mm)
+    m_to = np.where(from_plus, mm, mp)
+    stats["medium_mismatches"] += int(np.count_nonzero(m_from != r["med"][idx]))
+    if W > 1:
+        wli = r["wli"][idx]
+        n1 = n_flat[m_from * W + wli]
+        n2 = n_flat[m_to * W + wli]
+    else:
+        n1 = n_flat[m_from]
+        n2 = n_flat[m_to]
     ci = np.abs(cos_raw)
     stats["grazing_hits"] += int(np.count_nonzero(ci < 1e-9))
     # normal pointing back into the incident medium
-    bnx = np.where(from_plus, nx, -nx)
-    bny = np.where(from_plus, ny, -ny)
+    sgn = np.where(from_plus, 1.0, -1.0)
+    bnx = nx * sgn
+    bny = ny * sgn
     cos_t, tir = fresnel.snell_cos_t(n1, n2, ci)
     Rs, Rp = fresnel.fresnel_rs_rp(n1, n2, ci, cos_t, tir)
-    ar = treat == T_AR
-    if ar.any():
-        Rs = np.where(ar & ~tir, 0.0, Rs)
-        Rp = np.where(ar & ~tir, 0.0, Rp)
-    stats["tir_events"] += int(np.count_nonzero(tir))
-    rdx = dx + 2 * ci * bnx
-    rdy = dy + 2 * ci * bny
-    eta = n1 / n2
-    tdx, tdy = fresnel.refract(dx, dy, bnx, bny, eta, ci, cos_t)
-    # renormalise against rounding so directions stay unit vectors over many bounces
-    tn = np.hypot(tdx, tdy)
-    tn[tn == 0] = 1.0
-    tdx, tdy = tdx / tn, tdy / tn
-    fs, fp = rays["fs"][idx], rays["fp"][idx]
-    born_r = np.where(tir, B_TIR, B_REFLECTED)
-    ev_r = np.where(tir, EV_TIR, EV_REFLECT)
+    if K.has[T_AR]:
+        ar = (treat == T_AR) & ~tir
+        if ar.any():
+            Rs = np.where(ar, 0.0, Rs)
+            Rp = np.where(ar, 0.0, Rp)
+    n_tir = int(np.count_nonzero(tir))
+    stats["tir_events"] += n_tir
+    two_ci = 2 * ci
+    rdx = dx + two_ci * bnx
+    rdy = dy + two_ci * bny
+    tr = np.flatnonzero(~tir) if n_tir else None     # None: every ray transmits too
 
+    def transmitted(sel):
+        d_x, d_y, b_x, b_y = (dx, dy, bnx, bny) if sel is None else (dx[sel], dy[sel], bnx[sel], bny[sel])
+        c_i, c_t = (ci, cos_t) if sel is None else (ci[sel], cos_t[sel])
+        eta = n1 / n2 if sel is None else n1[sel] / n2[sel]
+        tdx, tdy = fresnel.refract(d_x, d_y, b_x, b_y, eta, c_i, c_t)
+        # renormalise against rounding so directions stay unit vectors over many bounces
+        tn = np.hypot(tdx, tdy)
+        tn[tn == 0] = 1.0
+        return tdx / tn, tdy / tn
+
+    ev_r = np.where(tir, EV_TIR, EV_REFLECT) if n_tir else EV_REFLECT
+    born_r = np.where(tir, B_TIR, B_REFLECTED) if n_tir else B_REFLECTED
     if mode == BRANCHING:
-        end[idx] = np.where(tir, E_TIR, E_REFRACTED)
-        _spawn_split(spawn, idx, hx, hy, rdx, rdy, fs * Rs, fp * Rp, m_from, born_r, e, ev_r, mask=None)
-        tr = ~tir
-        if tr.any():
-            spawn(idx[tr], hx[tr], hy[tr], tdx[tr], tdy[tr], (fs * (1 - Rs))[tr], (fp * (1 - Rp))[tr],
-                  m_to[tr], B_REFRACTED, e[tr], EV_THROUGH)
+        if end is not None:
+            end[idx] = np.where(tir, E_TIR, E_REFRACTED)
+        kids.append((idx, hx, hy, rdx, rdy, fs * Rs, fp * Rp, m_from, e, e, ev_r, born_r))
+        if tr is None:
+            tdx, tdy = transmitted(None)
+            kids.append((idx, hx, hy, tdx, tdy, fs * (1 - Rs), fp * (1 - Rp), m_to, e, e, EV_THROUGH,
+                         B_REFRACTED))
+        elif len(tr):
+            tdx, tdy = transmitted(tr)
+            kids.append((idx[tr], hx[tr], hy[tr], tdx, tdy, (fs * (1 - Rs))[tr], (fp * (1 - Rp))[tr],
+                         m_to[tr], e[tr], e[tr], EV_THROUGH, B_REFRACTED))
         return
 
     # Monte Carlo: reflect with probability R, carry the whole flux on, s and p reweighted
     f = fs + fp
     R = np.where(f > 0, (fs * Rs + fp * Rp) / np.where(f > 0, f, 1.0), 0.0)
     refl = rng.random(len(idx)) < R
-    end[idx] = np.where(tir, E_TIR, np.where(refl, E_REFLECTED, E_REFRACTED))
+    if end is not None:
+        end[idx] = np.where(tir, E_TIR, np.where(refl, E_REFLECTED, E_REFRACTED))
     with np.errstate(invalid="ignore", divide="ignore"):
         sr = np.where(R > 0, 1.0 / R, 0.0)
         st = np.where(R < 1, 1.0 / (1.0 - R), 0.0)
-    _spawn_split(spawn, idx, hx, hy, rdx, rdy, fs * Rs * sr, fp * Rp * sr, m_from, born_r, e, ev_r, mask=refl)
-    tr = ~refl
-    if tr.any():
-        spawn(idx[tr], hx[tr], hy[tr], tdx[tr], tdy[tr], (fs * (1 - Rs) * st)[tr], (fp * (1 - Rp) * st)[tr],
-              m_to[tr], B_REFRACTED, e[tr], EV_THROUGH)
+    s = np.flatnonzero(refl)
+    if len(s):
+        pick = lambda v: v[s] if isinstance(v, np.ndarray) else v
+        kids.append((idx[s], hx[s], hy[s], rdx[s], rdy[s], (fs * Rs * sr)[s], (fp * Rp * sr)[s],
+                     m_from[s], e[s], e[s], pick(ev_r), pick(born_r)))
+    t_ = np.flatnonzero(~refl)
+    if len(t_):
+        tdx, tdy = transmitted(t_)
+        kids.append((idx[t_], hx[t_], hy[t_], tdx, tdy, (fs * (1 - Rs) * st)[t_], (fp * (1 - Rp) * st)[t_],
+                     m_to[t_], e[t_], e[t_], EV_THROUGH, B_REFRACTED))
 
 
-def _spawn_split(spawn, idx, hx, hy, dx, dy, fs, fp, med, born, e, ev, mask):
-    """Spawn reflected children, TIR and partial reflections separately (they differ in labels)."""
-    sel = np.ones(len(idx), dtype=bool) if mask is None else mask
-    for flag in (B_TIR, B_REFLECTED):
-        s = sel & (born == flag)
-        if s.any():
-            spawn(idx[s], hx[s], hy[s], dx[s], dy[s], fs[s], fp[s], med[s], flag, e[s],
-                  EV_TIR if flag == B_TIR else EV_REFLECT)
+def _next_generation(r, kids, thr_root, bins, paths, layout, K, fields, recording, next_id, opl):
+    """Gather the surviving children into the next generation's arrays.
+
+    A child whose flux is below its source ray's threshold ends here: its flux is booked as
+    truncated (with the parent's path)."""
+    if not kids:
+        return {k: v[:0] for k, v in r.items()}, next_id
+    root = r["root"]
+    parts = []
+    faint_flux = []
+    faint_nodes = []
+    for kid in kids:
+        idx, kfs, kfp = kid[0], kid[5], kid[6]
+        f = kfs + kfp
+        ok = f >= thr_root[root[idx]]
+        if not ok.all():
+            bad = ~ok
+            faint_flux.append(f[bad])
+            faint_nodes.append(r["path"][idx[bad]])
+            sel = np.flatnonzero(ok)
+            kid = tuple(v[sel] if isinstance(v, np.ndarray) else v for v in kid)
+        if len(kid[0]):
+            parts.append(kid)
+    if faint_flux:
+        ff = np.concatenate(faint_flux)
+        bins[layout.trunc0 + TRUNC_FLUX] += ff.sum()
+        if paths.enabled:
+            paths.deposit(np.full(len(ff), layout.trunc0 + TRUNC_FLUX), np.concatenate(faint_nodes), ff)
+    if not parts:
+        return {k: v[:0] for k, v in r.items()}, next_id
+    cat = np.concatenate if len(parts) > 1 else (lambda seq: seq[0])
+
+    def col(j):
+        vals = [p[j] if isinstance(p[j], np.ndarray) else np.full(len(p[0]), p[j], dtype=np.int64) for p in parts]
+        return cat(vals)
+
+    pidx = col(0)
+    out = {"x": col(1), "y": col(2), "dx": col(3), "dy": col(4), "fs": col(5), "fp": col(6),
+           "med": col(7), "start": col(8), "last": col(9), "opl": opl[pidx], "wli": r["wli"][pidx],
+           "root": root[pidx]}
+    if paths.enabled:
+        ev = col(10)
+        out["path"] = paths.extend(r["path"][pidx], out["start"] * N_EVENT_KINDS + ev, K.n_codes)
+    else:
+        out["path"] = r["path"][pidx]
+    if recording:
+        k = len(pidx)
+        out["rid"] = np.arange(next_id, next_id + k, dtype=np.int64)
+        out["parent"] = r["rid"][pidx]
+        out["born"] = col(11)
+        next_id += k
+    return out, next_id
 
 
-def _bincount_add(bins, code, flux):
-    bins += np.bincount(code, weights=flux, minlength=len(bins))[: len(bins)]
+def _truncate(r, mask, code, bins, paths, seg_store, record, root_offset, gen, wavelengths):
+    f = r["fs"][mask] + r["fp"][mask]
+    bins[code] += f.sum()
+    paths.deposit(np.full(len(f), code), r["path"][mask], f)
+    if seg_store is not None:
+        root = r["root"][mask] + root_offset
+        want = record.wants(root)
+        if want is not None and want.any():
+            sub = {k: v[mask][want] for k, v in r.items()}
+            k = len(sub["x"])
+            cols = {"x": sub["x"], "y": sub["y"], "ex": sub["x"], "ey": sub["y"], "dx": sub["dx"],
+                    "dy": sub["dy"], "fs": sub["fs"], "fp": sub["fp"], "med": sub["med"], "opl": sub["opl"],
+                    "root": root[want], "rid": sub["rid"], "parent": sub["parent"], "born": sub["born"],
+                    "end": np.full(k, E_TRUNCATED, dtype=np.int64), "edge": np.full(k, -1, dtype=np.int64),
+                    "wli": sub["wli"], "gen": np.full(k, gen, dtype=np.int64)}
+            for key, v in cols.items():
+                seg_store.setdefault(key, []).append(v)
 
 
-def _take(r, mask):
-    return {k: v[mask] for k, v in r.items()}
+SEGMENT_COLUMNS = ("ray_id", "parent_id", "generation", "source_ray", "x0", "y0", "x1", "y1", "dx", "dy",
+                   "wavelength_nm", "flux_s", "flux_p", "medium", "born", "end", "end_edge", "optical_path")
+_SEG_SOURCE = {"ray_id": "rid", "parent_id": "parent", "generation": "gen", "source_ray": "root",
+               "x0": "x", "y0": "y", "x1": "ex", "y1": "ey", "dx": "dx", "dy": "dy", "flux_s": "fs",
+               "flux_p": "fp", "medium": "med", "born": "born", "end": "end", "end_edge": "edge",
+               "optical_path": "opl"}
 
 
-def _concat(parts):
-    return {k: np.concatenate([p[k] for p in parts]) for k in FIELDS}
+def _segment_table(store, wavelengths):
+    out = {}
+    for name in SEGMENT_COLUMNS:
+        if name == "wavelength_nm":
+            w = store.get("wli")
+            out[name] = wavelengths[np.concatenate(w)] if w else np.zeros(0)
+            continue
+        v = store.get(_SEG_SOURCE[name])
+        is_int = name not in ("x0", "y0", "x1", "y1", "dx", "dy", "flux_s", "flux_p", "optical_path")
+        out[name] = np.concatenate(v) if v else np.zeros(0, dtype=np.int64 if is_int else float)
+    return out
 
 
-def _medium_at(cs: CompiledScene, x, y) -> np.ndarray:
+def medium_at(cs: CompiledScene, x, y) -> np.ndarray:
     """Medium containing each point: cast a ray and read the medium behind the first edge hit.
 
     The first boundary a ray meets is seen from the medium the point is in; a ray that meets
@@ -422,9 +558,21 @@ def _medium_at(cs: CompiledScene, x, y) -> np.ndarray:
     ang = 0.7390851332151607
     dx = np.full(n, np.cos(ang))
     dy = np.full(n, np.sin(ang))
-    boundary = np.flatnonzero(cs.detector < 0)
-    t, e = nearest_hit(cs, np.asarray(x, float), np.asarray(y, float), dx, dy,
-                       np.full(n, -1, dtype=np.int64), edge_ids=boundary)
+    x = np.asarray(x, float)
+    y = np.asarray(y, float)
+    hit_fn = hit_function(cs)
+    t, e = hit_fn(cs, x, y, dx, dy, np.full(n, -1, dtype=np.int64))
+    # detectors are not boundaries: go on through them (few rays cross one)
+    t = t.copy()
+    for _ in range(cs.n_edges):
+        on_det = np.flatnonzero((e >= 0) & (cs.detector[np.maximum(e, 0)] >= 0))
+        if len(on_det) == 0:
+            break
+        px = x[on_det] + t[on_det] * dx[on_det]
+        py = y[on_det] + t[on_det] * dy[on_det]
+        t2, e2 = hit_fn(cs, px, py, dx[on_det], dy[on_det], e[on_det])
+        t[on_det] = t[on_det] + t2
+        e[on_det] = e2
     med = np.zeros(n, dtype=np.int64)
     hit = e >= 0
     if hit.any():
@@ -437,7 +585,56 @@ def _medium_at(cs: CompiledScene, x, y) -> np.ndarray:
     return med
 
 
-def _store_hits(store, cs, rays, idx, ed, hx, hy, wavelengths):
+_medium_at = medium_at   # the old private name
+
+
+class _Histograms:
+    """Detector hits binned by position and angle (the detector's own bins), for long traces
+    that do not keep one record per hit."""
+
+    def __init__(self, cs: CompiledScene):
+        self.dets = cs.detectors
+        self.flux_s = [np.zeros((d.bins, d.angle_bins)) for d in cs.detectors]
+        self.flux_p = [np.zeros((d.bins, d.angle_bins)) for d in cs.detectors]
+        self.count = np.zeros(len(cs.detectors), dtype=np.int64)
+
+    def add(self, det, pos, angle, fs, fp):
+        for d in np.unique(det).tolist():
+            sel = det == d
+            spec = self.dets[d]
+            length = float(np.hypot(spec.end[0] - spec.start[0], spec.end[1] - spec.start[1]))
+            i = np.clip((pos[sel] / length * spec.bins).astype(np.int64), 0, spec.bins - 1)
+            j = np.clip(((angle[sel] + 90.0) / 180.0 * spec.angle_bins).astype(np.int64), 0, spec.angle_bins - 1)
+            k = i * spec.angle_bins + j
+            size = spec.bins * spec.angle_bins
+            self.flux_s[d] += np.bincount(k, weights=fs[sel], minlength=size).reshape(spec.bins, spec.angle_bins)
+            self.flux_p[d] += np.bincount(k, weights=fp[sel], minlength=size).reshape(spec.bins, spec.angle_bins)
+            self.count[d] += int(sel.sum())
+
+    def to_dict(self) -> dict:
+        out = {}
+        for d, spec in enumerate(self.dets):
+            length = float(np.hypot(spec.end[0] - spec.start[0], spec.end[1] - spec.start[1]))
+            out[spec.name] = {"position_edges": np.linspace(0.0, length, spec.bins + 1),
+                              "angle_edges": np.linspace(-90.0, 90.0, spec.angle_bins + 1),
+                              "flux_s": self.flux_s[d], "flux_p": self.flux_p[d], "hits": int(self.count[d])}
+        return out
+
+
+def merge_histograms(target: dict | None, other: dict | None) -> dict | None:
+    if target is None:
+        return other
+    if other is None:
+        return target
+    for name, h in other.items():
+        t = target[name]
+        t["flux_s"] = t["flux_s"] + h["flux_s"]
+        t["flux_p"] = t["flux_p"] + h["flux_p"]
+        t["hits"] += h["hits"]
+    return target
+
+
+def _store_hits(store, hist, cs, idx, ed, hx, hy, dx, dy, fs, fp, wl, opl, path, root):
     d = cs.detector[ed]
     ex = cs.x1[ed] - cs.x0[ed]
     ey = cs.y1[ed] - cs.y0[ed]
@@ -445,24 +642,14 @@ def _store_hits(store, cs, rays, idx, ed, hx, hy, wavelengths):
     s = ((hx - cs.x0[ed]) * ex + (hy - cs.y0[ed]) * ey) / L
     # angle of arrival from the detector normal (normal = right of start->end), signed
     nx, ny = ey / L, -ex / L
-    dx, dy = rays["dx"][idx], rays["dy"][idx]
     cosn = -(dx * nx + dy * ny)
     sint = dx * (ex / L) + dy * (ey / L)
     angle = np.degrees(np.arctan2(sint, np.abs(cosn)))
+    if hist is not None:
+        hist.add(d, s, angle, fs, fp)
+        return
     front = cosn >= 0
     for k, v in (("detector", d), ("position", s), ("angle_deg", angle), ("front", front),
-                 ("flux_s", rays["fs"][idx]), ("flux_p", rays["fp"][idx]),
-                 ("wavelength_nm", wavelengths[rays["wli"][idx]]), ("optical_path", rays["opl"][idx]),
-                 ("path", rays["path"][idx]), ("root", rays["root"][idx])):
-        store.setdefault(k, []).append(np.asarray(v))
-
-
-def _store_segments(store, r, ex, ey, end, edge, wavelengths):
-    cols = {
-        "ray_id": r["rid"], "parent_id": r["parent"], "generation": r["gen"], "source_ray": r["root"],
-        "x0": r["x"], "y0": r["y"], "x1": ex, "y1": ey, "dx": r["dx"], "dy": r["dy"],
-        "wavelength_nm": wavelengths[r["wli"]], "flux_s": r["fs"], "flux_p": r["fp"],
-        "medium": r["med"], "born": r["born"], "end": end, "end_edge": edge, "optical_path": r["opl"],
-    }
-    for k, v in cols.items():
+                 ("flux_s", fs), ("flux_p", fp), ("wavelength_nm", wl), ("optical_path", opl),
+                 ("path", path), ("root", root)):
         store.setdefault(k, []).append(np.asarray(v))
