@@ -6,7 +6,7 @@ A name addresses one number in the scene, in one of these forms:
 
     OBJECT.FIELD             OBJECT is the name of a part, source or detector
     KIND:OBJECT.FIELD        the same, with KIND = part, source or detector, when names clash
-    wavelength               the wavelength of every source
+    wavelength               every source becomes one line at this wavelength (nm)
     trace.FIELD              a trace setting: trace.rays, trace.seed, trace.min_relative_flux, ...
     $.JSON.PATH              any number in the scene file by its JSON path, e.g.
                              $.parts[0].shape.params.width or $.materials.mine.index
@@ -153,7 +153,8 @@ def resolve(data: dict, name: str, file: str = "") -> Target:
         sources = data.get("sources", [])
         if not sources:
             fail("a scene without sources", "a scene with at least one source")
-        return Target(name, tuple(_wavelength_path(data, i, label, problems) for i in range(len(sources))), False)
+        # a monochromatic sweep: each source's whole spectrum is replaced by one line
+        return Target(name, tuple(("sources", i, "spectrum") for i in range(len(sources))), False)
 
     kind = None
     m = re.match(r"(part|source|detector):(.*)$", name, re.S)
@@ -366,7 +367,7 @@ def run_point(data: dict, settings: list[tuple[tuple, Any]], options: dict) -> d
     data = json.loads(json.dumps(data))
     for paths, value in settings:
         for path in paths:
-            _set(data, path, value)
+            _set(data, path, {"wavelength_nm": value} if path[-1] == "spectrum" else value)
     try:
         scene = scene_from_dict(data)
         result = trace(scene, track_paths=False, **options)
