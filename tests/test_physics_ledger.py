@@ -5,8 +5,8 @@ common practice: conservation of energy; every unit of source flux ends in exact
 the buckets itself (it does not rely on the tracer's own check) to within 1e-9 relative, and
 checks no bucket is negative.
 
-Random scenes: up to three parts, each a regular polygon, rectangle, prism or roof prism, in its
-own cell so they never overlap, sometimes with a small polygon nested inside a host rectangle
+Random scenes: up to three parts, each a regular polygon, rectangle, prism, roof prism, lens
+or bent light pipe (the last two with true arcs), in its own cell so they never overlap, sometimes with a small polygon nested inside a host rectangle
 or two rectangles cemented side by side; constant indices 1.0-2.5 (1.0 gives an index-matched
 interface); bulk absorption; random face treatments (bare, mirror with random reflectance,
 absorber, anti-reflection); beams and point sources anywhere, mostly aimed near a part; an absorbing or monitoring
@@ -50,8 +50,23 @@ def material(draw, name):
 
 @st.composite
 def shape(draw, name, mat, centre):
-    kind = draw(st.sampled_from(["regular_polygon", "rectangle", "prism", "roof_prism"]))
+    kind = draw(st.sampled_from(["regular_polygon", "rectangle", "prism", "roof_prism", "lens", "light_pipe"]))
     rot = draw(st.floats(-180.0, 180.0))
+    if kind == "lens":       # true arcs; thickness chosen so the edge stays positive
+        h = draw(st.floats(1.0, 5.0))
+        r1, r2 = (draw(st.sampled_from([-1.0, 1.0])) * draw(st.floats(h * 1.01, 40.0)) for _ in range(2))
+        sag = [r - math.copysign(math.sqrt(r * r - h * h), r) for r in (r1, r2)]
+        t = max(sag[0] - sag[1], 0.0) + draw(st.floats(0.3, 4.0))
+        part = shaped_part(name, mat, "lens", position=(centre[0] - t / 2, centre[1]), rotation_deg=rot,
+                           r1=r1, r2=r2, center_thickness=t, aperture=2 * h)
+        return with_random_treatments(draw, part)
+    if kind == "light_pipe":   # arcs concave from inside; kept within about 10 mm of the cell centre
+        segments = [{"straight": draw(st.floats(0.5, 3.0))},
+                    {"bend": {"radius": draw(st.floats(0.5, 3.0)),
+                              "angle": draw(st.sampled_from([-1.0, 1.0])) * draw(st.floats(20.0, 120.0))}}]
+        part = shaped_part(name, mat, "light_pipe", position=(centre[0] - 3.0, centre[1]), rotation_deg=rot,
+                           width=draw(st.floats(0.3, 2.0)), segments=segments)
+        return with_random_treatments(draw, part)
     if kind == "regular_polygon":
         params = dict(sides=draw(st.integers(3, 9)), circumradius=draw(st.floats(1.0, 10.0)))
     elif kind == "rectangle":
