@@ -178,3 +178,25 @@ def test_process_pool_and_dask_cluster_give_the_same_table():
         on_dask = sweep(d, v, {"rays": 300}, executor=client.get_executor())
     assert on_dask.rows == serial.rows
     assert on_dask.to_csv() == serial.to_csv()
+
+
+def test_roof_prism_in_plane_acceptance_edge():
+    """published (Snell's law and the TIR condition, e.g. Hecht, Optics, ch. 4): in a 90 deg
+    roof prism a ray entering the hypotenuse at external angle a from its normal travels
+    inside at b = asin(sin a / n) and meets the legs at 45 deg +- b; both legs reflect totally
+    only while 45 deg - b > the critical angle asin(1 / n), i.e. a < asin(n sin(45 deg - asin(1/n)))
+    with n the index of the glass relative to the surrounding air.
+    Sweeping the bundled sample's beam across that edge: no flux may escape through a leg just
+    inside it, and some must just outside."""
+    d = sample("roof-prism-retroreflector")
+    wl = d["sources"][0]["spectrum"]["wavelength_nm"]
+    n = float(lookup(d["parts"][0]["material"]).index(wl)) / float(lookup(d["ambient"]).index(wl))
+    edge = math.degrees(math.asin(n * math.sin(math.radians(45.0) - math.asin(1.0 / n))))
+    step = 0.02   # deg; the air around the prism (n = 1.00027) moves the edge by 0.014 deg
+    res = sweep(d, [Variable("emitter beam.direction_deg", (90.0 - (edge - step), 90.0 - (edge + step),
+                                                             90.0 + (edge - step), 90.0 + (edge + step)))],
+                {"rays": 200}, workers=1)
+    legs = [sum(v for k, v in row.items() if k.startswith("share: escaped via roof prism /") and "leg" in k)
+            for row in res.rows]
+    assert legs[0] == 0.0 and legs[2] == 0.0
+    assert legs[1] > 0.01 and legs[3] > 0.01
