@@ -6,7 +6,7 @@ flux it truncated below its threshold.  Monte Carlo (reflect with probability R,
 on) is an unbiased estimate of the same numbers.
 
 Statistics (common practice: mean of independent runs and its standard error):
-K = 16 Monte Carlo runs with seeds 1..16, each over the same starting rays; for every bucket
+K = 32 Monte Carlo runs with seeds 1..32, each over the same 4000 starting rays; for every bucket
   |mean_MC - branching| <= 5 SE + truncated_branching,
 SE = sample standard deviation of the K run totals / sqrt(K), floored at (largest source-ray
 flux) / K, the size of one event in K runs, so a bucket that no run happened to reach is
@@ -22,8 +22,8 @@ from raytrace.scene_io import load_scene
 from raytrace.sources import sample_sources
 
 SAMPLES = sorted((Path(__file__).resolve().parent.parent / "samples").glob("*.json"))
-K_RUNS = 16
-MAX_RAYS = 1500
+K_RUNS = 32
+RAYS = 4000
 
 
 def bucket_key(b):
@@ -37,7 +37,7 @@ def test_there_are_samples():
 @pytest.mark.parametrize("path", SAMPLES, ids=[p.stem for p in SAMPLES])
 def test_monte_carlo_agrees_with_branching(path):
     scene = load_scene(path)
-    rays = min(scene.settings.rays, MAX_RAYS)
+    rays = RAYS
     start = sample_sources(scene.sources, rays, seed=scene.settings.seed)
     branch = trace(scene, rays=rays, mode="branching", start=start, track_paths=False)
     exact = {bucket_key(b): b.flux for b in branch.ledger.buckets}
@@ -59,7 +59,8 @@ def test_monte_carlo_agrees_with_branching(path):
         if diff > 5 * se + truncated:
             failures.append((key, exact.get(key, 0.0), values.mean(), se))
     assert not failures, failures
-    # the comparison has teeth: the main detector is known to a few per cent or better
+    # the comparison has teeth: the largest bucket is known to 1% or better (a Monte Carlo whose
+    # reflection probability is off by 5% fails this test on two samples, checked by hand)
     top = max(exact, key=exact.get)
     vals = np.array([r.get(top, 0.0) for r in runs])
-    assert vals.std(ddof=1) / np.sqrt(K_RUNS) < 0.02 * exact[top]
+    assert vals.std(ddof=1) / np.sqrt(K_RUNS) < 0.01 * exact[top]
