@@ -11,7 +11,6 @@ Sources:
   refracted path traced backwards from its end retraces itself.
 """
 import math
-from dataclasses import replace
 
 import numpy as np
 import pytest
