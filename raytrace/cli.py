@@ -155,7 +155,18 @@ def cmd_trace(args) -> int:
             from .paths import paths_text
             print(paths_text(result, max(args.paths, 1)))
     if args.json:
-        if not write_output(args.json, json.dumps(result.to_summary_dict(), indent=2) + "\n"):
+        from .detectors import detector_reports
+        summary = result.to_summary_dict()
+        summary["detectors"] = [r.to_dict() for r in detector_reports(result)]
+        if args.paths is not None:
+            from .paths import path_groups
+            kept: dict[str, int] = {}
+            summary["paths"] = []    # the top N paths of every ledger bucket
+            for g in path_groups(result):
+                kept[g.bucket] = kept.get(g.bucket, 0) + 1
+                if kept[g.bucket] <= max(args.paths, 1):
+                    summary["paths"].append(g.to_dict())
+        if not write_output(args.json, json.dumps(summary, indent=2) + "\n"):
             return EXIT_OUTPUT
     if args.csv:
         from .raytable import ray_table

@@ -84,6 +84,20 @@ class DetectorReport:
     uniformity: Uniformity
     times: ArrivalTimes
 
+    def to_dict(self) -> dict:
+        """The figures (not the profiles) as plain JSON-ready values; nan becomes None."""
+        def num(x):
+            return None if x != x else x
+        u, t = self.uniformity, self.times
+        return {"name": self.name, "length_mm": self.length_mm, "absorbing": self.absorbing, "hits": self.hits,
+                "total_flux": self.total_flux, "flux_s": self.flux_s, "flux_p": self.flux_p,
+                "efficiency": self.efficiency, "centroid_mm": num(self.centroid_mm),
+                "mean_angle_deg": num(self.mean_angle_deg),
+                "uniformity": {"central_fraction": u.fraction, "bins": u.bins,
+                               "min_over_mean": num(u.min_over_mean), "max_over_mean": num(u.max_over_mean)},
+                "arrival_ps": {"first": num(t.first_ps), "last": num(t.last_ps), "spread": num(t.spread_ps),
+                               "mean": num(t.mean_ps), "rms": num(t.rms_ps)}}
+
     def summary_line(self) -> str:
         u, t = self.uniformity, self.times
         parts = [f"{self.name}: {self.total_flux:.6g} ({100 * self.efficiency:.3f} %)"]

@@ -145,3 +145,16 @@ def test_console_script_quiet_when_piped(tmp_path):
     assert proc.returncode == 0
     assert "\r" not in proc.stderr and "tracing" not in proc.stderr
     assert json.loads((tmp_path / "s.json").read_text())["efficiency"]["viewer side"] > 0
+
+
+def test_json_summary_carries_detector_figures_and_top_paths(tmp_path, capsys):
+    out = tmp_path / "s.json"
+    code, _, err = run(["trace", WINDOW, "--json", str(out), "--paths", "1", "--quiet"], capsys)
+    assert code == 0, err
+    data = json.loads(out.read_text())
+    figs = {d["name"]: d for d in data["detectors"]}
+    assert figs["inside chamber"]["efficiency"] == pytest.approx(data["efficiency"]["inside chamber"], rel=1e-12)
+    assert figs["inside chamber"]["arrival_ps"]["spread"] >= 0
+    # one path (the top one) per ledger bucket
+    buckets = [p["bucket"] for p in data["paths"]]
+    assert len(buckets) == len(set(buckets)) == len([b for b in data["buckets"] if b["flux"] > 0])

@@ -12,6 +12,7 @@ import numpy as np
 import pytest
 import tmm
 
+from raytrace import cli
 from raytrace.catalog import lookup
 from raytrace.scene_io import load_scene, scene_to_dict
 from raytrace.sweep import SweepError, Variable, parse_vary, resolve, run_point, sweep
@@ -164,7 +165,7 @@ def test_sweep_accepts_a_scene_object_and_any_executor():
     assert local.to_csv() == threaded.to_csv()
 
 
-def test_process_pool_and_dask_cluster_give_the_same_table():
+def test_process_pool_and_dask_cluster_give_the_same_table(tmp_path):
     """The same sweep in this process, in a local process pool and on a two-worker Dask
     LocalCluster (processes) must give identical CSV text, row for row."""
     distributed = pytest.importorskip("distributed")
@@ -176,8 +177,13 @@ def test_process_pool_and_dask_cluster_give_the_same_table():
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
                                   dashboard_address=None) as cluster, distributed.Client(cluster) as client:
         on_dask = sweep(d, v, {"rays": 300}, executor=client.get_executor())
+        # the command line reaches the same cluster by its scheduler address
+        out = tmp_path / "dask.csv"
+        code = cli.main(["sweep", str(SAMPLES / "light-pipe-90.json"), "--vary", v[0].name + "=2:8:4",
+                         "--rays", "300", "--csv", str(out), "--dask", cluster.scheduler_address, "--quiet"])
     assert on_dask.rows == serial.rows
     assert on_dask.to_csv() == serial.to_csv()
+    assert code == cli.EXIT_OK and out.read_text() == serial.to_csv()
 
 
 def test_roof_prism_in_plane_acceptance_edge():
