@@ -24,7 +24,8 @@ from conftest import make_scene, shaped_part
 from raytrace import fresnel, trace
 from raytrace.geometry import ABSORBER, Treatment
 from raytrace.scene import Source
-from raytrace.tracer import B_REFRACTED, E_REFRACTED
+from raytrace.sources import StartRays
+from raytrace.tracer import B_REFRACTED, E_ABSORBED, E_REFRACTED
 
 N_CORE = 1.49
 WIDTH = 3.0
@@ -120,3 +121,32 @@ def test_escape_angle_condition_matches_fresnel_transmission_at_first_hit():
     for rid, want in zip(ids.tolist(), expect_out.tolist()):
         assert abs(got.get(rid, 0.0) - want) <= 1e-12 * (1 - r0) / RAYS
     assert (~tir).sum() == (sin_t < 1 / N_CORE).sum() > 0
+
+
+@pytest.mark.parametrize("n_clad", [1.0, 1.33])
+def test_straight_guide_multipath_optical_path(n_clad):
+    """published: G. Keiser, Optical Fiber Communications, ch. 2 (intermodal dispersion, 2D form in
+    references.md): over a guide length L an axial ray has optical path n1 L (time n1 L / c), a
+    ray at the critical angle n1^2 L / n2 (time n1^2 L / (c n2)).  Rays start inside a straight
+    guide at x0 = 1 mm and end on an absorbing output face; the ray table gives the optical path
+    at each segment's end.  Checked: the axial ray and a ray 1e-9 rad inside the critical angle,
+    each against n1 (L - x0) / cos(phi) within 1e-12 relative (Snell geometry, Hecht 4.4), and the
+    second against Keiser's n1^2 (L - x0) / n2 within 1e-8 (the 1e-9 rad offset)."""
+    n1, length, width, x0 = 1.5, 50.0, 2.0, 1.0
+    part = shaped_part("guide", "core", "light_pipe", width=width, segments=[{"straight": length}])
+    k = next(i for i, e in enumerate(part.outer.edges) if e.face == "output")
+    part = replace(part, outer=part.outer.with_edge(k, treatment=Treatment(ABSORBER)))
+    scene = make_scene([part], [], materials={"core": n1}, ambient_n=n_clad, min_relative_flux=1e-12)
+    phi_c = np.pi / 2 - np.arcsin(n_clad / n1)        # ray angle to the axis at the critical angle
+    phi = np.array([0.0, phi_c - 1e-9])
+    start = StartRays(np.full(2, x0), np.zeros(2), np.cos(phi), np.sin(phi), np.full(2, 550.0),
+                      np.full(2, 0.5), np.full(2, 0.5), np.zeros(2, dtype=np.int64))
+    result = trace(scene, start=start, record="all")
+    seg = result.segments
+    led = result.ledger
+    assert led.flux("absorbed", part="guide", face="output") == pytest.approx(led.source_flux, rel=1e-12)  # all TIR
+    done = np.flatnonzero(seg["end"] == E_ABSORBED)
+    opl = seg["optical_path"][done][np.argsort(seg["source_ray"][done])]
+    np.testing.assert_allclose(opl, n1 * (length - x0) / np.cos(phi), rtol=1e-12)
+    assert opl[0] == pytest.approx(n1 * (length - x0), rel=1e-12)
+    assert opl[1] == pytest.approx(n1 ** 2 * (length - x0) / n_clad, rel=1e-8)
