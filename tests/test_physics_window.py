@@ -12,14 +12,17 @@ Sources:
 - reference library: tmm.inc_tmm(pol, [1, n, 1], [inf, d, inf], ['i', 'i', 'i'], theta, lam)['T'].
 """
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
 
 from conftest import make_scene, shaped_part
 from raytrace import trace
+from raytrace.geometry import ANTI_REFLECTION, MIRROR, Treatment
 from raytrace.materials import ConstantIndex
 from raytrace.scene import Detector, Source
+from raytrace.tracer import B_MIRROR
 
 tmm = pytest.importorskip("tmm")
 
@@ -29,22 +32,22 @@ WAVELENGTH_NM = 550.0
 THRESHOLD = 1e-15
 
 
-def window_scene(angle_deg: float, polarization: str, n: float = N_GLASS, alpha_per_mm: float = 0.0):
+def window_scene(angle_deg: float, polarization: str, n: float = N_GLASS, alpha_per_mm: float = 0.0,
+                 thickness: float = THICKNESS):
     """Window from x = 0 to THICKNESS, 600 mm tall so no internal ray reaches its top edge; a beam
     from the left at `angle_deg` to the normal; absorbing detectors on both sides."""
     glass = ConstantIndex("slab", n=n, absorption_per_mm=alpha_per_mm)
-    part = shaped_part("window", "slab", "window", position=(0.0, 0.0), thickness=THICKNESS, height=600.0)
+    part = shaped_part("window", "slab", "window", position=(0.0, 0.0), thickness=thickness, height=600.0)
     beam = Source("beam", kind="beam", position=(-5.0, -200.0), direction_deg=angle_deg, width=0.5,
                   polarization=polarization, sampling="even")
     beam = _with_line(beam)
-    detectors = [Detector("transmitted", (THICKNESS + 20.0, -2000.0), (THICKNESS + 20.0, 2000.0)),
+    detectors = [Detector("transmitted", (thickness + 20.0, -2000.0), (thickness + 20.0, 2000.0)),
                  Detector("reflected", (-20.0, 2000.0), (-20.0, -2000.0))]
     return make_scene([part], [beam], detectors, materials={"slab": glass},
                       rays=4, min_relative_flux=THRESHOLD, max_depth=500)
 
 
 def _with_line(src: Source) -> Source:
-    from dataclasses import replace
     from raytrace.scene import Spectrum
     return replace(src, spectrum=Spectrum.line(WAVELENGTH_NM))
 
@@ -166,3 +169,57 @@ def test_unpolarized_is_mean_of_s_and_p():
     ref = [tmm.inc_tmm(p, [1.0, N_GLASS, 1.0], [np.inf, THICKNESS, np.inf], ["i", "i", "i"],
                        math.radians(60.0), WAVELENGTH_NM * 1e-6)["T"] for p in "sp"]
     assert abs(T - 0.5 * (ref[0] + ref[1])) <= trunc + 1e-12
+
+
+def _window_with_faces(treatment, material, angle_deg=0.0, polarization="unpolarized", thickness=THICKNESS):
+    scene = window_scene(angle_deg, polarization, thickness=thickness)
+    part = scene.parts[0]
+    loop = part.outer
+    for i, e in enumerate(loop.edges):
+        if e.face in ("front", "back"):
+            loop = loop.with_edge(i, treatment=treatment)
+    scene.parts[0] = replace(part, outer=loop, material=material.name)
+    scene.materials[material.name] = material
+    return scene
+
+
+@pytest.mark.parametrize("angle", [0.0, 40.0, 75.0])
+def test_ideal_anti_reflection_faces_transmit_everything(angle):
+    """common practice: an ideal anti-reflection coating has R = 0 (below the critical angle), so
+    a clear window with both faces coated transmits all the flux, any angle, within 1e-12."""
+    scene = _window_with_faces(Treatment(ANTI_REFLECTION), ConstantIndex("coated", n=N_GLASS), angle)
+    led = trace(scene).ledger
+    assert led.flux("detector", detector="transmitted") / led.source_flux == pytest.approx(1.0, abs=1e-12)
+    assert led.flux("detector", detector="reflected") == 0.0
+
+
+@pytest.mark.parametrize("tau,thickness", [(0.9, 10.0), (0.5, 2.0)])
+def test_internal_transmittance_through_coated_window_is_beer_lambert(tau, thickness):
+    """published: Beer-Lambert law (references.md): a material given by internal transmittance tau
+    over thickness d has alpha = -ln(tau)/d; a window of that same thickness with ideal AR faces
+    passes exactly tau at normal incidence (1e-12) and tau^(1/cos t) at an angle, t inside."""
+    glass = ConstantIndex("filter", n=N_GLASS, transmittance_spec=(tau, thickness))
+    for angle in (0.0, 50.0):
+        scene = _window_with_faces(Treatment(ANTI_REFLECTION), glass, angle, thickness=thickness)
+        led = trace(scene).ledger
+        cos_t = math.sqrt(1 - (math.sin(math.radians(angle)) / N_GLASS) ** 2)
+        T = led.flux("detector", detector="transmitted") / led.source_flux
+        assert T == pytest.approx(tau ** (1 / cos_t), abs=1e-12)
+        assert led.flux("absorbed", part="window", face="bulk") / led.source_flux == pytest.approx(1 - T, abs=1e-12)
+
+
+@pytest.mark.parametrize("reflectance", [1.0, 0.9, 0.0])
+def test_mirror_face_reflects_its_reflectance_and_absorbs_the_rest(reflectance):
+    """common practice: a mirror of reflectance rho reflects rho of the flux (law of reflection,
+    Hecht sec. 4.3: angle out = angle in) and the rest is absorbed at that face; 1e-12."""
+    scene = _window_with_faces(Treatment(MIRROR, reflectance), ConstantIndex("metal", n=N_GLASS), 30.0)
+    result = trace(scene, record="all")
+    led = result.ledger
+    assert led.flux("detector", detector="reflected") / led.source_flux == pytest.approx(reflectance, abs=1e-12)
+    assert led.flux("absorbed", part="window", face="front") / led.source_flux == pytest.approx(1 - reflectance, abs=1e-12)
+    seg = result.segments
+    if reflectance > 0:
+        refl = seg["born"] == B_MIRROR
+        src = seg["generation"] == 0
+        np.testing.assert_allclose(seg["dx"][refl], -seg["dx"][src][: refl.sum()], atol=1e-15)
+        np.testing.assert_allclose(seg["dy"][refl], seg["dy"][src][: refl.sum()], atol=1e-15)
