@@ -176,3 +176,44 @@ def test_ray_started_exactly_on_a_face_refracts_there():
     cos_in = -(seg["dx"][first] * nx + seg["dy"][first] * ny)
     assert seg["medium"][first] == 1
     assert math.sqrt(1 - cos_in ** 2) == pytest.approx(0.5 / 1.6, abs=1e-12)
+
+
+MALITSON = ((0.6961663, 0.0684043), (0.4079426, 0.1162414), (0.8974794, 9.896161))
+
+
+def malitson_index(wavelength_nm):
+    """published: I. H. Malitson, J. Opt. Soc. Am. 55, 1205 (1965), fused silica, l in um."""
+    l2 = (np.asarray(wavelength_nm) / 1000.0) ** 2
+    return np.sqrt(1 + sum(b * l2 / (l2 - c * c) for b, c in MALITSON))
+
+
+def test_dispersing_prism_deviation_per_wavelength():
+    """published: Hecht sec. 5.5.1, deviation of a prism of apex angle A at incidence t1:
+    delta = t1 + asin(sin A sqrt(n^2 - sin^2 t1) - sin t1 cos A) - A, with n of fused silica at
+    the F, d and C lines from Malitson's formula (written out here, independent of the
+    catalog).  Whole trace through the catalog's "fused silica"; exit directions within 1e-12 rad.
+    Blue deviates most (normal dispersion)."""
+    from raytrace.catalog import CATALOG
+    from raytrace.scene import Spectrum
+    apex, t1 = math.radians(60.0), math.radians(50.0)
+    part = shaped_part("prism", "fused silica", "prism", apex_angle_deg=60.0, side=20.0)
+    # left face runs from the apex (0, 17.32) to (-10, 0); its inward normal points at -30 deg
+    direction = -30.0 + 50.0
+    aim = (-5.0, 17.320508075688775 / 2)
+    u = (math.cos(math.radians(direction)), math.sin(math.radians(direction)))
+    lines = (486.13, 587.56, 656.27)
+    beam = Source("beam", kind="beam", position=(aim[0] - 10 * u[0], aim[1] - 10 * u[1]), direction_deg=direction,
+                  width=1.0, spectrum=Spectrum(lines, (1.0, 1.0, 1.0)), sampling="even")
+    scene = make_scene([part], [beam], materials={"fused silica": CATALOG["fused silica"]}, rays=30)
+    seg = trace(scene, record="all").segments
+    row_of = np.full(int(seg["ray_id"].max()) + 1, -1)
+    row_of[seg["ray_id"]] = np.arange(len(seg["ray_id"]))
+    out = np.flatnonzero((seg["generation"] == 2) & (seg["born"] == B_REFRACTED) & (seg["end"] == E_ESCAPED))
+    out = out[seg["born"][row_of[seg["parent_id"][out]]] == B_REFRACTED]
+    assert len(out) == 30
+    n = malitson_index(seg["wavelength_nm"][out])
+    expected = t1 + np.arcsin(np.sin(apex) * np.sqrt(n * n - np.sin(t1) ** 2) - np.sin(t1) * np.cos(apex)) - apex
+    got = math.radians(direction) - np.arctan2(seg["dy"][out], seg["dx"][out])
+    np.testing.assert_allclose(got, expected, rtol=0, atol=1e-12)
+    by_line = {w: got[seg["wavelength_nm"][out] == w].mean() for w in lines}
+    assert by_line[486.13] > by_line[587.56] > by_line[656.27]
