@@ -36,7 +36,7 @@ from .compile import CompiledScene
 from .intersect import arc_constants, arc_t, nearest_hit
 
 SWEEP_MAX_EDGES = 48        # up to this many edges the sweep beats the grid
-BLOCK = 16384               # rays per sweep block: a few float arrays of this fit in L2
+BLOCK = 32768               # rays per sweep block: a few float arrays of this fit in L2
 CELLS_PER_EDGE = 2.0        # grid resolution
 BIG_EDGE_CELLS = 24         # an edge spanning more cells than this is swept, not gridded
 
@@ -107,7 +107,25 @@ class EdgeTable:
         return t_best, e_best
 
     def _sweep_block(self, x, y, dx, dy, start, t_best, e_best):
-        """Edge by edge, keep the nearest; same formulas and tie order as the plain search."""
+        """Edge by edge, keep the nearest; same formulas and tie order as the plain search.
+
+        The start-edge exclusion is left out of the inner loop: it can only matter where the
+        start edge itself came out nearest (a grazing departure), and those few rays are
+        searched again with it."""
+        self._lines_block(x, y, dx, dy, None, t_best, e_best)
+        self._arcs_block(x, y, dx, dy, t_best, e_best)
+        if len(self.line_rows):
+            again = np.flatnonzero((e_best == start) & (start >= 0))
+            if len(again):
+                tb = np.full(len(again), np.inf)
+                eb = np.full(len(again), -1, dtype=np.int64)
+                xs, ys, dxs, dys = x[again], y[again], dx[again], dy[again]
+                self._lines_block(xs, ys, dxs, dys, start[again], tb, eb)
+                self._arcs_block(xs, ys, dxs, dys, tb, eb)
+                t_best[again] = tb
+                e_best[again] = eb
+
+    def _lines_block(self, x, y, dx, dy, start, t_best, e_best):
         eps = self.eps
         m = len(x)
         denom, wx, wy, inv, t, u, tmp = (np.empty(m) for _ in range(7))
@@ -137,15 +155,61 @@ class EdgeTable:
                 ok &= ok2
                 np.less(t, t_best, out=ok2)
                 ok &= ok2
-                np.not_equal(start, i, out=ok2)
-                ok &= ok2
+                if start is not None:
+                    np.not_equal(start, i, out=ok2)
+                    ok &= ok2
                 np.copyto(t_best, t, where=ok)
                 np.copyto(e_best, i, where=ok)
+
+    def _arcs_block(self, x, y, dx, dy, t_best, e_best):
+        if not self.arc_rows:
+            return
+        eps = self.eps
+        m = len(x)
+        fx, fy, b, c, sq, t, hx, hy, tmp = (np.empty(m) for _ in range(9))
+        ok, c1, c2 = (np.empty(m, dtype=bool) for _ in range(3))
+        with np.errstate(invalid="ignore"):
             for i, cx, cy, r2, sx, sy, qx, qy, major, tol in self.arc_rows:
-                ta = arc_t(x, y, dx, dy, cx, cy, r2, sx, sy, qx, qy, major, tol, eps)
-                np.less(ta, t_best, out=ok)
-                np.copyto(t_best, ta, where=ok)
-                np.copyto(e_best, i, where=ok)
+                # the steps of intersect.arc_t, in place; sqrt of a negative disc gives nan,
+                # which fails every test below just as arc_t's `has` mask does
+                np.subtract(x, cx, out=fx)
+                np.subtract(y, cy, out=fy)
+                np.multiply(fx, dx, out=b)
+                np.multiply(fy, dy, out=tmp)
+                np.add(b, tmp, out=b)
+                np.multiply(fx, fx, out=c)
+                np.multiply(fy, fy, out=tmp)
+                np.add(c, tmp, out=c)
+                np.subtract(c, r2, out=c)
+                np.multiply(b, b, out=sq)
+                np.subtract(sq, c, out=sq)
+                np.sqrt(sq, out=sq)
+                np.negative(b, out=b)
+                for sign in (-1, 1):
+                    (np.subtract if sign < 0 else np.add)(b, sq, out=t)
+                    np.multiply(t, dx, out=hx)
+                    np.add(fx, hx, out=hx)
+                    np.multiply(t, dy, out=hy)
+                    np.add(fy, hy, out=hy)
+                    # c1 = sx*hy - sy*hx >= -tol ; c2 = hx*qy - hy*qx >= -tol
+                    np.multiply(hy, sx, out=tmp)
+                    np.multiply(hx, sy, out=c)
+                    np.subtract(tmp, c, out=tmp)
+                    np.greater_equal(tmp, -tol, out=c1)
+                    np.multiply(hx, qy, out=tmp)
+                    np.multiply(hy, qx, out=c)
+                    np.subtract(tmp, c, out=tmp)
+                    np.greater_equal(tmp, -tol, out=c2)
+                    if major:
+                        np.logical_or(c1, c2, out=ok)
+                    else:
+                        np.logical_and(c1, c2, out=ok)
+                    np.greater(t, eps, out=c1)
+                    ok &= c1
+                    np.less(t, t_best, out=c1)
+                    ok &= c1
+                    np.copyto(t_best, t, where=ok)
+                    np.copyto(e_best, i, where=ok)
 
 
 class EdgeGrid:

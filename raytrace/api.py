@@ -6,22 +6,38 @@ from dataclasses import asdict
 import numpy as np
 
 from .compile import CompiledScene, compile_scene
+from .errors import BudgetExceeded
 from .ledger import Ledger
 from .results import TraceResult
 from .scene import Scene
 from .sources import StartRays, sample_sources
-from .tracer import Limits, Recording, trace_rays
+from .streaming import DEFAULT_CHUNK, trace_chunked
+from .tracer import Limits, Recording
+
+# Above this many source rays, detector hits are binned into histograms by default rather
+# than kept one record per hit (a record is ~80 bytes; branching gives several per ray).
+KEEP_HITS_MAX_RAYS = 2_000_000
+BYTES_PER_START_RAY = 200      # the starting-ray arrays and their sampling temporaries
 
 
 def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: int | None = None,
           min_relative_flux: float | None = None, max_depth: int | None = None,
           max_segments: int | None = None, record: str | Recording = "none", record_count: int = 0,
           sampling: str | None = None, compiled: CompiledScene | None = None,
-          start: StartRays | None = None, track_paths: bool = True, progress=None) -> TraceResult:
+          start: StartRays | None = None, track_paths: bool = True, progress=None,
+          workers: int = 1, chunk_size: int | None = None, max_memory_mb: float | None = None,
+          accel: str = "auto", hits: str = "auto") -> TraceResult:
     """Trace a scene.  Unset options fall back to the scene's own trace settings.
 
     record: "none", "all", or "first" with `record_count` source rays, for the ray table.
     sampling: "even" or "random" overrides each source's own sampling style.
+    workers: processes to trace on (chunks spread over a pool); the result does not depend on it.
+    chunk_size: source rays traced together (default 50,000); the ledger of a Monte Carlo trace
+        depends on it through the per-chunk seeds, never on `workers`.
+    max_memory_mb: memory limit of one chunk's trace; past it the trace stops with BudgetExceeded.
+    accel: nearest-hit method, "auto" (default), "plain", "sweep" or "grid"; all give the same result.
+    hits: "keep" one record per detector hit, "histogram" (binned per detector, for very long
+        traces; `result.raw.histograms`), or "auto" (keep up to 2 million source rays).
     """
     s = scene.settings
     rays = s.rays if rays is None else int(rays)
@@ -31,16 +47,29 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
         min_relative_flux=s.min_relative_flux if min_relative_flux is None else float(min_relative_flux),
         max_depth=s.max_depth if max_depth is None else int(max_depth),
         max_segments=s.max_segments if max_segments is None else int(max_segments))
+    if max_memory_mb is not None:
+        limits.max_memory_mb = float(max_memory_mb)
     cs = compiled or compile_scene(scene)
     if start is None:
+        need = rays * BYTES_PER_START_RAY
+        if need > limits.max_memory_mb * 1e6:
+            raise BudgetExceeded(f"{rays:,} starting rays need about {need / 1e6:,.0f} MB, more than the "
+                                 f"memory limit max_memory_mb={limits.max_memory_mb:g}; raise max_memory_mb "
+                                 f"or trace fewer rays")
         start = sample_sources(scene.sources, rays, seed=seed, sampling=sampling)
     recording = record if isinstance(record, Recording) else Recording(record, record_count)
-    raw = trace_rays(cs, start, mode=mode, limits=limits, seed=seed, record=recording,
-                     track_paths=track_paths, n_sources=len(scene.sources), progress=progress)
+    if hits not in ("auto", "keep", "histogram"):
+        raise ValueError(f"hits: expected one of auto, keep, histogram, found {hits!r}")
+    keep_hits = hits == "keep" or (hits == "auto" and len(start) <= KEEP_HITS_MAX_RAYS)
+    raw = trace_chunked(cs, start, mode, limits, seed, recording, track_paths, len(scene.sources),
+                        chunk_size=chunk_size or DEFAULT_CHUNK, workers=max(1, int(workers)),
+                        keep_hits=keep_hits, accel=accel, progress=progress)
     ledger = Ledger(cs, raw.bins, raw.source_flux)
     settings = {"rays": rays, "mode": mode, "seed": seed, **asdict(limits),
                 "sampling": sampling or "per source", "source_names": [src.name for src in scene.sources],
-                "source_positions": [list(src.position) for src in scene.sources]}
+                "source_positions": [list(src.position) for src in scene.sources],
+                "workers": max(1, int(workers)), "chunk_size": chunk_size or DEFAULT_CHUNK,
+                "hits": "keep" if keep_hits else "histogram"}
     if len(start) and bool((start.source[1:] >= start.source[:-1]).all()):
         # rays are numbered source by source: lets the ray table name each ray's source
         settings["source_ray_counts"] = np.bincount(start.source, minlength=len(scene.sources)).tolist()

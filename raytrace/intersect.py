@@ -47,13 +47,17 @@ def arc_t(x, y, dx, dy, cx, cy, r2, sx, sy, qx, qy, major, tol, eps):
     c = fx * fx + fy * fy - r2
     disc = b * b - c
     has = disc >= 0.0
-    sq = np.sqrt(np.where(has, disc, 0.0))
+    with np.errstate(invalid="ignore"):
+        sq = np.sqrt(disc)
+    nb = -b
     best = None
-    for t in (-b - sq, -b + sq):
+    for t in (nb - sq, nb + sq):
         hx = fx + t * dx
         hy = fy + t * dy
-        c1 = sx * hy - sy * hx >= -tol
-        c2 = hx * qy - hy * qx >= -tol
+        c1 = sy * hx
+        c1 = sx * hy - c1 >= -tol
+        c2 = hy * qx
+        c2 = hx * qy - c2 >= -tol
         on = np.where(major, c1 | c2, c1 & c2)
         tt = np.where(has & on & (t > eps), t, np.inf)
         best = tt if best is None else np.minimum(best, tt)

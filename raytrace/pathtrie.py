@@ -10,6 +10,8 @@ Flux deposits are buffered as (bin, node, flux) arrays and summed when the buffe
 """
 from __future__ import annotations
 
+from collections.abc import Mapping
+
 import numpy as np
 
 OTHER_PARENT = -1_000_000
@@ -17,7 +19,7 @@ _MULT = np.uint64(0x9E3779B97F4A7C15)
 
 
 class PathTrie:
-    def __init__(self, n_roots: int, enabled: bool = True, max_nodes: int = 500_000):
+    def __init__(self, n_roots: int, enabled: bool = True, max_nodes: int = 500_000, n_bins: int = 0):
         self.enabled = enabled
         self.max_nodes = max_nodes
         self.n = n_roots
@@ -29,12 +31,13 @@ class PathTrie:
         self.other = -1
         self._bits = 12
         self._keys = np.full(1 << self._bits, -1, dtype=np.int64)
-        self._vals = np.zeros(1 << self._bits, dtype=np.int64)
+        self._vals = np.full(1 << self._bits, -1, dtype=np.int64)
         self._filled = 0
         self._dep: list[tuple[np.ndarray, np.ndarray, np.ndarray]] = []
         self._dep_size = 0
         self._acc_keys = np.zeros(0, dtype=np.int64)
         self._acc_flux = np.zeros(0)
+        self._other_flux = np.zeros(n_bins)     # deposits on the "other paths" node, by bin
 
     # ---- nodes
     @property
@@ -58,7 +61,7 @@ class PathTrie:
         self.n = need
         return ids
 
-    def _other_node(self) -> int:
+    def other_node(self) -> int:
         if self.other < 0:
             self.other = int(self._append(np.array([OTHER_PARENT]), np.array([-1]))[0])
         return self.other
@@ -66,53 +69,41 @@ class PathTrie:
     def _slot(self, keys: np.ndarray) -> np.ndarray:
         return ((keys.astype(np.uint64) * _MULT) >> np.uint64(64 - self._bits)).astype(np.int64)
 
-    def _lookup(self, keys: np.ndarray) -> np.ndarray:
-        """Node id of each key, -1 where absent."""
-        out = np.full(len(keys), -1, dtype=np.int64)
+    def _grow(self, extra: int) -> None:
+        """Keep the table at most half full: double it and re-insert what it holds."""
+        if 2 * (self._filled + extra) <= len(self._keys):
+            return
+        old = self._keys >= 0
+        ok, ov = self._keys[old], self._vals[old]
+        while 2 * (self._filled + extra) > (1 << self._bits):
+            self._bits += 1
+        self._keys = np.full(1 << self._bits, -1, dtype=np.int64)
+        self._vals = np.full(1 << self._bits, -1, dtype=np.int64)
+        self._vals[self._claim(ok)] = ov
+
+    def _claim(self, keys: np.ndarray) -> np.ndarray:
+        """Slot of each key, inserting the absent ones (linear probing, vectorized).
+
+        Every still-unplaced key is written into its slot if that slot is free; re-reading shows
+        which writes stuck (of several keys wanting one slot the last write wins, and equal
+        keys all find themselves); the rest probe the next slot."""
+        out = np.empty(len(keys), dtype=np.int64)
         slot = self._slot(keys)
         todo = np.arange(len(keys))
         mask = (1 << self._bits) - 1
         while len(todo):
-            k = self._keys[slot]
-            found = k == keys[todo]
-            out[todo[found]] = self._vals[slot[found]]
-            go_on = ~found & (k != -1)
+            free = np.flatnonzero(self._keys[slot] == -1)
+            if len(free):
+                self._keys[slot[free]] = keys[todo[free]]
+            done = self._keys[slot] == keys[todo]
+            out[todo[done]] = slot[done]
+            go_on = ~done
             todo = todo[go_on]
             slot = (slot[go_on] + 1) & mask
         return out
 
-    def _insert(self, keys: np.ndarray, vals: np.ndarray) -> None:
-        """Insert distinct absent keys; the table doubles to stay at most half full."""
-        if 2 * (self._filled + len(keys)) > len(self._keys):
-            old = self._keys >= 0
-            ok, ov = self._keys[old], self._vals[old]
-            while 2 * (self._filled + len(keys)) > (1 << self._bits):
-                self._bits += 1
-            self._keys = np.full(1 << self._bits, -1, dtype=np.int64)
-            self._vals = np.zeros(1 << self._bits, dtype=np.int64)
-            self._filled = 0
-            self._place(ok, ov)
-        self._place(keys, vals)
-
-    def _place(self, keys: np.ndarray, vals: np.ndarray) -> None:
-        self._filled += len(keys)
-        slot = self._slot(keys)
-        mask = (1 << self._bits) - 1
-        while len(keys):
-            free = self._keys[slot] == -1
-            # several keys may want the same free slot: the first of each takes it
-            cand = np.flatnonzero(free)
-            _, first = np.unique(slot[cand], return_index=True)
-            win = cand[first]
-            self._keys[slot[win]] = keys[win]
-            self._vals[slot[win]] = vals[win]
-            lose = np.ones(len(keys), dtype=bool)
-            lose[win] = False
-            keys, vals = keys[lose], vals[lose]
-            slot = (slot[lose] + 1) & mask
-
     def extend(self, node: np.ndarray, code: np.ndarray, n_codes: int) -> np.ndarray:
-        """Child node of each (node, code) pair, created when new."""
+        """Child node of each (node, code) pair, created when new (in order of first use)."""
         if not self.enabled or len(node) == 0:
             return node
         out = np.empty(len(node), dtype=np.int64)
@@ -125,20 +116,23 @@ class PathTrie:
         if len(live) == 0:
             return out
         keys = node[live] * n_codes + code[live]
-        ids = self._lookup(keys)
-        miss = ids < 0
-        if miss.any():
-            new, inv = np.unique(keys[miss], return_inverse=True)
-            room = max(self.max_nodes - self.n, 0)
-            new_ids = np.empty(len(new), dtype=np.int64)
-            k = min(room, len(new))
+        self._grow(len(keys))
+        slots = self._claim(keys)
+        ids = self._vals[slots]
+        new = np.flatnonzero(ids < 0)
+        if len(new):
+            ns = slots[new]
+            # the first use of each new key: write positions last-to-first, the first one stays
+            self._vals[ns[::-1]] = -2 - new[::-1]
+            first = new[self._vals[ns] == -2 - new]
+            self._filled += len(first)
+            k = min(max(self.max_nodes - self.n, 0), len(first))
             if k:
-                made = self._append(new[:k] // n_codes, new[:k] % n_codes)
-                new_ids[:k] = made
-                self._insert(new[:k], made)
-            if k < len(new):
-                new_ids[k:] = self._other_node()
-            ids[miss] = new_ids[inv]
+                fk = keys[first[:k]]
+                self._vals[slots[first[:k]]] = self._append(fk // n_codes, fk % n_codes)
+            if k < len(first):
+                self._vals[slots[first[k:]]] = self.other_node()
+            ids[new] = self._vals[ns]
         out[live] = ids
         return out
 
@@ -146,6 +140,14 @@ class PathTrie:
     def deposit(self, bins: np.ndarray, node: np.ndarray, flux: np.ndarray) -> None:
         if not self.enabled or len(bins) == 0:
             return
+        if self.other >= 0 and len(self._other_flux):
+            lumped = node == self.other
+            if lumped.any():
+                self._other_flux += np.bincount(bins[lumped], weights=flux[lumped], minlength=len(self._other_flux))
+                keep = ~lumped
+                bins, node, flux = bins[keep], node[keep], flux[keep]
+                if len(bins) == 0:
+                    return
         self._dep.append((bins, node, flux))
         self._dep_size += len(bins)
         if self._dep_size > 4_000_000:
@@ -162,13 +164,48 @@ class PathTrie:
 
     def flux_table(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """(bin, node, flux) arrays of everything deposited."""
+        ob = np.flatnonzero(self._other_flux)
+        if len(ob):
+            self._dep.append((ob, np.full(len(ob), self.other, dtype=np.int64), self._other_flux[ob]))
+            self._other_flux = np.zeros(len(self._other_flux))
         self._compact()
         k = self._acc_keys
         return k >> 32, k & 0xFFFFFFFF, self._acc_flux
 
-    def flux_dict(self) -> dict[tuple[int, int], float]:
-        b, n, f = self.flux_table()
-        return dict(zip(zip(b.tolist(), n.tolist()), f.tolist()))
+    def flux_dict(self) -> "PathFlux":
+        return PathFlux(*self.flux_table())
+
+
+class PathFlux(Mapping):
+    """(bin, path node) -> flux, read-only.  Kept as arrays; the dict is built on first use."""
+
+    def __init__(self, bins: np.ndarray, nodes: np.ndarray, flux: np.ndarray):
+        self._arrays = (bins, nodes, flux)
+        self._dict: dict | None = None
+
+    def arrays(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        return self._arrays
+
+    def _d(self) -> dict:
+        if self._dict is None:
+            b, n, f = self._arrays
+            self._dict = dict(zip(zip(b.tolist(), n.tolist()), f.tolist()))
+        return self._dict
+
+    def __getitem__(self, key):
+        return self._d()[key]
+
+    def __iter__(self):
+        return iter(self._d())
+
+    def __len__(self) -> int:
+        return len(self._arrays[0])
+
+    def __bool__(self) -> bool:
+        return len(self._arrays[0]) > 0
+
+    def items(self):
+        return self._d().items()
 
 
 def merge_tries(target: PathTrie, parent: np.ndarray, code: np.ndarray, n_codes: int) -> np.ndarray:
@@ -182,7 +219,7 @@ def merge_tries(target: PathTrie, parent: np.ndarray, code: np.ndarray, n_codes:
     is_other = parent == OTHER_PARENT
     remap[roots & ~is_other] = -1 - parent[roots & ~is_other]
     if is_other.any():
-        remap[is_other] = target._other_node() if target.enabled else -1
+        remap[is_other] = target.other_node() if target.enabled else -1
     todo = np.flatnonzero(remap < 0)
     while len(todo):
         p = parent[todo]

@@ -59,6 +59,9 @@ class Limits:
     max_depth: int = 200
     max_segments: int = 50_000_000
     max_memory_mb: float = 4096.0
+    # rays fainter than this share of their source ray's flux have their paths lumped into
+    # "other paths": the path table stays small and does not depend on how rays are chunked
+    path_min_relative_flux: float = 1e-3
 
 
 @dataclass
@@ -143,7 +146,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     layout = K.layout
     bins = np.zeros(layout.size)
     n_sources = n_sources if n_sources is not None else (int(start.source.max()) + 1 if len(start) else 0)
-    paths = PathTrie(n_sources, track_paths, MAX_PATH_NODES)
+    paths = PathTrie(n_sources, track_paths, MAX_PATH_NODES, n_bins=layout.size)
 
     wavelengths, wli = np.unique(start.wavelength, return_inverse=True)
     W = len(wavelengths)
@@ -154,6 +157,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     n = len(start)
     flux0 = start.flux_s + start.flux_p
     thr_root = limits.min_relative_flux * flux0      # children below this end (per source ray)
+    path_thr = max(limits.path_min_relative_flux, limits.min_relative_flux) * flux0
     recording = record.mode != "none"
     r = {
         "x": start.x.astype(float), "y": start.y.astype(float),
@@ -335,7 +339,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
                 paths.deposit(code, np.concatenate(nodes), flux)
 
         # --- the next generation: children that carry enough flux
-        r, next_id = _next_generation(r, kids, thr_root, bins, paths, layout, K, fields, recording,
+        r, next_id = _next_generation(r, kids, thr_root, path_thr, bins, paths, layout, K, fields, recording,
                                       next_id, opl)
         gen += 1
 
@@ -452,15 +456,17 @@ def _interfaces(cs, K, r, idx, e, hx, hy, fs, fp, treat, n_flat, W, mode, rng, s
                      m_to[t_], e[t_], e[t_], EV_THROUGH, B_REFRACTED))
 
 
-def _next_generation(r, kids, thr_root, bins, paths, layout, K, fields, recording, next_id, opl):
+def _next_generation(r, kids, thr_root, path_thr, bins, paths, layout, K, fields, recording, next_id, opl):
     """Gather the surviving children into the next generation's arrays.
 
     A child whose flux is below its source ray's threshold ends here: its flux is booked as
-    truncated (with the parent's path)."""
+    truncated (with the parent's path).  A child below the path threshold keeps going but its
+    path is lumped into "other paths" (so are its descendants, which are fainter still)."""
     if not kids:
         return {k: v[:0] for k, v in r.items()}, next_id
     root = r["root"]
     parts = []
+    kid_flux = []
     faint_flux = []
     faint_nodes = []
     for kid in kids:
@@ -473,8 +479,10 @@ def _next_generation(r, kids, thr_root, bins, paths, layout, K, fields, recordin
             faint_nodes.append(r["path"][idx[bad]])
             sel = np.flatnonzero(ok)
             kid = tuple(v[sel] if isinstance(v, np.ndarray) else v for v in kid)
+            f = f[sel]
         if len(kid[0]):
             parts.append(kid)
+            kid_flux.append(f)
     if faint_flux:
         ff = np.concatenate(faint_flux)
         bins[layout.trunc0 + TRUNC_FLUX] += ff.sum()
@@ -492,11 +500,19 @@ def _next_generation(r, kids, thr_root, bins, paths, layout, K, fields, recordin
     out = {"x": col(1), "y": col(2), "dx": col(3), "dy": col(4), "fs": col(5), "fp": col(6),
            "med": col(7), "start": col(8), "last": col(9), "opl": opl[pidx], "wli": r["wli"][pidx],
            "root": root[pidx]}
+    parent_path = r["path"][pidx]
     if paths.enabled:
         ev = col(10)
-        out["path"] = paths.extend(r["path"][pidx], out["start"] * N_EVENT_KINDS + ev, K.n_codes)
+        bright = cat(kid_flux) >= path_thr[out["root"]]
+        if bright.all():
+            out["path"] = paths.extend(parent_path, out["start"] * N_EVENT_KINDS + ev, K.n_codes)
+        else:
+            node = np.full(len(pidx), paths.other_node(), dtype=np.int64)
+            b = np.flatnonzero(bright)
+            node[b] = paths.extend(parent_path[b], out["start"][b] * N_EVENT_KINDS + ev[b], K.n_codes)
+            out["path"] = node
     else:
-        out["path"] = r["path"][pidx]
+        out["path"] = parent_path
     if recording:
         k = len(pidx)
         out["rid"] = np.arange(next_id, next_id + k, dtype=np.int64)

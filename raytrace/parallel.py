@@ -1,0 +1,52 @@
+"""Spread the chunks of a trace over a process pool.
+
+Workers are forked where the platform allows it, so the compiled scene (and its cached
+acceleration grid) is inherited rather than sent; elsewhere it is sent once per worker.  Results
+come back in chunk order (`Executor.map`), so merging does not depend on which worker finished
+first, and the result does not depend on the number of workers.
+"""
+from __future__ import annotations
+
+import multiprocessing as mp
+import os
+from concurrent.futures import ProcessPoolExecutor
+
+from .accel import hit_function
+from .streaming import run_chunk
+
+_STATE: dict = {}
+
+
+def default_workers() -> int:
+    """All cores this process may use."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:
+        return max(1, os.cpu_count() or 1)
+
+
+def _init(cs, start, args):
+    _STATE.update(cs=cs, start=start, args=args)
+
+
+def _work(job):
+    s = _STATE
+    return run_chunk(s["cs"], s["start"], job, *s["args"])
+
+
+def run_parallel(cs, start, jobs, mode, record, track_paths, n_sources, keep_hits, accel, workers):
+    """Yield each chunk's RawTrace in chunk order."""
+    args = (mode, record, track_paths, n_sources, keep_hits, accel)
+    hit_function(cs, accel)            # build the grid once, before the workers fork
+    methods = mp.get_all_start_methods()
+    if "fork" in methods:
+        ctx = mp.get_context("fork")
+        _init(cs, start, args)          # inherited by the forked workers
+        init, initargs = None, ()
+    else:
+        ctx = mp.get_context("spawn")
+        init, initargs = _init, (cs, start, args)
+    with ProcessPoolExecutor(max_workers=min(workers, len(jobs)), mp_context=ctx,
+                             initializer=init, initargs=initargs) as pool:
+        yield from pool.map(_work, jobs)
+    _STATE.clear()

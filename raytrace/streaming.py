@@ -1,0 +1,172 @@
+"""Chunked tracing: source rays in chunks of bounded size, tallies merged across chunks.
+
+The starting rays are split into consecutive chunks of `chunk_size` source rays.  Each chunk is
+traced on its own (`tracer.trace_rays`) with a seed derived from the trace seed and the chunk
+index, then the tallies are merged *in chunk order*: ledger bins add up, detector records (or
+histograms) are concatenated (or summed), path tries are merged node by node, ray-table ids are
+renumbered.  Nothing depends on how many processes traced the chunks (`parallel`), so the
+same seed gives the same ledger with 1 or 8 workers.
+
+Limits shared by the whole trace are split deterministically: each chunk gets the share of the
+segment budget that its source rays are of the total.
+"""
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from .compile import CompiledScene
+from .pathtrie import PathTrie, merge_tries
+from .sources import StartRays
+from .tracer import (MAX_PATH_NODES, N_EVENT_KINDS, RawTrace, Recording, Limits, merge_histograms,
+                     trace_rays)
+
+DEFAULT_CHUNK = 50_000        # source rays per chunk: arrays of a generation stay in the CPU cache
+
+
+@dataclass
+class ChunkJob:
+    index: int
+    lo: int
+    hi: int
+    seed: list[int]
+    limits: Limits
+
+
+def plan_chunks(n_rays: int, chunk_size: int, seed: int, limits: Limits) -> list[ChunkJob]:
+    chunk_size = max(1, int(chunk_size))
+    jobs = []
+    for k, lo in enumerate(range(0, max(n_rays, 1), chunk_size)):
+        hi = min(n_rays, lo + chunk_size)
+        share = limits.max_segments if n_rays <= chunk_size else \
+            max(1, int(limits.max_segments * (hi - lo) // max(n_rays, 1)))
+        jobs.append(ChunkJob(k, lo, hi, [int(seed), k], replace(limits, max_segments=share)))
+    return jobs
+
+
+def chunk_seed(seed: int, index: int) -> list[int]:
+    """The random seed of chunk `index`: a SeedSequence entropy list, independent streams."""
+    return [int(seed), int(index)]
+
+
+def run_chunk(cs: CompiledScene, start: StartRays, job: ChunkJob, mode: str, record: Recording,
+              track_paths: bool, n_sources: int, keep_hits: bool, accel: str) -> RawTrace:
+    sub = start if (job.lo == 0 and job.hi == len(start)) else start.take(slice(job.lo, job.hi))
+    rec = record
+    if record.mode == "first" and job.lo >= record.count:
+        rec = Recording()           # no ray of this chunk is wanted in the table
+    return trace_rays(cs, sub, mode=mode, limits=job.limits, seed=job.seed, record=rec,
+                      track_paths=track_paths, n_sources=n_sources, accel=accel,
+                      root_offset=job.lo, keep_hits=keep_hits)
+
+
+class Merger:
+    """Adds chunk results in chunk order."""
+
+    def __init__(self, cs: CompiledScene, n_sources: int, track_paths: bool):
+        self.cs = cs
+        self.n_codes = cs.n_edges * N_EVENT_KINDS
+        self.trie = PathTrie(n_sources, track_paths, MAX_PATH_NODES, n_bins=0)
+        self.bins = None
+        self.source_flux = 0.0
+        self.hits: dict[str, list[np.ndarray]] = {}
+        self.segments: dict[str, list[np.ndarray]] | None = None
+        self.histograms = None
+        self.wavelengths: list[np.ndarray] = []
+        self.stats: dict = {}
+        self.next_id = 0
+        self.chunks = 0
+        self.t0 = time.perf_counter()
+
+    def add(self, raw: RawTrace, n_source_rays: int, lo: int) -> None:
+        self.chunks += 1
+        self.bins = raw.bins.copy() if self.bins is None else self.bins + raw.bins
+        self.source_flux += raw.source_flux
+        remap = None
+        if self.trie.enabled:
+            remap = merge_tries(self.trie, raw.path_parent, raw.path_code, self.n_codes)
+            b, node, f = _flux_arrays(raw.path_flux)
+            if len(b):
+                self.trie.deposit(b, remap[node], f)
+        for k, v in raw.hits.items():
+            if k == "path" and remap is not None:
+                v = remap[v]
+            self.hits.setdefault(k, []).append(v)
+        self.histograms = merge_histograms(self.histograms, raw.histograms)
+        if raw.segments is not None:
+            if self.segments is None:
+                self.segments = {}
+            seg = dict(raw.segments)
+            n_ids = _id_count(seg, n_source_rays)
+            # chunk-local ids run from lo; make them consecutive across chunks
+            shift = self.next_id - lo
+            seg["ray_id"] = seg["ray_id"] + shift
+            seg["parent_id"] = np.where(seg["parent_id"] >= 0, seg["parent_id"] + shift, -1)
+            self.next_id += n_ids
+            for k, v in seg.items():
+                self.segments.setdefault(k, []).append(v)
+        self.wavelengths.append(raw.wavelengths)
+        for k, v in raw.stats.items():
+            if k == "generations":
+                self.stats[k] = max(self.stats.get(k, 0), v)
+            elif isinstance(v, (int, float)) and k != "elapsed_s":
+                self.stats[k] = self.stats.get(k, 0) + v
+
+    def result(self) -> RawTrace:
+        stats = dict(self.stats)
+        stats["elapsed_s"] = time.perf_counter() - self.t0
+        stats["chunks"] = self.chunks
+        stats["events"] = stats.get("segments", 0)
+        wl = np.unique(np.concatenate(self.wavelengths)) if self.wavelengths else np.zeros(0)
+        segments = None
+        if self.segments is not None:
+            segments = {k: np.concatenate(v) for k, v in self.segments.items()}
+        return RawTrace(
+            bins=self.bins, source_flux=self.source_flux, segments=segments,
+            hits={k: np.concatenate(v) for k, v in self.hits.items()},
+            path_parent=self.trie.parent.copy(), path_code=self.trie.code.copy(),
+            path_flux=self.trie.flux_dict() if self.trie.enabled else {}, wavelengths=wl, stats=stats,
+            histograms=self.histograms)
+
+
+def _flux_arrays(path_flux) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    if hasattr(path_flux, "arrays"):
+        return path_flux.arrays()
+    if not path_flux:
+        return np.zeros(0, dtype=np.int64), np.zeros(0, dtype=np.int64), np.zeros(0)
+    keys = np.array(list(path_flux.keys()), dtype=np.int64)
+    return keys[:, 0], keys[:, 1], np.array(list(path_flux.values()), dtype=float)
+
+
+def _id_count(seg: dict, n_source_rays: int) -> int:
+    """How many ray ids a chunk used: its source rays plus every child id it handed out."""
+    if len(seg["ray_id"]) == 0:
+        return n_source_rays
+    return max(n_source_rays, int(seg["ray_id"].max()) + 1 - int(seg["ray_id"].min()))
+
+
+def trace_chunked(cs: CompiledScene, start: StartRays, mode: str, limits: Limits, seed: int,
+                  record: Recording, track_paths: bool, n_sources: int, chunk_size: int = DEFAULT_CHUNK,
+                  workers: int = 1, keep_hits: bool = True, accel: str = "auto", progress=None) -> RawTrace:
+    """Trace in chunks, on `workers` processes when more than one, and merge in chunk order."""
+    jobs = plan_chunks(len(start), chunk_size, seed, limits)
+    if len(jobs) == 1 and workers <= 1:
+        job = jobs[0]
+        # one chunk: the plain single trace (seed as given, so small traces are unchanged)
+        return trace_rays(cs, start, mode=mode, limits=limits, seed=seed, record=record,
+                          track_paths=track_paths, n_sources=n_sources, accel=accel,
+                          keep_hits=keep_hits, progress=progress)
+    merger = Merger(cs, n_sources, track_paths)
+    if workers > 1 and len(jobs) > 1:
+        from .parallel import run_parallel
+        results = run_parallel(cs, start, jobs, mode, record, track_paths, n_sources, keep_hits, accel, workers)
+    else:
+        results = (run_chunk(cs, start, job, mode, record, track_paths, n_sources, keep_hits, accel)
+                   for job in jobs)
+    for job, raw in zip(jobs, results):
+        merger.add(raw, job.hi - job.lo, job.lo)
+        if progress is not None:
+            progress({**merger.stats, "chunks_done": merger.chunks, "chunks": len(jobs)})
+    return merger.result()
