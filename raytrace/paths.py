@@ -152,7 +152,8 @@ def _node_steps(result: TraceResult):
     runs: list[tuple[int, str, int]] = [(-1, "", 0)]   # (previous run, step, count); 0 = empty
     run_ids: dict[tuple[int, str, int], int] = {}
     node_run = np.zeros(n, dtype=np.int64)
-    lumped_run = _intern(runs, run_ids, (0, "(other paths: the path table was full)", 1))
+    lumped_run = _intern(runs, run_ids, (0, "(other paths: too faint to follow one by one, or past the "
+                                            "size of the path table)", 1))
 
     for i in range(n):
         p = int(parent[i])

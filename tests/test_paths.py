@@ -34,8 +34,10 @@ def plate_scene(angle_deg, polarization):
                  materials=mats, ambient="outside", settings=TraceSettings(rays=10, min_relative_flux=1e-12))
 
 
-@pytest.mark.parametrize("pol", ["s", "p"])
-@pytest.mark.parametrize("angle", [0.0, 35.0, 70.0])
+# cases where the first ghost carries more than 1e-3 of its source ray: the tracer may lump
+# fainter paths into "other paths" to keep the path table small
+@pytest.mark.parametrize("pol, angle", [("s", 0.0), ("p", 0.0), ("s", 35.0), ("s", 70.0), ("p", 70.0),
+                                        ("s", 80.0), ("p", 80.0)])
 def test_window_direct_and_ghost_paths_match_fresnel(pol, angle):
     """reference library: tmm.coh_tmm for the reflectance R of one n = 1 -> 1.5 interface.
     The direct path carries (1 - R)^2, the first ghost (two inner reflections) (1 - R)^2 R^2,
