@@ -17,8 +17,24 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+def qt_binding_problem() -> str:
+    """PySide6 6.12.0 drops a reference to None/True/False on every call that returns one when
+    run on Python 3.11 (found here: a few thousand calls abort the interpreter).  Say so
+    instead of crashing minutes into a session."""
+    import PySide6
+    if sys.version_info < (3, 12) and PySide6.__version__.startswith("6.12."):
+        return (f"PySide6 {PySide6.__version__} does not work on Python "
+                f"{sys.version_info.major}.{sys.version_info.minor} (it miscounts references and "
+                "crashes); install PySide6-Essentials<6.12 or use Python 3.12 or newer")
+    return ""
+
+
 def main(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
+    problem = qt_binding_problem()
+    if problem:
+        print(f"error: {problem}", file=sys.stderr)
+        return 2
     if args.screenshot and not os.environ.get("QT_QPA_PLATFORM") and not (
             os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY")) and sys.platform.startswith("linux"):
         os.environ["QT_QPA_PLATFORM"] = "offscreen"   # no screen needed for a picture

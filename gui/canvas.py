@@ -12,8 +12,8 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QPointF, Qt, Signal
 from PySide6.QtGui import QBrush, QPainterPath, QPen
-from PySide6.QtWidgets import (QGraphicsPathItem, QHBoxLayout, QLabel, QToolTip, QVBoxLayout,
-                               QWidget)
+from PySide6.QtWidgets import (QGraphicsPathItem, QHBoxLayout, QLabel, QSizePolicy, QToolTip,
+                               QVBoxLayout, QWidget)
 
 from raytrace.scene import BEAM, EMITTER, POINT, Scene
 
@@ -22,7 +22,7 @@ from .raydraw import KINDS, LEVEL_ALPHA, LEVELS, RayDrawing, ray_drawing
 from .tools import TOOLS, SELECT
 
 KIND_COLOUR = {"ray": style.RAY, "escaping": style.ESCAPING, "tir": style.TIR}
-KIND_LABEL = {"ray": "ray (fades with flux)", "escaping": "escaping ray", "tir": "after TIR"}
+KIND_LABEL = {"ray": "ray (fades with flux)", "escaping": "escaping", "tir": "after TIR"}
 
 
 def _pen(colour, width=1.5, style_=Qt.SolidLine):
@@ -73,10 +73,10 @@ class LegendBar(QWidget):
         super().__init__(parent)
         lay = QHBoxLayout(self)
         lay.setContentsMargins(6, 2, 6, 2)
-        lay.setSpacing(14)
+        lay.setSpacing(8)
         items = [(style.RAY, "line", KIND_LABEL["ray"]), (style.TIR, "line", KIND_LABEL["tir"]),
                  (style.ESCAPING, "line", KIND_LABEL["escaping"]), (style.HIT, "dot", "detector hit"),
-                 (style.ESCAPE_MARK, "ring", "flux escapes here (size = share)"),
+                 (style.ESCAPE_MARK, "ring", "escape (size = share)"),
                  (style.SOURCE, "dot", "source"), (style.DETECTOR, "bar", "detector")]
         for colour, shape, text in items:
             lab = QLabel()
@@ -91,6 +91,8 @@ class LegendBar(QWidget):
             lay.addWidget(lab)
             lay.addWidget(QLabel(text))
         lay.addStretch(1)
+        # a narrow window clips the legend's end rather than forcing the window wider
+        self.setSizePolicy(QSizePolicy.Ignored, QSizePolicy.Fixed)
         self.setToolTip("Ray colours: legs inside and between parts fade as their flux drops; "
                         "legs that began with total internal reflection and legs leaving the scene "
                         "have their own colours.")
@@ -396,9 +398,14 @@ class Canvas(QWidget):
         """Draw a trace result (None clears the rays)."""
         self.result = result
         self.drawing = ray_drawing(result) if result is not None else RayDrawing()
+        # dense fans are drawn fainter so that overlapping legs still read as separate rays
+        dim = min(1.0, max(0.12, math.sqrt(3000.0 / max(self.drawing.n_segments, 1))))
         for k in KINDS:
             groups = self.drawing.lines.get(k)
+            c = KIND_COLOUR[k]
             for lv, item in enumerate(self._ray_items[k]):
+                item.setPen(_pen(pg.mkColor(c.red(), c.green(), c.blue(), max(6, int(LEVEL_ALPHA[lv] * dim))),
+                                 1.0 if lv else 1.3))
                 if groups is None or not len(groups[lv][0]):
                     item.setData([], [])
                 else:

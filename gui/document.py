@@ -57,8 +57,11 @@ class Document(QObject):
         self.path: Path | None = None
         self.epoch = 0           # bumps when a different document is loaded
         self.undo_stack = QUndoStack(self)
-        self.undo_stack.cleanChanged.connect(lambda _clean: self.file_changed.emit())
+        self.undo_stack.cleanChanged.connect(self._clean_changed)
         self._force_dirty = False
+
+    def _clean_changed(self, _clean: bool) -> None:
+        self.file_changed.emit()
 
     # --- editing
     def apply(self, new_scene: Scene, text: str, merge_key: int = 0) -> None:

@@ -36,11 +36,25 @@ def save_widget_png(widget, path) -> None:
     _atomic(path, write)
 
 
-def save_plot_svg(plot_item, path) -> None:
-    import pyqtgraph.exporters as exporters
+def save_widget_svg(widget, path, title: str = "") -> None:
+    """Vector drawing of a widget (the canvas): rays, parts and axes stay sharp at any size."""
+    from PySide6.QtCore import QPoint, QRect, QSize
+    from PySide6.QtGui import QPainter
+    from PySide6.QtSvg import QSvgGenerator
 
     def write(tmp):
-        exporters.SVGExporter(plot_item).export(tmp)
+        gen = QSvgGenerator()
+        gen.setFileName(tmp)
+        gen.setSize(QSize(widget.width(), widget.height()))
+        gen.setViewBox(QRect(0, 0, widget.width(), widget.height()))
+        gen.setTitle(title or "ray trace drawing")
+        painter = QPainter()
+        if not painter.begin(gen):
+            raise OSError(f"could not start the SVG file for {path}")
+        try:
+            widget.render(painter, QPoint(0, 0))
+        finally:
+            painter.end()
     _atomic(path, write)
 
 

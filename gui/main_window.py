@@ -11,7 +11,7 @@ from pathlib import Path
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QAction, QActionGroup, QKeySequence
 from PySide6.QtWidgets import (QDockWidget, QDoubleSpinBox, QFileDialog, QLabel, QMainWindow,
-                               QMessageBox, QTabWidget, QToolBar)
+                               QMessageBox, QScrollArea, QTabWidget, QToolBar)
 
 from raytrace.errors import SceneError
 from raytrace.scene import Scene
@@ -21,7 +21,7 @@ from . import edits, help as help_text
 from .autosave import Autosaver, find_recoveries
 from .canvas import Canvas
 from .document import Document
-from .export import save_plot_svg, save_ray_table_csv, save_widget_png
+from .export import save_ray_table_csv, save_widget_png, save_widget_svg
 from .panels.controls import TraceControls
 from .panels.ledger import LedgerPanel
 from .panels.plots import ProfilePanel
@@ -32,6 +32,15 @@ from .tracing import TraceCancelled, run_trace
 from .worker import TraceOutcome, TraceRequest, TraceWorker
 
 SCENE_FILTER = "Scene files (*.json);;All files (*)"
+
+
+def _scrolled(widget):
+    """Long forms scroll instead of forcing the window taller than the screen."""
+    area = QScrollArea()
+    area.setWidget(widget)
+    area.setWidgetResizable(True)
+    area.setFrameShape(QScrollArea.NoFrame)
+    return area
 
 
 class MainWindow(QMainWindow):
@@ -52,11 +61,11 @@ class MainWindow(QMainWindow):
         self.ledger = LedgerPanel()
         self.profiles = ProfilePanel()
         edit_tabs = QTabWidget()
-        edit_tabs.addTab(self.properties, "Selection")
-        edit_tabs.addTab(self.controls, "Trace")
+        edit_tabs.addTab(_scrolled(self.properties), "Selection")
+        edit_tabs.addTab(_scrolled(self.controls), "Trace")
         result_tabs = QTabWidget()
         result_tabs.addTab(self.ledger, "Where the flux went")
-        result_tabs.addTab(self.profiles, "Detector profiles")
+        result_tabs.addTab(_scrolled(self.profiles), "Detector profiles")
         self.edit_tabs, self.result_tabs = edit_tabs, result_tabs
         for title, w, name in (("Edit", edit_tabs, "edit"), ("Results", result_tabs, "results")):
             dock = QDockWidget(title, self)
@@ -336,7 +345,7 @@ class MainWindow(QMainWindow):
 
     def export_svg(self) -> bool:
         return self._export("the drawing", ".svg", "SVG image (*.svg)",
-                            lambda p: save_plot_svg(self.canvas.plot.plotItem, p))
+                            lambda p: save_widget_svg(self.canvas, p, self.doc.scene.name))
 
     def offer_recovery(self) -> bool:
         """After a crash: offer the newest recovery copy; True when one was restored."""
@@ -411,7 +420,7 @@ class MainWindow(QMainWindow):
     def _selection_changed(self, sel) -> None:
         self.properties.show_selection(self.doc.scene, sel)
         if sel:
-            self.edit_tabs.setCurrentWidget(self.properties)
+            self.edit_tabs.setCurrentIndex(0)
 
     def _scene_changed(self) -> None:
         scene = self.doc.scene

@@ -55,6 +55,7 @@ class TraceWorker(QObject):
         self._cancel = threading.Event()
         self._stop = False
         self._next_id = 0
+        self._undelivered = 0
         self.delivered_id = -1
         self.delivered_epoch = -1
         self.dropped = 0
@@ -80,8 +81,9 @@ class TraceWorker(QObject):
             self._cancel.set()
 
     def is_idle(self) -> bool:
+        """Nothing pending, running, or finished but not yet handed to the UI thread."""
         with self._cond:
-            return self._pending is None and self._running is None
+            return self._pending is None and self._running is None and self._undelivered == 0
 
     def shutdown(self) -> None:
         with self._cond:
@@ -99,6 +101,8 @@ class TraceWorker(QObject):
         return True
 
     def _deliver(self, outcome: TraceOutcome) -> None:
+        with self._cond:
+            self._undelivered -= 1
         if outcome.cancelled or not self.accepts(outcome):
             self.dropped += 1
             return
@@ -133,6 +137,7 @@ class TraceWorker(QObject):
             outcome.elapsed_s = time.perf_counter() - t0
             with self._cond:
                 self._running = None
+                self._undelivered += 1
                 idle = self._pending is None
             self._done.emit(outcome)
             if idle:

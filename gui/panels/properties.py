@@ -412,7 +412,8 @@ class DetectorPage(_Page):
         super().__init__(panel)
         self.name = QLineEdit()
         self.sx, self.sy, self.ex, self.ey = _dspin(), _dspin(), _dspin(), _dspin()
-        self.absorbing = QCheckBox("absorbs the rays (a sensor); off: rays pass on (a monitor)")
+        self.absorbing = QCheckBox("absorbs the rays")
+        self.absorbing.setToolTip("On: a sensor, rays end there; off: a monitor, rays pass on")
         self.bins = QSpinBox()
         self.bins.setRange(1, 100_000)
         self.bins.setToolTip("Bins of the irradiance profile")
@@ -421,8 +422,10 @@ class DetectorPage(_Page):
         self.angle_bins.setToolTip("Bins of the angular profile (-90..90 deg)")
         self.central = _dspin(0.001, 1.0, 3, "", "Central part of the detector used for uniformity figures")
         form = QFormLayout(self)
-        form.addRow(QLabel("<b>Detector</b> (counts rays arriving on its right-hand side, "
-                           "start to end; ticks mark the back)"))
+        head = QLabel("<b>Detector</b> (counts rays arriving on its right-hand side, "
+                      "start to end; ticks mark the back)")
+        head.setWordWrap(True)
+        form.addRow(head)
         for label, w in (("Name", self.name), ("Start x", self.sx), ("Start y", self.sy), ("End x", self.ex),
                          ("End y", self.ey), ("", self.absorbing), ("Position bins", self.bins),
                          ("Angle bins", self.angle_bins), ("Central fraction", self.central)):
