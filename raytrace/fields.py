@@ -28,6 +28,22 @@ class NonFinite:
         return self.token
 
 
+class HugeInteger(NonFinite):
+    """Stands in for an integer too long for a float (JSON allows any number of digits)."""
+
+    def __init__(self, digits: str):
+        super().__init__(f"{digits[:12]}... ({len(digits.lstrip('-'))} digits)")
+
+
+MAX_INT_DIGITS = 300   # 1e300 is beyond any value a scene needs, and still converts to a float
+
+
+def parse_int(digits: str):
+    """JSON integer hook: ordinary integers as int, absurdly long ones as a HugeInteger marker
+    (Python refuses to convert more than 4300 digits, and floats overflow past 1e308)."""
+    return int(digits) if len(digits) <= MAX_INT_DIGITS else HugeInteger(digits)
+
+
 def type_name(value: Any) -> str:
     if isinstance(value, NonFinite):
         return value.token

@@ -57,7 +57,7 @@ def load_scene(path: str | os.PathLike) -> Scene:
 def scene_from_text(text: str, problems: Problems | None = None) -> Scene:
     problems = problems or Problems()
     try:
-        data = json.loads(text, parse_constant=F.NonFinite)
+        data = json.loads(text, parse_constant=F.NonFinite, parse_int=F.parse_int)
     except json.JSONDecodeError as exc:
         problems.add("$", f"<malformed JSON at line {exc.lineno} column {exc.colno}: {exc.msg}>",
                      "valid JSON")
@@ -279,6 +279,10 @@ def _params_in_range(kind: str, params: dict, where: str, problems: Problems) ->
         elif isinstance(value, list):
             for k, v in enumerate(value):
                 walk(v, f"{w}[{k}]", key)
+        elif isinstance(value, float) and not math.isfinite(value):
+            # a literal such as 1e400 reads as an infinite float; a file holds finite numbers
+            problems.add(w, f"<{value!r}>", "a finite number (0 stands for a flat lens surface)")
+            ok = False
         elif F.is_number(value):
             limit = F.MAX_COUNT if key in counts else F.MAX_COORD
             if abs(value) > limit:

@@ -236,3 +236,30 @@ def test_check_command_passes_on_every_sample(capsys):
     samples = sorted(str(p) for p in SAMPLES.glob("*.json"))
     assert main(["check", *samples]) == 0
     assert capsys.readouterr().out.count(": ok (") == len(samples)
+
+
+@pytest.mark.parametrize("literal", ["1" + "0" * 400, "-" + "9" * 5000, "1e400"])
+def test_absurdly_large_numbers_are_rejected(tmp_path, literal):
+    """JSON allows any number of digits: Python refuses to read more than 4300 of them and a
+    float overflows past 1e308; neither may surface as a traceback."""
+    text = json.dumps(_scene(), indent=2).replace('"thickness": 10.0', f'"thickness": {literal}')
+    text = text.replace('"bins": 60', f'"bins": {literal}', 1)
+    probs = _problems(_write(tmp_path, text=text))
+    assert _one(probs, "$.parts[0].shape.params.thickness")
+    assert _one(probs, "$.detectors[0].bins")
+
+
+def test_coordinates_beyond_a_kilometre_are_rejected(tmp_path):
+    d = _scene()
+    d["sources"][0]["position"] = [1e9, 0.0]
+    d["parts"][0]["shape"]["params"]["height"] = 1e308
+    probs = _problems(_write(tmp_path, d))
+    assert "at most 1e+06" in _one(probs, "$.sources[0].position").expected
+    assert "at most 1e+06" in _one(probs, "$.parts[0].shape.params.height").expected
+
+
+def test_a_billion_microprisms_is_refused_before_building(tmp_path):
+    d = json.loads((SAMPLES / "microprism-strip.json").read_text(encoding="utf-8"))
+    d["parts"][0]["shape"]["params"]["count"] = 10**9
+    p = _one(_problems(_write(tmp_path, d)), "$.parts[0].shape.params.count")
+    assert "at most 100000" in p.expected

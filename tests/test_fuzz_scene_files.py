@@ -10,6 +10,7 @@ from __future__ import annotations
 import copy
 import json
 import os
+import sys
 import time
 from pathlib import Path
 
@@ -37,6 +38,7 @@ ODD_VALUES = st.one_of(
     st.just([]), st.just({}), st.just([1.0]), st.just([1.0, "x"]), st.just([[0, 0], [1, 1]]),
     st.just(0), st.just(-1.0), st.just(1e308), st.just(-1e-300),
     st.just("NaN-token"), st.just("Infinity-token"), st.just("-Infinity-token"),
+    st.just("1e400-token"), st.just(10**400), st.just(-(10**5000)), st.just(2**63),
 )
 
 JSON_LEAF = st.one_of(st.none(), st.booleans(), st.integers(-1000, 1000),
@@ -87,8 +89,12 @@ def mutated_sample(draw):
 
 def _to_text(data) -> str:
     """JSON text; the NaN/Infinity markers become the bare tokens Python's parser accepts."""
-    text = json.dumps(data, indent=1)
-    for token in ("NaN", "Infinity", "-Infinity"):
+    sys.set_int_max_str_digits(0)      # let json.dumps write the 5000-digit integer
+    try:
+        text = json.dumps(data, indent=1)
+    finally:
+        sys.set_int_max_str_digits(4300)
+    for token in ("NaN", "Infinity", "-Infinity", "1e400"):
         text = text.replace(f'"{token}-token"', token)
     return text
 
