@@ -88,8 +88,11 @@ class Progress:
 
     def trace(self, stats: dict) -> None:
         """Callback for `raytrace.trace(progress=...)`: called once per generation."""
-        self._draw(f"tracing: generation {stats.get('generations', 0):,}, "
-                   f"{stats.get('segments', 0):,} segments")
+        text = f"tracing: generation {stats.get('generations', 0):,}, {stats.get('segments', 0):,} segments"
+        if stats.get("chunks", 1) > 1:    # a chunked trace reports chunks as they finish
+            text = f"tracing: chunk {stats.get('chunks_done', 0):,}/{stats['chunks']:,}, " \
+                   f"{stats.get('segments', 0):,} segments"
+        self._draw(text)
 
     def points(self, done: int, total: int) -> None:
         """Callback for sweeps: a bar of finished points."""

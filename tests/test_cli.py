@@ -123,9 +123,11 @@ def test_progress_only_on_a_terminal_and_not_when_quiet():
     p = Progress(enabled=True, stream=tty, delay_s=0.0, interval_s=0.0)
     p.trace({"generations": 3, "segments": 1234})
     p.points(2, 4)
+    p.trace({"chunks_done": 2, "chunks": 5, "segments": 99})
     p.close()
     text = tty.getvalue()
     assert "generation 3, 1,234 segments" in text and "2/4 points" in text and text.endswith("\r")
+    assert "chunk 2/5, 99 segments" in text
     pipe = io.StringIO()                       # not a terminal: nothing at all
     p = Progress(enabled=True, stream=pipe, delay_s=0.0, interval_s=0.0)
     p.trace({"generations": 1, "segments": 1})
