@@ -2,7 +2,7 @@
 
 Two methods, picked by edge count (`hit_function`):
 
-* few edges (the samples have 5 to 60): a *sweep*, one pass per edge over blocks of rays that
+* few edges (the samples have 5 to 60; up to GRID_MIN_EDGES): a *sweep*, one pass per edge over blocks of rays that
   fit in the CPU cache, with the edge's constants as scalars.  No ray x edge matrix is built,
   so the cost is a few cache-resident vector operations per (ray, edge) pair.
 * many edges (prism films, faceted parts): a *uniform grid* over the parts' bounding box.
@@ -33,22 +33,38 @@ import math
 import numpy as np
 
 from .compile import CompiledScene
-from .intersect import arc_constants, arc_t, nearest_hit
+from .intersect import arc_constants, arc_t, line_t, nearest_hit
 
-SWEEP_MAX_EDGES = 48        # up to this many edges the sweep beats the grid
+GRID_MIN_EDGES = 160        # above this many edges the grid beats the sweep (measured on films)
+SMALL_MATRIX = 50_000       # rays x edges up to which one plain matrix beats the sweep
 BLOCK = 32768               # rays per sweep block: a few float arrays of this fit in L2
-CELLS_PER_EDGE = 2.0        # grid resolution
-BIG_EDGE_CELLS = 24         # an edge spanning more cells than this is swept, not gridded
+CELLS_PER_EDGE = 0.25       # grid resolution: a few edges per cell suit array-at-a-time tests
+BIG_EDGE_FACTOR = 24        # an edge this many times the median edge size is swept, not gridded
+MAX_BIG_EDGES = 32
 
 _CACHE_ATTR = "_accel_cache"
 
 
 def hit_function(cs: CompiledScene, method: str = "auto"):
-    """The nearest-hit function for a compiled scene: "auto", "plain", "sweep" or "grid"."""
+    """The nearest-hit function for a compiled scene: "auto", "plain", "sweep" or "grid".
+
+    "auto" uses the grid for scenes of more than GRID_MIN_EDGES edges; otherwise, per call,
+    one small ray x edge matrix when the generation is small (fewest numpy calls: what the
+    GUI's small fans need) and the sweep when it is large.  All give identical results."""
     if method == "plain":
         return nearest_hit
     if method == "auto":
-        method = "sweep" if cs.n_edges <= SWEEP_MAX_EDGES else "grid"
+        if cs.n_edges > GRID_MIN_EDGES:
+            method = "grid"
+        else:
+            table = edge_table(cs)
+            ne = max(cs.n_edges, 1)
+
+            def auto(_cs, x, y, dx, dy, start):
+                if len(x) * ne <= SMALL_MATRIX:
+                    return nearest_hit(cs, x, y, dx, dy, start)
+                return table.sweep(x, y, dx, dy, start)
+            return auto
     if method == "sweep":
         table = edge_table(cs)
         return lambda _cs, x, y, dx, dy, start: table.sweep(x, y, dx, dy, start)
@@ -220,11 +236,15 @@ class EdgeGrid:
         n = cs.n_edges
         lo_x, lo_y, hi_x, hi_y = edge_boxes(cs)
         span = max(float(hi_x.max() - lo_x.min()), float(hi_y.max() - lo_y.min()), cs.scale * 1e-6)
-        # cell size from the extent of the edges that are not "big": first guess from all
-        cell = _cell_size(lo_x, lo_y, hi_x, hi_y, n)
+        # edges much longer than the typical edge (detectors, the flat side of a film) are swept
+        # for every ray instead of being listed in the many cells they cross; at most 32 of them
         size = np.maximum(hi_x - lo_x, hi_y - lo_y)
-        big = size > BIG_EDGE_CELLS * cell
-        if big.all() or (~big).sum() < 4:
+        typical = float(np.median(size)) if n else 0.0
+        big = size > BIG_EDGE_FACTOR * typical
+        if big.sum() > MAX_BIG_EDGES:
+            big[:] = False
+            big[np.argsort(-size, kind="stable")[:MAX_BIG_EDGES]] = True
+        if (~big).sum() < 1:
             big[:] = False
         small = np.flatnonzero(~big)
         cell = _cell_size(lo_x[small], lo_y[small], hi_x[small], hi_y[small], len(small))
@@ -327,134 +347,130 @@ class EdgeGrid:
         self.line_cells[self.line_cells < 0] = ne
         self.arc_cells[self.arc_cells < 0] = ne
         self.is_arc = np.append(cs.is_arc, False)
+        # tie order of the plain search: lines by index, then arcs by index; "no hit" (-1) last
+        self.rank = np.append(np.arange(ne) + ne * cs.is_arc, 2 * ne + 1)
 
     # ---- searching
     def nearest(self, x, y, dx, dy, start_edge):
         t_best, e_best = self.big.sweep(x, y, dx, dy, start_edge)
         n = len(x)
-        for lo in range(0, n, 4 * BLOCK):
-            hi = min(n, lo + 4 * BLOCK)
+        step = 8 * BLOCK
+        for lo in range(0, n, step):
+            hi = min(n, lo + step)
             self._walk(x[lo:hi], y[lo:hi], dx[lo:hi], dy[lo:hi], start_edge[lo:hi],
                        t_best[lo:hi], e_best[lo:hi])
         return t_best, e_best
 
     def _walk(self, x, y, dx, dy, start, t_best, e_best):
-        """March every ray through the grid cell by cell (2D DDA), testing the cells' edges."""
+        """March every ray through the grid cell by cell (2D DDA), testing the cells' edges.
+
+        The per-ray state lives in two matrices (floats, integers) so that dropping the rays
+        that are done is two array operations per step, whatever the number of fields."""
         h = self.h
-        eps = self.cs.eps
         with np.errstate(divide="ignore", invalid="ignore"):
             idx_ = 1.0 / dx
             idy_ = 1.0 / dy
-            # parametric entry/exit of the grid box
             tx0 = (self.x0 - x) * idx_
             tx1 = (self.x1 - x) * idx_
             ty0 = (self.y0 - y) * idy_
             ty1 = (self.y1 - y) * idy_
-        tx0, tx1 = np.where(dx == 0, np.where((x >= self.x0) & (x <= self.x1), -np.inf, np.inf), tx0), \
-            np.where(dx == 0, np.where((x >= self.x0) & (x <= self.x1), np.inf, -np.inf), tx1)
-        ty0, ty1 = np.where(dy == 0, np.where((y >= self.y0) & (y <= self.y1), -np.inf, np.inf), ty0), \
-            np.where(dy == 0, np.where((y >= self.y0) & (y <= self.y1), np.inf, -np.inf), ty1)
+        inside_x = (x >= self.x0) & (x <= self.x1)
+        inside_y = (y >= self.y0) & (y <= self.y1)
+        zx, zy = dx == 0, dy == 0
+        # a ray parallel to an axis is inside that slab for all t, or for none
+        tx0 = np.where(zx, np.where(inside_x, -np.inf, np.inf), tx0)
+        tx1 = np.where(zx, np.where(inside_x, np.inf, -np.inf), tx1)
+        ty0 = np.where(zy, np.where(inside_y, -np.inf, np.inf), ty0)
+        ty1 = np.where(zy, np.where(inside_y, np.inf, -np.inf), ty1)
         t_in = np.maximum(np.maximum(np.minimum(tx0, tx1), np.minimum(ty0, ty1)), 0.0)
         t_out = np.minimum(np.maximum(tx0, tx1), np.maximum(ty0, ty1))
         act = np.flatnonzero((t_in <= t_out) & (t_in < t_best))
         if len(act) == 0:
             return
-        # start cell: the point just inside the box at t_in
-        px = x[act] + t_in[act] * dx[act]
-        py = y[act] + t_in[act] * dy[act]
-        ix = np.clip(np.floor((px - self.x0) / h).astype(np.int64), 0, self.nx - 1)
-        iy = np.clip(np.floor((py - self.y0) / h).astype(np.int64), 0, self.ny - 1)
-        sx = np.where(dx[act] > 0, 1, -1)
-        sy = np.where(dy[act] > 0, 1, -1)
+        xa, ya, dxa, dya = x[act], y[act], dx[act], dy[act]
+        ti = t_in[act]
+        ix = np.clip(np.floor((xa + ti * dxa - self.x0) / h), 0, self.nx - 1)
+        iy = np.clip(np.floor((ya + ti * dya - self.y0) / h), 0, self.ny - 1)
+        sx = np.where(dxa > 0, 1.0, -1.0)
+        sy = np.where(dya > 0, 1.0, -1.0)
         with np.errstate(divide="ignore", invalid="ignore"):
-            adx = np.abs(idx_[act])
-            ady = np.abs(idy_[act])
             # t at which the ray crosses the next vertical / horizontal cell line
-            nxt_x = np.where(sx > 0, self.x0 + (ix + 1) * h, self.x0 + ix * h)
-            nxt_y = np.where(sy > 0, self.y0 + (iy + 1) * h, self.y0 + iy * h)
-            tmx = np.where(dx[act] != 0, (nxt_x - x[act]) * idx_[act], np.inf)
-            tmy = np.where(dy[act] != 0, (nxt_y - y[act]) * idy_[act], np.inf)
-        tdx = np.where(np.isfinite(adx), adx * h, np.inf)
-        tdy = np.where(np.isfinite(ady), ady * h, np.inf)
-        tb = t_best[act]
+            tmx = np.where(zx[act], np.inf, (self.x0 + (ix + (sx > 0)) * h - xa) * idx_[act])
+            tmy = np.where(zy[act], np.inf, (self.y0 + (iy + (sy > 0)) * h - ya) * idy_[act])
+            tdx = np.where(zx[act], np.inf, np.abs(idx_[act]) * h)
+            tdy = np.where(zy[act], np.inf, np.abs(idy_[act]) * h)
         eb = e_best[act]
-        rank_b = self._rank(eb)
-        t_out_a = t_out[act]
-        nx = self.nx
-        while len(act):
-            cell = iy * nx + ix
-            occ = self.occupied[cell]
-            if occ.any():
-                j = np.flatnonzero(occ)
-                self._test(j, act, cell, x, y, dx, dy, start, eps, tb, eb, rank_b)
-            t_far = np.minimum(tmx, tmy)
-            # done: the best hit lies before the far side of this cell, or the ray left the grid
-            done = (tb <= t_far) | (t_far >= t_out_a)
-            step_x = tmx < tmy
-            ix = ix + np.where(step_x, sx, 0)
-            iy = iy + np.where(step_x, 0, sy)
-            tmx = tmx + np.where(step_x, tdx, 0.0)
-            tmy = tmy + np.where(step_x, 0.0, tdy)
-            done |= (ix < 0) | (ix >= nx) | (iy < 0) | (iy >= self.ny)
-            if done.any():
-                fin = np.flatnonzero(done)
-                a = act[fin]
-                better = (tb[fin] < t_best[a]) | ((tb[fin] == t_best[a]) & (rank_b[fin] < self._rank(e_best[a])))
-                t_best[a[better]] = tb[fin][better]
-                e_best[a[better]] = eb[fin][better]
-                keep = ~done
-                act, ix, iy, sx, sy, tmx, tmy, tdx, tdy, tb, eb, rank_b, t_out_a = (
-                    v[keep] for v in (act, ix, iy, sx, sy, tmx, tmy, tdx, tdy, tb, eb, rank_b, t_out_a))
+        F = np.stack([xa, ya, dxa, dya, tmx, tmy, tdx, tdy, t_best[act], t_out[act], ix, iy, sx, sy])
+        G = np.stack([act, eb, self.rank[eb], start[act]])
+        X, Y, DX, DY, TMX, TMY, TDX, TDY, TB, TOUT, IX, IY, SX, SY = range(14)
+        ACT, EB, RB, ST = range(4)
+        nx, ny = self.nx, self.ny
+        while F.shape[1]:
+            cell = (F[IY] * nx + F[IX]).astype(np.int64)
+            occ = np.flatnonzero(self.occupied[cell])
+            if len(occ):
+                self._test(F, G, occ, cell[occ])
+            t_far = np.minimum(F[TMX], F[TMY])
+            # done: the best hit lies before the far side of this cell, or the ray leaves the grid
+            done = (F[TB] <= t_far) | (t_far >= F[TOUT])
+            step_x = F[TMX] < F[TMY]
+            sxm = np.where(step_x, F[SX], 0.0)
+            sym = np.where(step_x, 0.0, F[SY])
+            F[IX] += sxm
+            F[IY] += sym
+            F[TMX] += np.where(step_x, F[TDX], 0.0)
+            F[TMY] += np.where(step_x, 0.0, F[TDY])
+            done |= (F[IX] < 0) | (F[IX] >= nx) | (F[IY] < 0) | (F[IY] >= ny)
+            fin = np.flatnonzero(done)
+            if len(fin):
+                a = G[ACT, fin]
+                tb, rb = F[TB, fin], G[RB, fin]
+                better = (tb < t_best[a]) | ((tb == t_best[a]) & (rb < self.rank[e_best[a]]))
+                t_best[a[better]] = tb[better]
+                e_best[a[better]] = G[EB, fin[better]]
+                keep = np.flatnonzero(~done)
+                F = F[:, keep]
+                G = G[:, keep]
 
-    def _rank(self, e):
-        """Tie order of the plain search: lines by index, then arcs by index; no hit last."""
-        ne = self.cs.n_edges
-        return np.where(e < 0, 2 * ne + 1, e + ne * self.is_arc[np.where(e < 0, ne, e)])
-
-    def _test(self, j, act, cell, x, y, dx, dy, start, eps, tb, eb, rank_b):
-        """Test rays act[j] against the edges of their current cells; update the running best."""
-        r = act[j]
-        c = cell[j]
-        X, Y, DX, DY = x[r][:, None], y[r][:, None], dx[r][:, None], dy[r][:, None]
-        cand = []
+    def _test(self, F, G, j, c):
+        """Test rays j against the edges of their current cells c; update their running best."""
+        eps = self.cs.eps
+        X, Y, DX, DY = F[0, j][:, None], F[1, j][:, None], F[2, j][:, None], F[3, j][:, None]
+        cand_t, cand_e = [], []
         if self.line_width:
             E = self.line_cells[c, : self.line_width]
-            with np.errstate(divide="ignore", invalid="ignore"):
-                t = _line_t_rows(X, Y, DX, DY, self.ax[E], self.ay[E], self.ex[E], self.ey[E], eps)
-            t[E == start[r][:, None]] = np.inf
-            cand.append((t, E))
+            t = line_t(X, Y, DX, DY, self.ax[E], self.ay[E], self.ex[E], self.ey[E], eps)
+            t[E == G[3, j][:, None]] = np.inf
+            cand_t.append(t)
+            cand_e.append(E)
         if self.arc_width:
-            has = self.arc_count[c] > 0
-            if has.any():
+            has = np.flatnonzero(self.arc_count[c] > 0)
+            if len(has):
                 E = np.full((len(j), self.arc_width), self.cs.n_edges, dtype=np.int64)
-                E[has] = self.arc_cells[c[has], : self.arc_width]
+                Es = self.arc_cells[c[has], : self.arc_width]
+                E[has] = Es
                 k = self.arc_k
-                sel = has
                 ta = np.full(E.shape, np.inf)
-                Es = E[sel]
-                ta[sel] = arc_t(X[sel], Y[sel], DX[sel], DY[sel], k["cx"][Es], k["cy"][Es], k["r2"][Es],
+                ta[has] = arc_t(X[has], Y[has], DX[has], DY[has], k["cx"][Es], k["cy"][Es], k["r2"][Es],
                                 k["sx"][Es], k["sy"][Es], k["qx"][Es], k["qy"][Es], k["major"][Es],
                                 k["tol"][Es], eps)
-                cand.append((ta, E))
-        if not cand:
+                cand_t.append(ta)
+                cand_e.append(E)
+        if not cand_t:
             return
-        t = np.concatenate([c_[0] for c_ in cand], axis=1) if len(cand) > 1 else cand[0][0]
-        E = np.concatenate([c_[1] for c_ in cand], axis=1) if len(cand) > 1 else cand[0][1]
+        t = np.concatenate(cand_t, axis=1) if len(cand_t) > 1 else cand_t[0]
+        E = np.concatenate(cand_e, axis=1) if len(cand_e) > 1 else cand_e[0]
         k = np.argmin(t, axis=1)
         rows = np.arange(len(j))
         tk = t[rows, k]
-        ek = np.where(np.isfinite(tk), E[rows, k], -1)
-        rk = self._rank(ek)
-        better = (tk < tb[j]) | ((tk == tb[j]) & (rk < rank_b[j]))
+        ek = np.where(tk < np.inf, E[rows, k], -1)
+        rk = self.rank[ek]
+        tb = F[8, j]
+        better = (tk < tb) | ((tk == tb) & (rk < G[2, j]))
         jb = j[better]
-        tb[jb] = tk[better]
-        eb[jb] = ek[better]
-        rank_b[jb] = rk[better]
-
-
-def _line_t_rows(X, Y, DX, DY, ax, ay, ex, ey, eps):
-    from .intersect import line_t
-    return line_t(X, Y, DX, DY, ax, ay, ex, ey, eps)
+        F[8, jb] = tk[better]
+        G[1, jb] = ek[better]
+        G[2, jb] = rk[better]
 
 
 def _cell_size(lo_x, lo_y, hi_x, hi_y, n):
@@ -463,7 +479,8 @@ def _cell_size(lo_x, lo_y, hi_x, hi_y, n):
     cells = max(CELLS_PER_EDGE * n, 1.0)
     h = math.sqrt(w * hgt / cells)
     # a very flat box (a film): do not let cells get longer than the box is wide in the other way
-    h = max(h, 1e-9 * max(w, hgt))
+    # never more cells along the long side than cells in all (a box flat as a line)
+    h = max(h, max(w, hgt) / cells)
     return min(h, max(w, hgt))
 
 
