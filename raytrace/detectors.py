@@ -110,8 +110,15 @@ class DetectorReport:
 
 
 def detector_report(result: TraceResult, name: str) -> DetectorReport:
-    """All figures for the detector called `name`."""
+    """All figures for the detector called `name`.
+
+    Long traces may keep detector hits only as histograms (position bin x angle bin); the
+    figures then come from the bins: centroid and mean angle from bin centres, uniformity from
+    the bins whose centres lie in the central part, and no arrival times (nan)."""
     det = next(d for d in result.compiled.detectors if d.name == name)
+    hist = (getattr(result.raw, "histograms", None) or {}).get(name)
+    if hist is not None:
+        return _report_from_histogram(result, det, hist)
     hits = result.detector(name)
     f = hits.flux
     live = f > 0
@@ -125,6 +132,29 @@ def detector_report(result: TraceResult, name: str) -> DetectorReport:
         centroid_mm=_weighted_mean(hits.position, f), mean_angle_deg=_weighted_mean(hits.angle_deg, f),
         irradiance=irr, angular=ang, uniformity=uniformity(hits, det.bins, det.central_fraction),
         times=arrival_times(hits))
+
+
+def _report_from_histogram(result: TraceResult, det, hist: dict) -> DetectorReport:
+    pe, ae = np.asarray(hist["position_edges"], float), np.asarray(hist["angle_edges"], float)
+    fs, fp = np.asarray(hist["flux_s"], float), np.asarray(hist["flux_p"], float)
+    f = fs + fp
+    total = float(f.sum())
+    irr = Profile(pe, f.sum(axis=1), "mm")
+    ang = Profile(ae, f.sum(axis=0), "deg")
+    length = float(pe[-1])
+    c = irr.centers
+    central = (c >= 0.5 * (1 - det.central_fraction) * length) & (c <= 0.5 * (1 + det.central_fraction) * length)
+    counts = irr.flux[central]
+    mean = counts.mean() if len(counts) else 0.0
+    uni = (Uniformity(float(counts.min() / mean), float(counts.max() / mean), det.central_fraction, len(counts))
+           if mean > 0 else Uniformity(float("nan"), float("nan"), det.central_fraction, len(counts)))
+    nan = float("nan")
+    return DetectorReport(
+        name=det.name, length_mm=length, absorbing=det.absorbing, hits=int(hist.get("hits", 0)),
+        total_flux=total, flux_s=float(fs.sum()), flux_p=float(fp.sum()),
+        efficiency=total / result.source_flux if result.source_flux else 0.0,
+        centroid_mm=_weighted_mean(c, irr.flux), mean_angle_deg=_weighted_mean(ang.centers, ang.flux),
+        irradiance=irr, angular=ang, uniformity=uni, times=ArrivalTimes(nan, nan, nan, nan))
 
 
 def detector_reports(result: TraceResult) -> list[DetectorReport]:

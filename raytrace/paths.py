@@ -15,8 +15,7 @@ import numpy as np
 
 from .ledger import ABSORBED, DETECTOR, ESCAPED, TRUNCATED, TRUNCATION_REASONS, BinLayout, Bucket
 from .results import TraceResult
-from .tracer import (EV_MIRROR, EV_PASS, EV_REFLECT, EV_THROUGH, EV_TIR, N_EVENT_KINDS,
-                     _medium_at)
+from .tracer import EV_MIRROR, EV_PASS, EV_REFLECT, EV_THROUGH, EV_TIR, N_EVENT_KINDS, medium_at
 
 LUMPED = -1_000_000     # the tracer's parent marker of the "other paths" node (trie full)
 LOSS_KINDS = (ESCAPED, ABSORBED, TRUNCATED)
@@ -147,7 +146,7 @@ def _node_steps(result: TraceResult):
     n = len(parent)
     n_src = int(np.count_nonzero((parent < 0) & (parent != LUMPED)))
     src_pos = _source_positions(result, n_src)
-    start_med = _medium_at(cs, src_pos[:, 0], src_pos[:, 1]) if n_src else np.zeros(0, dtype=np.int64)
+    start_med = medium_at(cs, src_pos[:, 0], src_pos[:, 1]) if n_src else np.zeros(0, dtype=np.int64)
     medium = np.zeros(n, dtype=np.int64)
     runs: list[tuple[int, str, int]] = [(-1, "", 0)]   # (previous run, step, count); 0 = empty
     run_ids: dict[tuple[int, str, int], int] = {}

@@ -157,3 +157,18 @@ def test_profiles_csv_reads_back():
     assert all(row[0] == "sensor, left" for row in body)
     assert [float(row[7]) for row in irr] == reps[0].irradiance.flux.tolist()
     assert sum(float(row[7]) for row in irr) == pytest.approx(1.0)
+
+
+def test_histogram_hits_give_the_same_profiles_as_kept_hits():
+    """Long traces may bin detector hits instead of keeping them; the profiles and totals from
+    the bins equal those from the kept hits (same bins), and times are then unknown (nan)."""
+    from raytrace.scene_io import load_scene
+    from pathlib import Path
+    scene = load_scene(Path(__file__).resolve().parent.parent / "samples" / "light-pipe-90.json")
+    kept = detector_report(raytrace.trace(scene, rays=400, hits="keep"), "viewer side")
+    binned = detector_report(raytrace.trace(scene, rays=400, hits="histogram"), "viewer side")
+    assert binned.total_flux == pytest.approx(kept.total_flux, rel=1e-12)
+    assert np.allclose(binned.irradiance.flux, kept.irradiance.flux, rtol=1e-12, atol=1e-15)
+    assert np.allclose(binned.angular.flux, kept.angular.flux, rtol=1e-12, atol=1e-15)
+    assert binned.hits == kept.hits
+    assert math.isnan(binned.times.spread_ps) and not math.isnan(kept.times.spread_ps)
