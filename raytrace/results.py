@@ -69,7 +69,10 @@ class TraceResult:
         """Flux that reached (absorbing) or crossed (monitoring) the detector, over the source flux."""
         det = next(d for d in self.compiled.detectors if d.name == detector)
         if not det.absorbing:
-            return self.detector(detector).total / self.source_flux if self.source_flux else 0.0
+            hist = (getattr(self.raw, "histograms", None) or {}).get(detector)
+            crossed = (float(hist["flux_s"].sum() + hist["flux_p"].sum()) if hist is not None
+                       else self.detector(detector).total)   # long traces keep only histograms
+            return crossed / self.source_flux if self.source_flux else 0.0
         return self.ledger.efficiency(detector)
 
     @property
