@@ -180,6 +180,9 @@ def test_monitoring_detector_is_not_a_bucket_and_reports_what_crossed():
     assert result.efficiency("end") == pytest.approx(1.0, abs=1e-12)
     assert result.efficiency("monitor") == pytest.approx(1.0, abs=1e-12)
     assert result.to_summary_dict()["efficiency"] == pytest.approx({"monitor": 1.0, "end": 1.0}, abs=1e-12)
+    # the same when a long trace keeps detector hits only as histograms
+    binned = trace(make_scene([], [beam], [mon, end], rays=7), hits="histogram")
+    assert binned.efficiency("monitor") == pytest.approx(1.0, abs=1e-12)
 
 
 def test_unnamed_edges_are_numbered_in_the_order_written():
