@@ -34,6 +34,8 @@ def build_parser() -> argparse.ArgumentParser:
     t = sub.add_parser("trace", help="trace a scene and print the energy ledger")
     t.add_argument("scene", metavar="SCENE")
     add_trace_options(t)
+    t.add_argument("--workers", type=int, dest="trace_workers", metavar="N",
+                   help="processes to trace on (default 1); the result does not depend on it")
     t.add_argument("--json", metavar="FILE", help="write the summary (ledger, efficiencies, stats) as JSON")
     t.add_argument("--csv", metavar="FILE", help="write the ray table (one row per segment) as CSV")
     t.add_argument("--record", metavar="first:N|all|none", type=parse_record, default=None,
@@ -60,6 +62,9 @@ def build_parser() -> argparse.ArgumentParser:
     add_trace_options(w)
 
     sub.add_parser("materials", help="list the material catalog with its sources")
+
+    from .bench import add_arguments as add_bench_arguments
+    add_bench_arguments(sub.add_parser("bench", help="run fixed workloads and report speed and memory"))
     return p
 
 
@@ -144,7 +149,8 @@ def cmd_trace(args) -> int:
     progress = Progress(enabled=not args.quiet)
     try:
         result = trace(scene, record=record[0], record_count=record[1], progress=progress.trace,
-                       track_paths=args.paths is not None, **trace_kwargs(args))
+                       track_paths=args.paths is not None, workers=getattr(args, "trace_workers", None) or 1,
+                       **trace_kwargs(args))
     finally:
         progress.close()
     if not args.quiet:
@@ -250,7 +256,8 @@ def write_output(path: str, text: str) -> bool:
         return False
 
 
-COMMANDS = {"check": cmd_check, "trace": cmd_trace, "sweep": cmd_sweep, "materials": cmd_materials}
+COMMANDS = {"check": cmd_check, "trace": cmd_trace, "sweep": cmd_sweep, "materials": cmd_materials,
+            "bench": lambda args: __import__("raytrace.bench", fromlist=["main"]).main(args)}
 
 if __name__ == "__main__":
     sys.exit(main())
