@@ -1,0 +1,279 @@
+"""`raytrace bench`: fixed workloads, their speed and memory, and the speedup over the plain tracer.
+
+Workloads (full size; `--quick` shrinks every one to a smoke test of a few seconds):
+    light-pipe-1e5     samples/light-pipe-90.json, 100,000 rays, full branching to 1e-4
+    light-pipe-1e6     the same, 1,000,000 rays
+    strip-100/1000/10000   microprism films of about 100, 1,000 and 10,000 edges, 100,000 rays
+    window-mc-1e6      samples/oblique-window.json, 1,000,000 rays, Monte Carlo
+    window-mc-1e7      the same with 10,000,000 rays, ray table off, hits binned: the memory check
+    gui-1000           compile + trace + segment table for a 1,000-ray fan with record="all"
+
+For each workload the accelerated tracer runs at full size on all cores (rays/s, events/s,
+events/s per core, peak memory), and then, for the speedup, the accelerated and the plain
+tracer (`intersect.nearest_hit`, every ray against every edge) run the *same* smaller workload
+on one core, one after the other in this process; the ratio of their times is reported because
+absolute times drift on a shared machine.
+
+Events are segment ends (every traced segment ends in one).  Peak memory is the largest resident
+set of this process plus its worker processes, sampled every 10 ms (shared pages of forked
+workers are counted once per process, so it is an upper bound).
+"""
+from __future__ import annotations
+
+import json
+import os
+import platform
+import threading
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+SAMPLES = Path(__file__).resolve().parent.parent / "samples"
+
+
+@dataclass
+class Workload:
+    name: str
+    build: object            # () -> Scene
+    rays: int
+    mode: str = "branching"
+    plain_rays: int = 0      # rays for the plain-vs-accelerated ratio (0: no ratio)
+    hits: str = "auto"
+    workers: int | None = None   # None: all cores
+    note: str = ""
+
+
+def _sample(name):
+    def build():
+        from .scene_io import load_scene
+        return load_scene(SAMPLES / name)
+    return build
+
+
+def strip_scene(edges: int, pitch: float = 0.05):
+    """A 90 degree PMMA prism film of about `edges` edges over a Lambertian backlight, with a
+    viewer detector above and a recycling detector below, both as wide as twice the film."""
+    from .geometry import Part
+    from .scene import Detector, Scene, Source
+    from .shapes import microprism_strip
+    count = max(1, (edges - 4) // 2)
+    w = count * pitch
+    part = Part("film", "PMMA", microprism_strip(pitch, 90.0, count, 0.3))
+    src = Source("backlight", kind="emitter", position=(0.0, -0.5), direction_deg=90.0, width=0.9 * w,
+                 half_angle_deg=90.0, distribution="lambertian")
+    dets = [Detector("viewer", (-w, 2.0), (w, 2.0)), Detector("recycled", (w, -1.0), (-w, -1.0))]
+    return Scene(parts=[part], sources=[src], detectors=dets, name=f"prism film, {2 * count + 4} edges")
+
+
+def workloads(quick: bool) -> list[Workload]:
+    q = quick
+    return [
+        Workload("light-pipe-1e5", _sample("light-pipe-90.json"), 2_000 if q else 100_000, plain_rays=300 if q else 10_000),
+        Workload("light-pipe-1e6", _sample("light-pipe-90.json"), 4_000 if q else 1_000_000, plain_rays=0),
+        Workload("strip-100", lambda: strip_scene(100), 1_000 if q else 100_000, plain_rays=200 if q else 10_000),
+        Workload("strip-1000", lambda: strip_scene(1000), 1_000 if q else 100_000, plain_rays=100 if q else 2_000),
+        Workload("strip-10000", lambda: strip_scene(10000), 500 if q else 100_000, plain_rays=20 if q else 200),
+        Workload("window-mc-1e6", _sample("oblique-window.json"), 5_000 if q else 1_000_000, "monte_carlo",
+                 plain_rays=1_000 if q else 100_000),
+        Workload("window-mc-1e7", _sample("oblique-window.json"), 20_000 if q else 10_000_000, "monte_carlo",
+                 hits="histogram", note="memory check: ray table off, hits binned"),
+    ]
+
+
+class PeakMemory:
+    """Largest resident set of this process and its children while running (Linux /proc)."""
+
+    def __init__(self, interval: float = 0.01):
+        self.interval = interval
+        self.peak = 0
+        self._stop = threading.Event()
+        self._page = os.sysconf("SC_PAGE_SIZE") if hasattr(os, "sysconf") else 4096
+
+    def _rss(self, pid) -> int:
+        try:
+            with open(f"/proc/{pid}/statm") as f:
+                return int(f.read().split()[1]) * self._page
+        except OSError:
+            return 0
+
+    def _children(self) -> list[int]:
+        try:
+            with open(f"/proc/{os.getpid()}/task/{os.getpid()}/children") as f:
+                return [int(p) for p in f.read().split()]
+        except OSError:
+            return []
+
+    def sample(self) -> None:
+        total = self._rss(os.getpid()) + sum(self._rss(p) for p in self._children())
+        self.peak = max(self.peak, total)
+
+    def _run(self):
+        while not self._stop.wait(self.interval):
+            self.sample()
+
+    def __enter__(self):
+        self.sample()
+        self._t = threading.Thread(target=self._run, daemon=True)
+        self._t.start()
+        return self
+
+    def __exit__(self, *exc):
+        self._stop.set()
+        self._t.join()
+        self.sample()
+
+
+def _trace(scene, cs, rays, mode, workers, accel="auto", hits="auto", plain=False):
+    from .api import trace
+    from .intersect import nearest_hit
+    from .sources import sample_sources
+    from .tracer import Limits, trace_rays
+    if plain:
+        # the reference: one process, every ray against every edge
+        start = sample_sources(scene.sources, rays, seed=scene.settings.seed)
+        s = scene.settings
+        lim = Limits(min_relative_flux=s.min_relative_flux, max_depth=s.max_depth, max_segments=s.max_segments)
+        return trace_rays(cs, start, mode=mode, limits=lim, seed=s.seed, hit_fn=nearest_hit,
+                          n_sources=len(scene.sources)).stats
+    return trace(scene, rays=rays, mode=mode, compiled=cs, workers=workers, accel=accel, hits=hits).stats
+
+
+def run_workload(w: Workload, workers: int, ratio: bool = True) -> dict:
+    from .compile import compile_scene
+    scene = w.build()
+    cs = compile_scene(scene)
+    n_workers = w.workers or workers
+    _trace(scene, cs, min(200, w.rays), w.mode, 1)          # warm-up: caches, grid, imports
+    with PeakMemory() as mem:
+        t0, c0 = time.perf_counter(), time.process_time()
+        stats = _trace(scene, cs, w.rays, w.mode, n_workers, hits=w.hits)
+        wall, cpu = time.perf_counter() - t0, time.process_time() - c0
+    events = int(stats["segments"])
+    row = {"name": w.name, "scene": scene.name, "edges": cs.n_edges, "rays": w.rays, "mode": w.mode,
+           "workers": n_workers, "events": events, "events_per_ray": events / max(w.rays, 1),
+           "wall_s": wall, "parent_cpu_s": cpu, "rays_per_s": w.rays / wall, "events_per_s": events / wall,
+           "events_per_s_per_core": events / wall / n_workers, "peak_memory_mb": mem.peak / 1e6,
+           "ns_per_event_per_core": wall * n_workers / max(events, 1) * 1e9, "note": w.note}
+    if ratio and w.plain_rays:
+        t0 = time.process_time()
+        fast = _trace(scene, cs, w.plain_rays, w.mode, 1, hits=w.hits)
+        fast_s = time.process_time() - t0
+        t0 = time.process_time()
+        plain = _trace(scene, cs, w.plain_rays, w.mode, 1, plain=True)
+        plain_s = time.process_time() - t0
+        assert plain["segments"] == fast["segments"], "plain and accelerated traces differ"
+        row.update(ratio_rays=w.plain_rays, ratio_events=int(plain["segments"]), accel_cpu_s=fast_s,
+                   plain_cpu_s=plain_s, speedup=plain_s / max(fast_s, 1e-12))
+    return row
+
+
+def gui_redraw(repeats: int = 15) -> dict:
+    """compile + trace + segment table of a 1,000-ray fan with the ray table on (median of runs)."""
+    from .api import trace
+    from .compile import compile_scene
+    scene = _sample("light-pipe-90.json")()
+    times = []
+    for _ in range(repeats + 2):
+        t0 = time.perf_counter()
+        cs = compile_scene(scene)
+        r = trace(scene, rays=1000, record="all", compiled=cs)
+        seg = r.segments
+        lines = np.column_stack([seg["x0"], seg["y0"], seg["x1"], seg["y1"]])
+        times.append(time.perf_counter() - t0)
+    times = sorted(times[2:])
+    return {"name": "gui-1000", "rays": 1000, "segments": int(len(lines)),
+            "median_ms": 1e3 * times[len(times) // 2], "best_ms": 1e3 * times[0]}
+
+
+TARGETS = (
+    ("light-pipe 1e6 rays, full branching to 1e-4, wall time", "light-pipe-1e6", "wall_s", "<=", 10.0, "s"),
+    ("events per second per core on that workload", "light-pipe-1e6", "events_per_s_per_core", ">=", 2e6, "/s"),
+    ("GUI edit-to-redraw, 1,000 rays, record all", "gui-1000", "median_ms", "<=", 33.0, "ms"),
+    ("per-event cost, 10,000-edge film / 100-edge film", "strip-ratio", "value", "<=", 3.0, "x"),
+    ("10 million source rays, ray table off, peak memory", "window-mc-1e7", "peak_memory_mb", "<=", 2000.0, "MB"),
+    ("100,000 rays through the light pipe (first floor)", "light-pipe-1e5", "wall_s", "<=", 5.0, "s"),
+)
+
+
+def check_targets(rows: dict) -> list[dict]:
+    out = []
+    for label, name, key, op, limit, unit in TARGETS:
+        if name not in rows:
+            continue
+        v = rows[name][key]
+        ok = v <= limit if op == "<=" else v >= limit
+        out.append({"target": label, "value": v, "limit": limit, "unit": unit, "op": op, "met": bool(ok),
+                    "off_by": (v / limit if op == "<=" else limit / max(v, 1e-300))})
+    return out
+
+
+def run(quick: bool = False, workers: int | None = None, only: list[str] | None = None,
+        ratio: bool = True, echo=print) -> dict:
+    from .parallel import default_workers
+    workers = workers or default_workers()
+    rows: dict[str, dict] = {}
+    for w in workloads(quick):
+        if only and w.name not in only:
+            continue
+        echo(f"  {w.name} ...", end="", flush=True)
+        rows[w.name] = run_workload(w, workers, ratio)
+        echo(f" {rows[w.name]['wall_s']:.2f} s")
+    if not only or "gui-1000" in only:
+        rows["gui-1000"] = gui_redraw(5 if quick else 15)
+    if "strip-100" in rows and "strip-10000" in rows:
+        rows["strip-ratio"] = {"name": "strip-ratio", "value": rows["strip-10000"]["ns_per_event_per_core"]
+                               / rows["strip-100"]["ns_per_event_per_core"]}
+    return {"machine": {"cores": workers, "python": platform.python_version(), "numpy": np.__version__,
+                        "platform": platform.platform(), "quick": quick},
+            "workloads": [r for r in rows.values() if "rays_per_s" in r],
+            "gui": rows.get("gui-1000"), "strip_ratio": rows.get("strip-ratio", {}).get("value"),
+            "targets": check_targets(rows)}
+
+
+def format_table(report: dict) -> str:
+    head = f"{'workload':<16}{'edges':>7}{'rays':>11}{'wkr':>4}{'events':>12}{'wall s':>8}{'rays/s':>11}" \
+           f"{'events/s':>11}{'ev/s/core':>11}{'peak MB':>9}{'speedup':>9}"
+    lines = [head, "-" * len(head)]
+    for r in report["workloads"]:
+        sp = f"{r['speedup']:.1f}x" if "speedup" in r else "-"
+        lines.append(f"{r['name']:<16}{r['edges']:>7}{r['rays']:>11,}{r['workers']:>4}{r['events']:>12,}"
+                     f"{r['wall_s']:>8.2f}{r['rays_per_s']:>11,.0f}{r['events_per_s']:>11,.0f}"
+                     f"{r['events_per_s_per_core']:>11,.0f}{r['peak_memory_mb']:>9,.0f}{sp:>9}")
+    lines.append("")
+    lines.append("speedup: plain tracer time / accelerated time, same rays on one core "
+                 "(" + ", ".join(f"{r['name']}: {r['ratio_rays']:,} rays" for r in report["workloads"]
+                                  if "ratio_rays" in r) + ")")
+    g = report.get("gui")
+    if g:
+        lines.append(f"gui-1000: compile + trace + segment table, {g['segments']:,} segments: "
+                     f"median {g['median_ms']:.1f} ms, best {g['best_ms']:.1f} ms")
+    if report.get("strip_ratio") is not None:
+        lines.append(f"per-event cost, 10,000-edge film / 100-edge film: {report['strip_ratio']:.2f}x")
+    lines.append("")
+    lines.append("targets:")
+    for t in report["targets"]:
+        mark = "met" if t["met"] else f"MISSED (by a factor {t['off_by']:.2f})"
+        lines.append(f"  {t['target']}: {t['value']:,.3g} {t['unit']} (target {t['op']} {t['limit']:,.3g}) {mark}")
+    return "\n".join(lines)
+
+
+def main(args) -> int:
+    from .cli import write_output
+    only = args.only.split(",") if getattr(args, "only", None) else None
+    print(f"raytrace bench{' --quick' if args.quick else ''}: {os.cpu_count()} cores")
+    report = run(quick=args.quick, workers=args.workers, only=only, ratio=not args.no_ratio)
+    print(format_table(report))
+    if args.json:
+        if not write_output(args.json, json.dumps(report, indent=2) + "\n"):
+            return 4
+    return 0
+
+
+def add_arguments(b) -> None:
+    b.add_argument("--quick", action="store_true", help="tiny workloads: a smoke test of a few seconds")
+    b.add_argument("--workers", type=int, help="processes for the full-size runs (default: all cores)")
+    b.add_argument("--only", metavar="NAMES", help="comma-separated workload names")
+    b.add_argument("--no-ratio", action="store_true", help="skip the plain-tracer comparison runs")
+    b.add_argument("--json", metavar="FILE", help="write the figures as JSON")
