@@ -204,9 +204,9 @@ def test_monitor_lying_on_a_face_is_accounted():
 
 
 @pytest.mark.xfail(strict=True, reason="tracer bug: a detector edge lying on a face ties with it in "
-                   "the nearest hit; when the detector wins, the pass-through child starts on the "
-                   "face and the face at t = 0 is skipped, so the ray goes on in the wrong medium; fix: "
-                   "process a boundary edge at the same point as a pass-through detector hit")
+                   "the nearest hit; when the face wins (this case) the detector never sees the ray, "
+                   "when the detector wins the face at t = 0 is skipped and the ray goes on in the "
+                   "wrong medium; fix: process both edges when a detector and a face meet at one point")
 def test_monitor_lying_on_a_face_lets_the_face_act():
     s = make([Part("block", "glass", rect(0, 0, 10, 10))], [pencil(-5.0, 5.0, 0.0)],
              [Detector("on face", (0, -5), (0, 15), absorbing=False)], glass=1.5)
