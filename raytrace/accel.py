@@ -62,7 +62,7 @@ def hit_function(cs: CompiledScene, method: str = "auto"):
 
             def auto(_cs, x, y, dx, dy, start):
                 if len(x) * ne <= SMALL_MATRIX:
-                    return nearest_hit(cs, x, y, dx, dy, start)
+                    return table.matrix(x, y, dx, dy, start)
                 return table.sweep(x, y, dx, dy, start)
             return auto
     if method == "sweep":
@@ -106,11 +106,44 @@ class EdgeTable:
         k = arc_constants(cs, self.arcs)
         self.arc_rows = [(int(i),) + tuple(float(k[f][j]) for f in ("cx", "cy", "r2", "sx", "sy", "qx", "qy"))
                          + (bool(k["major"][j]), float(k["tol"][j])) for j, i in enumerate(self.arcs)]
+        # the same constants as (edges, 1) columns for the one-matrix search of small batches
+        self.col_lines = self.lines[:, None]
+        self.col_line = tuple(np.array([r[j] for r in self.line_rows], dtype=float)[:, None] for j in (1, 2, 3, 4))
+        self.col_arc = {f: v[:, None] for f, v in k.items()}
         # unit normals of straight edges (right of travel), for the interface physics
         L = np.hypot(ex, ey)
         with np.errstate(divide="ignore", invalid="ignore"):
             self.nx = np.where(cs.is_arc, 0.0, ey / L)
             self.ny = np.where(cs.is_arc, 0.0, -ex / L)
+
+    def matrix(self, x, y, dx, dy, start_edge):
+        """All rays against all edges in one (edges x rays) matrix: `intersect.nearest_hit` with
+        cached constants, laid out so numpy's inner loops run along the rays (long, contiguous)
+        rather than along the few edges."""
+        n = len(x)
+        t_best = np.full(n, np.inf)
+        e_best = np.full(n, -1, dtype=np.int64)
+        if n == 0:
+            return t_best, e_best
+        X, Y, DX, DY = x[None, :], y[None, :], dx[None, :], dy[None, :]
+        cols = np.arange(n)
+        if len(self.lines):
+            ax, ay, ex, ey = self.col_line
+            t = line_t(X, Y, DX, DY, ax, ay, ex, ey, self.eps)
+            t[self.col_lines == start_edge[None, :]] = np.inf
+            k = np.argmin(t, axis=0)
+            t_best = t[k, cols]
+            e_best = np.where(t_best < np.inf, self.lines[k], -1)
+        if len(self.arcs):
+            a = self.col_arc
+            ta = arc_t(X, Y, DX, DY, a["cx"], a["cy"], a["r2"], a["sx"], a["sy"], a["qx"], a["qy"], a["major"],
+                       a["tol"], self.eps)
+            k = np.argmin(ta, axis=0)
+            tk = ta[k, cols]
+            better = tk < t_best
+            t_best = np.where(better, tk, t_best)
+            e_best = np.where(better, self.arcs[k], e_best)
+        return t_best, e_best
 
     def sweep(self, x, y, dx, dy, start_edge):
         n = len(x)

@@ -178,7 +178,8 @@ def gui_redraw(repeats: int = 15) -> dict:
     for _ in range(repeats + 2):
         t0 = time.perf_counter()
         cs = compile_scene(scene)
-        r = trace(scene, rays=1000, record="all", compiled=cs)
+        # as the GUI traces: one process, ray table on, no path tallies
+        r = trace(scene, rays=1000, record="all", compiled=cs, track_paths=False)
         seg = r.segments
         lines = np.column_stack([seg["x0"], seg["y0"], seg["x1"], seg["y1"]])
         times.append(time.perf_counter() - t0)

@@ -70,12 +70,13 @@ class PathTrie:
         return ((keys.astype(np.uint64) * _MULT) >> np.uint64(64 - self._bits)).astype(np.int64)
 
     def _grow(self, extra: int) -> None:
-        """Keep the table at most half full: double it and re-insert what it holds."""
-        if 2 * (self._filled + extra) <= len(self._keys):
+        """Keep the table at most a quarter full (short probe runs mean few vectorized rounds):
+        double it and re-insert what it holds."""
+        if 4 * (self._filled + extra) <= len(self._keys):
             return
         old = self._keys >= 0
         ok, ov = self._keys[old], self._vals[old]
-        while 2 * (self._filled + extra) > (1 << self._bits):
+        while 4 * (self._filled + extra) > (1 << self._bits):
             self._bits += 1
         self._keys = np.full(1 << self._bits, -1, dtype=np.int64)
         self._vals = np.full(1 << self._bits, -1, dtype=np.int64)
