@@ -19,6 +19,7 @@ def _atomic(path: str | os.PathLike, write) -> None:
             raise OSError(f"nothing was written to {path}")
         with open(tmp, "rb+") as fh:
             os.fsync(fh.fileno())
+        os.chmod(tmp, _file_mode(path))
         os.replace(tmp, path)
     except BaseException:
         try:
@@ -26,6 +27,16 @@ def _atomic(path: str | os.PathLike, write) -> None:
         except OSError:
             pass
         raise
+
+
+def _file_mode(path: Path) -> int:
+    """The mode a new file would get (temporary files start private), or the old file's mode."""
+    try:
+        return path.stat().st_mode & 0o777
+    except OSError:
+        umask = os.umask(0)
+        os.umask(umask)
+        return 0o666 & ~umask
 
 
 def save_widget_png(widget, path) -> None:

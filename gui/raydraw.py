@@ -102,3 +102,5 @@ def escape_markers(result, min_share: float) -> list[tuple[float, float, float, 
         out.append((x, y, float(esc[e]), f"{part} / {face}"))
     return out
 
+
+
