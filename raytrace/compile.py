@@ -290,20 +290,25 @@ def _bbox(e: Edge) -> tuple[float, float, float, float]:
 
 
 def _shared_pieces(pieces: list[_Piece], tol: float) -> list[_Piece]:
-    """Split every edge where an edge of another part starts or ends on it."""
+    """Split every edge where an edge of another part starts or ends on it.
+
+    Candidate pairs come from an R-tree of the edges' bounding boxes in one bulk query, so a
+    scene with many edges (a prism sheet of thousands of facets) is not compared pair by pair."""
+    import shapely
     n = len(pieces)
     if n == 0:
         return pieces
     boxes = np.array([_bbox(p.edge) for p in pieces])
     parts = np.array([p.part for p in pieces])
+    if len(np.unique(parts)) < 2:
+        return pieces
+    geoms = shapely.box(boxes[:, 0] - tol, boxes[:, 1] - tol, boxes[:, 2] + tol, boxes[:, 3] + tol)
+    tree = shapely.STRtree(geoms)
+    left, right = tree.query(geoms, predicate="intersects")
+    other = parts[left] != parts[right]
     cuts: list[list[float]] = [[] for _ in range(n)]
-    for i in range(n):
-        bx = boxes[i]
-        near = np.flatnonzero((boxes[:, 0] <= bx[2] + tol) & (boxes[:, 2] >= bx[0] - tol)
-                              & (boxes[:, 1] <= bx[3] + tol) & (boxes[:, 3] >= bx[1] - tol)
-                              & (parts != parts[i]))
-        for j in near:
-            cuts[i].extend(_split_points(pieces[i].edge, pieces[j].edge, tol))
+    for i, j in zip(left[other].tolist(), right[other].tolist()):
+        cuts[i].extend(_split_points(pieces[i].edge, pieces[j].edge, tol))
     out = []
     for i, p in enumerate(pieces):
         for e in _split_edge(p.edge, cuts[i]):

@@ -234,3 +234,46 @@ def test_unknown_material_is_a_scene_error_at_compile():
     with pytest.raises(SceneError) as info:
         compile_scene(Scene(parts=[Part("slab", "unobtainium", rect(0, 0, 1, 1))]))
     assert info.value.problems[0].path == "$.parts[0].material"
+
+
+def test_two_parts_cemented_to_one_edge():
+    """A slab whose bottom face carries two blocks side by side: the face splits at x = 5 into
+    two interfaces, one with each block."""
+    cs = compile_scene(scene_of(Part("slab", "crown", rect(0, 0, 10, 5)),
+                                Part("left foot", "pmma", rect(0, -5, 5, 0)),
+                                Part("right foot", "flint", rect(5, -5, 10, 0)),
+                                crown=1.52, pmma=1.49, flint=1.62))
+    s_, lf, rf = (medium(cs, n) for n in ("slab", "left foot", "right foot"))
+    assert sides(cs, 2.5, 0, UP) == (s_, lf)
+    assert sides(cs, 7.5, 0, UP) == (s_, rf)
+    assert sides(cs, 5, -2.5, RIGHT) == (rf, lf)
+    assert cs.n_edges == 4 + 1 + 4 + 4 - 3   # slab bottom in two; three shared pieces merged
+
+
+def test_cemented_lens_doublet_from_builders():
+    """Crown lens (r2 = -20) and flint meniscus (r1 = -20) built separately and placed vertex to
+    vertex: their common surface is one arc interface."""
+    from raytrace.geometry import ShapeSpec
+    from raytrace.shapes import build
+    a = ShapeSpec("lens", {"r1": 30.0, "r2": -20.0, "center_thickness": 5.0, "aperture": 10.0})
+    b = ShapeSpec("lens", {"r1": -20.0, "r2": -60.0, "center_thickness": 2.0, "aperture": 10.0}, (5.0, 0.0))
+    cs = compile_scene(scene_of(Part("crown", "crown", build(a), shape=a), Part("flint", "flint", build(b), shape=b),
+                                crown=1.52, flint=1.62))
+    assert sides(cs, 5.0, 0.0, RIGHT) == (medium(cs, "flint"), medium(cs, "crown"))
+    assert int(cs.is_arc.sum()) == 3               # front, shared, back
+
+
+def test_prism_sheet_on_a_guide_compiles_quickly():
+    """2000 microprisms cemented on a guide: one interface along the sheet's flat side, and the
+    edge pairing stays far from quadratic (common practice: bounding-box tree)."""
+    import time
+    from raytrace.geometry import ShapeSpec
+    from raytrace.shapes import build
+    spec = ShapeSpec("microprism_strip", {"pitch": 0.05, "prism_angle_deg": 90.0, "count": 2000,
+                                          "slab_thickness": 0.2})
+    guide = Part("guide", "pmma", rect(-50, -2, 50, 0))
+    t0 = time.perf_counter()
+    cs = compile_scene(scene_of(Part("sheet", "crown", build(spec), shape=spec), guide, crown=1.52, pmma=1.49))
+    assert time.perf_counter() - t0 < 5.0
+    assert sides(cs, 0.0, 0.0, UP) == (medium(cs, "sheet"), medium(cs, "guide"))
+    assert cs.n_edges == (2 * 2000 + 3) + 4 - 1
