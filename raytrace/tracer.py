@@ -106,7 +106,13 @@ class _SceneArrays:
         self.treat = ext(cs.treatment.astype(np.int64), T_ESCAPE)
         self.escape_code = ext(layout.escape0 + np.arange(ne), layout.escape_none)
         tab = edge_table(cs)
-        self.nx, self.ny = tab.nx, tab.ny
+        # index -1 ("no edge") reads harmless finite values: those rows are never used
+        self.nx, self.ny = ext(tab.nx, 1.0), ext(tab.ny, 0.0)
+        self.is_arc = ext(cs.is_arc, False)
+        self.cx, self.cy, self.radius = ext(cs.cx, 0.0), ext(cs.cy, 0.0), ext(np.where(cs.is_arc, cs.radius, 1.0), 1.0)
+        self.x0, self.y0, self.x1, self.y1 = (ext(a, 0.0) for a in (cs.x0, cs.y0, cs.x1, cs.y1))
+        self.med_plus, self.med_minus = ext(cs.med_plus, 0), ext(cs.med_minus, 0)
+        self.reflectance = ext(cs.reflectance, 0.0)
         self.has_arcs = bool(cs.is_arc.any())
         present = set(np.unique(cs.treatment).tolist())
         self.has = {k: k in present for k in (T_BARE, T_MIRROR, T_ABSORBER, T_AR, T_DETECT_ABSORB,
@@ -279,7 +285,9 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         if len(ie):
             deposit(K.escape_code[r["last"][ie]], fs[ie] + fp[ie], path[ie])
 
-        kids: list[tuple] = []   # (parent index, x, y, dx, dy, fs, fp, med, start, last, event, born)
+        # children: (rows, dx, dy, fs, fp, medium, last, event, born); the arrays run over all m
+        # rays of this generation and `rows` picks the parents, so nothing is gathered twice
+        kids: list[tuple] = []
 
         # --- detectors
         if K.has[T_DETECT_ABSORB] or K.has[T_DETECT_MONITOR]:
@@ -300,8 +308,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
                 if len(ip):
                     if recording:
                         end[ip] = E_PASSED
-                    kids.append((ip, hx[ip], hy[ip], dx[ip], dy[ip], fs[ip], fp[ip], med[ip], e[ip],
-                                 r["last"][ip], EV_PASS, B_PASSED))
+                    kids.append((ip, dx, dy, fs, fp, med, r["last"], EV_PASS, B_PASSED))
 
         # --- absorbing faces
         if K.has[T_ABSORBER]:
@@ -315,32 +322,25 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         if K.has[T_MIRROR]:
             mi = np.flatnonzero(treat == T_MIRROR)
             if len(mi):
+                nx, ny = _normals(cs, K, e, hx, hy)
+                rdx, rdy = fresnel.reflect(dx, dy, nx, ny)
+                R = K.reflectance[e]
                 em = e[mi]
-                nx, ny = _normals(cs, K, em, hx[mi], hy[mi])
-                rdx, rdy = fresnel.reflect(dx[mi], dy[mi], nx, ny)
-                R = cs.reflectance[em]
-                deposit(layout.face0 + em, (fs[mi] + fp[mi]) * (1 - R), path[mi])
+                deposit(layout.face0 + em, (fs[mi] + fp[mi]) * (1 - R[mi]), path[mi])
                 if recording:
                     end[mi] = E_REFLECTED
-                kids.append((mi, hx[mi], hy[mi], rdx, rdy, fs[mi] * R, fp[mi] * R, med[mi], em, em,
-                             EV_MIRROR, B_MIRROR))
+                kids.append((mi, rdx, rdy, fs * R, fp * R, med, e, EV_MIRROR, B_MIRROR))
 
         # --- dielectric interfaces (bare or anti-reflection)
         if K.has[T_BARE] or K.has[T_AR]:
             di = np.flatnonzero(treat == T_BARE) if not K.has[T_AR] else \
                 np.flatnonzero((treat == T_BARE) | (treat == T_AR))
             if len(di):
-                _interfaces(cs, K, r, di, e[di], hx[di], hy[di], fs[di], fp[di], treat[di], n_flat, W,
-                            mode, rng, stats, end, kids)
+                _interfaces(cs, K, r, di, e, hx, hy, fs, fp, treat, n_flat, W, mode, rng, stats, end, kids)
 
         # --- where rays end a segment at a vertex, keep count
-        hit = np.flatnonzero(treat < T_DETECT_ABSORB)
-        if len(hit):
-            eh = e[hit]
-            px, py = hx[hit], hy[hit]
-            d0 = (px - cs.x0[eh]) ** 2 + (py - cs.y0[eh]) ** 2
-            d1 = (px - cs.x1[eh]) ** 2 + (py - cs.y1[eh]) ** 2
-            stats["vertex_hits"] += int(np.count_nonzero(np.minimum(d0, d1) < vertex_tol2))
+        near = np.minimum((hx - K.x0[e]) ** 2 + (hy - K.y0[e]) ** 2, (hx - K.x1[e]) ** 2 + (hy - K.y1[e]) ** 2)
+        stats["vertex_hits"] += int(np.count_nonzero((near < vertex_tol2) & (treat < T_DETECT_ABSORB)))
 
         if seg_store is not None:
             want = record.wants(r["root"] + root_offset)
@@ -357,16 +357,16 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
                 for k, v in cols.items():
                     seg_store.setdefault(k, []).append(v)
 
+        # --- the next generation: children that carry enough flux
+        r, next_id = _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording,
+                                      next_id, hx, hy, e, opl, deposit)
+
         if codes:
             code = np.concatenate(codes)
             flux = np.concatenate(fluxes)
             bins += np.bincount(code, weights=flux, minlength=len(bins))
             if paths.enabled:
                 paths.deposit(code, np.concatenate(nodes), flux)
-
-        # --- the next generation: children that carry enough flux
-        r, next_id = _next_generation(r, kids, thr_root, path_thr, bins, paths, layout, K, fields, recording,
-                                      next_id, opl)
         gen += 1
 
     stats["elapsed_s"] = time.perf_counter() - t0
@@ -390,99 +390,94 @@ def _normals(cs, K, e, hx, hy):
     nx = K.nx[e]
     ny = K.ny[e]
     if K.has_arcs:
-        arc = np.flatnonzero(cs.is_arc[e])
+        arc = np.flatnonzero(K.is_arc[e])
         if len(arc):
             ea = e[arc]
-            r = cs.radius[ea]
-            nx[arc] = (hx[arc] - cs.cx[ea]) / r
-            ny[arc] = (hy[arc] - cs.cy[ea]) / r
+            r = K.radius[ea]
+            nx[arc] = (hx[arc] - K.cx[ea]) / r
+            ny[arc] = (hy[arc] - K.cy[ea]) / r
     return nx, ny
 
 
-def _interfaces(cs, K, r, idx, e, hx, hy, fs, fp, treat, n_flat, W, mode, rng, stats, end, kids):
-    dx, dy = r["dx"][idx], r["dy"][idx]
-    nx, ny = _normals(cs, K, e, hx, hy)
-    cos_raw = dx * nx + dy * ny
-    from_plus = cos_raw < 0                      # travelling against the normal
-    mp, mm = cs.med_plus[e], cs.med_minus[e]
-    m_from = np.where(from_plus, mp, mm)
-    m_to = np.where(from_plus, mm, mp)
-    stats["medium_mismatches"] += int(np.count_nonzero(m_from != r["med"][idx]))
-    if W > 1:
-        wli = r["wli"][idx]
-        n1 = n_flat[m_from * W + wli]
-        n2 = n_flat[m_to * W + wli]
-    else:
-        n1 = n_flat[m_from]
-        n2 = n_flat[m_to]
-    ci = np.abs(cos_raw)
-    stats["grazing_hits"] += int(np.count_nonzero(ci < 1e-9))
-    # normal pointing back into the incident medium
-    sgn = np.where(from_plus, 1.0, -1.0)
-    bnx = nx * sgn
-    bny = ny * sgn
-    cos_t, tir = fresnel.snell_cos_t(n1, n2, ci)
-    Rs, Rp = fresnel.fresnel_rs_rp(n1, n2, ci, cos_t, tir)
-    if K.has[T_AR]:
-        ar = (treat == T_AR) & ~tir
-        if ar.any():
-            Rs = np.where(ar, 0.0, Rs)
-            Rp = np.where(ar, 0.0, Rp)
-    n_tir = int(np.count_nonzero(tir))
-    stats["tir_events"] += n_tir
-    two_ci = 2 * ci
-    rdx = dx + two_ci * bnx
-    rdy = dy + two_ci * bny
-    tr = np.flatnonzero(~tir) if n_tir else None     # None: every ray transmits too
+def _interfaces(cs, K, r, di, e, hx, hy, fs, fp, treat, n_flat, W, mode, rng, stats, end, kids):
+    """Fresnel physics at bare and anti-reflection faces.
 
-    def transmitted(sel):
-        d_x, d_y, b_x, b_y = (dx, dy, bnx, bny) if sel is None else (dx[sel], dy[sel], bnx[sel], bny[sel])
-        c_i, c_t = (ci, cos_t) if sel is None else (ci[sel], cos_t[sel])
-        eta = n1 / n2 if sel is None else n1[sel] / n2[sel]
-        tdx, tdy = fresnel.refract(d_x, d_y, b_x, b_y, eta, c_i, c_t)
+    Computed for every ray of the generation (rows `di` are the ones at such a face): on a
+    virtual machine gathering the subset first costs more than the arithmetic on the few other
+    rays, whose results are simply not used."""
+    dx, dy = r["dx"], r["dy"]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        nx, ny = _normals(cs, K, e, hx, hy)
+        cos_raw = dx * nx + dy * ny
+        from_plus = cos_raw < 0                      # travelling against the normal
+        mp, mm = K.med_plus[e], K.med_minus[e]
+        m_from = np.where(from_plus, mp, mm)
+        m_to = np.where(from_plus, mm, mp)
+        if W > 1:
+            wli = r["wli"]
+            n1 = n_flat[m_from * W + wli]
+            n2 = n_flat[m_to * W + wli]
+        else:
+            n1 = n_flat[m_from]
+            n2 = n_flat[m_to]
+        ci = np.abs(cos_raw)
+        # normal pointing back into the incident medium
+        sgn = np.where(from_plus, 1.0, -1.0)
+        bnx = nx * sgn
+        bny = ny * sgn
+        cos_t, tir = fresnel.snell_cos_t(n1, n2, ci)
+        Rs, Rp = fresnel.fresnel_rs_rp(n1, n2, ci, cos_t, tir)
+        if K.has[T_AR]:
+            ar = (treat == T_AR) & ~tir
+            if ar.any():
+                Rs = np.where(ar, 0.0, Rs)
+                Rp = np.where(ar, 0.0, Rp)
+        two_ci = 2 * ci
+        rdx = dx + two_ci * bnx
+        rdy = dy + two_ci * bny
+        tdx, tdy = fresnel.refract(dx, dy, bnx, bny, n1 / n2, ci, cos_t)
         # renormalise against rounding so directions stay unit vectors over many bounces
         tn = np.hypot(tdx, tdy)
         tn[tn == 0] = 1.0
-        return tdx / tn, tdy / tn
-
+        tdx /= tn
+        tdy /= tn
+    all_rays = len(di) == len(dx)
+    sub = (lambda v: v) if all_rays else (lambda v: v[di])
+    tir_d = sub(tir)
+    n_tir = int(np.count_nonzero(tir_d))
+    stats["tir_events"] += n_tir
+    stats["medium_mismatches"] += int(np.count_nonzero(sub(m_from != r["med"])))
+    stats["grazing_hits"] += int(np.count_nonzero(sub(ci) < 1e-9))
     ev_r = np.where(tir, EV_TIR, EV_REFLECT) if n_tir else EV_REFLECT
     born_r = np.where(tir, B_TIR, B_REFLECTED) if n_tir else B_REFLECTED
     if mode == BRANCHING:
         if end is not None:
-            end[idx] = np.where(tir, E_TIR, E_REFRACTED)
-        kids.append((idx, hx, hy, rdx, rdy, fs * Rs, fp * Rp, m_from, e, e, ev_r, born_r))
-        if tr is None:
-            tdx, tdy = transmitted(None)
-            kids.append((idx, hx, hy, tdx, tdy, fs * (1 - Rs), fp * (1 - Rp), m_to, e, e, EV_THROUGH,
-                         B_REFRACTED))
-        elif len(tr):
-            tdx, tdy = transmitted(tr)
-            kids.append((idx[tr], hx[tr], hy[tr], tdx, tdy, (fs * (1 - Rs))[tr], (fp * (1 - Rp))[tr],
-                         m_to[tr], e[tr], e[tr], EV_THROUGH, B_REFRACTED))
+            end[di] = np.where(tir_d, E_TIR, E_REFRACTED)
+        kids.append((di, rdx, rdy, fs * Rs, fp * Rp, m_from, e, ev_r, born_r))
+        tr = di[~tir_d] if n_tir else di
+        if len(tr):
+            kids.append((tr, tdx, tdy, fs * (1 - Rs), fp * (1 - Rp), m_to, e, EV_THROUGH, B_REFRACTED))
         return
 
     # Monte Carlo: reflect with probability R, carry the whole flux on, s and p reweighted
     f = fs + fp
-    R = np.where(f > 0, (fs * Rs + fp * Rp) / np.where(f > 0, f, 1.0), 0.0)
-    refl = rng.random(len(idx)) < R
-    if end is not None:
-        end[idx] = np.where(tir, E_TIR, np.where(refl, E_REFLECTED, E_REFRACTED))
     with np.errstate(invalid="ignore", divide="ignore"):
+        R = np.where(f > 0, (fs * Rs + fp * Rp) / np.where(f > 0, f, 1.0), 0.0)
         sr = np.where(R > 0, 1.0 / R, 0.0)
         st = np.where(R < 1, 1.0 / (1.0 - R), 0.0)
-    s = np.flatnonzero(refl)
+    refl = rng.random(len(di)) < R[di]
+    if end is not None:
+        end[di] = np.where(tir_d, E_TIR, np.where(refl, E_REFLECTED, E_REFRACTED))
+    s = di[refl]
     if len(s):
-        pick = lambda v: v[s] if isinstance(v, np.ndarray) else v
-        kids.append((idx[s], hx[s], hy[s], rdx[s], rdy[s], (fs * Rs * sr)[s], (fp * Rp * sr)[s],
-                     m_from[s], e[s], e[s], pick(ev_r), pick(born_r)))
-    t_ = np.flatnonzero(~refl)
+        kids.append((s, rdx, rdy, fs * Rs * sr, fp * Rp * sr, m_from, e, ev_r, born_r))
+    t_ = di[~refl]
     if len(t_):
-        tdx, tdy = transmitted(t_)
-        kids.append((idx[t_], hx[t_], hy[t_], tdx, tdy, (fs * (1 - Rs) * st)[t_], (fp * (1 - Rp) * st)[t_],
-                     m_to[t_], e[t_], e[t_], EV_THROUGH, B_REFRACTED))
+        kids.append((t_, tdx, tdy, fs * (1 - Rs) * st, fp * (1 - Rp) * st, m_to, e, EV_THROUGH, B_REFRACTED))
 
 
-def _next_generation(r, kids, thr_root, path_thr, bins, paths, layout, K, fields, recording, next_id, opl):
+def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, next_id, hx, hy, e, opl,
+                     deposit):
     """Gather the surviving children into the next generation's arrays.
 
     A child whose flux is below its source ray's threshold ends here: its flux is booked as
@@ -491,51 +486,42 @@ def _next_generation(r, kids, thr_root, path_thr, bins, paths, layout, K, fields
     if not kids:
         return {k: v[:0] for k, v in r.items()}, next_id
     root = r["root"]
-    parts = []
-    kid_flux = []
-    faint_flux = []
-    faint_nodes = []
+    thr = thr_root[root]
+    good = []
     for kid in kids:
-        idx, kfs, kfp = kid[0], kid[5], kid[6]
-        f = kfs + kfp
-        ok = f >= thr_root[root[idx]]
+        rows, kfs, kfp = kid[0], kid[3], kid[4]
+        ok = (kfs + kfp)[rows] >= thr[rows] if len(rows) != len(root) else (kfs + kfp) >= thr
         if not ok.all():
-            bad = ~ok
-            faint_flux.append(f[bad])
-            faint_nodes.append(r["path"][idx[bad]])
-            sel = np.flatnonzero(ok)
-            kid = tuple(v[sel] if isinstance(v, np.ndarray) else v for v in kid)
-            f = f[sel]
-        if len(kid[0]):
-            parts.append(kid)
-            kid_flux.append(f)
-    if faint_flux:
-        ff = np.concatenate(faint_flux)
-        bins[layout.trunc0 + TRUNC_FLUX] += ff.sum()
-        if paths.enabled:
-            paths.deposit(np.full(len(ff), layout.trunc0 + TRUNC_FLUX), np.concatenate(faint_nodes), ff)
+            bad = rows[~ok]
+            deposit(np.full(len(bad), layout.trunc0 + TRUNC_FLUX), kfs[bad] + kfp[bad], r["path"][bad])
+            rows = rows[ok]
+        good.append(rows)
+    parts = [(g, k) for g, k in zip(good, kids) if len(g)]
     if not parts:
         return {k: v[:0] for k, v in r.items()}, next_id
-    cat = np.concatenate if len(parts) > 1 else (lambda seq: seq[0])
+    one = len(parts) == 1
 
     def col(j):
-        vals = [p[j] if isinstance(p[j], np.ndarray) else np.full(len(p[0]), p[j], dtype=np.int64) for p in parts]
-        return cat(vals)
+        vals = [k[j][g] if isinstance(k[j], np.ndarray) else np.full(len(g), k[j], dtype=np.int64)
+                for g, k in parts]
+        return vals[0] if one else np.concatenate(vals)
 
-    pidx = col(0)
-    out = {"x": col(1), "y": col(2), "dx": col(3), "dy": col(4), "fs": col(5), "fp": col(6),
-           "med": col(7), "start": col(8), "last": col(9), "opl": opl[pidx], "wli": r["wli"][pidx],
-           "root": root[pidx]}
+    pidx = parts[0][0] if one else np.concatenate([g for g, _ in parts])
+    start = e[pidx]
+    same_last = all(k[6] is e for _, k in parts)
+    out = {"x": hx[pidx], "y": hy[pidx], "dx": col(1), "dy": col(2), "fs": col(3), "fp": col(4),
+           "med": col(5), "start": start, "last": start if same_last else col(6), "opl": opl[pidx],
+           "wli": r["wli"][pidx], "root": root[pidx]}
     parent_path = r["path"][pidx]
     if paths.enabled:
-        ev = col(10)
-        bright = cat(kid_flux) >= path_thr[out["root"]]
+        ev = col(7)
+        bright = (out["fs"] + out["fp"]) >= path_thr[out["root"]]
         if bright.all():
-            out["path"] = paths.extend(parent_path, out["start"] * N_EVENT_KINDS + ev, K.n_codes)
+            out["path"] = paths.extend(parent_path, start * N_EVENT_KINDS + ev, K.n_codes)
         else:
             node = np.full(len(pidx), paths.other_node(), dtype=np.int64)
             b = np.flatnonzero(bright)
-            node[b] = paths.extend(parent_path[b], out["start"][b] * N_EVENT_KINDS + ev[b], K.n_codes)
+            node[b] = paths.extend(parent_path[b], start[b] * N_EVENT_KINDS + ev[b], K.n_codes)
             out["path"] = node
     else:
         out["path"] = parent_path
@@ -543,7 +529,7 @@ def _next_generation(r, kids, thr_root, path_thr, bins, paths, layout, K, fields
         k = len(pidx)
         out["rid"] = np.arange(next_id, next_id + k, dtype=np.int64)
         out["parent"] = r["rid"][pidx]
-        out["born"] = col(11)
+        out["born"] = col(8)
         next_id += k
     return out, next_id
 
