@@ -112,6 +112,7 @@ def check_geometry(scene: Scene, problems: Problems, part_paths: list[str] | Non
 
     `part_paths` gives each part's JSON path (parts that failed to load are not in the list)."""
     tol = flatten_tolerance(scene)
+    size = scene.size_hint()
     paths = part_paths or [f"$.parts[{i}]" for i in range(len(scene.parts))]
     polys: list = []
     seen: dict[str, int] = {}
@@ -121,7 +122,7 @@ def check_geometry(scene: Scene, problems: Problems, part_paths: list[str] | Non
             problems.add(f"{path}.name", part.name, f"a name not already used by {paths[seen[part.name]]}")
         seen.setdefault(part.name, i)
         try:
-            polys.append(_check_part(part, path, scene.size_hint(), tol, problems))
+            polys.append(_check_part(part, path, size, tol, problems))
         except (ArithmeticError, ValueError, shapely_error()) as exc:
             # coordinates so extreme that measuring them fails: say so instead of crashing
             problems.add(path, f"<geometry that cannot be measured: {exc}>",
@@ -183,20 +184,26 @@ def _check_part(part: Part, path: str, size: float, tol: float, problems: Proble
 
 
 def _check_overlaps(scene: Scene, polys: list, paths: list[str], tol: float, problems: Problems) -> None:
-    """Partial overlaps are errors; nesting (one inside the other) and touching are fine."""
+    """Partial overlaps are errors; nesting (one inside the other) and touching are fine.
+
+    Only pairs whose shapes intersect are measured; an R-tree finds them in one bulk query."""
+    import shapely
     size = scene.size_hint()
-    for i in range(len(polys)):
-        for j in range(i + 1, len(polys)):
-            a, b = polys[i], polys[j]
-            if a is None or b is None or not a.intersects(b):
-                continue
-            inter = a.intersection(b).area
-            area_tol = 4 * tol * (a.length + b.length) + 1e-12 * size ** 2
-            if inter <= area_tol:
-                continue
-            if b.difference(a).area <= area_tol or a.difference(b).area <= area_tol:
-                continue   # nested
-            problems.add(paths[j], f"<part {scene.parts[j].name!r} overlapping part {scene.parts[i].name!r} "
+    usable = [k for k, poly in enumerate(polys) if poly is not None]
+    if len(usable) < 2:
+        return
+    tree = shapely.STRtree([polys[k] for k in usable])
+    left, right = tree.query([polys[k] for k in usable], predicate="intersects")
+    pairs = sorted({(usable[a], usable[b]) for a, b in zip(left.tolist(), right.tolist()) if a < b})
+    for i, j in pairs:
+        a, b = polys[i], polys[j]
+        inter = a.intersection(b).area
+        area_tol = 4 * tol * (a.length + b.length) + 1e-12 * size ** 2
+        if inter <= area_tol:
+            continue
+        if b.difference(a).area <= area_tol or a.difference(b).area <= area_tol:
+            continue   # nested
+        problems.add(paths[j], f"<part {scene.parts[j].name!r} overlapping part {scene.parts[i].name!r} "
                                    f"({paths[i]}) by {inter:.6g} mm^2>",
                          "parts that are apart, touch along a boundary, or lie wholly one inside the other")
 
@@ -366,11 +373,18 @@ def compile_scene(scene: Scene, check: bool = True) -> CompiledScene:
     polys = [p.to_shapely(ftol) for p in scene.parts]
     areas = [p.area() for p in scene.parts]
 
-    # parent of each part: the smallest part that contains it
+    # parent of each part: the smallest part that contains it (candidates: parts whose shapes
+    # intersect, from one bulk R-tree query)
     parent = [-1] * n_parts
+    candidates: list[list[int]] = [[] for _ in range(n_parts)]
+    if n_parts > 1:
+        tree = shapely.STRtree(polys)
+        left, right = tree.query(polys, predicate="intersects")
+        for i, j in zip(left.tolist(), right.tolist()):
+            candidates[i].append(j)
     for i in range(n_parts):
         best = -1
-        for j in range(n_parts):
+        for j in sorted(candidates[i]):
             if i == j or areas[j] <= areas[i]:
                 continue
             slack = 4 * ftol * (polys[i].length + polys[j].length)

@@ -277,3 +277,16 @@ def test_prism_sheet_on_a_guide_compiles_quickly():
     assert time.perf_counter() - t0 < 5.0
     assert sides(cs, 0.0, 0.0, UP) == (medium(cs, "sheet"), medium(cs, "guide"))
     assert cs.n_edges == (2 * 2000 + 3) + 4 - 1
+
+
+def test_many_parts_check_and_compile_quickly():
+    """1000 separate blocks and one core in the last: overlap and nesting checks only measure
+    pairs that intersect, so this stays fast (it took 10 s when every pair was measured)."""
+    import time
+    parts = [Part(f"block {i}", "crown", rect(2 * i, 0, 2 * i + 1, 1)) for i in range(1000)]
+    parts.append(Part("core", "pmma", rect(1998.25, 0.25, 1998.75, 0.75)))
+    t0 = time.perf_counter()
+    cs = compile_scene(scene_of(*parts, crown=1.52, pmma=1.49))
+    assert time.perf_counter() - t0 < 5.0
+    assert sides(cs, 1998.5, 0.25, UP) == (medium(cs, "core"), medium(cs, "block 999"))
+    assert sides(cs, 0.5, 0.0, UP) == (medium(cs, "block 0"), AMBIENT)
