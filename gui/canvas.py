@@ -157,7 +157,7 @@ class Canvas(QWidget):
                 item.setZValue(5 + KINDS.index(k) + 0.1 * (len(LEVELS) - lv))   # bright on top
                 self.plot.addItem(item)
                 self._ray_items[k].append(item)
-        self._hits = pg.ScatterPlotItem(size=4, pen=None, brush=pg.mkBrush(style.HIT), pxMode=True)
+        self._hits = pg.ScatterPlotItem(size=5, pen=None, brush=pg.mkBrush(style.HIT), pxMode=True)
         self._hits.setZValue(16)
         self._escapes = pg.ScatterPlotItem(pxMode=True, brush=None, pen=_pen(style.ESCAPE_MARK, 2))
         self._escapes.setZValue(11)

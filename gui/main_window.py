@@ -67,12 +67,16 @@ class MainWindow(QMainWindow):
         result_tabs.addTab(self.ledger, "Where the flux went")
         result_tabs.addTab(_scrolled(self.profiles), "Detector profiles")
         self.edit_tabs, self.result_tabs = edit_tabs, result_tabs
+        docks = []
         for title, w, name in (("Edit", edit_tabs, "edit"), ("Results", result_tabs, "results")):
             dock = QDockWidget(title, self)
             dock.setObjectName(name)
             dock.setWidget(w)
             dock.setFeatures(QDockWidget.DockWidgetMovable | QDockWidget.DockWidgetFloatable)
             self.addDockWidget(Qt.RightDockWidgetArea, dock)
+            docks.append(dock)
+        self.resizeDocks(docks, [520, 380], Qt.Vertical)
+        self.resizeDocks(docks[:1], [470], Qt.Horizontal)
 
         self.cursor_label = QLabel("x -, y - mm")
         self.cursor_label.setMinimumWidth(190)

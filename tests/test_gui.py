@@ -496,3 +496,51 @@ def test_screenshot_of_a_bad_scene_reports_problems(tmp_path, home):
     assert run.returncode == 1
     assert "$.parts[0].material" in run.stderr and "unobtainium" in run.stderr
     assert not (tmp_path / "x.png").exists()
+
+
+# ---------------------------------------------------------------------------- real mouse events
+
+def _mouse_drag(qtbot, canvas, a, b, steps=10):
+    """Press, move with the button held, release: real Qt mouse events on the drawing.
+    pyqtgraph drops move events closer than ~16 ms apart, hence the short waits."""
+    from PySide6.QtCore import QEvent, QPointF, Qt
+    from PySide6.QtGui import QMouseEvent
+    from PySide6.QtTest import QTest
+    from PySide6.QtWidgets import QApplication
+    vp = canvas.plot.viewport()
+
+    def widget_point(p):
+        return canvas.plot.mapFromScene(canvas.view.mapViewToScene(QPointF(*p)))
+    pa, pb = widget_point(a), widget_point(b)
+    QTest.mousePress(vp, Qt.LeftButton, Qt.NoModifier, pa)
+    for k in range(1, steps + 1):
+        p = QPointF(pa + (pb - pa) * (k / steps))
+        QApplication.sendEvent(vp, QMouseEvent(QEvent.MouseMove, p, p, QPointF(vp.mapToGlobal(p.toPoint())),
+                                               Qt.NoButton, Qt.LeftButton, Qt.NoModifier))
+        qtbot.wait(20)
+    QTest.mouseRelease(vp, Qt.LeftButton, Qt.NoModifier, pb)
+
+
+def test_real_mouse_drags_a_part_and_pans_empty_space(qtbot, win):
+    open_sample(qtbot, win, WINDOW)
+    win.resize(1200, 800)
+    win.canvas.fit()
+    qtbot.wait(10)
+    s0 = win.doc.scene
+    x0, y0, x1, y1 = s0.parts[0].outer.bounds()
+    a = ((x0 + x1) / 2, (y0 + y1) / 2)
+    _mouse_drag(qtbot, win.canvas, a, (a[0] + 3.0, a[1]))
+    moved = win.doc.scene.parts[0].shape.position
+    px = win.canvas.pixel_mm()
+    assert moved[0] == pytest.approx(s0.parts[0].shape.position[0] + 3.0, abs=2 * px)
+    assert moved[1] == pytest.approx(s0.parts[0].shape.position[1], abs=2 * px)
+    assert win.doc.undo_stack.count() == 1
+    # empty space: the view pans, the scene stays
+    scene = win.doc.scene
+    (vx0, vx1), _ = win.canvas.view.viewRange()
+    empty = (vx0 + 0.05 * (vx1 - vx0), y1 - 1.0)
+    assert win.canvas.pick(*empty) is None
+    _mouse_drag(qtbot, win.canvas, empty, (empty[0] + 5.0, empty[1]))
+    assert win.doc.scene is scene
+    (nx0, nx1), _ = win.canvas.view.viewRange()
+    assert nx0 < vx0 - 2.0, "dragging empty space to the right shows more on the left"

@@ -4,7 +4,7 @@ from __future__ import annotations
 import json
 
 from PySide6.QtWidgets import (QComboBox, QDialog, QDialogButtonBox, QDoubleSpinBox, QFormLayout,
-                               QLabel, QLineEdit, QSpinBox, QWidget)
+                               QGroupBox, QLabel, QLineEdit, QSpinBox, QWidget)
 
 from raytrace.geometry import ShapeSpec
 from raytrace.shapes import PARAMETERS, ShapeParameterError, build
@@ -60,9 +60,8 @@ class ShapeDialog(QDialog):
         self.x = _coord(centre[0])
         self.y = _coord(centre[1])
         self.rot = _coord(0.0, " deg")
-        self.params_box = QWidget()
+        self.params_box = QGroupBox("Parameters")
         self.params_form = QFormLayout(self.params_box)
-        self.params_form.setContentsMargins(0, 0, 0, 0)
         self.error = QLabel("")
         self.error.setWordWrap(True)
         self.error.setStyleSheet("color: #b00020")
