@@ -80,6 +80,18 @@ def flatten_tolerance(scene: Scene) -> float:
     return 1e-5 * scene.size_hint()
 
 
+def part_tolerance(part: Part, scene_size: float) -> float:
+    """Arc flattening tolerance for measuring one part: set by the part's own size, so a 1 mm
+    part in a 10 m scene is not measured with a 0.1 mm chord error."""
+    return 1e-5 * max(part.size_hint(), 1e-9 * max(scene_size, 1.0))
+
+
+def _area_slack(a, b, tol_a: float, tol_b: float, size: float) -> float:
+    """Area two flattened shapes may differ by without a real difference: each arc's chords
+    cut off at most tol x length, plus rounding of coordinates of the scene's size."""
+    return 4 * (tol_a * a.length + tol_b * b.length) + 1e-12 * size * (a.length + b.length)
+
+
 def resolve_materials(scene: Scene, problems: Problems, part_paths: list[str] | None = None,
                       skip: frozenset[str] = frozenset()) -> dict[str, Material]:
     """Every material name used by the scene, resolved against user materials then the catalog.
@@ -122,13 +134,13 @@ def check_geometry(scene: Scene, problems: Problems, part_paths: list[str] | Non
             problems.add(f"{path}.name", part.name, f"a name not already used by {paths[seen[part.name]]}")
         seen.setdefault(part.name, i)
         try:
-            polys.append(_check_part(part, path, size, tol, problems))
+            polys.append(_check_part(part, path, size, part_tolerance(part, size), problems))
         except (ArithmeticError, ValueError, shapely_error()) as exc:
             # coordinates so extreme that measuring them fails: say so instead of crashing
             problems.add(path, f"<geometry that cannot be measured: {exc}>",
                          "coordinates and radii of ordinary size (mm)")
             polys.append(None)
-    _check_overlaps(scene, polys, paths, tol, problems)
+    _check_overlaps(scene, polys, paths, problems)
 
 
 def shapely_error():
@@ -183,7 +195,7 @@ def _check_part(part: Part, path: str, size: float, tol: float, problems: Proble
     return poly
 
 
-def _check_overlaps(scene: Scene, polys: list, paths: list[str], tol: float, problems: Problems) -> None:
+def _check_overlaps(scene: Scene, polys: list, paths: list[str], problems: Problems) -> None:
     """Partial overlaps are errors; nesting (one inside the other) and touching are fine.
 
     Only pairs whose shapes intersect are measured; an R-tree finds them in one bulk query."""
@@ -198,7 +210,7 @@ def _check_overlaps(scene: Scene, polys: list, paths: list[str], tol: float, pro
     for i, j in pairs:
         a, b = polys[i], polys[j]
         inter = a.intersection(b).area
-        area_tol = 4 * tol * (a.length + b.length) + 1e-12 * size ** 2
+        area_tol = _area_slack(a, b, part_tolerance(scene.parts[i], size), part_tolerance(scene.parts[j], size), size)
         if inter <= area_tol:
             continue
         if b.difference(a).area <= area_tol or a.difference(b).area <= area_tol:
@@ -368,29 +380,29 @@ def compile_scene(scene: Scene, check: bool = True) -> CompiledScene:
 
     size = scene.size_hint()
     tol = 1e-9 * max(size, 1e-3)
-    ftol = flatten_tolerance(scene)
     n_parts = len(scene.parts)
-    polys = [p.to_shapely(ftol) for p in scene.parts]
+    polys = [p.to_shapely(part_tolerance(p, size)) for p in scene.parts]
     areas = [p.area() for p in scene.parts]
 
-    # parent of each part: the smallest part that contains it (candidates: parts whose shapes
-    # intersect, from one bulk R-tree query)
+    # parent of each part: the smallest part that contains it.  Partial overlaps were refused by
+    # the check, so a part whose interior point lies inside a larger part is nested in it.
+    # Candidates come from one bulk R-tree query of intersecting shapes.
     parent = [-1] * n_parts
     candidates: list[list[int]] = [[] for _ in range(n_parts)]
     if n_parts > 1:
         tree = shapely.STRtree(polys)
         left, right = tree.query(polys, predicate="intersects")
         for i, j in zip(left.tolist(), right.tolist()):
-            candidates[i].append(j)
+            if i != j and areas[j] > areas[i]:
+                candidates[i].append(j)
     for i in range(n_parts):
+        if not candidates[i]:
+            continue
+        inner = polys[i].point_on_surface()
         best = -1
         for j in sorted(candidates[i]):
-            if i == j or areas[j] <= areas[i]:
-                continue
-            slack = 4 * ftol * (polys[i].length + polys[j].length)
-            if polys[i].difference(polys[j]).area <= slack and polys[i].intersection(polys[j]).area > slack:
-                if best < 0 or areas[j] < areas[best]:
-                    best = j
+            if polys[j].contains(inner) and (best < 0 or areas[j] < areas[best]):
+                best = j
         parent[i] = best
 
     pieces: list[_Piece] = []

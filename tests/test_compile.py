@@ -290,3 +290,20 @@ def test_many_parts_check_and_compile_quickly():
     assert time.perf_counter() - t0 < 5.0
     assert sides(cs, 1998.5, 0.25, UP) == (medium(cs, "core"), medium(cs, "block 999"))
     assert sides(cs, 0.5, 0.0, UP) == (medium(cs, "block 0"), AMBIENT)
+
+
+def test_small_overlap_in_a_large_scene_is_still_found():
+    """Two 1 mm blocks overlapping by 0.2 x 0.5 = 0.1 mm^2, in a scene 2 m across: the area
+    slack must follow the parts' size, not the scene's."""
+    s = scene_of(Part("a", "crown", rect(0, 0, 1, 1)), Part("b", "crown", rect(0.8, 0.5, 1.8, 1.5)),
+                 Part("far away", "crown", rect(2000, 0, 2001, 1)), crown=1.5)
+    with pytest.raises(SceneError) as info:
+        compile_scene(s)
+    assert "by 0.1 mm^2" in info.value.problems[0].found
+
+
+def test_small_core_nested_in_a_large_scene():
+    s = scene_of(Part("cladding", "clad", rect(0, 0, 1, 1)), Part("core", "core", rect(0.4, 0.4, 0.6, 0.6)),
+                 Part("far away", "clad", rect(5000, 0, 5001, 1)), clad=1.45, core=1.5)
+    cs = compile_scene(s)
+    assert sides(cs, 0.5, 0.4, UP) == (medium(cs, "core"), medium(cs, "cladding"))
