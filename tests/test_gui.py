@@ -544,3 +544,90 @@ def test_real_mouse_drags_a_part_and_pans_empty_space(qtbot, win):
     assert win.doc.scene is scene
     (nx0, nx1), _ = win.canvas.view.viewRange()
     assert nx0 < vx0 - 2.0, "dragging empty space to the right shows more on the left"
+
+
+# ---------------------------------------------------------------------------- panels and controls
+
+def test_user_material_defined_and_used(qtbot, win):
+    from raytrace.materials import AbbeGlass
+    open_sample(qtbot, win, WINDOW)
+    win.ask_material = lambda taken: AbbeGlass("my glass", 1.6, 40.0)
+    win.properties.ask_material = win.ask_material
+    win.canvas.select((edits.PART, 0))
+    win.properties.define_material(for_part=0)
+    s = win.doc.scene
+    assert s.materials["my glass"] == AbbeGlass("my glass", 1.6, 40.0)
+    assert s.parts[0].material == "my glass"
+    assert win.doc.undo_stack.count() == 1
+    result = wait_traced(qtbot, win)
+    assert ledger_rows(result) == ledger_rows(raytrace.trace(s))
+
+
+def test_mode_and_limits_controls_trace_like_the_engine(qtbot, win):
+    open_sample(qtbot, win, SAMPLES / "cemented-prism-pair.json")
+    c = win.controls
+    c.mode.setCurrentIndex(c.mode.findData("monte_carlo"))
+    c.mode.activated.emit(c.mode.currentIndex())
+    c.depth.setValue(2)
+    c.depth.editingFinished.emit()
+    c.threshold.setValue(0.01)
+    c.threshold.editingFinished.emit()
+    s = win.doc.scene.settings
+    assert (s.mode, s.max_depth, s.min_relative_flux) == ("monte_carlo", 2, 0.01)
+    result = wait_traced(qtbot, win)
+    assert ledger_rows(result) == ledger_rows(raytrace.trace(win.doc.scene))
+    assert result.ledger.flux("truncated", reason="maximum depth") > 0, "depth 2 truncates rays inside the prisms"
+
+
+def test_escape_markers_add_up_to_the_ledger(qtbot, win):
+    """Every escape marker sits on a face of the ledger's escape rows; per face the markers'
+    shares add up to the ledger's share (markers below 0.1 % are left out)."""
+    result = open_sample(qtbot, win, LIGHT_PIPE)
+    total = result.ledger.source_flux
+    per_label = {}
+    for x, y, share, label in win.canvas.drawing.escapes:
+        per_label[label] = per_label.get(label, 0.0) + share
+    rows = {f"{b.part} / {b.face}": b.flux / total for b in result.ledger.buckets if b.kind == "escaped" and b.part}
+    assert per_label and set(per_label) <= set(rows)
+    for label, share in per_label.items():
+        assert share == pytest.approx(rows[label], abs=1e-3 * len(result.compiled.face_labels))
+    assert set(rows) - set(per_label) <= {k for k, v in rows.items() if v < 2e-2}
+
+
+def test_profile_panel_shows_the_detector_report(qtbot, win):
+    from raytrace.detectors import detector_report
+    result = open_sample(qtbot, win, LIGHT_PIPE)
+    rep = win.profiles.report
+    ref = detector_report(result, "viewer side")
+    assert rep.name == "viewer side"
+    assert list(rep.irradiance.flux) == list(ref.irradiance.flux)
+    assert list(rep.angular.flux) == list(ref.angular.flux)
+    bars = [i for i in win.profiles.irr.listDataItems() + win.profiles.irr.getPlotItem().items
+            if i.__class__.__name__ == "BarGraphItem"]
+    assert bars
+
+
+def test_close_asks_before_losing_changes(qtbot, win):
+    open_sample(qtbot, win, WINDOW)
+    win.show()
+    win.canvas.select((edits.SOURCE, 0))
+    win.properties.pages[edits.SOURCE].direction.setValue(10.0)
+    win.ask_unsaved = lambda: "cancel"
+    win.close()
+    assert win.isVisible() and win.doc.modified
+    win.ask_unsaved = lambda: "discard"
+    win.close()
+    assert not win.isVisible()
+
+
+def test_polygon_closed_with_the_enter_key(qtbot, win):
+    from PySide6.QtCore import Qt
+    win.new_scene()
+    win.show()
+    win.set_tool(POLYGON)
+    for p in ((0.0, 0.0), (4.0, 0.0), (4.0, 3.0), (0.0, 3.0)):
+        win.canvas.tool.click(*p)
+    qtbot.keyClick(win.canvas.plot, Qt.Key_Backspace)     # take back the last vertex
+    qtbot.keyClick(win.canvas.plot, Qt.Key_Return)
+    part = win.doc.scene.parts[0]
+    assert part.outer.vertices == [(0.0, 0.0), (4.0, 0.0), (4.0, 3.0)]
