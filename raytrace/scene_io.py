@@ -475,7 +475,7 @@ def _part_dict(p: Part) -> dict:
     if p.shape is not None:
         built = build(p.shape)
         if _same_geometry(built, p.outer):
-            d["shape"] = {"kind": p.shape.kind, "params": p.shape.params,
+            d["shape"] = {"kind": p.shape.kind, "params": _file_params(p.shape),
                           "position": _xy(p.shape.position), "rotation_deg": float(p.shape.rotation_deg)}
             faces = {}
             for b, e in zip(built.edges, p.outer.edges):
@@ -490,6 +490,15 @@ def _part_dict(p: Part) -> dict:
     if p.holes:
         d["holes"] = [_loop_list(h) for h in p.holes]
     return d
+
+
+def _file_params(spec: ShapeSpec) -> dict:
+    """Builder params as a file holds them: a lens radius of +-inf (flat, from code) is written
+    as 0, the file's word for flat, since JSON has no infinity."""
+    if spec.kind != "lens":
+        return spec.params
+    return {k: (0.0 if k in ("r1", "r2") and isinstance(v, float) and math.isinf(v) else v)
+            for k, v in spec.params.items()}
 
 
 def _same_geometry(a: Loop, b: Loop) -> bool:
@@ -539,7 +548,24 @@ def _detector_dict(det: Detector) -> dict:
 
 
 def scene_to_text(scene: Scene) -> str:
-    return json.dumps(scene_to_dict(scene), indent=2, allow_nan=False) + "\n"
+    """The file text.  A scene holding NaN or an infinity (possible only from code) cannot be
+    written as JSON: that is a SceneError naming each such field, not a bare ValueError."""
+    data = scene_to_dict(scene)
+    problems = Problems()
+    _non_finite(data, "$", problems)
+    problems.raise_if_errors()
+    return json.dumps(data, indent=2, allow_nan=False) + "\n"
+
+
+def _non_finite(value: Any, where: str, problems: Problems) -> None:
+    if isinstance(value, float) and not math.isfinite(value):
+        problems.add(where, f"<{value!r}>", "a finite number (a scene file cannot hold NaN or infinity)")
+    elif isinstance(value, dict):
+        for k, v in value.items():
+            _non_finite(v, f"{where}.{_key(str(k))}", problems)
+    elif isinstance(value, (list, tuple)):
+        for k, v in enumerate(value):
+            _non_finite(v, f"{where}[{k}]", problems)
 
 
 def atomic_write_text(path: str | os.PathLike, text: str) -> None:

@@ -97,3 +97,24 @@ def test_documented_example_traces():
     result = trace(scene_from_text(_documented_example()), rays=100)
     assert abs(sum(b.flux for b in result.ledger.buckets) - result.source_flux) <= 1e-9 * result.source_flux
     assert result.detector("pipe output").total > 0     # a monitor: it records, the flux goes on
+
+
+def test_flat_lens_given_as_infinite_radius_saves_as_zero():
+    import math
+    from raytrace.geometry import Part, ShapeSpec
+    from raytrace.scene import Scene
+    from raytrace.shapes import build
+    spec = ShapeSpec("lens", {"r1": math.inf, "r2": -40.0, "center_thickness": 4.0, "aperture": 10.0})
+    scene = Scene(parts=[Part("plano-convex", "PMMA", build(spec), shape=spec)])
+    loaded = scene_from_text(scene_to_text(scene))
+    assert loaded.parts[0].shape.params["r1"] == 0.0
+    assert loaded.parts[0].outer == scene.parts[0].outer
+
+
+def test_saving_a_nan_is_a_scene_error_naming_the_field():
+    from dataclasses import replace
+    scene = load_scene(SAMPLES[0])
+    scene.sources[0] = replace(scene.sources[0], direction_deg=float("nan"))
+    with pytest.raises(SceneError) as info:
+        scene_to_text(scene)
+    assert [p.path for p in info.value.problems] == ["$.sources[0].direction_deg"]
