@@ -14,9 +14,9 @@ tracer (`intersect.nearest_hit`, every ray against every edge) run the *same* sm
 on one core, one after the other in this process; the ratio of their times is reported because
 absolute times drift on a shared machine.
 
-Events are segment ends (every traced segment ends in one).  Peak memory is the largest resident
-set of this process plus its worker processes, sampled every 10 ms (shared pages of forked
-workers are counted once per process, so it is an upper bound).
+Events are segment ends (every traced segment ends in one).  Peak memory is the largest
+proportional set size of this process plus its worker processes, sampled every 50 ms.
+Full-branching workloads run without a segment budget (`MAX_SEGMENTS`).
 """
 from __future__ import annotations
 
@@ -86,22 +86,30 @@ def workloads(quick: bool) -> list[Workload]:
 
 
 class PeakMemory:
-    """Largest resident set of this process and its children while running (Linux /proc)."""
+    """Largest memory in use by this process and its worker processes while running.
 
-    def __init__(self, interval: float = 0.01):
+    Linux: the proportional set size (Pss in /proc/PID/smaps_rollup) of each process, summed,
+    sampled every 50 ms; pages that forked workers share with this process are split among
+    them rather than counted once per process, so the sum is the machine memory in use."""
+
+    def __init__(self, interval: float = 0.05):
         self.interval = interval
         self.peak = 0
         self._stop = threading.Event()
-        self._page = os.sysconf("SC_PAGE_SIZE") if hasattr(os, "sysconf") else 4096
 
-    def _rss(self, pid) -> int:
+    @staticmethod
+    def _pss(pid) -> int:
         try:
-            with open(f"/proc/{pid}/statm") as f:
-                return int(f.read().split()[1]) * self._page
+            with open(f"/proc/{pid}/smaps_rollup") as f:
+                for line in f:
+                    if line.startswith("Pss:"):
+                        return int(line.split()[1]) * 1024
         except OSError:
-            return 0
+            pass
+        return 0
 
-    def _children(self) -> list[int]:
+    @staticmethod
+    def _children() -> list[int]:
         try:
             with open(f"/proc/{os.getpid()}/task/{os.getpid()}/children") as f:
                 return [int(p) for p in f.read().split()]
@@ -109,7 +117,7 @@ class PeakMemory:
             return []
 
     def sample(self) -> None:
-        total = self._rss(os.getpid()) + sum(self._rss(p) for p in self._children())
+        total = self._pss(os.getpid()) + sum(self._pss(p) for p in self._children())
         self.peak = max(self.peak, total)
 
     def _run(self):
@@ -128,10 +136,14 @@ class PeakMemory:
         self.sample()
 
 
+# full branching: no segment budget cuts the tree short (the samples' own budget is 50 million)
+MAX_SEGMENTS = 10**10
+
+
 def _full_trace(scene, cs, rays, mode, workers, hits="auto", track_paths=False):
     from .api import trace
     return trace(scene, rays=rays, mode=mode, compiled=cs, workers=workers, hits=hits,
-                 track_paths=track_paths).stats
+                 track_paths=track_paths, max_segments=MAX_SEGMENTS).stats
 
 
 def _ratio_traces(scene, cs, rays, mode):
@@ -141,7 +153,7 @@ def _ratio_traces(scene, cs, rays, mode):
     from .tracer import Limits, trace_rays
     s = scene.settings
     start = sample_sources(scene.sources, rays, seed=s.seed)
-    lim = Limits(min_relative_flux=s.min_relative_flux, max_depth=s.max_depth, max_segments=s.max_segments)
+    lim = Limits(min_relative_flux=s.min_relative_flux, max_depth=s.max_depth, max_segments=MAX_SEGMENTS)
     out = []
     for hit_fn in (None, nearest_hit):
         t0 = time.process_time()

@@ -149,7 +149,7 @@ def tune_allocator() -> None:
         if sys.platform.startswith("linux"):
             libc = ctypes.CDLL("libc.so.6")
             libc.mallopt(-3, 32 * 1024 * 1024)    # M_MMAP_THRESHOLD: the largest glibc allows
-            libc.mallopt(-1, 512 * 1024 * 1024)   # M_TRIM_THRESHOLD
+            libc.mallopt(-1, 128 * 1024 * 1024)   # M_TRIM_THRESHOLD
     except (OSError, AttributeError):
         pass
 
@@ -437,7 +437,9 @@ def _interfaces(cs, K, r, di, e, hx, hy, fs, fp, treat, n_flat, W, mode, rng, st
         rdy = dy + two_ci * bny
         tdx, tdy = fresnel.refract(dx, dy, bnx, bny, n1 / n2, ci, cos_t)
         # renormalise against rounding so directions stay unit vectors over many bounces
-        tn = np.hypot(tdx, tdy)
+        tn = tdx * tdx
+        tn += tdy * tdy
+        np.sqrt(tn, out=tn)                  # hypot is exact but several times slower
         tn[tn == 0] = 1.0
         tdx /= tn
         tdy /= tn
