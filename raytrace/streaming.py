@@ -65,8 +65,10 @@ def run_chunk(cs: CompiledScene, start: StartRays, job: ChunkJob, mode: str, rec
 class Merger:
     """Adds chunk results in chunk order."""
 
-    def __init__(self, cs: CompiledScene, n_sources: int, track_paths: bool):
+    def __init__(self, cs: CompiledScene, n_sources: int, track_paths: bool, max_memory_mb: float = 4096.0):
         self.cs = cs
+        self.max_memory_mb = max_memory_mb
+        self.kept_bytes = 0
         self.n_codes = cs.n_edges * N_EVENT_KINDS
         self.trie = PathTrie(n_sources, track_paths, MAX_PATH_NODES, n_bins=0)
         self.bins = None
@@ -81,7 +83,17 @@ class Merger:
         self.t0 = time.perf_counter()
 
     def add(self, raw: RawTrace, n_source_rays: int, lo: int) -> None:
+        from .errors import BudgetExceeded
+        from .tracer import BYTES_PER_HIT, BYTES_PER_SEGMENT_ROW
         self.chunks += 1
+        self.kept_bytes += BYTES_PER_HIT * len(raw.hits.get("root", ())) + \
+            BYTES_PER_SEGMENT_ROW * (len(raw.segments["ray_id"]) if raw.segments is not None else 0)
+        if self.kept_bytes > self.max_memory_mb * 1e6:
+            raise BudgetExceeded(
+                f"after {self.chunks} chunks the kept detector records and ray-table rows need about "
+                f"{self.kept_bytes / 1e6:,.0f} MB, more than the memory limit max_memory_mb={self.max_memory_mb:g}; "
+                f"raise max_memory_mb, record fewer rays (record=\"first\") or bin detector hits "
+                f"(hits=\"histogram\")")
         self.bins = raw.bins.copy() if self.bins is None else self.bins + raw.bins
         self.source_flux += raw.source_flux
         remap = None
@@ -158,7 +170,7 @@ def trace_chunked(cs: CompiledScene, start: StartRays, mode: str, limits: Limits
         return trace_rays(cs, start, mode=mode, limits=limits, seed=seed, record=record,
                           track_paths=track_paths, n_sources=n_sources, accel=accel,
                           keep_hits=keep_hits, progress=progress)
-    merger = Merger(cs, n_sources, track_paths)
+    merger = Merger(cs, n_sources, track_paths, limits.max_memory_mb)
     if workers > 1 and len(jobs) > 1:
         from .parallel import run_parallel
         results = run_parallel(cs, start, jobs, mode, record, track_paths, n_sources, keep_hits, accel, workers)

@@ -139,3 +139,18 @@ def test_depth_and_segment_limits_truncate():
     r = trace(scene, rays=200, max_segments=300)
     assert r.stats["segments"] <= 300
     assert r.ledger.flux("truncated", reason="segment budget") > 0
+
+
+def test_ray_table_over_budget_names_the_way_out():
+    scene = load_scene(SAMPLES[0])
+    with pytest.raises(BudgetExceeded, match='record="first"'):
+        trace(scene, rays=20_000, record="all", max_memory_mb=5)
+
+
+def test_kept_hits_over_budget_across_chunks():
+    scene = load_scene([p for p in SAMPLES if "window" in p.stem][0])
+    # 100,000 starting rays fit in 22 MB, their ~300,000 detector records (80 bytes each) do not
+    with pytest.raises(BudgetExceeded, match='hits="histogram"'):
+        trace(scene, rays=100_000, chunk_size=5_000, max_memory_mb=22)
+    r = trace(scene, rays=100_000, chunk_size=5_000, max_memory_mb=22, hits="histogram")
+    assert r.raw.histograms
