@@ -49,10 +49,12 @@ def main(argv: list[str] | None = None) -> int:
     if args.screenshot:
         return screenshot(app, win, args.scene, args.screenshot, args.size)
     win.show()
-    if args.scene:
+    # unsaved work from a crash comes first; a restored scene is not replaced by SCENE
+    if win.offer_recovery():
+        if args.scene:
+            win.status_note(f"Restored unsaved work; {args.scene} was not opened")
+    elif args.scene:
         win.open_file(args.scene)
-    else:
-        win.offer_recovery()
     return app.exec()
 
 
@@ -80,6 +82,10 @@ def screenshot(app, win, scene_path, png, size) -> int:
     out = win.trace_blocking()
     if out.error:
         print(f"error: not traced: {out.error}", file=sys.stderr)
+    live = win.controls.live         # show the setting a user would have, without retracing
+    live.blockSignals(True)
+    live.setChecked(True)
+    live.blockSignals(False)
     app.processEvents()
     win.canvas.fit()
     app.processEvents()
