@@ -307,3 +307,21 @@ def test_small_core_nested_in_a_large_scene():
                  Part("far away", "clad", rect(5000, 0, 5001, 1)), clad=1.45, core=1.5)
     cs = compile_scene(s)
     assert sides(cs, 0.5, 0.4, UP) == (medium(cs, "core"), medium(cs, "cladding"))
+
+
+def test_arc_partly_cemented():
+    """A cap bonded to the middle of a block's arc face (circle centre (-10, 0), radius 10): the
+    arc splits where the cap ends; the middle is block|cap, the rest block|air."""
+    R, ox = 10.0, -10.0
+    pt = lambda a: (ox + R * math.cos(a), R * math.sin(a))  # noqa: E731
+    lo, hi, blo, bhi = pt(-0.5), pt(0.5), pt(-0.2), pt(0.2)
+    block = Loop((Edge(lo, hi, arc_center=(ox, 0.0), ccw=True), Edge(hi, (-8, hi[1])),
+                  Edge((-8, hi[1]), (-8, lo[1])), Edge((-8, lo[1]), lo)))
+    cap = Loop((Edge(bhi, blo, arc_center=(ox, 0.0), ccw=False), Edge(blo, (3, blo[1])),
+                Edge((3, blo[1]), (3, bhi[1])), Edge((3, bhi[1]), bhi)))
+    cs = compile_scene(scene_of(Part("block", "crown", block), Part("cap", "flint", cap), crown=1.52, flint=1.62))
+    b, c = medium(cs, "block"), medium(cs, "cap")
+    assert sides(cs, 0.0, 0.0, RIGHT) == (c, b)
+    x, y = pt(0.35)
+    assert sides(cs, x, y, (math.cos(0.35), math.sin(0.35))) == (AMBIENT, b)
+    assert int(cs.is_arc.sum()) == 3          # the block's arc in three pieces, the cap's merged

@@ -122,7 +122,7 @@ def group(draw, k, material_names):
     cx, cy = CELL * k, 0.0
     mat = lambda: draw(st.sampled_from(material_names))  # noqa: E731
     kind = draw(st.sampled_from(("polygon", "nested", "hole", "cemented", "doublet", "builder",
-                                 "core on face", "corner", "clad pair")))
+                                 "core on face", "corner", "clad pair", "arc partly cemented")))
     R = draw(st.floats(4.0, 12.0))
     if kind == "polygon":
         return [Part(f"g{k} block", mat(), draw(star_loop((cx, cy), R)))]
@@ -169,6 +169,21 @@ def group(draw, k, material_names):
         window = _rect(cx, cy - 6, cx + draw(st.floats(1.0, 6.0)), cy + 6, draw(treatments()))
         return [Part(f"g{k} cladding", mat(), clad), Part(f"g{k} core", mat(), core),
                 Part(f"g{k} window", mat(), window)]
+    if kind == "arc partly cemented":
+        # a block with a convex arc face, and a smaller piece bonded to the middle of that arc
+        Rc = draw(st.floats(8.0, 20.0))
+        t1 = draw(st.floats(0.3, 0.6))
+        t2 = t1 * draw(st.floats(0.2, 0.8))
+        ox = cx - Rc                                     # circle centre (ox, cy)
+        pt = lambda a: (ox + Rc * math.cos(a), cy + Rc * math.sin(a))  # noqa: E731
+        lo, hi, blo, bhi = pt(-t1), pt(t1), pt(-t2), pt(t2)
+        left = Loop((Edge(lo, hi, arc_center=(ox, cy), ccw=True),
+                     Edge(hi, (cx - 8, hi[1])), Edge((cx - 8, hi[1]), (cx - 8, lo[1])),
+                     Edge((cx - 8, lo[1]), lo)))
+        far = cx + draw(st.floats(2.0, 6.0))
+        right = Loop((Edge(bhi, blo, arc_center=(ox, cy), ccw=False),
+                      Edge(blo, (far, blo[1])), Edge((far, blo[1]), (far, bhi[1])), Edge((far, bhi[1]), bhi)))
+        return [Part(f"g{k} block", mat(), left), Part(f"g{k} cap", mat(), right)]
     if kind == "doublet":
         # two parts cemented along one true arc
         h = draw(st.floats(3.0, 8.0))
