@@ -102,11 +102,21 @@ class LegendBar(QWidget):
             lay.addWidget(lab)
             lay.addWidget(QLabel(text))
         lay.addStretch(1)
+        self.problem = QLabel("")
+        self.problem.setStyleSheet("color: #b00020; font-weight: bold")
+        lay.addWidget(self.problem)
         # a narrow window clips the legend's end rather than forcing the window wider
         self.setSizePolicy(QSizePolicy.Ignored, QSizePolicy.Fixed)
         self.setToolTip("Ray colours: legs inside and between parts fade as their flux drops; "
                         "legs that began with total internal reflection and legs leaving the scene "
                         "have their own colours.")
+
+
+    def show_problem(self, text: str) -> None:
+        """Why the rays are missing (the scene cannot be traced as it stands), or nothing."""
+        short = text if len(text) < 90 else text[:87] + "..."
+        self.problem.setText(f"not traced: {short}" if text else "")
+        self.problem.setToolTip(text)
 
 
 class Canvas(QWidget):

@@ -27,6 +27,7 @@ SHORTCUTS = """<h3>Keys</h3>
 <tr><td>L, D</td><td>place a light source / a detector</td></tr>
 <tr><td>Enter, Backspace, Esc</td><td>close, take back a vertex, cancel (while drawing)</td></tr>
 <tr><td>F5 / Shift+F5</td><td>trace now / stop the trace</td></tr>
+<tr><td>F6</td><td>sweep a number of the scene</td></tr>
 <tr><td>Ctrl+0</td><td>fit the scene in the view</td></tr>
 <tr><td>G, Shift+G</td><td>grid on/off, snapping to the grid on/off</td></tr>
 <tr><td>mouse wheel, drag on empty space</td><td>zoom, pan</td></tr>

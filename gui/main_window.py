@@ -188,7 +188,7 @@ class MainWindow(QMainWindow):
         r = mb.addMenu("T&race")
         self._act(r, "Trace &now", lambda: self.request_trace(force=True), "F5")
         self._act(r, "&Stop trace", self.stop_trace, "Shift+F5")
-        self._act(r, "S&weep...", self.open_sweep, "Ctrl+W", "Vary one number and plot the efficiencies")
+        self._act(r, "S&weep...", self.open_sweep, "F6", "Vary one number and plot the efficiencies")
 
         h = mb.addMenu("&Help")
         self._act(h, "&Safety cautions", lambda: self.show_info("Safety cautions", help_text.SAFETY))
@@ -477,12 +477,14 @@ class MainWindow(QMainWindow):
             self.ledger.show_result(None)
             self.profiles.show_result(None)
             self.ledger.summary.setText(f"<b>Not traced:</b> {out.error}")
+            self.canvas.legend.show_problem(out.error)
             self.trace_label.setText("not traced: see the flux panel")
             self.status_note(out.error)
             return
         if out.result is None:
             return
         self.canvas.set_result(out.result)
+        self.canvas.legend.show_problem("")
         self.ledger.show_result(out.result)
         self.profiles.show_result(out.result)
         self.traces_shown += 1

@@ -85,6 +85,10 @@ class TraceWorker(QObject):
         with self._cond:
             return self._pending is None and self._running is None and self._undelivered == 0
 
+    def is_tracing(self) -> bool:
+        with self._cond:
+            return self._running is not None
+
     def shutdown(self) -> None:
         with self._cond:
             self._stop = True

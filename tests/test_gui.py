@@ -407,7 +407,7 @@ def test_long_trace_can_be_stopped(qtbot, win):
     shown = win.traces_shown
     win.controls.rays.setValue(400_000)
     win.controls.rays.editingFinished.emit()
-    qtbot.waitUntil(lambda: not win.worker.is_idle(), timeout=TIMEOUT_MS)
+    qtbot.waitUntil(win.worker.is_tracing, timeout=TIMEOUT_MS)
     win.stop_trace()
     qtbot.waitUntil(win.worker.is_idle, timeout=TIMEOUT_MS)
     assert win.traces_shown == shown
@@ -631,3 +631,22 @@ def test_polygon_closed_with_the_enter_key(qtbot, win):
     qtbot.keyClick(win.canvas.plot, Qt.Key_Return)
     part = win.doc.scene.parts[0]
     assert part.outer.vertices == [(0.0, 0.0), (4.0, 0.0), (4.0, 3.0)]
+
+
+def test_a_scene_that_cannot_be_traced_says_why(qtbot, win):
+    open_sample(qtbot, win, LIGHT_PIPE)
+    guide = win.doc.scene.parts[0]
+    # move the panel window into the guide: overlapping parts cannot be traced
+    win.canvas.select((edits.PART, 1))
+    x0, y0, x1, y1 = win.doc.scene.parts[1].outer.bounds()
+    c = ((x0 + x1) / 2, (y0 + y1) / 2)
+    gx0, gy0, gx1, gy1 = guide.outer.bounds()
+    win.canvas.drag(c, (c[0], c[1] - 3.0))
+    qtbot.waitUntil(lambda: win.worker.is_idle() and win.last_outcome.request.scene is win.doc.scene,
+                    timeout=TIMEOUT_MS)
+    assert "overlapping" in win.last_outcome.error
+    assert "overlapping" in win.canvas.legend.problem.text()
+    assert win.canvas.result is None, "no stale rays are left on the drawing"
+    win.undo_action.trigger()
+    wait_traced(qtbot, win)
+    assert win.canvas.legend.problem.text() == ""

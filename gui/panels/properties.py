@@ -91,6 +91,11 @@ class ScenePage(_Page):
         form.addRow("Random seed", self.seed)
         form.addRow("Own materials", self.materials)
         form.addRow(define)
+        hint = QLabel("Click a part, source or detector in the drawing to edit it here; the tools "
+                      "on the left add new ones. Hover a face to see its name.")
+        hint.setWordWrap(True)
+        hint.setStyleSheet("color: #555")
+        form.addRow(hint)
         self.name.editingFinished.connect(lambda: self._fields(name=self.name.text()))
         self.story.editingFinished.connect(lambda: self._fields(story=self.story.text()))
         self.ambient.activated.connect(lambda _i: self._fields(ambient=self.ambient.currentText()))
