@@ -501,7 +501,9 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
     good = []
     for kid in kids:
         rows, kfs, kfp = kid[0], kid[3], kid[4]
-        ok = (kfs + kfp)[rows] >= thr[rows] if len(rows) != len(root) else (kfs + kfp) >= thr
+        ok = (kfs + kfp) >= thr
+        if len(rows) != len(root):
+            ok = ok[rows]
         if not ok.all():
             bad = rows[~ok]
             deposit(np.full(len(bad), layout.trunc0 + TRUNC_FLUX), kfs[bad] + kfp[bad], r["path"][bad])
