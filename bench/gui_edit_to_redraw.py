@@ -99,6 +99,8 @@ def main() -> int:
     print(f"  of which tracing    median {ms(statistics.median(traces))}")
     print(f"  preparing drawing   {ms(draws[0])} (ray grouping and line items, one result)")
     print(f"  painting the canvas median {ms(statistics.median(paint[-args.edits:]))}")
+    load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
+    print(f"machine: {os.cpu_count()} CPUs, load average {load:.2f} while measuring")
     win.worker.shutdown()
     win.autosaver.discard()
     return 0

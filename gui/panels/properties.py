@@ -39,6 +39,7 @@ def _set(widget, value):
         widget.setValue(value)
     elif isinstance(widget, QLineEdit):
         widget.setText(value)
+        widget.setCursorPosition(0)      # show the beginning of long texts
     elif isinstance(widget, QCheckBox):
         widget.setChecked(value)
     elif isinstance(widget, QComboBox):
