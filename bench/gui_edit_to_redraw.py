@@ -84,7 +84,8 @@ def main() -> int:
         totals.append(t1 - t0)
         traces.append(outcome.elapsed_s)
     segs = shown[-1][0].result.stats["segments"]
-    drawn = win.canvas.drawing.n_segments
+    recorded = win.canvas.drawing.n_segments
+    drawn = win.canvas.painted_segments
     t = time.perf_counter()
     win.canvas.set_result(shown[-1][0].result)
     draws.append(time.perf_counter() - t)
@@ -93,7 +94,7 @@ def main() -> int:
         return f"{1000 * v:7.1f} ms"
 
     print(f"scene {Path(args.scene).name}: {args.rays:,} source rays, {segs:,} segments traced, "
-          f"{drawn:,} segments drawn; {args.edits} edits")
+          f"{recorded:,} recorded for drawing, {drawn:,} painted (the faintest left out); {args.edits} edits")
     print(f"edit -> redrawn rays  median {ms(statistics.median(totals))}  "
           f"min {ms(min(totals))}  max {ms(max(totals))}")
     print(f"  of which tracing    median {ms(statistics.median(traces))}")

@@ -25,6 +25,10 @@ from .tools import TOOLS, SELECT
 # the ray's brightness: measured on the raster engine, 66,000 segments take 0.2 s opaque and
 # 1.4-3 s with alpha blending, and wider pens are slower still.
 
+# Legs below 0.1 % of their source ray's flux are drawn only in small fans: in dense ones they
+# are a few percent from the background, invisible, yet a third of the painting time.
+FAINT_SHOWN_BELOW = 5000
+
 KIND_COLOUR = {"ray": style.RAY, "escaping": style.ESCAPING, "tir": style.TIR}
 KIND_LABEL = {"ray": "ray (fades with flux)", "escaping": "escaping", "tir": "after TIR"}
 
@@ -130,6 +134,7 @@ class Canvas(QWidget):
         self.scene: Scene = doc.scene
         self.result = None
         self.drawing = RayDrawing()
+        self.painted_segments = 0
         self.selection = None
         self.snapping = False
         self.grid_step = 1.0
@@ -427,15 +432,18 @@ class Canvas(QWidget):
         self.drawing = ray_drawing(result) if result is not None else RayDrawing()
         # dense fans are drawn fainter so that overlapping legs still read as separate rays
         dim = min(1.0, max(0.4, math.sqrt(5000.0 / max(self.drawing.n_segments, 1))))
+        self.painted_segments = 0
         for k in KINDS:
             groups = self.drawing.lines.get(k)
             c = KIND_COLOUR[k]
             for lv, item in enumerate(self._ray_items[k]):
                 item.setPen(_pen(_faded(c, max(6, LEVEL_ALPHA[lv] * dim) / 255.0), 1.0))
-                if groups is None or not len(groups[lv][0]):
+                faintest_hidden = lv == len(LEVELS) - 1 and self.drawing.n_segments > FAINT_SHOWN_BELOW
+                if groups is None or not len(groups[lv][0]) or faintest_hidden:
                     item.setData([], [])
                 else:
                     item.setData(groups[lv][0], groups[lv][1], connect="pairs")
+                    self.painted_segments += len(groups[lv][0]) // 2
         self._hits.setData(self.drawing.hits_x, self.drawing.hits_y)
         esc = self.drawing.escapes
         if esc:
