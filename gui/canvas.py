@@ -15,7 +15,7 @@ from PySide6.QtGui import QBrush, QPainterPath, QPen
 from PySide6.QtWidgets import (QGraphicsPathItem, QHBoxLayout, QLabel, QSizePolicy, QToolTip,
                                QVBoxLayout, QWidget)
 
-from raytrace.scene import BEAM, EMITTER, POINT, Scene
+from raytrace.scene import EMITTER, POINT, Scene
 
 from . import edits, style
 from .raydraw import KINDS, LEVEL_ALPHA, LEVELS, RayDrawing, ray_drawing

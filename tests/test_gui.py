@@ -650,3 +650,19 @@ def test_a_scene_that_cannot_be_traced_says_why(qtbot, win):
     win.undo_action.trigger()
     wait_traced(qtbot, win)
     assert win.canvas.legend.problem.text() == ""
+
+
+def test_saved_and_exported_files_get_ordinary_permissions(qtbot, win, tmp_path):
+    """Temporary files start private (0600); what the user saves must not stay so."""
+    open_sample(qtbot, win, WINDOW)
+    umask = os.umask(0)
+    os.umask(umask)
+    scene_path, png = tmp_path / "s.json", tmp_path / "d.png"
+    assert win.save_as(str(scene_path))
+    win.ask_save_path = lambda *a, **k: str(png)
+    assert win.export_png()
+    for p in (scene_path, png):
+        assert p.stat().st_mode & 0o777 == 0o666 & ~umask
+    scene_path.chmod(0o640)
+    assert win.save()
+    assert scene_path.stat().st_mode & 0o777 == 0o640, "a saved-over file keeps its mode"
