@@ -156,9 +156,10 @@ def edge_normal(cs: CompiledScene, edge, hx, hy):
     L = np.hypot(ex, ey)
     with np.errstate(divide="ignore", invalid="ignore"):
         lnx, lny = ey / L, -ex / L
-        r = cs.radius[edge]
-        anx = (hx - cs.cx[edge]) / r
-        any_ = (hy - cs.cy[edge]) / r
+        ax, ay = hx - cs.cx[edge], hy - cs.cy[edge]
+        r = np.sqrt(ax * ax + ay * ay)        # the vector's own length: unit even off the circle
+        anx = ax / r
+        any_ = ay / r
     nx = np.where(arc, anx, lnx)
     ny = np.where(arc, any_, lny)
     return nx, ny

@@ -43,6 +43,7 @@ EV_THROUGH, EV_REFLECT, EV_TIR, EV_MIRROR, EV_PASS = range(5)
 N_EVENT_KINDS = len(EVENT_KINDS)
 MAX_PATH_NODES = 500_000     # past this, new paths are lumped as "other paths"
 T_ESCAPE = 6                 # treatment code of "no edge": index -1 of the extended tables
+GRAZING_COS = 1e-9           # |cos| below which a hit counts as grazing
 
 # Ray state carried from generation to generation; the last three only with a ray table.
 CORE = ("x", "y", "dx", "dy", "fs", "fp", "opl", "wli", "med", "root", "start", "last", "path")
@@ -197,7 +198,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         "x": start.x.astype(float), "y": start.y.astype(float),
         "dx": start.dx.astype(float), "dy": start.dy.astype(float),
         "fs": start.flux_s.astype(float), "fp": start.flux_p.astype(float), "opl": np.zeros(n),
-        "wli": wli.astype(np.int64), "med": medium_at(cs, start.x, start.y),
+        "wli": wli.astype(np.int64), "med": medium_at(cs, start.x, start.y, start.dx, start.dy),
         "root": np.arange(n, dtype=np.int64), "start": np.full(n, -1, dtype=np.int64),
         "last": np.full(n, -1, dtype=np.int64), "path": start.source.astype(np.int64),
     }
@@ -330,6 +331,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
             if len(mi):
                 nx, ny = _normals(cs, K, e, hx, hy)
                 rdx, rdy = fresnel.reflect(dx, dy, nx, ny)
+                _unit(rdx, rdy)
                 R = K.reflectance[e]
                 em = e[mi]
                 deposit(layout.face0 + em, (fs[mi] + fp[mi]) * (1 - R[mi]), path[mi])
@@ -402,10 +404,26 @@ def _normals(cs, K, e, hx, hy):
         arc = np.flatnonzero(K.is_arc[e])
         if len(arc):
             ea = e[arc]
-            r = K.radius[ea]
-            nx[arc] = (hx[arc] - K.cx[ea]) / r
-            ny[arc] = (hy[arc] - K.cy[ea]) / r
+            ax = hx[arc] - K.cx[ea]
+            ay = hy[arc] - K.cy[ea]
+            # by the vector's own length, not the radius: a hit a rounding error off the
+            # circle still gets a unit normal
+            L = np.sqrt(ax * ax + ay * ay)
+            L[L == 0] = 1.0
+            nx[arc] = ax / L
+            ny[arc] = ay / L
     return nx, ny
+
+
+def _unit(vx, vy):
+    """Renormalise directions in place against rounding, so they stay unit vectors over many
+    bounces (sqrt of the sum of squares: hypot is exact but several times slower)."""
+    n = vx * vx
+    n += vy * vy
+    np.sqrt(n, out=n)
+    n[n == 0] = 1.0
+    vx /= n
+    vy /= n
 
 
 def _interfaces(cs, K, r, di, e, hx, hy, fs, fp, treat, n_flat, W, mode, rng, stats, end, kids):
@@ -420,6 +438,10 @@ def _interfaces(cs, K, r, di, e, hx, hy, fs, fp, treat, n_flat, W, mode, rng, st
         cos_raw = dx * nx + dy * ny
         from_plus = cos_raw < 0                      # travelling against the normal
         mp, mm = K.med_plus[e], K.med_minus[e]
+        graze = np.abs(cos_raw) < GRAZING_COS
+        if graze.any():
+            # too close to tangent for the sign of d.n to tell the side: the ray's own medium does
+            from_plus = np.where(graze, mp == r["med"], from_plus)
         m_from = np.where(from_plus, mp, mm)
         m_to = np.where(from_plus, mm, mp)
         if W > 1:
@@ -444,21 +466,16 @@ def _interfaces(cs, K, r, di, e, hx, hy, fs, fp, treat, n_flat, W, mode, rng, st
         two_ci = 2 * ci
         rdx = dx + two_ci * bnx
         rdy = dy + two_ci * bny
+        _unit(rdx, rdy)
         tdx, tdy = fresnel.refract(dx, dy, bnx, bny, n1 / n2, ci, cos_t)
-        # renormalise against rounding so directions stay unit vectors over many bounces
-        tn = tdx * tdx
-        tn += tdy * tdy
-        np.sqrt(tn, out=tn)                  # hypot is exact but several times slower
-        tn[tn == 0] = 1.0
-        tdx /= tn
-        tdy /= tn
+        _unit(tdx, tdy)
     all_rays = len(di) == len(dx)
     sub = (lambda v: v) if all_rays else (lambda v: v[di])
     tir_d = sub(tir)
     n_tir = int(np.count_nonzero(tir_d))
     stats["tir_events"] += n_tir
     stats["medium_mismatches"] += int(np.count_nonzero(sub(m_from != r["med"])))
-    stats["grazing_hits"] += int(np.count_nonzero(sub(ci) < 1e-9))
+    stats["grazing_hits"] += int(np.count_nonzero(sub(ci) < GRAZING_COS))
     ev_r = np.where(tir, EV_TIR, EV_REFLECT) if n_tir else EV_REFLECT
     born_r = np.where(tir, B_TIR, B_REFLECTED) if n_tir else B_REFLECTED
     if mode == BRANCHING:
@@ -501,7 +518,8 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
     good = []
     for kid in kids:
         rows, kfs, kfp = kid[0], kid[3], kid[4]
-        ok = (kfs + kfp) >= thr
+        f = kfs + kfp
+        ok = (f >= thr) & (f > 0)        # a zero-flux child ends even when the threshold is 0
         if len(rows) != len(root):
             ok = ok[rows]
         if not ok.all():
@@ -587,18 +605,25 @@ def _segment_table(store, wavelengths):
     return out
 
 
-def medium_at(cs: CompiledScene, x, y) -> np.ndarray:
-    """Medium containing each point: cast a ray and read the medium behind the first edge hit.
+def medium_at(cs: CompiledScene, x, y, dx=None, dy=None) -> np.ndarray:
+    """Medium each ray starts in: cast it and read the medium on the near side of the first
+    boundary it meets (ambient when it meets none).
 
-    The first boundary a ray meets is seen from the medium the point is in; a ray that meets
-    nothing started in the ambient."""
+    With directions given (a source's rays) each ray is cast along its own direction, so a ray
+    that starts exactly on a face is in the medium it is heading into, and its medium always
+    agrees with its first interface.  Without, an irrational-ish fixed direction is used (it
+    avoids passing exactly through vertices of axis-aligned parts)."""
     n = len(x)
     if n == 0:
         return np.zeros(0, dtype=np.int64)
-    # an irrational-ish direction avoids passing exactly through vertices of axis-aligned parts
-    ang = 0.7390851332151607
-    dx = np.full(n, np.cos(ang))
-    dy = np.full(n, np.sin(ang))
+    fixed = dx is None or dy is None
+    if fixed:
+        ang = 0.7390851332151607
+        dx = np.full(n, np.cos(ang))
+        dy = np.full(n, np.sin(ang))
+    else:
+        dx = np.asarray(dx, float)
+        dy = np.asarray(dy, float)
     x = np.asarray(x, float)
     y = np.asarray(y, float)
     hit_fn = hit_function(cs)
@@ -621,8 +646,14 @@ def medium_at(cs: CompiledScene, x, y) -> np.ndarray:
         hx = x[hit] + t[hit] * dx[hit]
         hy = y[hit] + t[hit] * dy[hit]
         nx, ny = edge_normal(cs, eh, hx, hy)
-        from_plus = dx[hit] * nx + dy[hit] * ny < 0
-        med[hit] = np.where(from_plus, cs.med_plus[eh], cs.med_minus[eh])
+        cos = dx[hit] * nx + dy[hit] * ny
+        med[hit] = np.where(cos < 0, cs.med_plus[eh], cs.med_minus[eh])
+        if not fixed:
+            # a probe that grazes its first edge cannot tell the side: probe those points again
+            # in the fixed direction
+            again = np.flatnonzero(hit)[np.abs(cos) < GRAZING_COS]
+            if len(again):
+                med[again] = medium_at(cs, x[again], y[again])
     return med
 
 
