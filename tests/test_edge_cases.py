@@ -105,9 +105,6 @@ def test_ray_starting_on_a_boundary_going_in():
     assert np.all(r.segments["medium"][first] == 1)
 
 
-@pytest.mark.xfail(strict=True, reason="tracer bug: medium_at probes in a fixed direction, so a ray "
-                   "starting on a face and heading out is put inside the part and escapes from it; "
-                   "fix: probe along the ray's own direction (medium of the first edge it meets)")
 def test_ray_starting_on_a_boundary_going_out():
     s = make([Part("slab", "glass", rect(0, 0, 10, 10))], [pencil(0.0, 5.0, 180.0)], glass=1.5)
     r = accounted(s)
@@ -122,10 +119,6 @@ def test_ray_tangent_to_an_arc_is_counted_and_accounted():
     _finite_everywhere(r)
 
 
-@pytest.mark.xfail(strict=True, reason="tracer bug: at a grazing hit (cos ~ 0) the side is taken "
-                   "from the sign of d.n, which can be the wrong side; the ray is then TIR-reflected "
-                   "inside the disc and escapes from it; fix: when |d.n| is tiny, take the side from "
-                   "the ray's own medium")
 def test_ray_tangent_to_an_arc_stays_outside():
     s = make([Part("disc", "glass", circle(0, 0, 5.0))], [pencil(-10.0, 5.0, 0.0)], glass=1.5)
     r = accounted(s, check_media=False)
@@ -143,11 +136,6 @@ def test_ray_just_inside_the_tangent_enters_the_disc():
     assert seg["medium"][seg["parent_id"] == 0].tolist() == [0, 1]   # reflected off, refracted in
 
 
-@pytest.mark.xfail(strict=True, reason="tracer bug: arc normals are (hit - centre) / radius, not unit "
-                   "when the hit is off the circle by rounding, and reflected directions are not "
-                   "renormalised; over many bounces inside a disc |d| drifts (1e-9 after ~10), hits "
-                   "land 1e-8 mm off the circle, an arc is re-hit at once and the medium is lost; fix: "
-                   "normalise arc normals by their own length and renormalise reflected directions")
 def test_directions_stay_unit_over_many_bounces_in_a_disc():
     s = make([Part("disc", "glass", circle(0, 0, 5.0))], [pencil(-10.0, 5.0 - 1e-7, 0.0)], glass=1.5)
     r = trace(s, rays=1, record="all")
@@ -296,10 +284,6 @@ def test_zero_flux_only_gives_an_empty_ledger():
     assert all(b.flux == 0.0 for b in r.ledger.buckets)
 
 
-@pytest.mark.xfail(strict=True, reason="tracer bug: the faint-child test compares flux with a "
-                   "threshold of min_relative_flux x 0 = 0, so zero-flux children never end and the "
-                   "tree grows to max_depth (exponentially in scenes with several parts); fix: also "
-                   "end children whose flux is 0")
 def test_zero_flux_rays_end_at_their_first_event():
     s = make([Part("slab", "glass", rect(0, 0, 10, 10))],
              [Source("dark", "beam", (-5.0, 5.0), 10.0, width=1.0, flux=0.0)], glass=1.5)
