@@ -414,7 +414,7 @@ def test_long_trace_can_be_stopped(qtbot, win):
     assert win.worker.dropped >= 1
 
 
-def test_sweep_dialog_runs_plots_and_cancels(qtbot, win):
+def test_sweep_dialog_runs_plots_and_cancels(qtbot, win, tmp_path):
     from gui.dialogs.sweep import SweepDialog
     open_sample(qtbot, win, WINDOW)
     dlg = SweepDialog(win.doc.scene, {}, win)
@@ -430,6 +430,12 @@ def test_sweep_dialog_runs_plots_and_cancels(qtbot, win):
     assert [r["probe beam.direction_deg"] for r in dlg.result.rows] == [30.0, 40.0, 50.0]
     assert dlg.bar.value() == 3
     assert len(dlg.plot.listDataItems()) == len(win.doc.scene.detectors)
+    import pandas
+    table = tmp_path / "sweep.csv"
+    assert dlg.save_table(str(table))
+    rows = pandas.read_csv(table)
+    assert list(rows["probe beam.direction_deg"]) == [30.0, 40.0, 50.0]
+    assert list(rows["efficiency: inside chamber"]) == [r["efficiency: inside chamber"] for r in dlg.result.rows]
     dlg.count.setValue(400)
     dlg.rays.setValue(2000)
     dlg.run()

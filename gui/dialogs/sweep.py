@@ -11,7 +11,7 @@ import threading
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QObject, Signal
-from PySide6.QtWidgets import (QComboBox, QDialog, QDoubleSpinBox, QFormLayout, QHBoxLayout,
+from PySide6.QtWidgets import (QComboBox, QDialog, QDoubleSpinBox, QFileDialog, QFormLayout, QHBoxLayout,
                                QLabel, QProgressBar, QPushButton, QSpinBox, QVBoxLayout)
 
 from raytrace.errors import RaytraceError, SceneError
@@ -125,6 +125,10 @@ class SweepDialog(QDialog):
         self.run_btn = QPushButton("Run")
         self.cancel_btn = QPushButton("Cancel")
         self.cancel_btn.setEnabled(False)
+        self.save_btn = QPushButton("Save table...")
+        self.save_btn.setToolTip("The sweep table as CSV: one row per point, efficiencies and losses")
+        self.save_btn.setEnabled(False)
+        self.save_btn.clicked.connect(lambda: self.save_table())
         close = QPushButton("Close")
         self.run_btn.clicked.connect(self.run)
         self.cancel_btn.clicked.connect(self.cancel)
@@ -143,6 +147,7 @@ class SweepDialog(QDialog):
         buttons = QHBoxLayout()
         buttons.addWidget(self.run_btn)
         buttons.addWidget(self.cancel_btn)
+        buttons.addWidget(self.save_btn)
         buttons.addStretch(1)
         buttons.addWidget(close)
         lay = QVBoxLayout(self)
@@ -203,9 +208,29 @@ class SweepDialog(QDialog):
         if result is None:
             self.status.setText(f"Sweep stopped: {message}")
             return
+        self.save_btn.setEnabled(True)
         failed = result.failed
         self.status.setText(f"{len(result.rows)} points" + (f"; {len(failed)} failed: {failed[0]['status']}" if failed else ""))
         self.plot_result(result)
+
+    def ask_save_path(self) -> str:
+        path, _ = QFileDialog.getSaveFileName(self, "Save the sweep table", "sweep.csv", "CSV (*.csv)")
+        return path
+
+    def save_table(self, path: str | None = None) -> bool:
+        """Write the table atomically; a failure is shown in the dialog, never raised."""
+        if self.result is None:
+            return False
+        path = path or self.ask_save_path()
+        if not path:
+            return False
+        try:
+            self.result.to_csv(path)
+        except OSError as exc:
+            self.status.setText(f"Could not write {path}: {exc.strerror or exc}")
+            return False
+        self.status.setText(f"Saved {len(self.result.rows)} points to {path}")
+        return True
 
     def plot_result(self, result):
         self.plot.clear()
