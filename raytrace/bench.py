@@ -165,12 +165,12 @@ def _ratio_traces(scene, cs, rays, mode):
     return fast_s, plain_s, int(plain.stats["segments"]), same
 
 
-def _cpu() -> float:
+def _cpu() -> np.ndarray:
     """CPU seconds of this process and of its finished children (the pool's workers)."""
     import resource
     a = resource.getrusage(resource.RUSAGE_SELF)
     b = resource.getrusage(resource.RUSAGE_CHILDREN)
-    return a.ru_utime + a.ru_stime + b.ru_utime + b.ru_stime
+    return np.array([a.ru_utime + a.ru_stime, b.ru_utime + b.ru_stime])
 
 
 def run_workload(w: Workload, workers: int, ratio: bool = True) -> dict:
@@ -182,11 +182,13 @@ def run_workload(w: Workload, workers: int, ratio: bool = True) -> dict:
     with PeakMemory() as mem:
         t0, c0 = time.perf_counter(), _cpu()
         stats = _full_trace(scene, cs, w.rays, w.mode, n_workers, hits=w.hits, track_paths=w.paths)
-        wall, cpu = time.perf_counter() - t0, _cpu() - c0
+        wall, (cpu_parent, cpu_workers) = time.perf_counter() - t0, _cpu() - c0
+    cpu = cpu_parent + cpu_workers
     events = int(stats["segments"])
     row = {"name": w.name, "scene": scene.name, "edges": cs.n_edges, "rays": w.rays, "mode": w.mode,
            "workers": n_workers, "path_tallies": w.paths, "events": events,
            "events_per_ray": events / max(w.rays, 1), "wall_s": wall, "cpu_s": cpu,
+           "parent_cpu_s": cpu_parent, "workers_cpu_s": cpu_workers,
            "rays_per_s": w.rays / wall, "events_per_s": events / wall,
            "events_per_s_per_core": events / wall / n_workers, "events_per_cpu_s": events / max(cpu, 1e-9),
            "peak_memory_mb": mem.peak / 1e6, "ns_per_event_cpu": cpu / max(events, 1) * 1e9, "note": w.note}
