@@ -11,8 +11,9 @@ import threading
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QObject, Signal
-from PySide6.QtWidgets import (QComboBox, QDialog, QDoubleSpinBox, QFileDialog, QFormLayout, QHBoxLayout,
-                               QLabel, QProgressBar, QPushButton, QSpinBox, QVBoxLayout)
+from PySide6.QtWidgets import (QComboBox, QDialog, QDoubleSpinBox, QFileDialog, QFormLayout,
+                               QHBoxLayout, QLabel, QProgressBar, QPushButton, QSpinBox,
+                               QVBoxLayout)
 
 from raytrace.errors import RaytraceError, SceneError
 from raytrace.shapes import PARAMETERS

@@ -259,16 +259,22 @@ class PartPage(_Page):
                     it.setToolTip(f"arc about ({e.arc_center[0]:.4g}, {e.arc_center[1]:.4g}), "
                                   f"radius {e.radius:.4g} mm")
                 self.table.setItem(r, c, it)
-            combo = QComboBox()
-            combo.addItems(TREATMENT_KINDS)
+            combo = self.table.cellWidget(r, 3)
+            if combo is None:      # made once per row; a drag only updates the texts
+                combo = QComboBox()
+                combo.addItems(TREATMENT_KINDS)
+                combo.currentTextChanged.connect(lambda k, row=r: self._treatment(row, k))
+                self.table.setCellWidget(r, 3, combo)
+            combo.blockSignals(True)
             combo.setCurrentText(e.treatment.kind)
-            combo.currentTextChanged.connect(lambda k, row=r: self._treatment(row, k))
-            self.table.setCellWidget(r, 3, combo)
+            combo.blockSignals(False)
             rit = QTableWidgetItem(f"{e.treatment.reflectance:g}" if e.treatment.kind == "mirror" else "")
             if e.treatment.kind != "mirror":
                 rit.setFlags(rit.flags() & ~Qt.ItemIsEditable)
             self.table.setItem(r, 4, rit)
-        self.table.resizeColumnsToContents()
+        if self.table.property("sized_for") != (index, len(edges)):
+            self.table.resizeColumnsToContents()
+            self.table.setProperty("sized_for", (index, len(edges)))
         self.table.blockSignals(False)
 
     def _show_shape(self, p):
