@@ -672,3 +672,19 @@ def test_saved_and_exported_files_get_ordinary_permissions(qtbot, win, tmp_path)
     scene_path.chmod(0o640)
     assert win.save()
     assert scene_path.stat().st_mode & 0o777 == 0o640, "a saved-over file keeps its mode"
+
+
+@pytest.mark.parametrize("sample", sorted(p.stem for p in SAMPLES.glob("*.json")))
+def test_every_sample_renders(qtbot, home, tmp_path, sample):
+    """The screenshot path in-process for each bundled sample: traced without error, drawn."""
+    from PySide6.QtWidgets import QApplication
+    from gui.app import screenshot
+    w = make_window(qtbot)
+    png = tmp_path / f"{sample}.png"
+    assert screenshot(QApplication.instance(), w, str(SAMPLES / f"{sample}.json"), str(png), "900x600") == 0
+    assert w.last_outcome is not None and not w.last_outcome.error
+    assert w.canvas.painted_segments > 0 and len(w.canvas.drawing.hits_x) > 0
+    blank_png = tmp_path / "blank.png"
+    assert screenshot(QApplication.instance(), make_window(qtbot), None, str(blank_png), "900x600") == 0
+    shown, blank = _coloured_share(QImage(str(png))), _coloured_share(QImage(str(blank_png)))
+    assert shown > 0.002 and shown > 4 * blank, (shown, blank)
