@@ -123,7 +123,6 @@ def check_geometry(scene: Scene, problems: Problems, part_paths: list[str] | Non
     duplicate part names, and partial overlaps between parts.
 
     `part_paths` gives each part's JSON path (parts that failed to load are not in the list)."""
-    tol = flatten_tolerance(scene)
     size = scene.size_hint()
     paths = part_paths or [f"$.parts[{i}]" for i in range(len(scene.parts))]
     polys: list = []
