@@ -225,7 +225,7 @@ def _part(value: Any, where: str, problems: Problems) -> Part | None:
     material = F.string(d, "material", where, problems, nonempty=True)
     has_b, has_s = "boundary" in d, "shape" in d
     if has_b == has_s:
-        problems.add(where, "both 'boundary' and 'shape'" if has_b else "<neither 'boundary' nor 'shape'>",
+        problems.add(where, "<both 'boundary' and 'shape'>" if has_b else "<neither 'boundary' nor 'shape'>",
                      "exactly one of 'boundary' (a list of edges) or 'shape' (a shape builder)")
         return None
     spec = None

@@ -263,3 +263,66 @@ def test_a_billion_microprisms_is_refused_before_building(tmp_path):
     d["parts"][0]["shape"]["params"]["count"] = 10**9
     p = _one(_problems(_write(tmp_path, d)), "$.parts[0].shape.params.count")
     assert "at most 100000" in p.expected
+
+
+def _sq(name, x):
+    return _square(name, x, 0, 1)
+
+
+def _case(edit):
+    d = _scene()
+    edit(d)
+    return d
+
+
+def _set(d, path, value):
+    node = d
+    for k in path[:-1]:
+        node = node[k]
+    node[path[-1]] = value
+
+
+BAD_STRUCTURE = {
+    "both boundary and shape": (lambda d: _set(d, ("parts", 0, "boundary"), _sq("a", 0)["boundary"]),
+                                "$.parts[0]", "both 'boundary' and 'shape'"),
+    "neither boundary nor shape": (lambda d: d["parts"][0].pop("shape"), "$.parts[0]", "neither"),
+    "arc centre off the bisector": (lambda d: (_set(d, ("parts",), [_sq("a", 0)]),
+                                               _set(d, ("parts", 0, "boundary", 1, "arc"),
+                                                    {"center": [0.3, 3], "direction": "ccw"})),
+                                    "$.parts[0].boundary[1].arc.center", "[0.3, 3.0]"),
+    "arc direction": (lambda d: (_set(d, ("parts",), [_sq("a", 0)]),
+                                 _set(d, ("parts", 0, "boundary", 1, "arc"), {"center": [2, 0.5], "direction": "left"})),
+                      "$.parts[0].boundary[1].arc.direction", "'left'"),
+    "hole outside the part": (lambda d: _set(d, ("parts",), [dict(_sq("a", 0), holes=[_sq("h", 5)["boundary"]])]),
+                              "$.parts[0].holes", "outside"),
+    "duplicate part names": (lambda d: _set(d, ("parts",), [_sq("a", 0), _sq("a", 3)]), "$.parts[1].name", "'a'"),
+    "duplicate source names": (lambda d: d["sources"].append(copy.deepcopy(d["sources"][0])),
+                               "$.sources[1].name", "'probe beam'"),
+    "unknown face": (lambda d: _set(d, ("parts", 0, "faces"), {"frnt": {"treatment": "absorber"}}),
+                     "$.parts[0].faces.frnt", "'frnt'"),
+    "unknown treatment": (lambda d: _set(d, ("parts", 0, "faces"), {"front": {"treatment": "paint"}}),
+                          "$.parts[0].faces.front.treatment", "'paint'"),
+    "reflectance above 1": (lambda d: _set(d, ("parts", 0, "faces"),
+                                           {"front": {"treatment": {"kind": "mirror", "reflectance": 1.5}}}),
+                            "$.parts[0].faces.front.treatment.reflectance", "1.5"),
+    "two-point boundary": (lambda d: _set(d, ("parts",), [dict(_sq("a", 0), boundary=_sq("a", 0)["boundary"][:2])]),
+                           "$.parts[0].boundary", "2 edge(s)"),
+    "zero-length edge": (lambda d: (_set(d, ("parts",), [_sq("a", 0)]), _set(d, ("parts", 0, "boundary", 2, "from"), [1, 0])),
+                         "$.parts[0].boundary[1]", "zero length"),
+    "zero-length detector": (lambda d: _set(d, ("detectors", 0, "end"), d["detectors"][0]["start"]),
+                             "$.detectors[0].end", "[30.0, -20.0]"),
+    "wavelength out of range": (lambda d: _set(d, ("sources", 0, "spectrum"), {"wavelength_nm": 50}),
+                                "$.sources[0].spectrum.wavelength_nm", "50"),
+    "Sellmeier pole in band": (lambda d: (_set(d, ("materials",), {"g": {"model": "sellmeier", "b": [1.0], "c": [0.25]}}),
+                                          _set(d, ("parts", 0, "material"), "g")),
+                               "$.materials.g.c[0]", "0.25"),
+    "other format version": (lambda d: _set(d, ("version",), 2), "$.version", "2"),
+    "other units": (lambda d: _set(d, ("units",), {"length": "in"}), "$.units", '"in"'),
+}
+
+
+@pytest.mark.parametrize("name", sorted(BAD_STRUCTURE))
+def test_structural_problems_name_the_field(tmp_path, name):
+    edit, path, found = BAD_STRUCTURE[name]
+    p = _one(_problems(_write(tmp_path, _case(edit))), path)
+    assert found in p.found, str(p)
