@@ -7,6 +7,7 @@ by kind and brightness from `raydraw`, one line item per group.
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pyqtgraph as pg
@@ -46,6 +47,9 @@ def _pen(colour, width=1.5, style_=Qt.SolidLine):
     p.setCosmetic(True)
     p.setStyle(style_)
     return p
+
+
+_NUDGE = {Qt.Key_Left: (-1, 0), Qt.Key_Right: (1, 0), Qt.Key_Up: (0, 1), Qt.Key_Down: (0, -1)}
 
 
 class _View(pg.ViewBox):
@@ -214,8 +218,28 @@ class Canvas(QWidget):
             self.tool.key_enter()
         elif ev.key() == Qt.Key_Backspace:
             self.tool.key_backspace()
+        elif ev.key() in _NUDGE and self.selection:
+            dx, dy = _NUDGE[ev.key()]
+            step = self.grid_step * (10 if ev.modifiers() & Qt.ShiftModifier else 1)
+            self.nudge(dx * step, dy * step)
         else:
             super().keyPressEvent(ev)
+
+    def nudge(self, dx: float, dy: float) -> None:
+        """Move the selection by (dx, dy) mm: the arrow keys, one grid step (Shift: ten)."""
+        kind, index = self.selection
+        s = self.scene
+        if kind == edits.PART:
+            p = s.parts[index]
+            new, name = edits.replace_part(s, index, edits.move_part(p, dx, dy)), p.name
+        elif kind == edits.SOURCE:
+            src = s.sources[index]
+            moved = replace(src, position=(src.position[0] + dx, src.position[1] + dy))
+            new, name = edits.replace_source(s, index, moved), src.name
+        else:
+            d = s.detectors[index]
+            new, name = edits.replace_detector(s, index, edits.move_detector(d, dx, dy)), d.name
+        self.doc.apply(new, f"nudge {name}")
 
     # ------------------------------------------------------------------ geometry helpers
     def pixel_mm(self) -> float:

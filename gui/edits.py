@@ -177,6 +177,16 @@ def rotate_source(src: Source, angle_deg: float) -> Source:
     return replace(src, direction_deg=_wrap_deg(src.direction_deg + angle_deg))
 
 
+def duplicate(scene: Scene, kind: str, index: int, dx: float, dy: float) -> Scene:
+    """A copy of one part, source or detector, moved by (dx, dy) and given a free name."""
+    if kind == PART:
+        return add_part(scene, move_part(scene.parts[index], dx, dy))
+    if kind == SOURCE:
+        src = scene.sources[index]
+        return add_source(scene, replace(src, position=(src.position[0] + dx, src.position[1] + dy)))
+    return add_detector(scene, move_detector(scene.detectors[index], dx, dy))
+
+
 # ------------------------------------------------------------------ scene-wide
 
 def set_settings(scene: Scene, **changes) -> Scene:

@@ -21,7 +21,8 @@ SHORTCUTS = """<h3>Keys</h3>
 <table>
 <tr><td>Ctrl+N / Ctrl+O / Ctrl+S / Ctrl+Shift+S</td><td>new, open, save, save as</td></tr>
 <tr><td>Ctrl+Z / Ctrl+Shift+Z (Ctrl+Y)</td><td>undo / redo</td></tr>
-<tr><td>Del</td><td>delete the selected part, source or detector</td></tr>
+<tr><td>Del, Ctrl+D</td><td>delete, duplicate the selected part, source or detector</td></tr>
+<tr><td>arrow keys (Shift: x10)</td><td>move the selection by one grid step</td></tr>
 <tr><td>V, R</td><td>select and drag / rotate</td></tr>
 <tr><td>P, B</td><td>draw a part by its vertices / by a rectangle</td></tr>
 <tr><td>L, D</td><td>place a light source / a detector</td></tr>

@@ -139,6 +139,8 @@ class MainWindow(QMainWindow):
         e.addSeparator()
         self._act(e, "&Delete selected", self.delete_selected, QKeySequence.Delete,
                   "Delete the selected part, source or detector")
+        self._act(e, "D&uplicate selected", self.duplicate_selected, "Ctrl+D",
+                  "A copy of the selected part, source or detector, a little to the side")
         self._act(e, "Add part from a &shape...", lambda: self.add_shape(), "Ctrl+Shift+A",
                   "Prism, roof prism, light-pipe path, microprism strip, window, lens...")
         self._act(e, "Define a &material...", lambda: self.properties.define_material(), None,
@@ -397,6 +399,26 @@ class MainWindow(QMainWindow):
                 edits.DETECTOR: self.doc.scene.detectors}[kind][index].name
         self.canvas.select(None)
         self.doc.apply(edits.delete_item(self.doc.scene, kind, index), f"delete {name}")
+
+    def duplicate_selected(self) -> None:
+        sel = self.canvas.selection
+        if not sel:
+            return
+        kind, index = sel
+        if kind == edits.PART:     # beside the original: overlapping parts cannot be traced
+            bx0, _, bx1, _ = self.doc.scene.parts[index].outer.bounds()
+            dx, dy = 1.1 * (bx1 - bx0), 0.0
+        else:
+            (x0, x1), _ = self.canvas.view.viewRange()
+            dx = dy = 0.05 * (x1 - x0)
+            dy = -dy
+        if self.canvas.snapping:
+            g = self.canvas.grid_step
+            dx, dy = (round(dx / g) or (1 if dx else 0)) * g, round(dy / g) * g
+        new = edits.duplicate(self.doc.scene, kind, index, dx, dy)
+        items = {edits.PART: new.parts, edits.SOURCE: new.sources, edits.DETECTOR: new.detectors}[kind]
+        self.doc.apply(new, f"duplicate as {items[-1].name}")
+        self.canvas.select((kind, len(items) - 1))
 
     def add_shape(self, kind: str | None = None) -> None:
         from raytrace.catalog import CATALOG

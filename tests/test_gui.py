@@ -688,3 +688,23 @@ def test_every_sample_renders(qtbot, home, tmp_path, sample):
     assert screenshot(QApplication.instance(), make_window(qtbot), None, str(blank_png), "900x600") == 0
     shown, blank = _coloured_share(QImage(str(png))), _coloured_share(QImage(str(blank_png)))
     assert shown > 0.002 and shown > 4 * blank, (shown, blank)
+
+
+def test_arrow_keys_nudge_and_duplicate(qtbot, win):
+    from PySide6.QtCore import Qt
+    open_sample(qtbot, win, WINDOW)
+    win.show()
+    win.canvas.select((edits.PART, 0))
+    p0 = win.doc.scene.parts[0].shape.position
+    qtbot.keyClick(win.canvas.plot, Qt.Key_Right)
+    qtbot.keyClick(win.canvas.plot, Qt.Key_Up, Qt.ShiftModifier)
+    assert win.doc.scene.parts[0].shape.position == (p0[0] + 1.0, p0[1] + 10.0)   # grid step 1 mm
+    win.snap_action.trigger()
+    win.duplicate_selected()
+    parts = win.doc.scene.parts
+    assert len(parts) == 2 and parts[1].name != parts[0].name
+    x0, _, x1, _ = parts[0].outer.bounds()
+    assert parts[1].shape.position == (parts[0].shape.position[0] + round(1.1 * (x1 - x0)),
+                                       parts[0].shape.position[1]), "beside the original, on the grid"
+    assert win.canvas.selection == (edits.PART, 1)
+    assert win.doc.undo_stack.count() == 3
