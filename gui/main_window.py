@@ -91,7 +91,8 @@ class MainWindow(QMainWindow):
         self.canvas.cursor_moved.connect(lambda x, y: self.cursor_label.setText(f"x {x:.3f}, y {y:.3f} mm"))
         self.canvas.status_message.connect(self.status_note)
         self.worker.finished.connect(self._show_outcome)
-        self.worker.busy.connect(lambda b: self.trace_label.setText("tracing..." if b else self.trace_label.text()))
+        # a bound slot, so the call is queued to this thread (busy is emitted by the trace thread)
+        self.worker.busy.connect(self._trace_busy)
         self.controls.options_changed.connect(self.request_trace)
         self.controls.trace_now.connect(lambda: self.request_trace(force=True))
         self.controls.stop.connect(self.stop_trace)
@@ -468,6 +469,10 @@ class MainWindow(QMainWindow):
             self.trace_label.setText("no source to trace")
             return None
         return self.worker.submit(scene, self.controls.options(), self.doc.epoch)
+
+    def _trace_busy(self, busy: bool) -> None:
+        if busy:
+            self.trace_label.setText("tracing...")
 
     def stop_trace(self) -> None:
         self.worker.cancel()
