@@ -93,6 +93,7 @@ class MainWindow(QMainWindow):
         self.worker.finished.connect(self._show_outcome)
         # a bound slot, so the call is queued to this thread (busy is emitted by the trace thread)
         self.worker.busy.connect(self._trace_busy)
+        self.worker.progress.connect(self._trace_progress)
         self.controls.options_changed.connect(self.request_trace)
         self.controls.trace_now.connect(lambda: self.request_trace(force=True))
         self.controls.stop.connect(self.stop_trace)
@@ -473,6 +474,9 @@ class MainWindow(QMainWindow):
     def _trace_busy(self, busy: bool) -> None:
         if busy:
             self.trace_label.setText("tracing...")
+
+    def _trace_progress(self, segments: int) -> None:
+        self.trace_label.setText(f"tracing... {segments:,} segments (Shift+F5 stops)")
 
     def stop_trace(self) -> None:
         self.worker.cancel()

@@ -44,6 +44,7 @@ class TraceOutcome:
 class TraceWorker(QObject):
     finished = Signal(object)     # accepted TraceOutcome, delivered on the UI thread
     busy = Signal(bool)
+    progress = Signal(int)        # segments traced so far in the running trace
     _done = Signal(object)        # every outcome, from the trace thread
 
     def __init__(self, parent=None):
@@ -127,8 +128,15 @@ class TraceWorker(QObject):
             self.busy.emit(True)
             outcome = TraceOutcome(req)
             t0 = time.perf_counter()
+            last = [0.0]
+
+            def on_progress(stats, last=last):
+                now = time.perf_counter()
+                if now - last[0] > 0.2:          # a few updates a second are plenty
+                    last[0] = now
+                    self.progress.emit(int(stats.get("segments", 0)))
             try:
-                outcome.result = run_trace(req.scene, req.options, self._cancel)
+                outcome.result = run_trace(req.scene, req.options, self._cancel, on_progress)
             except TraceCancelled:
                 outcome.cancelled = True
             except SceneError as exc:
