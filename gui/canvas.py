@@ -154,7 +154,15 @@ class Canvas(QWidget):
             a.enableAutoSIPrefix(False)
             a.setTextPen(style.AXIS)
             a.setPen(style.AXIS)
-        self.plot.showGrid(x=True, y=True, alpha=0.18)
+        # our own grid of opaque lines under the parts: pyqtgraph's grid is drawn with alpha
+        # by the axes over the whole view and made every repaint several times slower
+        self._grid_items = []
+        for colour in (style.GRID_MINOR, style.GRID_MAJOR):
+            g = pg.PlotCurveItem(pen=_pen(colour, 1.0), connect="pairs", antialias=False, skipFiniteCheck=True)
+            g.setZValue(-10)
+            self.plot.addItem(g, ignoreBounds=True)
+            self._grid_items.append(g)
+        self._grid_on = True
         self.legend = LegendBar()
         lay = QVBoxLayout(self)
         lay.setContentsMargins(0, 0, 0, 0)
@@ -191,7 +199,7 @@ class Canvas(QWidget):
 
         self.tools = {name: cls(self) for name, cls in TOOLS.items()}
         self.tool = self.tools[SELECT]
-        self.view.sigRangeChanged.connect(lambda *_: self._draw_glyphs())
+        self.view.sigRangeChanged.connect(lambda *_: self._view_changed())
         self.plot.scene().sigMouseMoved.connect(self._mouse_moved)
         self.setMouseTracking(True)
 
@@ -340,7 +348,45 @@ class Canvas(QWidget):
         self._preview_item.setData(xs, ys)
 
     def show_grid(self, on: bool) -> None:
-        self.plot.showGrid(x=on, y=on, alpha=0.18 if on else 0.0)
+        self._grid_on = bool(on)
+        self._draw_grid()
+
+    def _view_changed(self) -> None:
+        self._draw_glyphs()
+        self._draw_grid()
+
+    def _draw_grid(self) -> None:
+        """Minor and major lines at the axes' own tick spacings, across the visible range."""
+        minor, major = self._grid_items
+        if not self._grid_on:
+            minor.setData([], [])
+            major.setData([], [])
+            return
+        (x0, x1), (y0, y1) = self.view.viewRange()
+        levels = []
+        for name, lo, hi in (("bottom", x0, x1), ("left", y0, y1)):
+            ax = self.plot.getAxis(name)
+            size = max(self.view.width() if name == "bottom" else self.view.height(), 1.0)
+            levels.append(ax.tickSpacing(lo, hi, size))
+        for item, level in ((major, 0), (minor, 1)):
+            xs, ys = [], []
+            for axis, (lo, hi), other in ((0, (x0, x1), (y0, y1)), (1, (y0, y1), (x0, x1))):
+                spacings = levels[axis]
+                if len(spacings) <= level:
+                    continue
+                step, offset = spacings[level]
+                if step <= 0 or (hi - lo) / step > 400:
+                    continue
+                first = np.ceil((lo - offset) / step) * step + offset
+                v = np.arange(first, hi + 0.5 * step, step)
+                a = np.repeat(v, 2)
+                b = np.tile(np.asarray(other, dtype=float), len(v))
+                xs.append(a if axis == 0 else b)
+                ys.append(b if axis == 0 else a)
+            if xs:
+                item.setData(np.concatenate(xs), np.concatenate(ys), connect="pairs")
+            else:
+                item.setData([], [])
 
     # ------------------------------------------------------------------ drawing
     def set_scene(self, scene: Scene) -> None:

@@ -7,6 +7,8 @@ from PySide6.QtGui import QColor
 
 BACKGROUND = QColor(250, 250, 246)
 AXIS = QColor(60, 60, 60)
+GRID_MAJOR = QColor(212, 212, 204)
+GRID_MINOR = QColor(238, 238, 232)
 
 RAY = QColor(222, 118, 0)          # rays travelling on (refracted, reflected, from the source)
 ESCAPING = QColor(214, 40, 90)     # the last leg of a ray that leaves the scene
