@@ -708,3 +708,13 @@ def test_arrow_keys_nudge_and_duplicate(qtbot, win):
                                        parts[0].shape.position[1]), "beside the original, on the grid"
     assert win.canvas.selection == (edits.PART, 1)
     assert win.doc.undo_stack.count() == 3
+
+
+def test_recent_files_menu_reopens(qtbot, win):
+    assert win.open_file(str(WINDOW))
+    assert win.open_file(str(LIGHT_PIPE))
+    win._fill_recent()
+    actions = [a for a in win.recent_menu.actions() if a.isEnabled()]
+    assert [a.text() for a in actions[:2]] == [str(LIGHT_PIPE.resolve()), str(WINDOW.resolve())]
+    actions[1].trigger()
+    assert win.doc.path == WINDOW.resolve() and win.doc.scene == load_scene(WINDOW)
