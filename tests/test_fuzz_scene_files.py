@@ -24,7 +24,7 @@ from raytrace.scene_io import load_scene, scene_from_text
 
 SAMPLES = sorted((Path(__file__).parent.parent / "samples").glob("*.json"))
 SAMPLE_DATA = [json.loads(p.read_text(encoding="utf-8")) for p in SAMPLES]
-EXAMPLES = int(os.environ.get("RAYTRACE_FUZZ_EXAMPLES", "300"))
+EXAMPLES = int(os.environ.get("RAYTRACE_FUZZ_EXAMPLES", "500"))
 MAX_LOAD_S = 5.0   # a single load slower than this counts as a hang
 
 FUZZ = settings(max_examples=EXAMPLES, deadline=None, derandomize=True,

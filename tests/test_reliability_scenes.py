@@ -42,7 +42,7 @@ from raytrace.scene import Detector, Scene, Source, Spectrum, TraceSettings
 from raytrace.shapes import build
 from raytrace.tracer import B_MIRROR, B_REFLECTED, B_REFRACTED, B_TIR, E_ESCAPED
 
-EXAMPLES = int(os.environ.get("RAYTRACE_PROPERTY_EXAMPLES", "150"))
+EXAMPLES = int(os.environ.get("RAYTRACE_PROPERTY_EXAMPLES", "250"))
 PROPERTY = settings(max_examples=EXAMPLES, deadline=None, derandomize=True,
                     suppress_health_check=[HealthCheck.too_slow, HealthCheck.filter_too_much,
                                            HealthCheck.data_too_large])

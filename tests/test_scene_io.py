@@ -32,7 +32,7 @@ def test_samples_are_saved_as_they_are_written(sample):
     assert scene_to_text(load_scene(sample)) == sample.read_text(encoding="utf-8")
 
 
-@settings(max_examples=int(os.environ.get("RAYTRACE_PROPERTY_EXAMPLES", "150")), deadline=None,
+@settings(max_examples=int(os.environ.get("RAYTRACE_PROPERTY_EXAMPLES", "250")), deadline=None,
           derandomize=True, suppress_health_check=[HealthCheck.too_slow, HealthCheck.filter_too_much])
 @given(scene=scenes())
 def test_random_scenes_round_trip(scene):
