@@ -44,7 +44,7 @@ def load_scene(path: str | os.PathLike) -> Scene:
     path = Path(path)
     problems = Problems(file=str(path))
     try:
-        text = path.read_text(encoding="utf-8")
+        text = path.read_text(encoding="utf-8-sig")   # -sig: accept the BOM some editors write
     except FileNotFoundError:
         problems.add("$", "<no such file>", "an existing scene file")
         raise SceneError(problems.items)

@@ -326,3 +326,16 @@ def test_structural_problems_name_the_field(tmp_path, name):
     edit, path, found = BAD_STRUCTURE[name]
     p = _one(_problems(_write(tmp_path, _case(edit))), path)
     assert found in p.found, str(p)
+
+
+def test_a_byte_order_mark_is_accepted(tmp_path):
+    """Some Windows editors start UTF-8 files with a byte-order mark; that is not an error."""
+    f = tmp_path / "bom.json"
+    f.write_bytes(b"\xef\xbb\xbf" + (SAMPLES / "oblique-window.json").read_bytes())
+    assert load_scene(f).name == WINDOW["name"]
+
+
+def test_a_directory_is_a_scene_error(tmp_path):
+    with pytest.raises(SceneError) as info:
+        load_scene(tmp_path)
+    assert "unreadable file" in info.value.problems[0].found
