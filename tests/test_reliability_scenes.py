@@ -324,6 +324,8 @@ def _interface_laws(scene, result):
     refl = born != B_REFRACTED
     np.testing.assert_allclose(tx[refl], (dx - 2 * dot * nx)[refl], atol=1e-9)
     np.testing.assert_allclose(ty[refl], (dy - 2 * dot * ny)[refl], atol=1e-9)
+    # a reflected ray stays in the medium it came from
+    np.testing.assert_array_equal(seg["medium"][child][refl], seg["medium"][par][refl])
     tr = ~refl
     if tr.any():
         wl = seg["wavelength_nm"][child][tr]
