@@ -412,8 +412,7 @@ class MainWindow(QMainWindow):
             dx, dy = 1.1 * (bx1 - bx0), 0.0
         else:
             (x0, x1), _ = self.canvas.view.viewRange()
-            dx = dy = 0.05 * (x1 - x0)
-            dy = -dy
+            dx, dy = 0.05 * (x1 - x0), -0.05 * (x1 - x0)
         if self.canvas.snapping:
             g = self.canvas.grid_step
             dx, dy = (round(dx / g) or (1 if dx else 0)) * g, round(dy / g) * g
