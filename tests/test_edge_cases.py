@@ -60,7 +60,7 @@ def accounted(scene, rays=1, check_media=True, **kw):
         # no source ray silently dropped: each has its first segment in the table
         n_start = a.stats["source_rays"]
         assert len(np.unique(seg["source_ray"])) == len(np.flatnonzero(seg["generation"] == 0)) == n_start
-        _interface_laws(scene, a)
+        _interface_laws(scene, a, media=check_media)
         if check_media:
             _media_along_segments(scene, a)
     return a
