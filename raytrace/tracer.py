@@ -123,6 +123,39 @@ class _SceneArrays:
         self.alpha = np.array([m.absorption_per_mm for m in cs.media], dtype=float)
         self.absorbing = bool((self.alpha > 0).any())
         self.n_codes = ne * N_EVENT_KINDS
+        self.eps = cs.eps
+        self.detector_ids = np.flatnonzero(cs.detector >= 0)
+        self.detectors_touch_boundary = _detectors_touch_boundary(cs)
+
+
+def _detectors_touch_boundary(cs: CompiledScene) -> bool:
+    """Whether any detector meets a part's boundary: only then can a detector and a face be
+    hit at the same point, which needs the detector-first tie rule in the loop."""
+    dets = np.flatnonzero(cs.detector >= 0)
+    if len(dets) == 0 or len(dets) == cs.n_edges:
+        return False
+    import shapely
+    boundary = [e for e, d in zip(cs.edges, cs.detector) if d < 0]
+    tol = 1e-5 * cs.scale
+    lines = shapely.MultiLineString([e.flattened(tol) + [e.end] for e in boundary])
+    return any(shapely.LineString([(cs.x0[i], cs.y0[i]), (cs.x1[i], cs.y1[i])]).distance(lines) <= 2 * cs.eps
+               for i in dets)
+
+
+def _start_points(cs: CompiledScene, start: StartRays, hit_fn):
+    """Where source rays begin.  A ray whose start point lies on a face (an LED sitting on a
+    guide's input face) is moved back by 2 eps along its direction, so it meets that face, on
+    the side it comes from, and refracts there; other rays start exactly where they were put."""
+    x = start.x.astype(float)
+    y = start.y.astype(float)
+    if len(x) == 0 or cs.n_edges == 0:
+        return x, y
+    back = 2.0 * cs.eps
+    bx = x - back * start.dx
+    by = y - back * start.dy
+    t, e = hit_fn(cs, bx, by, start.dx, start.dy, np.full(len(x), -1, dtype=np.int64))
+    on_face = (e >= 0) & (t <= back + cs.eps) & (cs.detector[np.maximum(e, 0)] < 0)
+    return np.where(on_face, bx, x), np.where(on_face, by, y)
 
 
 def _scene_arrays(cs: CompiledScene) -> _SceneArrays:
@@ -194,11 +227,16 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     thr_root = limits.min_relative_flux * flux0      # children below this end (per source ray)
     path_thr = max(limits.path_min_relative_flux, limits.min_relative_flux) * flux0
     recording = record.mode != "none"
+    x0, y0 = _start_points(cs, start, hit_fn)
+    med0 = medium_at(cs, x0, y0, start.dx, start.dy)
+    # a ray moved back onto its face travels those 2 eps again: start its optical path below 0
+    moved = np.hypot(x0 - start.x, y0 - start.y)
     r = {
-        "x": start.x.astype(float), "y": start.y.astype(float),
+        "x": x0, "y": y0,
         "dx": start.dx.astype(float), "dy": start.dy.astype(float),
-        "fs": start.flux_s.astype(float), "fp": start.flux_p.astype(float), "opl": np.zeros(n),
-        "wli": wli.astype(np.int64), "med": medium_at(cs, start.x, start.y, start.dx, start.dy),
+        "fs": start.flux_s.astype(float), "fp": start.flux_p.astype(float),
+        "opl": -moved * n_table[med0, wli],
+        "wli": wli.astype(np.int64), "med": med0,
         "root": np.arange(n, dtype=np.int64), "start": np.full(n, -1, dtype=np.int64),
         "last": np.full(n, -1, dtype=np.int64), "path": start.source.astype(np.int64),
     }
@@ -252,6 +290,13 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         fs, fp, med = r["fs"], r["fp"], r["med"]
         # --- nearest hit, then travel to it
         t, e = hit_fn(cs, x, y, dx, dy, r["start"])
+        if K.detectors_touch_boundary:
+            # a detector drawn on a face is met first: it records the ray, then the face acts
+            td, ed = nearest_hit(cs, x, y, dx, dy, r["start"], edge_ids=K.detector_ids)
+            first = (ed >= 0) & (ed != e) & (td <= t + cs.eps)
+            if first.any():
+                t = np.where(first, td, t)
+                e = np.where(first, ed, e)
         esc = e < 0
         L = np.where(esc, 0.0, t)
         codes: list[np.ndarray] = []      # ledger deposits of this generation
@@ -279,7 +324,8 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         else:
             esc_live = esc
         mw = med * W + r["wli"] if W > 1 else med
-        opl = r["opl"] + n_flat[mw] * L
+        n_here = n_flat[mw]
+        opl = r["opl"] + n_here * L
         hx = x + L * dx
         hy = y + L * dy
         treat = K.treat[e]
@@ -370,7 +416,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
 
         # --- the next generation: children that carry enough flux
         r, next_id = _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording,
-                                      next_id, hx, hy, e, opl, deposit)
+                                      next_id, hx, hy, e, opl, deposit, n_here)
 
         if codes:
             code = np.concatenate(codes)
@@ -505,7 +551,7 @@ def _interfaces(cs, K, r, di, e, hx, hy, fs, fp, treat, n_flat, W, mode, rng, st
 
 
 def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, next_id, hx, hy, e, opl,
-                     deposit):
+                     deposit, n_here):
     """Gather the surviving children into the next generation's arrays.
 
     A child whose flux is below its source ray's threshold ends here: its flux is booked as
@@ -540,8 +586,18 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
     pidx = parts[0][0] if one else np.concatenate([g for g, _ in parts])
     start = e[pidx]
     same_last = all(k[6] is e for _, k in parts)
-    out = {"x": hx[pidx], "y": hy[pidx], "dx": col(1), "dy": col(2), "fs": col(3), "fp": col(4),
-           "med": col(5), "start": start, "last": start if same_last else col(6), "opl": opl[pidx],
+    ox, oy, oopl = hx[pidx], hy[pidx], opl[pidx]
+    is_pass = [np.isscalar(k[7]) and k[7] == EV_PASS for _, k in parts]
+    if any(is_pass):
+        # a ray that passed a detector goes on from 2 eps before the crossing, so a face lying
+        # under the detector is still met (the detector edge itself is excluded as start edge)
+        passed = np.concatenate([np.full(len(g), p) for (g, _), p in zip(parts, is_pass)])
+        back = 2.0 * K.eps
+        ox = np.where(passed, ox - back * col(1), ox)
+        oy = np.where(passed, oy - back * col(2), oy)
+        oopl = np.where(passed, oopl - back * n_here[pidx], oopl)   # the 2 eps are travelled again
+    out = {"x": ox, "y": oy, "dx": col(1), "dy": col(2), "fs": col(3), "fp": col(4),
+           "med": col(5), "start": start, "last": start if same_last else col(6), "opl": oopl,
            "wli": r["wli"][pidx], "root": root[pidx]}
     parent_path = r["path"][pidx]
     if paths.enabled:
