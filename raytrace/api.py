@@ -26,7 +26,8 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
           sampling: str | None = None, compiled: CompiledScene | None = None,
           start: StartRays | None = None, track_paths: bool = True, progress=None,
           workers: int = 1, chunk_size: int | None = None, max_memory_mb: float | None = None,
-          accel: str = "auto", hits: str = "auto") -> TraceResult:
+          accel: str = "auto", hits: str = "auto",
+          path_min_relative_flux: float | None = None) -> TraceResult:
     """Trace a scene.  Unset options fall back to the scene's own trace settings.
 
     record: "none", "all", or "first" with `record_count` source rays, for the ray table.
@@ -36,6 +37,8 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
         depends on it through the per-chunk seeds, never on `workers`.
     max_memory_mb: memory limit of one chunk's trace; past it the trace stops with BudgetExceeded.
     accel: nearest-hit method, "auto" (default), "plain", "sweep" or "grid"; all give the same result.
+    path_min_relative_flux: rays fainter than this share of their source ray's flux are lumped
+        into "other paths" in the path analysis (default 1e-3; lower it to see faint ghosts).
     hits: "keep" one record per detector hit, "histogram" (binned per detector, for very long
         traces; `result.raw.histograms`), or "auto" (keep up to 2 million source rays).
     """
@@ -49,6 +52,8 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
         max_segments=s.max_segments if max_segments is None else int(max_segments))
     if max_memory_mb is not None:
         limits.max_memory_mb = float(max_memory_mb)
+    if path_min_relative_flux is not None:
+        limits.path_min_relative_flux = float(path_min_relative_flux)
     cs = compiled or compile_scene(scene)
     if start is None:
         need = rays * BYTES_PER_START_RAY

@@ -44,6 +44,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="write each detector's irradiance and angular profiles as CSV")
     t.add_argument("--paths", metavar="N", type=int, nargs="?", const=10, default=None,
                    help="print the N paths carrying the most flux to each detector and to losses (default 10)")
+    t.add_argument("--paths-min-flux", metavar="F", type=float, dest="path_min_relative_flux", default=None,
+                   help="follow paths down to this share of a source ray's flux (default 1e-3; "
+                        "lower it to see faint ghosts)")
 
     w = sub.add_parser("sweep", help="trace a scene over a range of one or two named numbers",
                        description="Trace SCENE at every point of a range and write one CSV row per point: "
@@ -150,7 +153,7 @@ def cmd_trace(args) -> int:
     try:
         result = trace(scene, record=record[0], record_count=record[1], progress=progress.trace,
                        track_paths=args.paths is not None, workers=getattr(args, "trace_workers", None) or 1,
-                       **trace_kwargs(args))
+                       path_min_relative_flux=args.path_min_relative_flux, **trace_kwargs(args))
     finally:
         progress.close()
     if not args.quiet:

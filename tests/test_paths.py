@@ -125,3 +125,18 @@ def test_no_paths_when_not_tracked():
     r = raytrace.trace(scene, rays=10, track_paths=False)
     assert path_groups(r) == []
     assert "not tracked" in paths_text(r)
+
+
+def test_faint_ghosts_are_followed_when_the_path_threshold_is_lowered():
+    """reference library: tmm.coh_tmm for R.  At normal incidence on n = 1.5 the ghost into
+    'through' carries (1 - R)^2 R^2 = 1.5e-3 and the next one (1 - R)^2 R^4 = 2.4e-6 of the
+    beam: below the default path threshold (1e-3 of a ray) the second is lumped into "other
+    paths", with path_min_relative_flux=1e-8 it is a path of its own with that share."""
+    R = tmm.coh_tmm("s", [1.0, N_GLASS], [np.inf, np.inf], 0.0, 633.0)["R"]
+    ghost2 = ("enter through plate / front, reflect off plate / back, reflect off plate / front, "
+              "reflect off plate / back, reflect off plate / front, leave through plate / back")
+    default = raytrace.trace(plate_scene(0.0, "s"))
+    assert ghost2 not in [g.text for g in top_paths(default, 10, bucket="through")]
+    deep = raytrace.trace(plate_scene(0.0, "s"), path_min_relative_flux=1e-8)
+    found = {g.text: g for g in top_paths(deep, 10, bucket="through")}
+    assert found[ghost2].share_of_source == pytest.approx((1 - R) ** 2 * R ** 4, rel=1e-9)
