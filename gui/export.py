@@ -1,42 +1,9 @@
 """Exports that never leave a half-written file: write beside the target, then rename."""
 from __future__ import annotations
 
-import os
-import tempfile
-from pathlib import Path
 
+from raytrace.atomic import atomic_write as _atomic
 from raytrace.raytable import ray_table
-
-
-def _atomic(path: str | os.PathLike, write) -> None:
-    """Call write(temp_path) for a temporary file next to `path`, then rename it over `path`."""
-    path = Path(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=path.suffix, dir=str(path.parent or "."))
-    os.close(fd)
-    try:
-        write(tmp)
-        if os.path.getsize(tmp) == 0:
-            raise OSError(f"nothing was written to {path}")
-        with open(tmp, "rb+") as fh:
-            os.fsync(fh.fileno())
-        os.chmod(tmp, _file_mode(path))
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
-
-
-def _file_mode(path: Path) -> int:
-    """The mode a new file would get (temporary files start private), or the old file's mode."""
-    try:
-        return path.stat().st_mode & 0o777
-    except OSError:
-        umask = os.umask(0)
-        os.umask(umask)
-        return 0o666 & ~umask
 
 
 def save_widget_png(widget, path) -> None:

@@ -9,12 +9,12 @@ from __future__ import annotations
 import json
 import math
 import os
-import tempfile
 from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
 from . import fields as F
+from .atomic import atomic_write_text  # noqa: F401  (re-exported: callers import it from here)
 from .compile import check_geometry, resolve_materials
 from .errors import Problems, SceneError
 from .geometry import (MIRROR, TREATMENT_KINDS, Edge, Loop, Part, ShapeSpec, Treatment)
@@ -566,32 +566,6 @@ def _non_finite(value: Any, where: str, problems: Problems) -> None:
     elif isinstance(value, (list, tuple)):
         for k, v in enumerate(value):
             _non_finite(v, f"{where}[{k}]", problems)
-
-
-def atomic_write_text(path: str | os.PathLike, text: str) -> None:
-    """Write beside the target, flush to disk, then rename over it: all or nothing."""
-    path = Path(path)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=str(path.parent or "."))
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="\n") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        # mkstemp makes the file private (0600); keep the old file's mode, else the usual one
-        try:
-            mode = path.stat().st_mode & 0o777
-        except OSError:
-            umask = os.umask(0)
-            os.umask(umask)
-            mode = 0o666 & ~umask
-        os.chmod(tmp, mode)
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
 
 
 def save_scene(scene: Scene, path: str | os.PathLike) -> None:
