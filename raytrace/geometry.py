@@ -10,7 +10,6 @@ import math
 from dataclasses import dataclass, field, replace
 from typing import Iterable, Sequence
 
-import numpy as np
 
 Point = tuple[float, float]
 

@@ -7,7 +7,7 @@ import numpy as np
 
 from .compile import CompiledScene
 from .ledger import Ledger
-from .tracer import BORN, END, EVENT_KINDS, N_EVENT_KINDS, RawTrace
+from .tracer import EVENT_KINDS, N_EVENT_KINDS, RawTrace
 
 
 @dataclass
@@ -88,7 +88,7 @@ class TraceResult:
         while node >= 0 and parent[node] != -1_000_000:
             c = code[node]
             if c < 0:
-                steps.append(f"from source {cs_source_name(self, -1 - parent[node])}")
+                steps.append(f"from source {_source_name(self, -1 - parent[node])}")
                 break
             edge, kind = divmod(int(c), N_EVENT_KINDS)
             steps.append(f"{EVENT_KINDS[kind]} {_edge_name(cs, edge)}")
@@ -109,7 +109,7 @@ class TraceResult:
         }
 
 
-def cs_source_name(result: TraceResult, index: int) -> str:
+def _source_name(result: TraceResult, index: int) -> str:
     names = result.settings.get("source_names", [])
     return names[index] if 0 <= index < len(names) else str(index)
 
@@ -120,6 +120,3 @@ def _edge_name(cs: CompiledScene, edge: int) -> str:
     part, face = cs.face_labels[cs.face[edge]]
     return f"{part} / {face}"
 
-
-BORN_NAMES = BORN
-END_NAMES = END

@@ -45,9 +45,6 @@ MAX_PATH_NODES = 500_000     # past this, new paths are lumped as "other paths"
 T_ESCAPE = 6                 # treatment code of "no edge": index -1 of the extended tables
 GRAZING_COS = 1e-9           # |cos| below which a hit counts as grazing
 
-# Ray state carried from generation to generation; the last three only with a ray table.
-CORE = ("x", "y", "dx", "dy", "fs", "fp", "opl", "wli", "med", "root", "start", "last", "path")
-TABLE = ("rid", "parent", "born")
 # Bytes a live ray costs during one generation: its state plus the temporaries of the hit
 # search and the interface physics.  tracemalloc on the light pipe (200,000 rays in one chunk)
 # gives 430; the margin covers ray ids, arcs and Monte Carlo arrays.
@@ -243,7 +240,6 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     if recording:
         r.update(rid=np.arange(n, dtype=np.int64) + root_offset, parent=np.full(n, -1, dtype=np.int64),
                  born=np.full(n, B_SOURCE, dtype=np.int64))
-    fields = CORE + (TABLE if recording else ())
     source_flux = float(flux0.sum())
     next_id = n + root_offset
     seg_store: dict[str, list[np.ndarray]] | None = {} if recording else None
@@ -712,8 +708,6 @@ def medium_at(cs: CompiledScene, x, y, dx=None, dy=None) -> np.ndarray:
                 med[again] = medium_at(cs, x[again], y[again])
     return med
 
-
-_medium_at = medium_at   # the old private name
 
 
 class _Histograms:
