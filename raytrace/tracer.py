@@ -293,6 +293,16 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
             if first.any():
                 t = np.where(first, td, t)
                 e = np.where(first, ed, e)
+        # a hit on a vertex belongs to every edge meeting there: let the one between the
+        # ray's medium and the medium beyond the vertex act (see _vertex_edges)
+        hit = e >= 0
+        ev = np.where(hit, e, -1)
+        vx, vy = x + np.where(hit, t, 0.0) * dx, y + np.where(hit, t, 0.0) * dy
+        vnear = np.minimum((vx - K.x0[ev]) ** 2 + (vy - K.y0[ev]) ** 2, (vx - K.x1[ev]) ** 2 + (vy - K.y1[ev]) ** 2)
+        iv = np.flatnonzero(hit & (vnear < vertex_tol2) & (K.treat[ev] < T_DETECT_ABSORB))
+        if len(iv):
+            e = e.copy()
+            e[iv] = _vertex_edges(cs, K, vx[iv], vy[iv], dx[iv], dy[iv], med[iv], e[iv], vertex_tol2)
         esc = e < 0
         L = np.where(esc, 0.0, t)
         codes: list[np.ndarray] = []      # ledger deposits of this generation
@@ -390,7 +400,9 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
 
         # --- where rays end a segment at a vertex, keep count
         near = np.minimum((hx - K.x0[e]) ** 2 + (hy - K.y0[e]) ** 2, (hx - K.x1[e]) ** 2 + (hy - K.y1[e]) ** 2)
-        stats["vertex_hits"] += int(np.count_nonzero((near < vertex_tol2) & (treat < T_DETECT_ABSORB)))
+        at_vertex = (near < vertex_tol2) & (treat < T_DETECT_ABSORB)
+        n_vertex = int(np.count_nonzero(at_vertex))
+        stats["vertex_hits"] += n_vertex
 
         if seg_store is not None:
             want = record.wants(r["root"] + root_offset)
@@ -412,7 +424,8 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
 
         # --- the next generation: children that carry enough flux
         r, next_id = _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording,
-                                      next_id, hx, hy, e, opl, deposit, n_here)
+                                      next_id, hx, hy, e, opl, deposit, n_here,
+                                      at_vertex if n_vertex else None, cs)
 
         if codes:
             code = np.concatenate(codes)
@@ -547,7 +560,7 @@ def _interfaces(cs, K, r, di, e, hx, hy, fs, fp, treat, n_flat, W, mode, rng, st
 
 
 def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, next_id, hx, hy, e, opl,
-                     deposit, n_here):
+                     deposit, n_here, at_vertex=None, cs=None):
     """Gather the surviving children into the next generation's arrays.
 
     A child whose flux is below its source ray's threshold ends here: its flux is booked as
@@ -595,6 +608,8 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
     out = {"x": ox, "y": oy, "dx": col(1), "dy": col(2), "fs": col(3), "fp": col(4),
            "med": col(5), "start": start, "last": start if same_last else col(6), "opl": oopl,
            "wli": r["wli"][pidx], "root": root[pidx]}
+    if at_vertex is not None:
+        _settle_vertex_children(cs, out, np.flatnonzero(at_vertex[pidx]))
     parent_path = r["path"][pidx]
     if paths.enabled:
         ev = col(7)
@@ -615,6 +630,45 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
         out["born"] = col(8)
         next_id += k
     return out, next_id
+
+
+def _vertex_edges(cs, K, hx, hy, dx, dy, med, chosen, tol2):
+    """For rays hitting a vertex: among the boundary edges that end there, the one that has the
+    ray's medium on the side it comes from and, on the other side, the medium just beyond the
+    vertex along the ray.  Where none has (a ray grazing a corner), the search's choice stays."""
+    step = 4.0 * cs.eps
+    beyond = medium_at(cs, hx + step * dx, hy + step * dy, dx, dy)
+    cand = (cs.detector < 0)[None, :] & (
+        ((cs.x0[None, :] - hx[:, None]) ** 2 + (cs.y0[None, :] - hy[:, None]) ** 2 < tol2)
+        | ((cs.x1[None, :] - hx[:, None]) ** 2 + (cs.y1[None, :] - hy[:, None]) ** 2 < tol2))
+    rows, cols = np.nonzero(cand)
+    if len(rows) == 0:
+        return chosen
+    nx, ny = edge_normal(cs, cols, hx[rows], hy[rows])
+    cos = dx[rows] * nx + dy[rows] * ny
+    cur, nxt = med[rows], beyond[rows]
+    fits = ((cs.med_plus[cols] == cur) & (cs.med_minus[cols] == nxt) & (cos < 0)) | \
+           ((cs.med_minus[cols] == cur) & (cs.med_plus[cols] == nxt) & (cos > 0))
+    out = chosen.copy()
+    # the lowest fitting edge per ray: walk the fitting pairs from the highest edge down
+    order = np.flatnonzero(fits)[::-1]
+    out[rows[order]] = cols[order]
+    return out
+
+
+def _settle_vertex_children(cs, out, rows) -> None:
+    """Children born at a vertex take the medium they actually head into.
+
+    Where edges meet (a prism apex, the corner where a guide meets a window, blocks touching at
+    a point) the hit belongs to several edges at once and the physics used the one the
+    nearest-hit search chose; the direction it gives may leave into a region that edge does not
+    border.  A probe a little way along each child settles which medium that is, so the ray
+    never travels through one material while being traced as another."""
+    if len(rows) == 0:
+        return
+    step = 4.0 * cs.eps
+    dx, dy = out["dx"][rows], out["dy"][rows]
+    out["med"][rows] = medium_at(cs, out["x"][rows] + step * dx, out["y"][rows] + step * dy, dx, dy)
 
 
 def _truncate(r, mask, code, bins, paths, seg_store, record, root_offset, gen, wavelengths):

@@ -212,12 +212,9 @@ def test_ray_hitting_the_corner_where_a_guide_meets_a_window_is_accounted():
     assert r.stats["vertex_hits"] >= 1
 
 
-@pytest.mark.xfail(strict=True, reason="tracer bug: at a vertex shared by three edges (window|air, "
-                   "window|guide, guide|air) the nearest-hit tie goes to the lowest edge index, here "
-                   "window|air, so a ray heading into the guide is put in air; fix: on a vertex hit, "
-                   "choose among the tied edges the one whose far-side medium contains a point just "
-                   "beyond the vertex along the ray")
 def test_ray_through_the_corner_where_a_guide_meets_a_window_enters_the_guide():
+    """At a vertex shared by three edges (window|air, window|guide, guide|air) the edge between
+    the ray's medium and the medium beyond the vertex acts: the ray goes on into the guide."""
     s = _window_and_guide(pencil(1.0, 1.0, math.degrees(math.atan2(2.0, 4.0))))
     r = accounted(s, min_relative_flux=1e-6)
     assert r.stats["medium_mismatches"] == 0
@@ -247,9 +244,6 @@ def test_ray_through_the_point_where_two_blocks_touch_stays_in_air():
     assert np.all(r.segments["medium"] == 0)
 
 
-@pytest.mark.xfail(strict=True, reason="tracer bug: a ray running along the faces of two blocks "
-                   "that touch at a corner is refracted into one block at the vertex and then escapes "
-                   "from inside it (found by the random scenes)")
 def test_ray_along_the_faces_of_blocks_touching_at_a_corner():
     accounted(_touching_blocks(pencil(0.5, 0.0, 180.0)), check_media=False)
 
