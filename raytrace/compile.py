@@ -188,10 +188,77 @@ def _check_part(part: Part, path: str, size: float, tol: float, problems: Proble
         return None
     poly = part.to_shapely(tol)
     if not poly.is_valid:
-        problems.add(f"{path}.holes", f"<{shapely.is_valid_reason(poly)}>",
+        hole_path, words = _bad_hole(poly, path)
+        problems.add(hole_path, f"<{words}>",
                      "holes strictly inside the outer boundary and apart from each other")
         return None
     return poly
+
+
+# Shapely's validity reasons, in our own words (the library's text is not the user's language).
+_VALIDITY_WORDS = {
+    "Hole lies outside shell": "a hole lying outside the part's outer boundary",
+    "Holes are nested": "a hole lying inside another hole",
+    "Interior is disconnected": "holes that cut the part into pieces",
+    "Self-intersection": "boundaries that cross",
+    "Ring Self-intersection": "a boundary that touches itself",
+    "Nested shells": "one outer boundary inside another",
+    "Duplicate Rings": "two identical boundaries",
+    "Too few distinct points in geometry component": "a boundary with too few distinct points",
+    "Invalid Coordinate": "a coordinate that is not a finite number",
+    "Ring is not closed": "a boundary that is not closed",
+}
+
+
+def plain_validity(reason: str) -> str:
+    """'Hole lies outside shell[58 23]' -> 'a hole lying outside ... at (58, 23) mm'."""
+    import re
+    m = re.fullmatch(r"\s*([^\[]*?)\s*(?:\[\s*(\S+)\s+(\S+)\s*\])?\s*", reason or "")
+    if not m:
+        return "an invalid shape"
+    words = _VALIDITY_WORDS.get(m.group(1), "an invalid shape")
+    if m.group(2) is None:
+        return words
+    try:
+        x, y = float(m.group(2)), float(m.group(3))
+    except ValueError:
+        return words
+    return f"{words} at ({x:.6g}, {y:.6g}) mm"
+
+
+def _bad_hole(poly, path: str) -> tuple[str, str]:
+    """The JSON path of the hole at fault and what is wrong with it, in plain words; the
+    whole holes list when no single hole can be blamed."""
+    import shapely
+    shell = shapely.Polygon(poly.exterior)
+    holes = [shapely.Polygon(r) for r in poly.interiors]
+    general = plain_validity(shapely.is_valid_reason(poly))
+    for k, h in enumerate(holes):
+        if not shell.contains(h):
+            single = shapely.Polygon(poly.exterior, [poly.interiors[k]])
+            where = _at(shapely.is_valid_reason(single)) or _at_point(h.difference(shell))
+            inside = shell.intersection(h).area > 0
+            words = "a hole crossing the part's outer boundary" if inside else "a hole lying outside the part's outer boundary"
+            return f"{path}.holes[{k}]", words + where
+        for j in range(k):
+            if holes[j].intersection(h).area > 0:
+                words = (f"a hole overlapping hole {j} ({path}.holes[{j}])"
+                         if not (holes[j].contains(h) or h.contains(holes[j]))
+                         else f"a hole lying inside or around hole {j} ({path}.holes[{j}])")
+                return f"{path}.holes[{k}]", words + _at_point(holes[j].intersection(h))
+    return (f"{path}.holes[0]" if len(holes) == 1 else f"{path}.holes"), general
+
+
+def _at(reason: str) -> str:
+    text = plain_validity(reason)
+    return text[text.index(" at ("):] if " at (" in text else ""
+
+
+def _at_point(geom) -> str:
+    if geom.is_empty:
+        return ""
+    p = geom.representative_point()
+    return f" at ({p.x:.6g}, {p.y:.6g}) mm"
 
 
 def _check_overlaps(scene: Scene, polys: list, paths: list[str], problems: Problems) -> None:
@@ -220,10 +287,10 @@ def _check_overlaps(scene: Scene, polys: list, paths: list[str], problems: Probl
 
 
 def _self_crossing(ring) -> str:
+    """' at (x, y) mm' where the boundary crosses itself, or '' when that cannot be found."""
     import shapely
     try:
-        reason = shapely.is_valid_reason(shapely.Polygon(ring))
-        return f" ({reason})" if reason and reason != "Valid Geometry" else ""
+        return _at(shapely.is_valid_reason(shapely.Polygon(ring)))
     except Exception:
         return ""
 

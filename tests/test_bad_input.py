@@ -148,7 +148,7 @@ def test_self_intersecting_boundary(tmp_path):
     d = _scene(parts=[{"name": "bow tie", "material": "PMMA", "boundary": [
         {"from": [0, 0]}, {"from": [10, 10]}, {"from": [10, 0]}, {"from": [0, 10]}]}])
     p = _one(_problems(_write(tmp_path, d)), "$.parts[0].boundary")
-    assert "crosses itself" in p.found and "5 5" in p.found
+    assert "crosses itself at (5, 5) mm" in p.found
     assert "simple" in p.expected
 
 
@@ -294,7 +294,7 @@ BAD_STRUCTURE = {
                                  _set(d, ("parts", 0, "boundary", 1, "arc"), {"center": [2, 0.5], "direction": "left"})),
                       "$.parts[0].boundary[1].arc.direction", "'left'"),
     "hole outside the part": (lambda d: _set(d, ("parts",), [dict(_sq("a", 0), holes=[_sq("h", 5)["boundary"]])]),
-                              "$.parts[0].holes", "outside"),
+                              "$.parts[0].holes[0]", "outside"),
     "duplicate part names": (lambda d: _set(d, ("parts",), [_sq("a", 0), _sq("a", 3)]), "$.parts[1].name", "'a'"),
     "duplicate source names": (lambda d: d["sources"].append(copy.deepcopy(d["sources"][0])),
                                "$.sources[1].name", "'probe beam'"),
@@ -339,3 +339,45 @@ def test_a_directory_is_a_scene_error(tmp_path):
     with pytest.raises(SceneError) as info:
         load_scene(tmp_path)
     assert "unreadable file" in info.value.problems[0].found
+
+
+def _holed(holes):
+    outer = _square("holed block", 0, 0, 10)
+    outer["holes"] = [_square("h", *h)["boundary"] for h in holes]
+    return _scene(parts=[outer])
+
+
+def _no_library_words(text):
+    # shapely's own validity texts, e.g. "Hole lies outside shell[58 23]", must not reach the user
+    import re
+    for word in ("shell", "Self-intersection", "Interior is disconnected", "Holes are nested"):
+        assert word not in text, text
+    assert not re.search(r"\[\S+ \S+\]", text), text   # the library's "[x y]" location
+
+
+@pytest.mark.parametrize("holes, path, words", [
+    # a 5 mm square hole at (50, 20): wholly outside the 10 mm block, first vertex (50, 20)
+    ([(50, 20, 5)], "$.parts[0].holes[0]", "a hole lying outside the part's outer boundary at (50, 20) mm"),
+    # second hole in the list is the one outside: the path names it, not the list
+    ([(2, 2, 2), (50, 20, 5)], "$.parts[0].holes[1]", "outside the part's outer boundary at (50, 20) mm"),
+    # [8, 13] x [2, 7] crosses the block's right face x = 10
+    ([(8, 2, 5)], "$.parts[0].holes[0]", "a hole crossing the part's outer boundary at (10, "),
+    # [1, 5]^2 and [3, 7]^2 share the square [3, 5]^2
+    ([(1, 1, 4), (3, 3, 4)], "$.parts[0].holes[1]", "a hole overlapping hole 0 ($.parts[0].holes[0]) at ("),
+    ([(1, 1, 6), (2, 2, 2)], "$.parts[0].holes[1]", "inside or around hole 0"),
+])
+def test_hole_problems_name_the_hole_in_plain_words(tmp_path, holes, path, words):
+    p = _one(_problems(_write(tmp_path, _holed(holes))), path)
+    assert words in p.found, str(p)
+    _no_library_words(p.found)
+
+
+def test_validity_reasons_are_translated():
+    from raytrace.compile import plain_validity
+    assert plain_validity("Hole lies outside shell[58 23]") == \
+        "a hole lying outside the part's outer boundary at (58, 23) mm"
+    assert plain_validity("Self-intersection[10 10]") == "boundaries that cross at (10, 10) mm"
+    assert plain_validity("Interior is disconnected[2.5 -1e-07]") == \
+        "holes that cut the part into pieces at (2.5, -1e-07) mm"
+    assert plain_validity("something new[1 2]") == "an invalid shape at (1, 2) mm"
+    _no_library_words(plain_validity("Too few distinct points in geometry component"))
