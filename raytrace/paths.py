@@ -19,6 +19,9 @@ from .tracer import EV_MIRROR, EV_PASS, EV_REFLECT, EV_THROUGH, EV_TIR, N_EVENT_
 
 LUMPED = -1_000_000     # the tracer's parent marker of the "other paths" node (trie full)
 LOSS_KINDS = (ESCAPED, ABSORBED, TRUNCATED)
+# The lumped node has no single source; its group reads once, as one plain step.
+ANY_SOURCE = "(any source)"
+OTHER_PATHS = "other paths: too faint to follow one by one, or past the size of the path table"
 
 
 @dataclass(frozen=True)
@@ -32,6 +35,11 @@ class PathGroup:
     flux: float
     share_of_bucket: float    # of the flux in that bucket
     share_of_source: float    # of all source flux
+
+    @property
+    def lumped(self) -> bool:
+        """True for the group of the paths the tracer did not tell apart."""
+        return self.steps == (OTHER_PATHS,)
 
     @property
     def text(self) -> str:
@@ -62,7 +70,7 @@ def path_groups(result: TraceResult) -> list[PathGroup]:
             bin_label[b] = _bucket_of_bin(cs, layout, b)
         kind, label = bin_label[b]
         r = root_of[node]
-        src = sources[r] if 0 <= r < len(sources) else ("(other paths)" if r == LUMPED else str(r))
+        src = sources[r] if 0 <= r < len(sources) else (ANY_SOURCE if r == LUMPED else str(r))
         key = (label, src, steps_of(node))
         groups[key] = groups.get(key, 0.0) + flux
         bucket_flux[label] = bucket_flux.get(label, 0.0) + flux
@@ -91,7 +99,12 @@ def top_paths(result: TraceResult, n: int = 10, kind: str | tuple[str, ...] | No
 
 
 def paths_text(result: TraceResult, n: int = 10) -> str:
-    """Top n paths to each detector, then the top n loss paths over all losses."""
+    """Top n paths to each detector, then the top n loss paths over all losses.  n = 0 lists
+    none (a negative n is a programming error)."""
+    if n < 0:
+        raise ValueError(f"n: expected a count of paths of at least 0, found {n!r}")
+    if n == 0:
+        return "Paths: none listed (0 asked for)"
     if not result.raw.path_flux:
         return "Paths: not tracked in this trace"
     lines = []
@@ -112,7 +125,7 @@ def _row(g: PathGroup, multi: bool, with_bucket: bool) -> str:
     share = f"{100 * g.share_of_source:7.3f} % of source"
     if not with_bucket:
         share += f" ({100 * g.share_of_bucket:.1f} % of detector)"
-    text = (f"{g.source}: " if multi else "") + g.text
+    text = (f"{g.source}: " if multi and not g.lumped else "") + g.text
     if with_bucket:
         text += f" -> {g.bucket}"
     return f"  {share}  {text}"
@@ -151,8 +164,7 @@ def _node_steps(result: TraceResult):
     runs: list[tuple[int, str, int]] = [(-1, "", 0)]   # (previous run, step, count); 0 = empty
     run_ids: dict[tuple[int, str, int], int] = {}
     node_run = np.zeros(n, dtype=np.int64)
-    lumped_run = _intern(runs, run_ids, (0, "(other paths: too faint to follow one by one, or past the "
-                                            "size of the path table)", 1))
+    lumped_run = _intern(runs, run_ids, (0, OTHER_PATHS, 1))
 
     for i in range(n):
         p = int(parent[i])

@@ -29,6 +29,7 @@ TOP_KEYS = ("format", "version", "units", "name", "story", "ambient", "materials
             "sources", "detectors", "trace")
 PART_KEYS = ("name", "material", "boundary", "holes", "shape", "faces")
 EDGE_KEYS = ("from", "face", "treatment", "arc")
+FACE_KEYS = ("treatment", "name")
 SOURCE_KEYS = ("name", "kind", "position", "direction_deg", "width", "half_angle_deg",
                "distribution", "cos_power", "flux", "spectrum", "polarization", "sampling", "note")
 DETECTOR_KEYS = ("name", "start", "end", "absorbing", "bins", "angle_bins", "central_fraction")
@@ -293,12 +294,15 @@ def _params_in_range(kind: str, params: dict, where: str, problems: Problems) ->
 
 
 def _apply_faces(loop: Loop, value: Any, where: str, problems: Problems) -> Loop | None:
-    """Per-face treatments for a built shape: {"output": {"treatment": "anti-reflection"}}."""
+    """Per-face settings for a built shape, keyed by the builder's face name:
+    {"left face": {"name": "exit face", "treatment": "anti-reflection"}}.  Treatments and
+    new names apply after the build; two faces may not end up with the same name, since
+    reports and the ledger tell faces apart by name."""
     d = F.obj(value, where, problems)
     if d is None:
         return loop
     names = {e.face for e in loop.edges}
-    edges = list(loop.edges)
+    overrides: dict[str, dict] = {}
     for face, spec in d.items():
         w = f"{where}.{_key(face)}"
         if face not in names:
@@ -307,12 +311,74 @@ def _apply_faces(loop: Loop, value: Any, where: str, problems: Problems) -> Loop
         s = F.obj(spec, w, problems)
         if s is None:
             continue
-        F.check_keys(s, ("treatment",), w, problems)
+        F.check_keys(s, FACE_KEYS, w, problems)
+        o: dict[str, Any] = {}
         if "treatment" in s:
             t = _treatment(s["treatment"], f"{w}.treatment", problems)
             if t is not None:
-                edges = [replace(e, treatment=t) if e.face == face else e for e in edges]
+                o["treatment"] = t
+        if "name" in s:
+            new_name = F.string(s, "name", w, problems, nonempty=True)
+            if new_name is not None:
+                o["name"] = new_name
+        overrides[face] = o
+    final: dict[str, str] = {}
+    for face in sorted(n for n in names if n):
+        new_name = overrides.get(face, {}).get("name", face)
+        if new_name in final:
+            # blame the renamed face (at least one of the two was renamed)
+            culprit, other = (face, final[new_name]) if "name" in overrides.get(face, {}) \
+                else (final[new_name], face)
+            problems.add(f"{where}.{_key(culprit)}.name", new_name,
+                         f"a name no other face of this part has (face {other!r} ends up with it too)")
+        final[new_name] = face
+    return apply_face_overrides(loop, overrides)
+
+
+def apply_face_overrides(loop: Loop, overrides: dict[str, dict]) -> Loop:
+    """A built loop with per-face {"treatment": Treatment, "name": str} applied, matched by
+    the builder's face names.  Also what a shape editor uses to keep a user's face settings
+    when the part is rebuilt (moved, turned, resized): see face_overrides."""
+    edges = []
+    for e in loop.edges:
+        o = overrides.get(e.face) if e.face else None
+        if o:
+            e = replace(e, treatment=o.get("treatment", e.treatment), face=o.get("name", e.face))
+        edges.append(e)
     return Loop(tuple(edges))
+
+
+def face_overrides(part: Part) -> dict[str, dict] | None:
+    """What differs between a builder part's faces and a fresh build of its shape, keyed by the
+    builder's face name: {"left face": {"name": "exit face", "treatment": Treatment}}.  None when
+    the difference cannot be said per face (geometry edited by hand, or the edges sharing one
+    builder face disagree), so the part must be saved as a plain boundary."""
+    from .shapes import build
+    if part.shape is None:
+        return None
+    built = build(part.shape)
+    if not _same_geometry(built, part.outer):
+        return None
+    out: dict[str, dict] = {}
+    seen: dict[str | None, tuple] = {}
+    for b, e in zip(built.edges, part.outer.edges):
+        state = (e.face, e.treatment)
+        if seen.setdefault(b.face, state) != state:
+            return None   # edges of one builder face no longer alike
+        if b.face is None:
+            if state != (None, b.treatment):
+                return None   # an unnamed edge changed: no face key to say it under
+            continue
+        o: dict[str, Any] = {}
+        if e.treatment != b.treatment:
+            o["treatment"] = e.treatment
+        if e.face != b.face:
+            if not e.face:
+                return None
+            o["name"] = e.face
+        if o:
+            out[b.face] = o
+    return out
 
 
 def _spectrum(value: Any, where: str, problems: Problems) -> Spectrum | None:
@@ -470,22 +536,22 @@ def _loop_list(loop: Loop) -> list[dict]:
 
 
 def _part_dict(p: Part) -> dict:
-    from .shapes import build
     d: dict[str, Any] = {"name": p.name, "material": p.material}
-    if p.shape is not None:
-        built = build(p.shape)
-        if _same_geometry(built, p.outer):
-            d["shape"] = {"kind": p.shape.kind, "params": _file_params(p.shape),
-                          "position": _xy(p.shape.position), "rotation_deg": float(p.shape.rotation_deg)}
-            faces = {}
-            for b, e in zip(built.edges, p.outer.edges):
-                if e.treatment != b.treatment and e.face:
-                    faces[e.face] = {"treatment": e.treatment.to_dict()}
-            if faces:
-                d["faces"] = faces
-        else:   # edited by hand since it was built: keep the edges
-            d["boundary"] = _loop_list(p.outer)
-    else:
+    overrides = face_overrides(p)
+    if overrides is not None:
+        d["shape"] = {"kind": p.shape.kind, "params": _file_params(p.shape),
+                      "position": _xy(p.shape.position), "rotation_deg": float(p.shape.rotation_deg)}
+        faces = {}
+        for face, o in overrides.items():
+            item: dict[str, Any] = {}
+            if "name" in o:
+                item["name"] = o["name"]
+            if "treatment" in o:
+                item["treatment"] = o["treatment"].to_dict()
+            faces[face] = item
+        if faces:
+            d["faces"] = faces
+    else:   # no builder, or edited by hand since it was built: keep the edges
         d["boundary"] = _loop_list(p.outer)
     if p.holes:
         d["holes"] = [_loop_list(h) for h in p.holes]
@@ -502,10 +568,11 @@ def _file_params(spec: ShapeSpec) -> dict:
 
 
 def _same_geometry(a: Loop, b: Loop) -> bool:
+    """Same edges, face names aside (those a file can rename under `faces`)."""
     if len(a.edges) != len(b.edges):
         return False
     return all(x.start == y.start and x.end == y.end and x.arc_center == y.arc_center
-               and x.ccw == y.ccw and x.face == y.face for x, y in zip(a.edges, b.edges))
+               and x.ccw == y.ccw for x, y in zip(a.edges, b.edges))
 
 
 def _xy(p) -> list[float]:

@@ -140,3 +140,39 @@ def test_faint_ghosts_are_followed_when_the_path_threshold_is_lowered():
     deep = raytrace.trace(plate_scene(0.0, "s"), path_min_relative_flux=1e-8)
     found = {g.text: g for g in top_paths(deep, 10, bucket="through")}
     assert found[ghost2].share_of_source == pytest.approx((1 - R) ** 2 * R ** 4, rel=1e-9)
+
+
+def _two_source_window():
+    """The plate lit by two beams, so path rows carry a source prefix."""
+    scene = plate_scene(0.0, "s")
+    second = Source("second probe", kind="beam", position=(-5.0, 50.0), direction_deg=0.0, width=1.0,
+                    polarization="s")
+    scene.sources.append(second)
+    return scene
+
+
+def test_the_lumped_paths_read_once_and_plainly():
+    """Ghosts past the first are under the default 1e-3 path threshold (R^2 (1 - R)^2 R^2 ~ 2e-6
+    for n = 1.5 at normal incidence, published: Fresnel normal-incidence R = ((n-1)/(n+1))^2),
+    so the 'through' detector has an "other paths" row: it names no source and says
+    "other paths" once."""
+    r = raytrace.trace(_two_source_window())
+    lumped = [g for g in path_groups(r) if g.lumped]
+    assert lumped, "expected faint ghosts lumped into other paths"
+    text = paths_text(r, 10)
+    rows = [line for line in text.splitlines() if "other paths" in line]
+    assert rows
+    for line in rows:
+        assert line.count("other paths") == 1, line
+        assert "(" + "other paths" not in line and "probe:" not in line, line
+        assert line.strip().split("  ", 1)[1].lstrip().startswith("other paths: too faint"), line
+
+
+def test_zero_paths_lists_none():
+    r = raytrace.trace(plate_scene(0.0, "s"))
+    text = paths_text(r, 0)
+    assert text == "Paths: none listed (0 asked for)"
+    with pytest.raises(ValueError):
+        paths_text(r, -1)
+    # n = 1: two detector headings with one row each, then the loss heading with one row
+    assert len(paths_text(r, 1).splitlines()) == 2 * 2 + 2

@@ -118,3 +118,64 @@ def test_saving_a_nan_is_a_scene_error_naming_the_field():
     with pytest.raises(SceneError) as info:
         scene_to_text(scene)
     assert [p.path for p in info.value.problems] == ["$.sources[0].direction_deg"]
+
+
+def _cemented_with_faces(faces):
+    d = json.loads((Path(__file__).parent.parent / "samples" / "cemented-prism-pair.json").read_text())
+    d["parts"][1]["faces"] = faces
+    return d
+
+
+def test_builder_faces_can_be_renamed_and_round_trip():
+    """The flint prism is turned 180 degrees, so its builder 'left face' is the light's exit:
+    a file can call it that.  The rename survives save -> load, and saving writes it back
+    under `faces` (the part stays a builder shape, not a list of edges)."""
+    from raytrace.geometry import Treatment
+    from raytrace.scene_io import scene_from_dict, scene_to_dict
+    faces = {"right face": {"name": "cemented face"},
+             "left face": {"name": "exit face", "treatment": "anti-reflection"}}
+    scene = scene_from_dict(_cemented_with_faces(faces))
+    flint = scene.parts[1].outer
+    by_name = {e.face: e for e in flint.edges}
+    assert set(by_name) == {"base", "cemented face", "exit face"}
+    # the renamed exit face is the edge from the flint's lower apex (10, 0) up to (20, 17.32):
+    # the 180-degree turn about (10, 17.32) maps the builder's left face there
+    exit_face = by_name["exit face"]
+    assert {tuple(round(c, 9) for c in p) for p in (exit_face.start, exit_face.end)} == \
+        {(10.0, 0.0), (20.0, round(17.320508075688775, 9))}
+    assert exit_face.treatment == Treatment("anti-reflection")
+    saved = scene_to_dict(scene)["parts"][1]
+    assert "shape" in saved and "boundary" not in saved
+    assert saved["faces"] == {"right face": {"name": "cemented face"},
+                              "left face": {"name": "exit face", "treatment": "anti-reflection"}}
+    assert scene_from_text(scene_to_text(scene)) == scene
+
+
+def test_renaming_faces_may_swap_names_but_not_merge_faces():
+    from raytrace.scene_io import scene_from_dict
+    swapped = scene_from_dict(_cemented_with_faces({"left face": {"name": "right face"},
+                                                    "right face": {"name": "left face"}}))
+    assert sorted(e.face for e in swapped.parts[1].outer.edges) == ["base", "left face", "right face"]
+    with pytest.raises(SceneError) as info:
+        scene_from_dict(_cemented_with_faces({"left face": {"name": "base"}}))
+    (p,) = info.value.problems
+    assert p.path == '$.parts[1].faces."left face".name' and p.found == "'base'"
+    for bad in ("", "  ", 3, None):
+        with pytest.raises(SceneError) as info:
+            scene_from_dict(_cemented_with_faces({"left face": {"name": bad}}))
+        assert [q.path for q in info.value.problems] == ['$.parts[1].faces."left face".name']
+        assert info.value.problems[0].expected == "a non-empty text"
+
+
+def test_a_face_name_edited_in_code_saves_under_faces():
+    """A face renamed on the Part itself (as an editor would) is written as a faces entry."""
+    from dataclasses import replace as dc_replace
+    from raytrace.geometry import Loop
+    from raytrace.scene_io import face_overrides, scene_from_dict, scene_to_dict
+    scene = scene_from_dict(_cemented_with_faces({}))
+    flint = scene.parts[1]
+    renamed = Loop(tuple(dc_replace(e, face="top face") if e.face == "base" else e for e in flint.outer.edges))
+    scene.parts[1] = dc_replace(flint, outer=renamed)
+    assert face_overrides(scene.parts[1]) == {"base": {"name": "top face"}}
+    assert scene_to_dict(scene)["parts"][1]["faces"] == {"base": {"name": "top face"}}
+    assert scene_from_text(scene_to_text(scene)) == scene
