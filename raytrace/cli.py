@@ -15,6 +15,7 @@ A progress line is shown on stderr for long runs, only when stderr is a terminal
 from __future__ import annotations
 
 import argparse
+from dataclasses import replace
 import json
 import sys
 from pathlib import Path
@@ -34,7 +35,7 @@ def build_parser() -> argparse.ArgumentParser:
     t = sub.add_parser("trace", help="trace a scene and print the energy ledger")
     t.add_argument("scene", metavar="SCENE")
     add_trace_options(t)
-    t.add_argument("--workers", type=int, dest="trace_workers", metavar="N",
+    t.add_argument("--workers", type=whole(1), dest="trace_workers", metavar="N",
                    help="processes to trace on (default 1); the result does not depend on it")
     t.add_argument("--json", metavar="FILE", help="write the summary (ledger, efficiencies, stats) as JSON")
     t.add_argument("--csv", metavar="FILE", help="write the ray table (one row per segment) as CSV")
@@ -44,7 +45,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="write each detector's irradiance and angular profiles as CSV")
     t.add_argument("--paths", metavar="N", type=int, nargs="?", const=10, default=None,
                    help="print the N paths carrying the most flux to each detector and to losses (default 10)")
-    t.add_argument("--paths-min-flux", metavar="F", type=float, dest="path_min_relative_flux", default=None,
+    t.add_argument("--paths-min-flux", metavar="F", type=fraction, dest="path_min_relative_flux", default=None,
                    help="follow paths down to this share of a source ray's flux (default 1e-3; "
                         "lower it to see faint ghosts)")
 
@@ -82,14 +83,38 @@ def parse_record(text: str) -> tuple[str, int]:
     raise argparse.ArgumentTypeError(f"found {text!r}; expected none, all, or first:N with N a whole number > 0")
 
 
+def whole(minimum: int):
+    """argparse type: a whole number of at least `minimum` (the scene file's own rule)."""
+    def parse(text: str) -> int:
+        try:
+            value = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"expected a whole number, found {text!r}") from None
+        if value < minimum:
+            raise argparse.ArgumentTypeError(f"expected a whole number of at least {minimum}, found {value}")
+        return value
+    return parse
+
+
+def fraction(text: str) -> float:
+    """argparse type: a number from 0 to 1."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number from 0 to 1, found {text!r}") from None
+    if not 0.0 <= value <= 1.0:     # also refuses nan
+        raise argparse.ArgumentTypeError(f"expected a number from 0 to 1, found {text}")
+    return value
+
+
 def add_trace_options(t: argparse.ArgumentParser) -> None:
-    t.add_argument("--rays", type=int, help="source rays (default: the scene's trace.rays)")
+    t.add_argument("--rays", type=whole(1), help="source rays (default: the scene's trace.rays)")
     t.add_argument("--mode", choices=("branching", "monte_carlo"), help="full branching tree or Monte Carlo")
-    t.add_argument("--seed", type=int, help="random seed for Monte Carlo and random sampling")
-    t.add_argument("--min-flux", type=float, dest="min_relative_flux",
+    t.add_argument("--seed", type=whole(0), help="random seed for Monte Carlo and random sampling")
+    t.add_argument("--min-flux", type=fraction, dest="min_relative_flux",
                    help="end children below this fraction of their source ray's flux")
-    t.add_argument("--max-depth", type=int, help="end rays after this many segments")
-    t.add_argument("--max-segments", type=int, help="segment budget for the whole trace")
+    t.add_argument("--max-depth", type=whole(1), help="end rays after this many segments")
+    t.add_argument("--max-segments", type=whole(1), help="segment budget for the whole trace")
     t.add_argument("--sampling", choices=("even", "random"), help="override each source's sampling")
     t.add_argument("--quiet", action="store_true", help="print nothing but errors")
 
@@ -154,8 +179,12 @@ def cmd_trace(args) -> int:
         result = trace(scene, record=record[0], record_count=record[1], progress=progress.trace,
                        track_paths=args.paths is not None, workers=getattr(args, "trace_workers", None) or 1,
                        path_min_relative_flux=args.path_min_relative_flux, **trace_kwargs(args))
+    except SceneError as exc:      # found while tracing (a wavelength no material can take)
+        raise SceneError([replace(p, file=p.file or args.scene) for p in exc.problems]) from None
     finally:
         progress.close()
+    for w in result.warnings:
+        print(f"warning: {w}", file=sys.stderr)
     if not args.quiet:
         print(summary_text(result, title=scene.name or Path(args.scene).stem, story=scene.story))
         if scene.detectors:

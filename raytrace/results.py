@@ -41,6 +41,7 @@ class TraceResult:
     ledger: Ledger
     mode: str
     settings: dict = field(default_factory=dict)
+    warnings: list[str] = field(default_factory=list)   # what a user should know about this result
 
     @property
     def source_flux(self) -> float:
@@ -106,6 +107,7 @@ class TraceResult:
             "efficiency": {d.name: self.efficiency(d.name) for d in self.compiled.detectors},
             "stats": {k: v for k, v in self.stats.items()},
             "settings": self.settings,
+            "warnings": list(self.warnings),
         }
 
 

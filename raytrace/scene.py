@@ -99,7 +99,8 @@ class TraceSettings:
     mode: str = "branching"          # "branching" (deterministic tree) or "monte_carlo"
     min_relative_flux: float = 1e-4  # children below this share of their source ray's flux end
     max_depth: int = 200             # generations after which a ray ends
-    max_segments: int = 50_000_000   # total ray segments in one trace
+    max_segments: int = 1_000_000_000  # total ray segments in one trace: a guard against runaway
+                                       # traces (10 million light-pipe rays need about 660 million)
     seed: int = 1
 
 

@@ -57,7 +57,7 @@ BYTES_PER_HIT = 10 * 8             # one detector record
 class Limits:
     min_relative_flux: float = 1e-4
     max_depth: int = 200
-    max_segments: int = 50_000_000
+    max_segments: int = 1_000_000_000
     max_memory_mb: float = 4096.0
     # rays fainter than this share of their source ray's flux have their paths lumped into
     # "other paths": the path table stays small and does not depend on how rays are chunked
