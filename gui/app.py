@@ -14,6 +14,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("scene", nargs="?", metavar="SCENE", help="scene file to open")
     p.add_argument("--screenshot", metavar="PNG", help="trace, render the window to PNG and exit")
     p.add_argument("--size", default="1400x900", metavar="WxH", help="window size for --screenshot")
+    p.add_argument("--colour-by-wavelength", action="store_true",
+                   help="draw rays in the colour of their wavelength (as View > Colour rays by wavelength)")
     return p
 
 
@@ -47,7 +49,13 @@ def main(argv: list[str] | None = None) -> int:
 
     win = MainWindow()
     if args.screenshot:
+        if args.colour_by_wavelength:
+            win.wavelength_colour_action.setChecked(True)
+            win.canvas.set_colour_by_wavelength(True)
         return screenshot(app, win, args.scene, args.screenshot, args.size)
+    if args.colour_by_wavelength:
+        win.wavelength_colour_action.setChecked(True)
+        win.canvas.set_colour_by_wavelength(True)
     win.show()
     # unsaved work from a crash comes first; a restored scene is not replaced by SCENE
     if win.offer_recovery():

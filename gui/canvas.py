@@ -20,6 +20,7 @@ from raytrace.scene import EMITTER, POINT, Scene
 
 from . import edits, style
 from .raydraw import KINDS, LEVEL_ALPHA, LEVELS, RayDrawing, ray_drawing
+from .spectral import faded_rgb, spectral_rgb
 from .tools import TOOLS, SELECT
 
 # Rays are painted with opaque 1-px pens whose colour is already mixed with the background by
@@ -31,14 +32,22 @@ from .tools import TOOLS, SELECT
 FAINT_SHOWN_BELOW = 5000
 
 KIND_COLOUR = {"ray": style.RAY, "escaping": style.ESCAPING, "tir": style.TIR}
-KIND_LABEL = {"ray": "ray (fades with flux)", "escaping": "escaping", "tir": "after TIR"}
+KIND_LABEL = {"ray": "ray", "escaping": "escaping", "tir": "after TIR"}
+FADE_NOTE = "every leg fades as its flux drops"
 
 
-def _faded(colour, share: float):
-    """An opaque colour between the background and `colour` (share 0..1)."""
-    bg = style.BACKGROUND
-    return pg.mkColor(*(int(round(b + share * (c - b))) for b, c in
-                        ((bg.red(), colour.red()), (bg.green(), colour.green()), (bg.blue(), colour.blue()))))
+def _rgb(colour) -> tuple[int, int, int]:
+    return colour.red(), colour.green(), colour.blue()
+
+
+def _faded(rgb, strength: float):
+    """An opaque pen colour for a leg of the given strength (0..1), equally heavy in any hue."""
+    return pg.mkColor(*faded_rgb(rgb, strength, _rgb(style.RAY)))
+
+
+def _spectrum_css() -> str:
+    stops = ", ".join(f"stop:{(nm - 380) / 400:.3f} rgb{spectral_rgb(nm)}" for nm in range(380, 781, 20))
+    return f"background: qlineargradient(x1:0, y1:0, x2:1, y2:0, {stops});"
 
 
 def _pen(colour, width=1.5, style_=Qt.SolidLine):
@@ -93,6 +102,7 @@ class LegendBar(QWidget):
         lay = QHBoxLayout(self)
         lay.setContentsMargins(6, 2, 6, 2)
         lay.setSpacing(8)
+        self._kind_widgets = []
         items = [(style.RAY, "line", KIND_LABEL["ray"]), (style.TIR, "line", KIND_LABEL["tir"]),
                  (style.ESCAPING, "line", KIND_LABEL["escaping"]), (style.HIT, "dot", "detector hit"),
                  (style.ESCAPE_MARK, "ring", "escape (size = share)"),
@@ -107,17 +117,38 @@ class LegendBar(QWidget):
                            f"min-height:9px; max-height:9px;",
                    "bar": f"background:{c}; min-height:5px; max-height:5px; min-width:22px;"}[shape]
             lab.setStyleSheet(css)
+            text_label = QLabel(text)
             lay.addWidget(lab)
-            lay.addWidget(QLabel(text))
+            lay.addWidget(text_label)
+            if text in KIND_LABEL.values():
+                self._kind_widgets += [lab, text_label]
+        # shown instead of the three ray kinds when rays are coloured by wavelength
+        self.spectrum_swatch = QLabel()
+        self.spectrum_swatch.setStyleSheet(_spectrum_css() + " min-height:5px; max-height:5px; min-width:60px;")
+        self.spectrum_text = QLabel("wavelength 380-780 nm")
+        self.spectrum_text.setToolTip("Rays are coloured by wavelength; grey outside 380-780 nm")
+        lay.insertWidget(0, self.spectrum_text)
+        lay.insertWidget(0, self.spectrum_swatch)
+        self.fade_note = QLabel("(all fade with flux)")
+        self.fade_note.setToolTip(FADE_NOTE)
+        self.fade_note.setStyleSheet("color: #555")
+        lay.insertWidget(2 + len(self._kind_widgets), self.fade_note)   # right after the ray colours
         lay.addStretch(1)
         self.problem = QLabel("")
         self.problem.setStyleSheet("color: #b00020; font-weight: bold")
         lay.addWidget(self.problem)
         # a narrow window clips the legend's end rather than forcing the window wider
         self.setSizePolicy(QSizePolicy.Ignored, QSizePolicy.Fixed)
-        self.setToolTip("Ray colours: legs inside and between parts fade as their flux drops; "
-                        "legs that began with total internal reflection and legs leaving the scene "
-                        "have their own colours.")
+        self.setToolTip("Ray colours: legs that began with total internal reflection and legs "
+                        "leaving the scene have their own colours; every leg fades as its flux "
+                        "drops, equally in every colour.")
+        self.set_colour_by_wavelength(False)
+
+    def set_colour_by_wavelength(self, on: bool) -> None:
+        for w in self._kind_widgets:
+            w.setVisible(not on)
+        self.spectrum_swatch.setVisible(on)
+        self.spectrum_text.setVisible(on)
 
 
     def show_problem(self, text: str) -> None:
@@ -174,16 +205,10 @@ class Canvas(QWidget):
         self._part_paths: list[QPainterPath] = []
         self._edge_polys: list[tuple[int, int, np.ndarray]] = []   # (part, edge, points)
         self._glyph_items: list[QGraphicsPathItem] = []
-        self._ray_items = {}
-        for k in KINDS:
-            self._ray_items[k] = []
-            for lv, alpha in enumerate(LEVEL_ALPHA):
-                c = KIND_COLOUR[k]
-                item = pg.PlotCurveItem(pen=_pen(_faded(c, alpha / 255.0), 1.0),
-                                        connect="pairs", antialias=False, skipFiniteCheck=True)
-                item.setZValue(5 + KINDS.index(k) + 0.1 * (len(LEVELS) - lv))   # bright on top
-                self.plot.addItem(item)
-                self._ray_items[k].append(item)
+        self.colour_by_wavelength = False
+        self._ray_items: list[pg.PlotCurveItem] = []    # reused between traces, one per group
+        # what each ray item shows: (kind name or wavelength bin in nm, level, pen colour, segments)
+        self.ray_groups: list[tuple[object, int, object, int]] = []
         self._hits = pg.ScatterPlotItem(size=5, pen=None, brush=pg.mkBrush(style.HIT), pxMode=True)
         self._hits.setZValue(16)
         self._escapes = pg.ScatterPlotItem(pxMode=True, brush=None, pen=_pen(style.ESCAPE_MARK, 2))
@@ -499,21 +524,9 @@ class Canvas(QWidget):
     def set_result(self, result) -> None:
         """Draw a trace result (None clears the rays)."""
         self.result = result
-        self.drawing = ray_drawing(result) if result is not None else RayDrawing()
-        # dense fans are drawn fainter so that overlapping legs still read as separate rays
-        dim = min(1.0, max(0.4, math.sqrt(5000.0 / max(self.drawing.n_segments, 1))))
-        self.painted_segments = 0
-        for k in KINDS:
-            groups = self.drawing.lines.get(k)
-            c = KIND_COLOUR[k]
-            for lv, item in enumerate(self._ray_items[k]):
-                item.setPen(_pen(_faded(c, max(6, LEVEL_ALPHA[lv] * dim) / 255.0), 1.0))
-                faintest_hidden = lv == len(LEVELS) - 1 and self.drawing.n_segments > FAINT_SHOWN_BELOW
-                if groups is None or not len(groups[lv][0]) or faintest_hidden:
-                    item.setData([], [])
-                else:
-                    item.setData(groups[lv][0], groups[lv][1], connect="pairs")
-                    self.painted_segments += len(groups[lv][0]) // 2
+        self.drawing = (ray_drawing(result, colour_by_wavelength=self.colour_by_wavelength)
+                        if result is not None else RayDrawing())
+        self._draw_rays()
         self._hits.setData(self.drawing.hits_x, self.drawing.hits_y)
         esc = self.drawing.escapes
         if esc:
@@ -522,6 +535,45 @@ class Canvas(QWidget):
                                   data=[f"{e[3]}: {100 * e[2]:.2f} % escapes" for e in esc])
         else:
             self._escapes.setData([], [])
+
+    def set_colour_by_wavelength(self, on: bool) -> None:
+        """Colour rays by their wavelength instead of by kind (a view choice, not saved)."""
+        self.colour_by_wavelength = bool(on)
+        self.legend.set_colour_by_wavelength(self.colour_by_wavelength)
+        self.set_result(self.result)
+
+    def _ray_groups(self):
+        """(key, level, rgb, order, x, y) per group to draw, from the current drawing; order
+        (0..3) stacks the groups of one level."""
+        d = self.drawing
+        if d.colour_by_wavelength:
+            n = max(1, len(d.by_wavelength))
+            return [(nm, lv, spectral_rgb(nm), len(KINDS) * i / n, x, y) for i, (nm, lv, x, y) in enumerate(d.by_wavelength)]
+        return [(k, lv, _rgb(KIND_COLOUR[k]), i, *d.lines[k][lv])
+                for i, k in enumerate(KINDS) if k in d.lines for lv in range(len(LEVELS))
+                if len(d.lines[k][lv][0])]
+
+    def _draw_rays(self) -> None:
+        # dense fans are drawn fainter so that overlapping legs still read as separate rays
+        dim = min(1.0, max(0.4, math.sqrt(5000.0 / max(self.drawing.n_segments, 1))))
+        hide_faintest = self.drawing.n_segments > FAINT_SHOWN_BELOW
+        groups = [g for g in self._ray_groups() if not (hide_faintest and g[1] == len(LEVELS) - 1)]
+        while len(self._ray_items) < len(groups):
+            item = pg.PlotCurveItem(connect="pairs", antialias=False, skipFiniteCheck=True)
+            self.plot.addItem(item)
+            self._ray_items.append(item)
+        self.painted_segments = 0
+        self.ray_groups = []
+        for item, (key, lv, rgb, order, x, y) in zip(self._ray_items, groups):
+            colour = _faded(rgb, max(6, LEVEL_ALPHA[lv] * dim) / 255.0)
+            item.setPen(_pen(colour, 1.0))
+            # brighter legs on top whatever their kind, so a faint glint never covers the beam
+            item.setZValue(5 + 0.5 * (len(LEVELS) - lv) + 0.4 * order / len(KINDS))
+            item.setData(x, y, connect="pairs")
+            self.painted_segments += len(x) // 2
+            self.ray_groups.append((key, lv, colour, len(x) // 2))
+        for item in self._ray_items[len(groups):]:
+            item.setData([], [])
 
     # ------------------------------------------------------------------ hover
     def _mouse_moved(self, scene_pos):

@@ -152,6 +152,10 @@ class MainWindow(QMainWindow):
         self._act(v, "&Fit scene", self.canvas.fit, "Ctrl+0", "Show the whole scene")
         self.grid_action = self._act(v, "&Grid", self.canvas.show_grid, "G", "Show the grid", True)
         self.grid_action.setChecked(True)
+        self.wavelength_colour_action = self._act(
+            v, "Colour rays by &wavelength", self.canvas.set_colour_by_wavelength, None,
+            "Draw each ray in the colour of its wavelength (still fading with flux); for this session only",
+            True)
         self.snap_action = self._act(v, "&Snap to grid", self._set_snap, "Shift+G",
                                      "Vertices, parts and ends land on the grid", True)
 

@@ -1,7 +1,8 @@
 """Turn a trace result into what the canvas draws: ray segments grouped by kind and by
 brightness, detector hit points, and escape markers sized by the flux lost at each face.
 
-Pure numpy; no Qt.  Grouping keeps the number of drawn items small (one line item per kind and
+Pure numpy; no Qt.  With colour by wavelength the same segments are grouped by wavelength
+(5 nm bins) and brightness instead of by kind.  Grouping keeps the number of drawn items small (one line item per kind and
 brightness level) however many segments there are.
 """
 from __future__ import annotations
@@ -12,6 +13,8 @@ import numpy as np
 
 from raytrace.ledger import BinLayout
 from raytrace.tracer import B_TIR, E_ESCAPED
+
+from .spectral import VISIBLE_NM, wavelength_bin
 
 # Segment kinds, in drawing order (later ones on top).
 INSIDE, ESCAPING, TIR = "ray", "escaping", "tir"
@@ -29,6 +32,10 @@ class RayDrawing:
     hits_y: np.ndarray = field(default_factory=lambda: np.zeros(0))
     escapes: list[tuple[float, float, float, str]] = field(default_factory=list)  # x, y, share, label
     n_segments: int = 0
+    # with colour by wavelength: (wavelength bin in nm, or nan, level, x, y) per non-empty group,
+    # in stacking order within each level
+    by_wavelength: list[tuple[float, int, np.ndarray, np.ndarray]] = field(default_factory=list)
+    colour_by_wavelength: bool = False
 
 
 def brightness_level(rel: np.ndarray) -> np.ndarray:
@@ -39,8 +46,17 @@ def brightness_level(rel: np.ndarray) -> np.ndarray:
     return out
 
 
-def ray_drawing(result, min_escape_share: float = 1e-3) -> RayDrawing:
-    d = RayDrawing()
+def _pairs(seg, sel) -> tuple[np.ndarray, np.ndarray]:
+    n = int(sel.sum())
+    x = np.empty(2 * n)
+    y = np.empty(2 * n)
+    x[0::2], x[1::2] = seg["x0"][sel], seg["x1"][sel]
+    y[0::2], y[1::2] = seg["y0"][sel], seg["y1"][sel]
+    return x, y
+
+
+def ray_drawing(result, min_escape_share: float = 1e-3, colour_by_wavelength: bool = False) -> RayDrawing:
+    d = RayDrawing(colour_by_wavelength=colour_by_wavelength)
     seg = result.segments
     if seg is not None and len(seg["x0"]):
         flux = seg["flux_s"] + seg["flux_p"]
@@ -56,16 +72,27 @@ def ray_drawing(result, min_escape_share: float = 1e-3) -> RayDrawing:
         kind[seg["born"] == B_TIR] = 2
         d.n_segments = len(flux)
         for k, name in enumerate(KINDS):
-            per_level = []
-            for lv in range(len(LEVELS)):
-                sel = (kind == k) & (level == lv)
-                n = int(sel.sum())
-                x = np.empty(2 * n)
-                y = np.empty(2 * n)
-                x[0::2], x[1::2] = seg["x0"][sel], seg["x1"][sel]
-                y[0::2], y[1::2] = seg["y0"][sel], seg["y1"][sel]
-                per_level.append((x, y))
-            d.lines[name] = per_level
+            d.lines[name] = [_pairs(seg, (kind == k) & (level == lv)) for lv in range(len(LEVELS))]
+        if colour_by_wavelength:
+            nm = wavelength_bin(seg["wavelength_nm"])
+            outside = ~np.isfinite(nm) | (nm < VISIBLE_NM[0]) | (nm > VISIBLE_NM[1])
+            nm[outside] = np.nan          # one grey group for everything outside vision
+            bins = np.unique(nm[~outside]).tolist() + ([np.nan] if outside.any() else [])
+            # Beams of nearby wavelengths overlap; drawn one colour after another the last one
+            # would hide the others.  Few colours are split into sparse slices of source rays,
+            # stacked slice after slice with the colour order rotating, so where beams overlap
+            # every colour shows through and the fringes show the dispersion.
+            n_slices = max(1, min(12, 36 // max(1, len(bins))))
+            rank = np.unique(root, return_inverse=True)[1].reshape(-1)
+            for j in range(n_slices):
+                in_slice = rank % n_slices == j
+                r = j % len(bins)
+                for b in bins[r:] + bins[:r]:
+                    same = (np.isnan(nm) if np.isnan(b) else nm == b) & in_slice
+                    for lv in range(len(LEVELS)):
+                        sel = same & (level == lv)
+                        if sel.any():
+                            d.by_wavelength.append((float(b), lv, *_pairs(seg, sel)))
     d.hits_x, d.hits_y = hit_points(result)
     d.escapes = escape_markers(result, min_escape_share)
     return d

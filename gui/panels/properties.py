@@ -8,9 +8,9 @@ from __future__ import annotations
 
 from dataclasses import replace
 
-from PySide6.QtCore import Qt
+from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import (QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QGroupBox,
-                               QHBoxLayout, QLabel, QLineEdit, QPushButton, QSpinBox,
+                               QHBoxLayout, QLabel, QLineEdit, QPlainTextEdit, QPushButton, QSpinBox,
                                QStackedWidget, QTableWidget, QTableWidgetItem, QVBoxLayout,
                                QWidget)
 
@@ -40,6 +40,8 @@ def _set(widget, value):
     elif isinstance(widget, QLineEdit):
         widget.setText(value)
         widget.setCursorPosition(0)      # show the beginning of long texts
+    elif isinstance(widget, StoryEdit):
+        widget.setText(value)
     elif isinstance(widget, QCheckBox):
         widget.setChecked(value)
     elif isinstance(widget, QComboBox):
@@ -70,12 +72,42 @@ class _Page(QWidget):
         self.panel.message(text)
 
 
+class StoryEdit(QPlainTextEdit):
+    """The scene's one-line purpose, word-wrapped over a few lines so all of it shows.  Enter
+    or leaving the field finishes the edit (like a line field); line breaks become spaces."""
+
+    editingFinished = Signal()
+
+    def __init__(self):
+        super().__init__()
+        self.setLineWrapMode(QPlainTextEdit.WidgetWidth)
+        self.setTabChangesFocus(True)
+        lines = 5
+        self.setFixedHeight(int(self.fontMetrics().lineSpacing() * lines + 2 * self.frameWidth() + 10))
+
+    def text(self) -> str:
+        return " ".join(self.toPlainText().split())
+
+    def setText(self, text: str) -> None:
+        self.setPlainText(text)
+        self.setToolTip(text or "One line: what this scene is for")
+
+    def keyPressEvent(self, ev):
+        if ev.key() in (Qt.Key_Return, Qt.Key_Enter):
+            self.editingFinished.emit()
+            return
+        super().keyPressEvent(ev)
+
+    def focusOutEvent(self, ev):
+        super().focusOutEvent(ev)
+        self.editingFinished.emit()
+
+
 class ScenePage(_Page):
     def __init__(self, panel):
         super().__init__(panel)
         self.name = QLineEdit()
-        self.story = QLineEdit()
-        self.story.setToolTip("One line: what this scene is for")
+        self.story = StoryEdit()
         self.ambient = QComboBox()
         self.seed = QSpinBox()
         self.seed.setRange(0, 2**31 - 1)
@@ -84,7 +116,10 @@ class ScenePage(_Page):
         self.materials.setWordWrap(True)
         define = QPushButton("Define a material...")
         define.clicked.connect(lambda: panel.define_material())
-        form = QFormLayout(self)
+        outer = QVBoxLayout(self)
+        form = QFormLayout()
+        outer.addLayout(form)
+        outer.addStretch(1)      # spare height below the fields, not between them
         form.addRow(QLabel("<b>Scene</b> (nothing selected)"))
         form.addRow("Name", self.name)
         form.addRow("Purpose", self.story)
