@@ -9,19 +9,43 @@ Conventions (2D, so "irradiance" is flux per mm of detector length):
   profile uses `angle_bins` equal bins over [-90, 90] degrees (flux per degree);
 - uniformity is computed over the central `central_fraction` of the length, binned with
   round(bins * central_fraction) bins of its own so the figure covers exactly that part;
-- arrival time = optical path (sum of n * L, mm) / c.  All rays start at time zero.
+- arrival time = optical path (sum of n * L, mm) / c.  All rays start at time zero;
+- per-wavelength figures (flux, share, centroid, mean angle of each wavelength) are given when
+  the hits are kept and carry 2 to MAX_WAVELENGTHS distinct wavelengths, i.e. for line spectra
+  (a dispersing prism's colours); not for bands, whose sampled wavelengths are all different.
 """
 from __future__ import annotations
 
 import csv
 import io
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
 from .results import DetectorHits, TraceResult
 
 C_MM_PER_PS = 0.299792458   # speed of light in vacuum, mm per picosecond (exact by definition)
+MAX_WAVELENGTHS = 12        # more distinct wavelengths than this: a band, or too many to list
+
+
+@dataclass
+class WavelengthFigures:
+    """The part of a detector's flux carried by one wavelength."""
+
+    wavelength_nm: float
+    hits: int
+    flux: float
+    share: float              # of the detector's flux
+    centroid_mm: float        # flux-weighted mean position
+    mean_angle_deg: float     # flux-weighted mean angle of arrival
+
+    def to_dict(self) -> dict:
+        return {"wavelength_nm": self.wavelength_nm, "hits": self.hits, "flux": self.flux,
+                "share": self.share, "centroid_mm": self.centroid_mm, "mean_angle_deg": self.mean_angle_deg}
+
+    def line(self) -> str:
+        return (f"{self.wavelength_nm:.2f} nm: {self.flux:.6g} ({100 * self.share:.2f} % of detector), "
+                f"centroid {self.centroid_mm:.3f} mm, mean angle {self.mean_angle_deg:+.3f} deg")
 
 
 @dataclass
@@ -83,6 +107,15 @@ class DetectorReport:
     angular: Profile
     uniformity: Uniformity
     times: ArrivalTimes
+    per_wavelength: list[WavelengthFigures] = field(default_factory=list)   # empty: not applicable
+
+    @property
+    def centroid_spread_mm(self) -> float:
+        """Distance between the outermost per-wavelength centroids (nan without them)."""
+        if len(self.per_wavelength) < 2:
+            return float("nan")
+        c = [w.centroid_mm for w in self.per_wavelength]
+        return max(c) - min(c)
 
     def to_dict(self) -> dict:
         """The figures (not the profiles) as plain JSON-ready values; nan becomes None."""
@@ -96,7 +129,8 @@ class DetectorReport:
                 "uniformity": {"central_fraction": u.fraction, "bins": u.bins,
                                "min_over_mean": num(u.min_over_mean), "max_over_mean": num(u.max_over_mean)},
                 "arrival_ps": {"first": num(t.first_ps), "last": num(t.last_ps), "spread": num(t.spread_ps),
-                               "mean": num(t.mean_ps), "rms": num(t.rms_ps)}}
+                               "mean": num(t.mean_ps), "rms": num(t.rms_ps)},
+                "per_wavelength": [w.to_dict() for w in self.per_wavelength]}
 
     def summary_line(self) -> str:
         u, t = self.uniformity, self.times
@@ -131,7 +165,8 @@ def detector_report(result: TraceResult, name: str) -> DetectorReport:
         efficiency=total / result.source_flux if result.source_flux else 0.0,
         centroid_mm=_weighted_mean(hits.position, f), mean_angle_deg=_weighted_mean(hits.angle_deg, f),
         irradiance=irr, angular=ang, uniformity=uniformity(hits, det.bins, det.central_fraction),
-        times=arrival_times(hits))
+        times=arrival_times(hits),
+        per_wavelength=[] if result.settings.get("band_spectrum") else per_wavelength(hits))
 
 
 def _report_from_histogram(result: TraceResult, det, hist: dict) -> DetectorReport:
@@ -166,6 +201,25 @@ def _profile(values: np.ndarray, flux: np.ndarray, lo: float, hi: float, bins: i
     # values exactly at the upper edge belong to the last bin (np.histogram does the same)
     counts, _ = np.histogram(np.clip(values, lo, hi), bins=edges, weights=flux)
     return Profile(edges, counts.astype(float), unit)
+
+
+def per_wavelength(hits: DetectorHits, max_wavelengths: int = MAX_WAVELENGTHS) -> list[WavelengthFigures]:
+    """Figures per distinct wavelength, shortest first; [] with fewer than 2 or more than
+    `max_wavelengths` distinct wavelengths among the hits that carry flux."""
+    f = hits.flux
+    live = f > 0
+    wl = hits.wavelength_nm[live]
+    values, which = np.unique(wl, return_inverse=True)
+    if not 2 <= len(values) <= max_wavelengths:
+        return []
+    w = f[live]
+    flux = np.bincount(which, weights=w, minlength=len(values))
+    pos = np.bincount(which, weights=w * hits.position[live], minlength=len(values))
+    ang = np.bincount(which, weights=w * hits.angle_deg[live], minlength=len(values))
+    count = np.bincount(which, minlength=len(values))
+    total = float(w.sum())
+    return [WavelengthFigures(float(values[k]), int(count[k]), float(flux[k]), float(flux[k] / total),
+                              float(pos[k] / flux[k]), float(ang[k] / flux[k])) for k in range(len(values))]
 
 
 def uniformity(hits: DetectorHits, bins: int, fraction: float) -> Uniformity:

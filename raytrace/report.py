@@ -43,7 +43,16 @@ def detectors_text(result: TraceResult) -> str:
     reports = detector_reports(result)
     if not reports:
         return ""
-    return "\n".join(["Detector figures:"] + ["  " + r.summary_line() for r in reports])
+    lines = ["Detector figures:"]
+    for r in reports:
+        lines.append("  " + r.summary_line())
+        if r.per_wavelength:   # line spectra: where each colour lands
+            lines += ["    " + w.line() for w in r.per_wavelength]
+            first, last = r.per_wavelength[0], r.per_wavelength[-1]
+            lines.append(f"    centroids spread over {r.centroid_spread_mm:.3f} mm "
+                         f"({first.wavelength_nm:.2f} nm at {first.centroid_mm:.3f} mm, "
+                         f"{last.wavelength_nm:.2f} nm at {last.centroid_mm:.3f} mm)")
+    return "\n".join(lines)
 
 
 def materials_text(rows: list[dict]) -> str:
