@@ -47,3 +47,61 @@ def test_json_summary_has_the_documented_fields(tmp_path, sample, extra):
         assert eff == pytest.approx(flux / data["source_flux"], rel=1e-12)
     if "--max-depth" in extra:
         assert any(b.get("reason") == "maximum depth" for b in data["buckets"])
+
+
+def _documented(section: str) -> set[str]:
+    """Keys in the first column of the table under '## <section>' in docs/trace-json.md
+    (a cell may list several: `a`, `b`)."""
+    import re
+    text = (ROOT / "docs" / "trace-json.md").read_text(encoding="utf-8")
+    body = text.split(f"\n## {section}\n", 1)[1].split("\n## ", 1)[0]
+    keys: set[str] = set()
+    for line in body.splitlines():
+        if line.startswith("| `"):
+            keys |= set(re.findall(r"`([^`]+)`", line.split("|")[1]))
+    assert keys, section
+    return keys
+
+
+def test_documented_keys_match_the_written_file(tmp_path):
+    """Every key the JSON file has at the top level, per detector, per wavelength and per path
+    is documented, and every documented one is written (cemented prism pair, --paths 2)."""
+    out = tmp_path / "summary.json"
+    scene = ROOT / "samples" / "cemented-prism-pair.json"
+    assert main(["trace", str(scene), "--quiet", "--json", str(out), "--paths", "2"]) == 0
+    data = json.loads(out.read_text(encoding="utf-8"))
+    assert set(data) == _documented("Top-level fields")
+    assert data["detectors"] and data["paths"]
+    for d in data["detectors"]:
+        assert set(d) == _documented("`detectors`")
+        assert set(d["uniformity"]) == {"central_fraction", "bins", "min_over_mean", "max_over_mean"}
+        assert set(d["arrival_ps"]) == {"first", "last", "spread", "mean", "rms"}
+        assert [w["wavelength_nm"] for w in d["per_wavelength"]] == [486.13, 587.56, 656.27]
+        for w in d["per_wavelength"]:
+            assert set(w) == {"wavelength_nm", "hits", "flux", "share", "centroid_mm", "mean_angle_deg"}
+    for g in data["paths"]:
+        assert set(g) == _documented("`paths`")
+    per_bucket: dict[str, int] = {}
+    for g in data["paths"]:
+        per_bucket[g["bucket"]] = per_bucket.get(g["bucket"], 0) + 1
+    assert max(per_bucket.values()) == 2      # "the N path groups with the most flux" per bucket
+    assert STATS <= _documented("`stats`") and SETTINGS <= _documented("`settings`")
+    assert _documented("`stats`") <= set(data["stats"])
+    assert "paths" not in json.loads(_run_json(tmp_path, scene).read_text(encoding="utf-8"))
+
+
+def _run_json(tmp_path, scene, *extra):
+    out = tmp_path / "plain.json"
+    assert main(["trace", str(scene), "--quiet", "--json", str(out), *extra]) == 0
+    return out
+
+
+@pytest.mark.parametrize("depth", [1, 2, 5])
+def test_max_depth_counts_generations(tmp_path, depth):
+    """As documented: the source ray is generation 0, rays of generation max_depth + 1 are not
+    traced, so the loop runs max_depth + 1 generations when the depth limit is what stops it
+    (the light pipe's rays TIR many more times than 5)."""
+    out = _run_json(tmp_path, ROOT / "samples" / "light-pipe-90.json", "--max-depth", str(depth))
+    data = json.loads(out.read_text(encoding="utf-8"))
+    assert data["stats"]["generations"] == depth + 1
+    assert any(b.get("reason") == "maximum depth" and b["flux"] > 0 for b in data["buckets"])
