@@ -273,3 +273,24 @@ def test_no_per_wavelength_figures_for_a_band_or_a_single_line():
     scene.sources[0] = dc_replace(src, spectrum=Spectrum.line(587.56))
     rep = detector_report(raytrace.trace(scene, rays=50), "screen")
     assert rep.per_wavelength == [] and rep.to_dict()["per_wavelength"] == []
+
+
+def test_a_detector_counts_rays_from_both_sides():
+    """As the docs say: swapping a detector's start and end changes nothing in the flux; the
+    positions are then measured from the other end (s -> L - s), angles change sign, and the
+    raw hits' front flag flips (common practice: a reversed segment's right-hand normal is
+    the opposite one)."""
+    from dataclasses import replace as dc_replace
+    from raytrace.scene_io import load_scene
+    scene = load_scene(Path(__file__).resolve().parent.parent / "samples" / "cemented-prism-pair.json")
+    a = raytrace.trace(scene)
+    d = scene.detectors[0]
+    scene.detectors[0] = dc_replace(d, start=d.end, end=d.start)
+    b = raytrace.trace(scene)
+    ha, hb = a.detector("screen"), b.detector("screen")
+    assert ha.total > 0.5 and hb.total == pytest.approx(ha.total, rel=1e-12)
+    order_a, order_b = np.argsort(ha.position), np.argsort(ha.length - hb.position)
+    assert np.allclose(ha.length - hb.position[order_b], ha.position[order_a], atol=1e-9)
+    assert np.allclose(hb.angle_deg[order_b], -ha.angle_deg[order_a], atol=1e-9)
+    assert a.raw.hits["front"].any() != b.raw.hits["front"].any()
+    assert (a.raw.hits["front"] == ~b.raw.hits["front"]).all()
