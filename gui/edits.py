@@ -73,8 +73,13 @@ def _keep_treatments(new: Loop, old: Loop) -> Loop:
 
 
 def rebuild(part: Part, spec: ShapeSpec) -> Part:
-    """The part rebuilt from a changed builder spec; raises ShapeParameterError if invalid."""
-    return replace(part, outer=_keep_treatments(build(spec), part.outer), shape=spec)
+    """The part rebuilt from a changed builder spec, keeping the user's face names and
+    treatments; raises ShapeParameterError if invalid."""
+    from raytrace.scene_io import apply_face_overrides, face_overrides
+    new = build(spec)
+    overrides = face_overrides(part)
+    outer = apply_face_overrides(new, overrides) if overrides is not None else _keep_treatments(new, part.outer)
+    return replace(part, outer=outer, shape=spec)
 
 
 def part_pivot(part: Part) -> Point:

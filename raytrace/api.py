@@ -76,7 +76,9 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
                 "sampling": sampling or "per source", "source_names": [src.name for src in scene.sources],
                 "source_positions": [list(src.position) for src in scene.sources],
                 "workers": max(1, int(workers)), "chunk_size": chunk_size or DEFAULT_CHUNK,
-                "hits": "keep" if keep_hits else "histogram"}
+                "hits": "keep" if keep_hits else "histogram",
+                # detectors give per-wavelength figures only for line spectra
+                "band_spectrum": any(src.spectrum.is_band for src in scene.sources)}
     if len(start) and bool((start.source[1:] >= start.source[:-1]).all()):
         # rays are numbered source by source: lets the ray table name each ray's source
         settings["source_ray_counts"] = np.bincount(start.source, minlength=len(scene.sources)).tolist()

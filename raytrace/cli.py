@@ -43,7 +43,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="which source rays the ray table holds (default with --csv: first:1000)")
     t.add_argument("--detectors-csv", metavar="FILE", dest="detectors_csv",
                    help="write each detector's irradiance and angular profiles as CSV")
-    t.add_argument("--paths", metavar="N", type=int, nargs="?", const=10, default=None,
+    t.add_argument("--paths", metavar="N", type=whole(0), nargs="?", const=10, default=None,
                    help="print the N paths carrying the most flux to each detector and to losses (default 10)")
     t.add_argument("--paths-min-flux", metavar="F", type=fraction, dest="path_min_relative_flux", default=None,
                    help="follow paths down to this share of a source ray's flux (default 1e-3; "
@@ -191,7 +191,7 @@ def cmd_trace(args) -> int:
             print(detectors_text(result))
         if args.paths is not None:
             from .paths import paths_text
-            print(paths_text(result, max(args.paths, 1)))
+            print(paths_text(result, args.paths))
     if args.json:
         from .detectors import detector_reports
         summary = result.to_summary_dict()
@@ -202,7 +202,7 @@ def cmd_trace(args) -> int:
             summary["paths"] = []    # the top N paths of every ledger bucket
             for g in path_groups(result):
                 kept[g.bucket] = kept.get(g.bucket, 0) + 1
-                if kept[g.bucket] <= max(args.paths, 1):
+                if kept[g.bucket] <= args.paths:
                     summary["paths"].append(g.to_dict())
         if not write_output(args.json, json.dumps(summary, indent=2) + "\n"):
             return EXIT_OUTPUT

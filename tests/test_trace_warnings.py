@@ -64,3 +64,11 @@ def test_wavelength_outside_the_catalog_data_is_a_warning(tmp_path, capsys):
 def test_command_line_values_follow_the_scene_file_rules(option, capsys):
     assert main(["trace", str(SAMPLES / "oblique-window.json"), *option]) == 2
     assert "expected" in capsys.readouterr().err
+
+
+def test_paths_zero_lists_none(tmp_path, capsys):
+    out = tmp_path / "s.json"
+    assert main(["trace", str(SAMPLES / "oblique-window.json"), "--paths", "0", "--json", str(out)]) == 0
+    assert "none listed" in capsys.readouterr().out
+    assert json.loads(out.read_text())["paths"] == []
+    assert main(["trace", str(SAMPLES / "oblique-window.json"), "--paths", "-1"]) == 2
