@@ -300,9 +300,13 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         vx, vy = x + np.where(hit, t, 0.0) * dx, y + np.where(hit, t, 0.0) * dy
         vnear = np.minimum((vx - K.x0[ev]) ** 2 + (vy - K.y0[ev]) ** 2, (vx - K.x1[ev]) ** 2 + (vy - K.y1[ev]) ** 2)
         iv = np.flatnonzero(hit & (vnear < vertex_tol2) & (K.treat[ev] < T_DETECT_ABSORB))
+        unsettled = None            # vertex hits no edge fitted: their children are probed
         if len(iv):
             e = e.copy()
-            e[iv] = _vertex_edges(cs, K, vx[iv], vy[iv], dx[iv], dy[iv], med[iv], e[iv], vertex_tol2)
+            e[iv], fitted = _vertex_edges(cs, K, vx[iv], vy[iv], dx[iv], dy[iv], med[iv], e[iv])
+            if not fitted.all():
+                unsettled = np.zeros(len(x), dtype=bool)
+                unsettled[iv[~fitted]] = True
         esc = e < 0
         L = np.where(esc, 0.0, t)
         codes: list[np.ndarray] = []      # ledger deposits of this generation
@@ -398,11 +402,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
             if len(di):
                 _interfaces(cs, K, r, di, e, hx, hy, fs, fp, treat, n_flat, W, mode, rng, stats, end, kids)
 
-        # --- where rays end a segment at a vertex, keep count
-        near = np.minimum((hx - K.x0[e]) ** 2 + (hy - K.y0[e]) ** 2, (hx - K.x1[e]) ** 2 + (hy - K.y1[e]) ** 2)
-        at_vertex = (near < vertex_tol2) & (treat < T_DETECT_ABSORB)
-        n_vertex = int(np.count_nonzero(at_vertex))
-        stats["vertex_hits"] += n_vertex
+        stats["vertex_hits"] += len(iv)     # segments that ended on a vertex
 
         if seg_store is not None:
             want = record.wants(r["root"] + root_offset)
@@ -425,7 +425,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         # --- the next generation: children that carry enough flux
         r, next_id = _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording,
                                       next_id, hx, hy, e, opl, deposit, n_here,
-                                      at_vertex if n_vertex else None, cs)
+                                      unsettled, cs)
 
         if codes:
             code = np.concatenate(codes)
@@ -632,28 +632,64 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
     return out, next_id
 
 
-def _vertex_edges(cs, K, hx, hy, dx, dy, med, chosen, tol2):
+def _vertex_groups(cs: CompiledScene):
+    """Boundary edges grouped by the vertices they end at: (group of each edge's start, group of
+    each edge's end, CSR offsets, edges of each group).  Vertices closer than 1e3 eps are one."""
+    cache = cs.__dict__.setdefault("_accel_cache", {})
+    if "vertex_groups" in cache:
+        return cache["vertex_groups"]
+    q = 1.0 / (1e3 * cs.eps)
+    keys: dict[tuple[int, int], int] = {}
+    n = cs.n_edges
+    group = np.empty(2 * n, dtype=np.int64)
+    for i, (px, py) in enumerate(zip(np.concatenate([cs.x0, cs.x1]), np.concatenate([cs.y0, cs.y1]))):
+        cx, cy = int(round(px * q)), int(round(py * q))
+        g = keys.get((cx, cy))
+        if g is None:   # also look in the neighbouring cells: no near pair split by rounding
+            g = next((keys[(cx + a, cy + b)] for a in (-1, 0, 1) for b in (-1, 0, 1)
+                      if (cx + a, cy + b) in keys), None)
+        if g is None:
+            g = keys[(cx, cy)] = len(keys)
+        group[i] = g
+    boundary = np.concatenate([cs.detector < 0, cs.detector < 0])
+    edge_of = np.concatenate([np.arange(n), np.arange(n)])
+    order = np.argsort(np.where(boundary, group, len(keys)), kind="stable")
+    order = order[boundary[order]]
+    counts = np.bincount(group[order], minlength=len(keys))
+    offsets = np.concatenate([[0], np.cumsum(counts)])
+    cache["vertex_groups"] = (group[:n], group[n:], offsets, edge_of[order])
+    return cache["vertex_groups"]
+
+
+def _vertex_edges(cs, K, hx, hy, dx, dy, med, chosen):
     """For rays hitting a vertex: among the boundary edges that end there, the one that has the
     ray's medium on the side it comes from and, on the other side, the medium just beyond the
-    vertex along the ray.  Where none has (a ray grazing a corner), the search's choice stays."""
+    vertex along the ray.  Where none has (a ray grazing a corner), the search's choice stays.
+    Returns the edges and whether one fitted."""
     step = 4.0 * cs.eps
     beyond = medium_at(cs, hx + step * dx, hy + step * dy, dx, dy)
-    cand = (cs.detector < 0)[None, :] & (
-        ((cs.x0[None, :] - hx[:, None]) ** 2 + (cs.y0[None, :] - hy[:, None]) ** 2 < tol2)
-        | ((cs.x1[None, :] - hx[:, None]) ** 2 + (cs.y1[None, :] - hy[:, None]) ** 2 < tol2))
-    rows, cols = np.nonzero(cand)
+    g_start, g_end, offsets, members = _vertex_groups(cs)
+    at_start = (hx - cs.x0[chosen]) ** 2 + (hy - cs.y0[chosen]) ** 2 <= (hx - cs.x1[chosen]) ** 2 + (hy - cs.y1[chosen]) ** 2
+    g = np.where(at_start, g_start[chosen], g_end[chosen])
+    sizes = offsets[g + 1] - offsets[g]
+    rows = np.repeat(np.arange(len(g)), sizes)
+    local = np.arange(len(rows)) - np.repeat(np.cumsum(sizes) - sizes, sizes)
+    cols = members[offsets[g][rows] + local]
     if len(rows) == 0:
-        return chosen
+        return chosen, np.zeros(len(chosen), dtype=bool)
     nx, ny = edge_normal(cs, cols, hx[rows], hy[rows])
     cos = dx[rows] * nx + dy[rows] * ny
     cur, nxt = med[rows], beyond[rows]
     fits = ((cs.med_plus[cols] == cur) & (cs.med_minus[cols] == nxt) & (cos < 0)) | \
            ((cs.med_minus[cols] == cur) & (cs.med_plus[cols] == nxt) & (cos > 0))
     out = chosen.copy()
-    # the lowest fitting edge per ray: walk the fitting pairs from the highest edge down
-    order = np.flatnonzero(fits)[::-1]
+    # the lowest fitting edge per ray: assign the fitting pairs from the highest edge down
+    fit = np.flatnonzero(fits)
+    order = fit[np.argsort(-cols[fit], kind="stable")]
     out[rows[order]] = cols[order]
-    return out
+    fitted = np.zeros(len(chosen), dtype=bool)
+    fitted[rows[fit]] = True
+    return out, fitted
 
 
 def _settle_vertex_children(cs, out, rows) -> None:
