@@ -239,12 +239,11 @@ class PolygonTool(Tool):
         super().cancel()
 
 
-class RectangleTool(Tool):
-    """Drag a rectangle to add a rectangular part (a builder part: width and height stay
-    editable in the side panel)."""
+class _DragTool(Tool):
+    """A tool that draws from the point where the drag began to where it ends: shows
+    `outline(a, b)` while dragging and calls `finish(a, b)` on release (snapped points)."""
 
-    name = RECTANGLE
-    hint = "Drag to draw a rectangular part"
+    closed = False
 
     def __init__(self, canvas):
         super().__init__(canvas)
@@ -255,17 +254,38 @@ class RectangleTool(Tool):
         return True
 
     def move(self, x, y):
-        if self._start is None:
-            return
-        (x0, y0), (x1, y1) = self._start, self.canvas.snap((x, y))
-        self.canvas.set_preview([(x0, y0), (x1, y0), (x1, y1), (x0, y1)], closed=True)
+        if self._start is not None:
+            self.canvas.set_preview(self.outline(self._start, self.canvas.snap((x, y))), closed=self.closed)
 
     def release(self, x, y):
         if self._start is None:
             return
-        (x0, y0), (x1, y1) = self._start, self.canvas.snap((x, y))
+        a, b = self._start, self.canvas.snap((x, y))
         self._start = None
         self.canvas.set_preview(None)
+        self.finish(a, b)
+
+    def outline(self, a, b):
+        return [a, b]
+
+    def finish(self, a, b):
+        raise NotImplementedError
+
+
+class RectangleTool(_DragTool):
+    """Drag a rectangle to add a rectangular part (a builder part: width and height stay
+    editable in the side panel)."""
+
+    name = RECTANGLE
+    hint = "Drag to draw a rectangular part"
+    closed = True
+
+    def outline(self, a, b):
+        (x0, y0), (x1, y1) = a, b
+        return [(x0, y0), (x1, y0), (x1, y1), (x0, y1)]
+
+    def finish(self, a, b):
+        (x0, y0), (x1, y1) = a, b
         w, h = abs(x1 - x0), abs(y1 - y0)
         if w <= 0 or h <= 0:
             return
@@ -318,30 +338,13 @@ class SourceTool(Tool):
         self._index = None
 
 
-class DetectorTool(Tool):
+class DetectorTool(_DragTool):
     """Drag from one end of a new detector to the other."""
 
     name = DETECTOR_TOOL
     hint = "Drag from one end of the detector to the other"
 
-    def __init__(self, canvas):
-        super().__init__(canvas)
-        self._start = None
-
-    def press(self, x, y):
-        self._start = self.canvas.snap((x, y))
-        return True
-
-    def move(self, x, y):
-        if self._start is not None:
-            self.canvas.set_preview([self._start, self.canvas.snap((x, y))], closed=False)
-
-    def release(self, x, y):
-        if self._start is None:
-            return
-        a, b = self._start, self.canvas.snap((x, y))
-        self._start = None
-        self.canvas.set_preview(None)
+    def finish(self, a, b):
         if math.dist(a, b) <= 0:
             return
         scene = edits.add_detector(self.doc.scene, Detector("detector", a, b))
