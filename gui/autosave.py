@@ -44,11 +44,16 @@ class Recovery:
         return f"{self.original or 'an untitled scene'} (autosaved {when})"
 
     def discard(self) -> None:
-        for f in (self.scene_file, self.meta_file):
-            try:
-                f.unlink()
-            except FileNotFoundError:
-                pass
+        _remove(self.scene_file, self.meta_file)
+
+
+def _remove(*files: Path) -> None:
+    """Delete a recovery copy and its note; one already gone is fine."""
+    for f in files:
+        try:
+            f.unlink()
+        except FileNotFoundError:
+            pass
 
 
 def _alive(pid: int) -> bool:
@@ -121,11 +126,7 @@ class Autosaver(QObject):
 
     def discard(self) -> None:
         """The work is safe (saved, or the user chose to drop it): remove the copy."""
-        for f in (self.scene_file, self.meta_file):
-            try:
-                f.unlink()
-            except FileNotFoundError:
-                pass
+        _remove(self.scene_file, self.meta_file)
         self._written_for = None
 
     def _file_changed(self) -> None:

@@ -35,15 +35,25 @@ def unique_name(base: str, taken: set[str]) -> str:
 
 # ------------------------------------------------------------------ parts
 
+def _replaced(scene: Scene, attr: str, index: int, item) -> Scene:
+    items = list(getattr(scene, attr))
+    items[index] = item
+    return _with(scene, **{attr: items})
+
+
+def _added(scene: Scene, attr: str, item) -> Scene:
+    """The scene with `item` appended to its list `attr`, renamed if its name is taken."""
+    items = getattr(scene, attr)
+    name = unique_name(item.name, {i.name for i in items})
+    return _with(scene, **{attr: [*items, replace(item, name=name)]})
+
+
 def replace_part(scene: Scene, index: int, part: Part) -> Scene:
-    parts = list(scene.parts)
-    parts[index] = part
-    return _with(scene, parts=parts)
+    return _replaced(scene, "parts", index, part)
 
 
 def add_part(scene: Scene, part: Part) -> Scene:
-    name = unique_name(part.name, {p.name for p in scene.parts})
-    return _with(scene, parts=[*scene.parts, replace(part, name=name)])
+    return _added(scene, "parts", part)
 
 
 def delete_item(scene: Scene, kind: str, index: int) -> Scene:
@@ -138,25 +148,19 @@ def set_vertex_xy(part: Part, vertex: int, x: float | None = None, y: float | No
 # ------------------------------------------------------------------ sources and detectors
 
 def replace_source(scene: Scene, index: int, source: Source) -> Scene:
-    items = list(scene.sources)
-    items[index] = source
-    return _with(scene, sources=items)
+    return _replaced(scene, "sources", index, source)
 
 
 def replace_detector(scene: Scene, index: int, det: Detector) -> Scene:
-    items = list(scene.detectors)
-    items[index] = det
-    return _with(scene, detectors=items)
+    return _replaced(scene, "detectors", index, det)
 
 
 def add_source(scene: Scene, source: Source) -> Scene:
-    name = unique_name(source.name, {s.name for s in scene.sources})
-    return _with(scene, sources=[*scene.sources, replace(source, name=name)])
+    return _added(scene, "sources", source)
 
 
 def add_detector(scene: Scene, det: Detector) -> Scene:
-    name = unique_name(det.name, {d.name for d in scene.detectors})
-    return _with(scene, detectors=[*scene.detectors, replace(det, name=name)])
+    return _added(scene, "detectors", det)
 
 
 def aim_source(src: Source, target: Point) -> Source:
