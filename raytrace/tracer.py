@@ -44,6 +44,9 @@ N_EVENT_KINDS = len(EVENT_KINDS)
 MAX_PATH_NODES = 500_000     # past this, new paths are lumped as "other paths"
 T_ESCAPE = 6                 # treatment code of "no edge": index -1 of the extended tables
 GRAZING_COS = 1e-9           # |cos| below which a hit counts as grazing
+VERTEX_TOL = 1e3             # eps from an edge's end within which a hit is on the vertex
+# directions (rad) of the casts that find the medium at a point when no direction is given
+PROBE_ANGLES = (0.7390851332151607, 2.2903914791364015, 4.4076789862512483)
 
 # Bytes a live ray costs during one generation: its state plus the temporaries of the hit
 # search and the interface physics.  tracemalloc on the light pipe (200,000 rays in one chunk)
@@ -248,7 +251,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     stats = {"segments": 0, "generations": 0, "vertex_hits": 0, "grazing_hits": 0,
              "medium_mismatches": 0, "tir_events": 0, "source_rays": n}
     budget = limits.max_memory_mb * 1e6
-    vertex_tol2 = (1e3 * cs.eps) ** 2
+    vertex_tol2 = (VERTEX_TOL * cs.eps) ** 2
     gen = 0
     seg_rows = hit_rows = 0
 
@@ -634,11 +637,11 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
 
 def _vertex_groups(cs: CompiledScene):
     """Boundary edges grouped by the vertices they end at: (group of each edge's start, group of
-    each edge's end, CSR offsets, edges of each group).  Vertices closer than 1e3 eps are one."""
+    each edge's end, CSR offsets, edges of each group).  Vertices closer than VERTEX_TOL eps are one."""
     cache = cs.__dict__.setdefault("_accel_cache", {})
     if "vertex_groups" in cache:
         return cache["vertex_groups"]
-    q = 1.0 / (1e3 * cs.eps)
+    q = 1.0 / (VERTEX_TOL * cs.eps)
     keys: dict[tuple[int, int], int] = {}
     n = cs.n_edges
     group = np.empty(2 * n, dtype=np.int64)
@@ -747,20 +750,22 @@ def _segment_table(store, wavelengths):
     return out
 
 
-def medium_at(cs: CompiledScene, x, y, dx=None, dy=None) -> np.ndarray:
+def medium_at(cs: CompiledScene, x, y, dx=None, dy=None, _probe: int = 0) -> np.ndarray:
     """Medium each ray starts in: cast it and read the medium on the near side of the first
     boundary it meets (ambient when it meets none).
 
     With directions given (a source's rays) each ray is cast along its own direction, so a ray
     that starts exactly on a face is in the medium it is heading into, and its medium always
-    agrees with its first interface.  Without, an irrational-ish fixed direction is used (it
-    avoids passing exactly through vertices of axis-aligned parts)."""
+    agrees with its first interface.  Without, fixed irrational-ish directions are used (they
+    avoid passing exactly through vertices of axis-aligned parts).  A cast whose first boundary
+    hit grazes the edge or lands on a vertex cannot tell the side: those points are cast again
+    in the next fixed direction (PROBE_ANGLES)."""
     n = len(x)
     if n == 0:
         return np.zeros(0, dtype=np.int64)
     fixed = dx is None or dy is None
     if fixed:
-        ang = 0.7390851332151607
+        ang = PROBE_ANGLES[_probe]
         dx = np.full(n, np.cos(ang))
         dy = np.full(n, np.sin(ang))
     else:
@@ -790,14 +795,15 @@ def medium_at(cs: CompiledScene, x, y, dx=None, dy=None) -> np.ndarray:
         nx, ny = edge_normal(cs, eh, hx, hy)
         cos = dx[hit] * nx + dy[hit] * ny
         med[hit] = np.where(cos < 0, cs.med_plus[eh], cs.med_minus[eh])
-        if not fixed:
-            # a probe that grazes its first edge cannot tell the side: probe those points again
-            # in the fixed direction
-            again = np.flatnonzero(hit)[np.abs(cos) < GRAZING_COS]
+        nxt = _probe + 1 if fixed else 0
+        if nxt < len(PROBE_ANGLES):
+            tol2 = (VERTEX_TOL * cs.eps) ** 2
+            at_vertex = np.minimum((hx - cs.x0[eh]) ** 2 + (hy - cs.y0[eh]) ** 2,
+                                   (hx - cs.x1[eh]) ** 2 + (hy - cs.y1[eh]) ** 2) < tol2
+            again = np.flatnonzero(hit)[(np.abs(cos) < GRAZING_COS) | at_vertex]
             if len(again):
-                med[again] = medium_at(cs, x[again], y[again])
+                med[again] = medium_at(cs, x[again], y[again], _probe=nxt)
     return med
-
 
 
 class _Histograms:
