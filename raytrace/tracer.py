@@ -47,6 +47,8 @@ GRAZING_COS = 1e-9           # |cos| below which a hit counts as grazing
 VERTEX_TOL = 1e3             # eps from an edge's end within which a hit is on the vertex
 # directions (rad) of the casts that find the medium at a point when no direction is given
 PROBE_ANGLES = (0.7390851332151607, 2.2903914791364015, 4.4076789862512483)
+CORNER_PROBE = 4.0           # eps past a vertex hit where the medium beyond is probed
+CORNER_ROUNDS = 8            # corners a ray may pass straight on through within one segment
 
 # Bytes a live ray costs during one generation: its state plus the temporaries of the hit
 # search and the interface physics.  tracemalloc on the light pipe (200,000 rays in one chunk)
@@ -287,29 +289,8 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
 
         x, y, dx, dy = r["x"], r["y"], r["dx"], r["dy"]
         fs, fp, med = r["fs"], r["fp"], r["med"]
-        # --- nearest hit, then travel to it
-        t, e = hit_fn(cs, x, y, dx, dy, r["start"])
-        if K.detectors_touch_boundary:
-            # a detector drawn on a face is met first: it records the ray, then the face acts
-            td, ed = nearest_hit(cs, x, y, dx, dy, r["start"], edge_ids=K.detector_ids)
-            first = (ed >= 0) & (ed != e) & (td <= t + cs.eps)
-            if first.any():
-                t = np.where(first, td, t)
-                e = np.where(first, ed, e)
-        # a hit on a vertex belongs to every edge meeting there: let the one between the
-        # ray's medium and the medium beyond the vertex act (see _vertex_edges)
-        hit = e >= 0
-        ev = np.where(hit, e, -1)
-        vx, vy = x + np.where(hit, t, 0.0) * dx, y + np.where(hit, t, 0.0) * dy
-        vnear = np.minimum((vx - K.x0[ev]) ** 2 + (vy - K.y0[ev]) ** 2, (vx - K.x1[ev]) ** 2 + (vy - K.y1[ev]) ** 2)
-        iv = np.flatnonzero(hit & (vnear < vertex_tol2) & (K.treat[ev] < T_DETECT_ABSORB))
-        unsettled = None            # vertex hits no edge fitted: their children are probed
-        if len(iv):
-            e = e.copy()
-            e[iv], fitted = _vertex_edges(cs, K, vx[iv], vy[iv], dx[iv], dy[iv], med[iv], e[iv])
-            if not fitted.all():
-                unsettled = np.zeros(len(x), dtype=bool)
-                unsettled[iv[~fitted]] = True
+        # --- nearest hit (with the corner rules, see _corner_hits), then travel to it
+        t, e, unsettled = _corner_hits(cs, K, r, hit_fn, vertex_tol2, stats)
         esc = e < 0
         L = np.where(esc, 0.0, t)
         codes: list[np.ndarray] = []      # ledger deposits of this generation
@@ -404,8 +385,6 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
                 np.flatnonzero((treat == T_BARE) | (treat == T_AR))
             if len(di):
                 _interfaces(cs, K, r, di, e, hx, hy, fs, fp, treat, n_flat, W, mode, rng, stats, end, kids)
-
-        stats["vertex_hits"] += len(iv)     # segments that ended on a vertex
 
         if seg_store is not None:
             want = record.wants(r["root"] + root_offset)
@@ -664,33 +643,100 @@ def _vertex_groups(cs: CompiledScene):
     return cache["vertex_groups"]
 
 
-def _vertex_edges(cs, K, hx, hy, dx, dy, med, chosen):
-    """For rays hitting a vertex: among the boundary edges that end there, the one that has the
-    ray's medium on the side it comes from and, on the other side, the medium just beyond the
-    vertex along the ray.  Where none has (a ray grazing a corner), the search's choice stays.
-    Returns the edges and whether one fitted."""
-    step = 4.0 * cs.eps
-    beyond = medium_at(cs, hx + step * dx, hy + step * dy, dx, dy)
+def _first_hit(cs, K, x, y, dx, dy, start, hit_fn):
+    """Nearest hit; a detector drawn on a face is met first: it records the ray, then the face acts."""
+    t, e = hit_fn(cs, x, y, dx, dy, start)
+    if K.detectors_touch_boundary:
+        td, ed = nearest_hit(cs, x, y, dx, dy, start, edge_ids=K.detector_ids)
+        first = (ed >= 0) & (ed != e) & (td <= t + cs.eps)
+        if first.any():
+            t = np.where(first, td, t)
+            e = np.where(first, ed, e)
+    return t, e
+
+
+def _near_vertex(cs, K, e, hx, hy, tol2):
+    """Hits on a boundary edge within sqrt(tol2) of one of its end points."""
+    ev = np.where(e >= 0, e, -1)
+    d2 = np.minimum((hx - K.x0[ev]) ** 2 + (hy - K.y0[ev]) ** 2, (hx - K.x1[ev]) ** 2 + (hy - K.y1[ev]) ** 2)
+    return (e >= 0) & (d2 < tol2) & (K.treat[ev] < T_DETECT_ABSORB)
+
+
+def _corner_hits(cs, K, r, hit_fn, tol2, stats):
+    """Nearest hit of every ray, with the corner rules.  Returns (t, e, unsettled).
+
+    A hit on a vertex belongs to every edge meeting there.  The medium is probed CORNER_PROBE
+    eps past the hit along the ray:
+    - the same medium as the ray's: the ray passes straight on, with no event, and its segment
+      runs on to the next hit beyond (searched from the probe point, so it agrees with the probe);
+    - another medium: the edge between the two acts, the lowest-numbered one among the edges
+      ending at the vertex; where none fits, the search's edge, and `unsettled` marks the row
+      (its children take the medium they head into, see _settle_vertex_children)."""
+    x, y, dx, dy, med = r["x"], r["y"], r["dx"], r["dy"], r["med"]
+    t, e = _first_hit(cs, K, x, y, dx, dy, r["start"], hit_fn)
+    hit = e >= 0
+    at_vertex = _near_vertex(cs, K, e, x + np.where(hit, t, 0.0) * dx, y + np.where(hit, t, 0.0) * dy, tol2)
+    idx = np.flatnonzero(at_vertex)
+    if len(idx) == 0:
+        return t, e, None
+    t, e = t.copy(), e.copy()
+    unsettled = np.zeros(len(x), dtype=bool)
+    events = 0
+    step = CORNER_PROBE * cs.eps
+    for _ in range(CORNER_ROUNDS):
+        if len(idx) == 0:
+            break
+        events += len(idx)
+        hx, hy = x[idx] + t[idx] * dx[idx], y[idx] + t[idx] * dy[idx]
+        px, py = hx + step * dx[idx], hy + step * dy[idx]
+        beyond = medium_at(cs, px, py, dx[idx], dy[idx])
+        act = np.flatnonzero(beyond != med[idx])
+        if len(act):
+            ia = idx[act]
+            e[ia], fitted = _corner_edge(cs, hx[act], hy[act], dx[ia], dy[ia], med[ia], beyond[act], e[ia])
+            unsettled[ia[~fitted]] = True
+        on = beyond == med[idx]
+        idx, px, py = idx[on], px[on], py[on]
+        if len(idx) == 0:
+            break
+        # pass straight on: the segment goes on from the probe point to the next hit
+        t2, e2 = _first_hit(cs, K, px, py, dx[idx], dy[idx], np.full(len(idx), -1, dtype=np.int64), hit_fn)
+        t[idx] = t[idx] + step + t2
+        e[idx] = e2
+        h = e2 >= 0
+        tt = np.where(h, t[idx], 0.0)
+        again = _near_vertex(cs, K, e2, x[idx] + tt * dx[idx], y[idx] + tt * dy[idx], tol2)
+        idx = idx[again]
+    unsettled[idx] = True      # still at a vertex after CORNER_ROUNDS passes
+    stats["vertex_hits"] += events
+    return t, e, unsettled if unsettled.any() else None
+
+
+def _corner_edge(cs, hx, hy, dx, dy, med, beyond, near):
+    """For rays at a vertex: the lowest-numbered boundary edge ending there that has the ray's
+    medium `med` on the side the ray comes from and `beyond` on the other.  The vertex is the
+    end of edge `near` closest to the hit.  Returns (edges, fitted); where none fits the edge
+    is `near`."""
     g_start, g_end, offsets, members = _vertex_groups(cs)
-    at_start = (hx - cs.x0[chosen]) ** 2 + (hy - cs.y0[chosen]) ** 2 <= (hx - cs.x1[chosen]) ** 2 + (hy - cs.y1[chosen]) ** 2
-    g = np.where(at_start, g_start[chosen], g_end[chosen])
+    at_start = (hx - cs.x0[near]) ** 2 + (hy - cs.y0[near]) ** 2 <= (hx - cs.x1[near]) ** 2 + (hy - cs.y1[near]) ** 2
+    g = np.where(at_start, g_start[near], g_end[near])
     sizes = offsets[g + 1] - offsets[g]
     rows = np.repeat(np.arange(len(g)), sizes)
     local = np.arange(len(rows)) - np.repeat(np.cumsum(sizes) - sizes, sizes)
     cols = members[offsets[g][rows] + local]
+    out = near.copy()
+    fitted = np.zeros(len(near), dtype=bool)
     if len(rows) == 0:
-        return chosen, np.zeros(len(chosen), dtype=bool)
+        return out, fitted
     nx, ny = edge_normal(cs, cols, hx[rows], hy[rows])
     cos = dx[rows] * nx + dy[rows] * ny
     cur, nxt = med[rows], beyond[rows]
     fits = ((cs.med_plus[cols] == cur) & (cs.med_minus[cols] == nxt) & (cos < 0)) | \
            ((cs.med_minus[cols] == cur) & (cs.med_plus[cols] == nxt) & (cos > 0))
-    out = chosen.copy()
     # the lowest fitting edge per ray: assign the fitting pairs from the highest edge down
     fit = np.flatnonzero(fits)
     order = fit[np.argsort(-cols[fit], kind="stable")]
     out[rows[order]] = cols[order]
-    fitted = np.zeros(len(chosen), dtype=bool)
     fitted[rows[fit]] = True
     return out, fitted
 
