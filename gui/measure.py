@@ -21,15 +21,19 @@ def angle_at(corner: Point, a: Point, c: Point) -> float:
     return math.degrees(math.atan2(abs(ux * vy - uy * vx), ux * vx + uy * vy))
 
 
-def distance_text(a: Point, b: Point) -> str:
+def distance_readout(a: Point, b: Point) -> tuple[str, str]:
+    """(a short label for the drawing, the full line for the status bar)."""
     d = math.dist(a, b)
-    return (f"distance {d:.4f} mm (dx {b[0] - a[0]:+.4f}, dy {b[1] - a[1]:+.4f}), "
+    return (f"{d:.4f} mm",
+            f"distance {d:.4f} mm (dx {b[0] - a[0]:+.4f}, dy {b[1] - a[1]:+.4f}), "
             f"direction {direction_deg(a, b):.2f} deg")
 
 
-def angle_text(a: Point, corner: Point, c: Point) -> str:
+def angle_readout(a: Point, corner: Point, c: Point) -> tuple[str, str]:
+    """(a short label for the drawing, the full line for the status bar)."""
     ang = angle_at(corner, a, c)
     if math.isnan(ang):
-        return "angle: both arms need a length"
-    return (f"angle {ang:.3f} deg at ({corner[0]:.4f}, {corner[1]:.4f}); "
+        return "", "angle: both arms need a length"
+    return (f"{ang:.3f} deg",
+            f"angle {ang:.3f} deg at ({corner[0]:.4f}, {corner[1]:.4f}); "
             f"arms {math.dist(corner, a):.4f} and {math.dist(corner, c):.4f} mm")

@@ -12,7 +12,7 @@ from PySide6.QtWidgets import QFrame, QHBoxLayout, QLabel, QLineEdit
 
 from . import style
 from .snap import EDGE
-from .typed import TypedError
+from .typed import FORMATS, TypedError
 
 # keys that start typing a point or a number while a drawing tool is active
 TYPED_START = set("0123456789-+.@")
@@ -51,6 +51,8 @@ class Overlay(QObject):
         self.prompt = QLabel("")
         self.entry = QLineEdit()
         self.entry.setMinimumWidth(160)
+        self.entry.setPlaceholderText("x, y   @dx, dy   length<angle")
+        self.entry.setToolTip(f"Type {FORMATS} (mm, degrees); Enter places it, Esc closes this box")
         self.entry.installEventFilter(self)
         lay.addWidget(self.prompt)
         lay.addWidget(self.entry)
@@ -64,12 +66,17 @@ class Overlay(QObject):
         self.marker.setData([snap.point[0]], [snap.point[1]], symbol=_MARKER_SYMBOL.get(snap.kind, "s"))
 
     # ------------------------------------------------------------------ measurement readout
-    def show_readout(self, text: str, at=None) -> None:
+    def show_readout(self, text: str, at=None, label: str = "") -> None:
+        """The full `text` in the status bar, the short `label` on the drawing at `at`, on the
+        side of it that faces the middle of the view so it is never cut off."""
         self.readout = text
-        if not text or at is None:
+        if not label or at is None:
             self.readout_item.hide()
         else:
-            self.readout_item.setText(text)
+            (x0, x1), (y0, y1) = self.canvas.view.viewRange()
+            self.readout_item.setAnchor((0.0 if at[0] < (x0 + x1) / 2 else 1.0,
+                                         1.0 if at[1] < (y0 + y1) / 2 else 0.0))
+            self.readout_item.setText(label)
             self.readout_item.setPos(*at)
             self.readout_item.show()
         if text:

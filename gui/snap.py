@@ -26,25 +26,9 @@ class Snap:
     loop: int                       # 0: outer boundary, k: hole k
     index: int                      # the vertex or edge within the loop
 
-    def describe(self, scene: Scene) -> str:
-        part = scene.parts[self.part]
-        loop = part.loops[self.loop]
-        e = loop.edges[self.index]
-        face = e.face or f"edge {self.index + 1}"
-        where = f"{part.name}" + (f" hole {self.loop}" if self.loop else "")
-        if self.kind == VERTEX:
-            return f"vertex {self.index + 1} of {where}"
-        return f"{self.kind} of {where} / {face}" if self.kind != EDGE else f"on {where} / {face}"
 
-
-def nearest_on_edge(e: Edge, p: Point) -> Point:
-    """The point of edge `e` (segment or arc) nearest to `p`."""
-    if not e.is_arc:
-        (ax, ay), (bx, by) = e.start, e.end
-        dx, dy = bx - ax, by - ay
-        L2 = dx * dx + dy * dy
-        t = 0.0 if L2 == 0 else max(0.0, min(1.0, ((p[0] - ax) * dx + (p[1] - ay) * dy) / L2))
-        return (ax + t * dx, ay + t * dy)
+def nearest_on_arc(e: Edge, p: Point) -> Point:
+    """The point of arc edge `e` nearest to `p` (straight edges are looked up as arrays)."""
     cx, cy = e.arc_center
     a0, sweep = e.arc_angles()
     a = math.atan2(p[1] - cy, p[0] - cx)
@@ -134,7 +118,7 @@ class SnapIndex:
                     best, best_d = Snap((float(c[k, 0]), float(c[k, 1])), EDGE, *self.seg_refs[k]), dist[k]
                     break
         for e, ref in self.arcs:
-            c = nearest_on_edge(e, (float(q[0]), float(q[1])))
+            c = nearest_on_arc(e, (float(q[0]), float(q[1])))
             dist = math.dist(c, q)
             if dist <= best_d and not self._skipped(ref, EDGE, ignore):
                 best, best_d = Snap(c, EDGE, *ref), dist

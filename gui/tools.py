@@ -634,9 +634,14 @@ class MeasureTool(Tool):
     def _show(self, pts) -> None:
         self.canvas.set_preview(pts, closed=False)
         if len(pts) == 2:
-            self.canvas.overlay.show_readout(measure.distance_text(*pts), pts[1])
+            label, text = measure.distance_readout(*pts)
+            at = ((pts[0][0] + pts[1][0]) / 2, (pts[0][1] + pts[1][1]) / 2)
         elif len(pts) == 3:
-            self.canvas.overlay.show_readout(measure.angle_text(*pts), pts[1])
+            label, text = measure.angle_readout(*pts)
+            at = pts[1]
+        else:
+            return
+        self.canvas.overlay.show_readout(text, at, label)
 
     def press(self, x, y):
         self.points = [self._snap(x, y)]

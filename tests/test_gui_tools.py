@@ -200,6 +200,7 @@ def test_measure_snaps_to_vertices_and_changes_nothing(qtbot, win):
     # published: a roof prism's legs meet at a right angle (Hecht, Optics, sec 5.5)
     assert re.search(r"angle 90\.000 deg", win.canvas.overlay.readout), win.canvas.overlay.readout
     assert win.canvas.overlay.readout_item.isVisible()
+    assert win.canvas.overlay.readout_item.textItem.toPlainText() == "90.000 deg"
     assert win.doc.scene is scene and win.doc.undo_stack.count() == 0 and not win.doc.modified
     key(Qt.Key_Escape)
     assert tool.points == [] and not win.canvas.overlay.readout_item.isVisible()
