@@ -507,8 +507,20 @@ class ArcTool(Tool):
 
     def __init__(self, canvas):
         super().__init__(canvas)
-        self.edge = None            # (part, loop, edge) chosen by a click
+        self._chosen = None         # ((part, loop, edge), the scene it was chosen in)
         self._drag = None
+
+    @property
+    def edge(self):
+        """The (part, loop, edge) chosen by a click, while the scene is still the one it was
+        chosen in (an undo or another file in between forgets it)."""
+        if self._chosen is None or self._chosen[1] is not self.doc.scene:
+            return None
+        return self._chosen[0]
+
+    @edge.setter
+    def edge(self, ref):
+        self._chosen = None if ref is None else (ref, self.doc.scene)
 
     def _edge_at(self, x, y):
         hit = snap_index(self.doc.scene).edge_near((x, y), self.canvas.pick_mm())

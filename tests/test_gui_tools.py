@@ -124,8 +124,13 @@ def test_arc_by_typed_radius_convex_concave_too_small_and_straight(qtbot, win, t
     wait_traced(qtbot, win)
     assert not win.last_outcome.error
 
-    key(Qt.Key_Z, Qt.ControlModifier)
+    click(qtbot, win.canvas, (0.0, 10.0))                 # choose the straight front face again...
+    assert win.canvas.tool.edge is not None
+    key(Qt.Key_Z, Qt.ControlModifier)                       # ...but undo first: the choice is forgotten
     assert win.doc.scene == scene
+    assert win.canvas.tool.edge is None
+    type_text("5")
+    assert not win.canvas.overlay.typing and win.doc.scene == scene
     saved, reopened = _save_and_reopen(win, tmp_path)
     assert reopened.parts == saved.parts
 
