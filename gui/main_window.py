@@ -183,10 +183,7 @@ class MainWindow(QMainWindow):
                 (RECTANGLE, "Rectangle", "B", "Add a rectangular part by dragging"),
                 (SOURCE_TOOL, "Source", "L", "Place a light source; drag to aim it"),
                 (DETECTOR_TOOL, "Detector", "D", "Drag to place a detector")):
-            a = self._act(t, text, lambda _c=False, n=name: self.set_tool(n), key, tip, True)
-            group.addAction(a)
-            tb.addAction(a)
-            self.tool_actions[name] = a
+            self._add_tool(t, tb, group, name, text, key, tip)
         self._add_drawing_aids(v, t, tb, group)
         self.tool_actions[SELECT].setChecked(True)
         tb.addSeparator()
@@ -215,6 +212,13 @@ class MainWindow(QMainWindow):
         self._act(h, "&Keys and mouse", lambda: self.show_info("Keys and mouse", help_text.SHORTCUTS), QKeySequence.HelpContents)
         self._act(h, "&About", lambda: self.show_info("About", help_text.ABOUT))
 
+    def _add_tool(self, menu, toolbar, group, name, text, key, tip) -> None:
+        """A checkable action choosing one tool, in the Tools menu and the tool bar."""
+        a = self._act(menu, text, lambda _c=False, n=name: self.set_tool(n), key, tip, True)
+        group.addAction(a)
+        toolbar.addAction(a)
+        self.tool_actions[name] = a
+
     def _add_drawing_aids(self, view_menu, tools_menu, toolbar, group) -> None:
         """Arc, hole, measure and zoom-box tools; zoom keys; snapping to the parts' geometry."""
         tools_menu.addSeparator()
@@ -224,10 +228,7 @@ class MainWindow(QMainWindow):
                 (HOLE, "Hole", "H", "Cut a hole in a part: click its vertices, or drag centre to rim for a round one"),
                 (MEASURE, "Measure", "M", "Distance between two points, angle at a corner"),
                 (ZOOM_BOX, "Zoom box", "Z", "Drag a box to zoom into it")):
-            a = self._act(tools_menu, text, lambda _c=False, n=name: self.set_tool(n), key, tip, True)
-            group.addAction(a)
-            toolbar.addAction(a)
-            self.tool_actions[name] = a
+            self._add_tool(tools_menu, toolbar, group, name, text, key, tip)
         self.canvas.tool_changed.connect(lambda n: self.tool_actions[n].setChecked(True))
         view_menu.addSeparator()
         zoom_in = self._act(view_menu, "Zoom &in", lambda: self.canvas.zoom(1.25), None, "Zoom in (Ctrl+= or Ctrl++)")
