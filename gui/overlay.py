@@ -54,6 +54,7 @@ class Overlay(QObject):
         self.entry.setPlaceholderText("x, y   @dx, dy   length<angle")
         self.entry.setToolTip(f"Type {FORMATS} (mm, degrees); Enter places it, Esc closes this box")
         self.entry.installEventFilter(self)
+        self.entry.textEdited.connect(lambda text: self.canvas.tool.preview_typed(text, self.canvas.cursor))
         lay.addWidget(self.prompt)
         lay.addWidget(self.entry)
         self.box.hide()
@@ -101,6 +102,7 @@ class Overlay(QObject):
     def open(self, text: str = "") -> None:
         self.prompt.setText(self.canvas.tool.typed_prompt)
         self.entry.setText(text)
+        self.canvas.tool.preview_typed(text, self.canvas.cursor)
         self.box.adjustSize()
         self.box.move(self.canvas.plot.width() // 2 - self.box.width() // 2,
                       self.canvas.plot.height() - self.box.height() - 40)

@@ -74,6 +74,16 @@ class Tool:
     def place(self, p) -> None:
         """Put the tool's next point exactly at p (a typed point is never snapped)."""
 
+    def preview(self, p) -> None:
+        """Show what the next point at p would draw (the mouse, or text being typed)."""
+
+    def preview_typed(self, text: str, cursor) -> None:
+        """Preview the text typed so far, when it already reads as a point."""
+        try:
+            self.preview(parse_point(text, self.last_point(), cursor))
+        except TypedError:
+            pass
+
 
 class SelectTool(Tool):
     """Pick and drag: vertices of the selected part, source aim handles, detector ends,
@@ -244,7 +254,9 @@ class PolygonTool(Tool):
         return self.points[-1] if self.points else None
 
     def hover(self, x, y):
-        p = self.canvas.snap((x, y))
+        self.preview(self.canvas.snap((x, y)))
+
+    def preview(self, p):
         if self.points:
             self.canvas.set_preview(self.points + [p], closed=False)
 
@@ -358,14 +370,16 @@ class _DragTool(Tool):
         return True
 
     def move(self, x, y):
-        if self._start is not None:
-            self.canvas.set_preview(self.outline(self._start, self._point(x, y)), closed=self.closed)
+        self.preview(self._point(x, y))
 
     def hover(self, x, y):
-        if self._start is not None:     # a typed first point: the outline follows the cursor
-            self.move(x, y)
-        else:
-            self._point(x, y)           # shows where a press would snap to
+        # after a typed first point the outline follows the cursor; before, the snap marker
+        # shows where a press would land
+        self.preview(self._point(x, y))
+
+    def preview(self, p):
+        if self._start is not None:
+            self.canvas.set_preview(self.outline(self._start, p), closed=self.closed)
 
     def release(self, x, y):
         if self._start is not None:
@@ -543,14 +557,32 @@ class ArcTool(Tool):
 
     def hover(self, x, y):
         if self.edge is not None:   # the arc the next click would make
-            pi, li, ei = self.edge
-            self._show_edge(self.edge, arcs.bend_through(self.doc.scene.parts[pi], li, ei, self.canvas.snap((x, y))))
+            self.preview(self.canvas.snap((x, y)))
             return
         ref = self._edge_at(x, y)
         if ref is None:
             self.canvas.set_preview(None)
         else:
             self._show_edge(ref)
+
+    def preview(self, p):
+        if self.edge is not None:
+            pi, li, ei = self.edge
+            self._show_edge(self.edge, arcs.bend_through(self.doc.scene.parts[pi], li, ei, p))
+
+    def preview_typed(self, text, cursor):
+        if self.edge is None:
+            return
+        try:
+            radius = parse_number(text)
+        except TypedError:      # not one number: perhaps the point the arc passes through
+            super().preview_typed(text, cursor)
+            return
+        pi, li, ei = self.edge
+        try:
+            self._show_edge(self.edge, arcs.bend_by_radius(self.doc.scene.parts[pi], li, ei, radius))
+        except arcs.ArcError:
+            self._show_edge(self.edge)
 
     def press(self, x, y):
         ref = self._edge_at(x, y)
@@ -590,16 +622,22 @@ class ArcTool(Tool):
     def typed(self, text, cursor):
         if self.edge is None:
             raise TypedError("click the edge to bend first")
-        if len([t for t in text.replace(",", " ").split() if t]) == 1:
-            radius = parse_number(text, "a radius in mm (negative bends inward, 0 straightens)")
-            pi, li, ei = self.edge
+        try:
+            radius = parse_number(text)
+        except TypedError:
             try:
-                part = arcs.bend_by_radius(self.doc.scene.parts[pi], li, ei, radius)
-            except arcs.ArcError as exc:
-                raise TypedError(f"{self._label(self.edge)}: expected {exc}") from None
-            self._commit(edits.replace_part(self.doc.scene, pi, part), f"radius {radius:g} mm")
-        else:
-            self.place(parse_point(text, None))
+                through = parse_point(text, None)
+            except TypedError:
+                raise TypedError(f"could not read {text!r}: expected the radius in mm (negative bends "
+                                 "inward, 0 straightens) or x, y of a point on the arc") from None
+            self.place(through)
+            return
+        pi, li, ei = self.edge
+        try:
+            part = arcs.bend_by_radius(self.doc.scene.parts[pi], li, ei, radius)
+        except arcs.ArcError as exc:
+            raise TypedError(f"{self._label(self.edge)}: expected {exc}") from None
+        self._commit(edits.replace_part(self.doc.scene, pi, part), f"radius {radius:g} mm")
 
     def place(self, p):
         if self.edge is not None:
@@ -670,7 +708,9 @@ class MeasureTool(Tool):
             self.place(self._snap(x, y))
 
     def hover(self, x, y):
-        p = self._snap(x, y)
+        self.preview(self._snap(x, y))
+
+    def preview(self, p):
         if 0 < len(self.points) < 3 and not self._dragging:
             self._show(self.points + [p])
 

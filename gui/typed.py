@@ -32,10 +32,10 @@ def _numbers(text: str, original: str) -> list[float]:
     return values
 
 
-def parse_number(text: str, what: str = "a number") -> float:
+def parse_number(text: str) -> float:
     values = _numbers(text, text)
     if len(values) != 1:
-        raise TypedError(f"could not read {text!r}: expected {what}")
+        raise TypedError(f"could not read {text!r}: expected one number")
     return values[0]
 
 

@@ -95,6 +95,8 @@ def test_arc_by_typed_radius_convex_concave_too_small_and_straight(qtbot, win, t
     click(qtbot, win.canvas, (10.0, 5.0))                 # choose the back face
     assert win.canvas.tool.edge is not None
     type_text("-29")                                        # concave: into the glass
+    deepest = min(x for x, _ in win.canvas._preview)
+    assert deepest == pytest.approx(2.0, abs=0.05), "the arc is previewed while the radius is typed"
     key(Qt.Key_Return)
     part = win.doc.scene.parts[0]
     back = next(e for e in part.outer.edges if e.face == "back")
@@ -256,8 +258,9 @@ def test_typed_coordinates_draw_a_part_and_a_detector(qtbot, win, tmp_path):
     type_text("0, 0")
     assert c.overlay.typing and c.overlay.prompt.text() == "vertex 1:"
     key(Qt.Key_Return)
-    for text in ("10<0", "@0, 5"):
+    for text, p in (("10<0", (10.0, 0.0)), ("@0, 5", (10.0, 5.0))):
         type_text(text)
+        assert c._preview[-1] == p, "the typed point is previewed before Enter"
         key(Qt.Key_Return)
     hover(qtbot, c, (-15.0, 5.0))           # a length alone goes towards the cursor
     type_text("4")
