@@ -40,37 +40,59 @@ def nearest_on_arc(e: Edge, p: Point) -> Point:
     return min((e.start, e.end), key=lambda q: math.dist(q, p))
 
 
-class SnapIndex:
-    """Every snap target of one scene, as arrays."""
+class _PartTargets:
+    """The snap targets of one part; refs are (loop, index) rows."""
 
-    def __init__(self, scene: Scene):
-        self.scene = scene
+    def __init__(self, part):
         pts, kinds, refs = [], [], []
         seg_a, seg_b, seg_refs, self.arcs = [], [], [], []
-        for pi, part in enumerate(scene.parts):
-            for li, loop in enumerate(part.loops):
-                for ei, e in enumerate(loop.edges):
-                    pts.append(e.start)
-                    kinds.append(VERTEX)
-                    refs.append((pi, li, ei))
-                    if e.is_arc:
-                        pts += [e.point_at(0.5), e.arc_center]
-                        kinds += [MIDPOINT, CENTRE]
-                        refs += [(pi, li, ei)] * 2
-                        self.arcs.append((e, (pi, li, ei)))
-                    else:
-                        pts.append(e.point_at(0.5))
-                        kinds.append(MIDPOINT)
-                        refs.append((pi, li, ei))
-                        seg_a.append(e.start)
-                        seg_b.append(e.end)
-                        seg_refs.append((pi, li, ei))
+        for li, loop in enumerate(part.loops):
+            for ei, e in enumerate(loop.edges):
+                pts += [e.start, e.point_at(0.5)]
+                kinds += [VERTEX, MIDPOINT]
+                refs += [(li, ei)] * 2
+                if e.is_arc:
+                    pts.append(e.arc_center)
+                    kinds.append(CENTRE)
+                    refs.append((li, ei))
+                    self.arcs.append((e, li, ei))
+                else:
+                    seg_a.append(e.start)
+                    seg_b.append(e.end)
+                    seg_refs.append((li, ei))
         self.points = np.asarray(pts, dtype=float).reshape(-1, 2)
-        self.kinds = kinds
-        self.refs = refs
+        self.kinds = np.asarray(kinds, dtype=object)
+        self.refs = np.asarray(refs, dtype=int).reshape(-1, 2)
         self.seg_a = np.asarray(seg_a, dtype=float).reshape(-1, 2)
         self.seg_b = np.asarray(seg_b, dtype=float).reshape(-1, 2)
-        self.seg_refs = seg_refs
+        self.seg_refs = np.asarray(seg_refs, dtype=int).reshape(-1, 2)
+
+
+def _with_part(refs: np.ndarray, part: int) -> np.ndarray:
+    return np.column_stack([np.full(len(refs), part), refs])
+
+
+class SnapIndex:
+    """Every snap target of one scene, as arrays.  The targets of parts that the previous
+    index already had (the same Part objects: an edit replaces only what it changes) are
+    reused, so dragging a source over a 10,000-edge film does not rebuild the film's."""
+
+    def __init__(self, scene: Scene, previous: "SnapIndex | None" = None):
+        self.scene = scene
+        known = previous.by_part if previous is not None else {}
+        self.by_part = {}
+        for part in scene.parts:
+            old = known.get(id(part))
+            self.by_part[id(part)] = old if old is not None and old[0] is part else (part, _PartTargets(part))
+        targets = [self.by_part[id(p)][1] for p in scene.parts]
+        self.points = np.concatenate([t.points for t in targets] or [np.empty((0, 2))])
+        self.kinds = np.concatenate([t.kinds for t in targets] or [np.empty(0, dtype=object)])
+        self.refs = np.concatenate([_with_part(t.refs, i) for i, t in enumerate(targets)] or [np.empty((0, 3), int)])
+        self.seg_a = np.concatenate([t.seg_a for t in targets] or [np.empty((0, 2))])
+        self.seg_b = np.concatenate([t.seg_b for t in targets] or [np.empty((0, 2))])
+        self.seg_refs = np.concatenate([_with_part(t.seg_refs, i) for i, t in enumerate(targets)]
+                                       or [np.empty((0, 3), int)])
+        self.arcs = [(e, (i, li, ei)) for i, t in enumerate(targets) for e, li, ei in t.arcs]
 
     def find(self, p: Point, tol: float, ignore: tuple[int, int, int] | None = None) -> Snap | None:
         """The snap target nearest `p` within `tol`, or None.  `ignore` is a vertex
@@ -84,44 +106,45 @@ class SnapIndex:
         return self._nearest_edge(np.asarray(p, dtype=float), tol, None)
 
     def _skipped(self, ref, kind, ignore) -> bool:
-        if ignore is None or ref[:2] != ignore[:2]:
+        if ignore is None or (ref[0], ref[1]) != tuple(ignore[:2]):
             return False
         n = len(self.scene.parts[ref[0]].loops[ref[1]].edges)
         if kind == VERTEX:
             return ref[2] == ignore[2]
         return ref[2] in (ignore[2], (ignore[2] - 1) % n)    # the edges that move with it
 
+    @staticmethod
+    def _within(dist: np.ndarray, tol: float) -> np.ndarray:
+        """Indices of the distances within tol, nearest first."""
+        near = np.flatnonzero(dist <= tol)
+        return near[np.argsort(dist[near])]
+
     def _nearest_point(self, q, tol, ignore) -> Snap | None:
-        if not len(self.points):
-            return None
         d = np.hypot(*(self.points - q).T)
-        for k in np.argsort(d):
-            if d[k] > tol:
-                return None
-            if not self._skipped(self.refs[k], self.kinds[k], ignore):
+        for k in self._within(d, tol):
+            ref = tuple(int(v) for v in self.refs[k])
+            if not self._skipped(ref, self.kinds[k], ignore):
                 x, y = self.points[k]
-                return Snap((float(x), float(y)), self.kinds[k], *self.refs[k])
+                return Snap((float(x), float(y)), self.kinds[k], *ref)
         return None
 
     def _nearest_edge(self, q, tol, ignore) -> Snap | None:
         best, best_d = None, tol
-        if len(self.seg_a):
-            a, d = self.seg_a, self.seg_b - self.seg_a
-            L2 = (d * d).sum(axis=1)
-            t = np.clip(np.divide(((q - a) * d).sum(axis=1), L2, out=np.zeros_like(L2), where=L2 > 0), 0, 1)
-            c = a + t[:, None] * d
-            dist = np.hypot(*(q - c).T)
-            for k in np.argsort(dist):
-                if dist[k] > best_d:
-                    break
-                if not self._skipped(self.seg_refs[k], EDGE, ignore):
-                    best, best_d = Snap((float(c[k, 0]), float(c[k, 1])), EDGE, *self.seg_refs[k]), dist[k]
-                    break
+        a, d = self.seg_a, self.seg_b - self.seg_a
+        L2 = (d * d).sum(axis=1)
+        t = np.clip(np.divide(((q - a) * d).sum(axis=1), L2, out=np.zeros_like(L2), where=L2 > 0), 0, 1)
+        c = a + t[:, None] * d
+        dist = np.hypot(*(q - c).T)
+        for k in self._within(dist, tol):
+            ref = tuple(int(v) for v in self.seg_refs[k])
+            if not self._skipped(ref, EDGE, ignore):
+                best, best_d = Snap((float(c[k, 0]), float(c[k, 1])), EDGE, *ref), dist[k]
+                break
         for e, ref in self.arcs:
-            c = nearest_on_arc(e, (float(q[0]), float(q[1])))
-            dist = math.dist(c, q)
-            if dist <= best_d and not self._skipped(ref, EDGE, ignore):
-                best, best_d = Snap(c, EDGE, *ref), dist
+            p = nearest_on_arc(e, (float(q[0]), float(q[1])))
+            dist_arc = math.dist(p, q)
+            if dist_arc <= best_d and not self._skipped(ref, EDGE, ignore):
+                best, best_d = Snap(p, EDGE, *ref), dist_arc
         return best
 
 
@@ -130,8 +153,8 @@ _last: SnapIndex | None = None
 
 def snap_index(scene: Scene) -> SnapIndex:
     """The index of `scene`, built again only when the scene is another object (every edit
-    makes a new scene)."""
+    makes a new scene), from the previous one's parts where they are unchanged."""
     global _last
     if _last is None or _last.scene is not scene:
-        _last = SnapIndex(scene)
+        _last = SnapIndex(scene, _last)
     return _last

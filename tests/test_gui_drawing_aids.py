@@ -3,6 +3,7 @@ snapping to edges, measured angles and typed coordinates."""
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -115,3 +116,17 @@ def test_typed_points(text, expected):
 def test_typed_text_that_is_no_point_says_what_was_expected(text, last, words):
     with pytest.raises(TypedError, match=words):
         parse_point(text, last, (1.0, 1.0))
+
+
+def test_an_index_built_from_the_previous_one_sees_the_edit():
+    from raytrace.scene import Scene
+    a, b = _square(), edits.move_part(replace(_square(), name="other"), 20.0, 0.0)
+    before = SnapIndex(Scene(parts=[a, b]))
+    after_scene = Scene(parts=[a, edits.move_part(b, 0.0, 5.0)])
+    after = SnapIndex(after_scene, before)
+    assert after.by_part[id(a)] is before.by_part[id(a)], "the unchanged part is reused"
+    fresh = SnapIndex(after_scene)
+    for p in [(10.2, 10.1), (20.1, 5.2), (20.1, 0.1), (25.0, 15.2), (5.0, 0.3)]:
+        assert after.find(p, 0.5) == fresh.find(p, 0.5)
+    assert after.find((20.1, 5.2), 0.5).point == (20.0, 5.0)       # the moved corner
+    assert after.find((20.1, -0.2), 0.5) is None                    # not where it was
