@@ -330,7 +330,8 @@ class Canvas(QWidget):
         """Where a drawn point lands: on a vertex, midpoint, arc centre or edge of a part near it
         (when snapping to geometry: `geometry`, by default the View menu's choice; `ignore` is a
         vertex being dragged), else on the grid when snapping to the grid, else where it is."""
-        if self.object_snapping if geometry is None else geometry:
+        to_geometry = self.object_snapping if geometry is None else geometry
+        if to_geometry:
             hit = snap_index(self.scene).find(p, self.pick_mm(), ignore)
             self.overlay.show_snap(hit)
             if hit is not None:

@@ -130,3 +130,16 @@ def test_an_index_built_from_the_previous_one_sees_the_edit():
         assert after.find(p, 0.5) == fresh.find(p, 0.5)
     assert after.find((20.1, 5.2), 0.5).point == (20.0, 5.0)       # the moved corner
     assert after.find((20.1, -0.2), 0.5) is None                    # not where it was
+
+
+def test_holes_of_a_builder_part_turn_and_move_with_it():
+    from raytrace.geometry import ShapeSpec
+    spec = ShapeSpec("rectangle", {"width": 10.0, "height": 6.0}, (5.0, 1.0), 0.0)
+    part = edits.add_hole(edits.shape_part(spec, "PMMA", "block"), edits.round_hole((7.0, 1.0), 1.0, "hole 1"))
+    turned = edits.rotate_part(part, 90.0)                  # about the builder's origin (5, 1)
+    assert turned.holes[0].edges[0].arc_center == pytest.approx((5.0, 3.0), abs=1e-12)
+    moved = edits.move_part(turned, 1.0, -2.0)
+    assert moved.holes[0].edges[0].arc_center == pytest.approx((6.0, 1.0), abs=1e-12)
+    # a parameter change leaves the hole where it is
+    wider = edits.rebuild(moved, replace(moved.shape, params={"width": 12.0, "height": 6.0}))
+    assert wider.holes == moved.holes
