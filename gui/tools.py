@@ -153,6 +153,7 @@ class SelectTool(Tool):
     def release(self, x, y):
         self.move(x, y)
         self._drag = None
+        self.canvas.overlay.show_snap(None)     # this tool shows the marker only while dragging
 
     def click(self, x, y, double=False):
         target = self.canvas.pick(x, y)

@@ -222,6 +222,9 @@ def test_snap_to_vertices_and_edges_for_detector_ends_and_dragged_vertices(qtbot
     key(Qt.Key_D)
     assert win.canvas.tool.name == DETECTOR_TOOL
     c = win.canvas
+    hover(qtbot, c, pixel_offset(c, (10.0, 20.0), 3, 2))
+    marker = c.overlay.marker.data
+    assert [(m["x"], m["y"]) for m in marker] == [(10.0, 20.0)], "the marker shows where a press lands"
     drag(qtbot, c, pixel_offset(c, (10.0, 20.0), 3, 2), pixel_offset(c, (10.0, -5.0), 4, 0))
     det = win.doc.scene.detectors[-1]
     assert det.start == (10.0, 20.0), "on the corner vertex"
@@ -239,6 +242,7 @@ def test_snap_to_vertices_and_edges_for_detector_ends_and_dragged_vertices(qtbot
     assert c.selection == ("part", tri)
     drag(qtbot, c, (14.0, -10.0), pixel_offset(c, (10.0, -20.0), 3, 3))
     assert win.doc.scene.parts[tri].outer.vertices[0] == (10.0, -20.0)
+    assert len(c.overlay.marker.data) == 0, "no marker left behind after the drag"
     saved, reopened = _save_and_reopen(win, tmp_path)
     assert reopened.parts == saved.parts and reopened.detectors == saved.detectors
 
