@@ -62,7 +62,8 @@ class Overlay(QObject):
     # ------------------------------------------------------------------ snap marker
     def show_snap(self, snap) -> None:
         if snap is None:
-            self.marker.setData([], [])
+            if len(self.marker.data):       # most calls find it empty already: no repaint then
+                self.marker.setData([], [])
             return
         self.marker.setData([snap.point[0]], [snap.point[1]], symbol=_MARKER_SYMBOL.get(snap.kind, "s"))
 
