@@ -153,7 +153,7 @@ def _enclosure(points, material, treatment, **indices):
     return Scene(parts=[Part("enclosure", material, loop)],
                  sources=[Source("rays", "point", points[0], 0.0, half_angle_deg=0.0)],
                  detectors=[], materials=mats, ambient="outside",
-                 settings=TraceSettings(rays=1, min_relative_flux=1e-3, max_depth=40))
+                 settings=TraceSettings(rays=1, flux_floor=1e-3, max_generations=40))
 
 
 def _nothing_leaves(scene, rays, mode):
@@ -200,7 +200,7 @@ def test_closed_mirror_box_keeps_a_beam_just_off_its_corner():
     scene = _enclosure(pts, "cavity", Treatment(MIRROR, 1.0), cavity=1.0)
     for angle in (135.00005, 135.0, 134.99995):
         a = math.radians(angle)
-        r = trace(scene, start=_start([(5.0, 5.0, a)]), max_depth=3, record="all")
+        r = trace(scene, start=_start([(5.0, 5.0, a)]), max_generations=3, record="all")
         assert r.ledger.flux("escaped") == 0.0, angle
         assert r.ledger.flux("truncated") == r.source_flux, angle
         seg = r.segments
