@@ -75,15 +75,24 @@ def _arc_edge(p, q, bulge_fraction):
 
 
 @st.composite
-def star_loop(draw, centre, radius, allow_arcs=True):
-    """A simple loop star-shaped about `centre`: jittered regular polygon, some edges arcs."""
-    n = draw(st.integers(3, 7))
+def star_points(draw, centre, radius, sides=(3, 7), jitter=0.25, least=0.75):
+    """Vertices of a jittered regular polygon about `centre`, at increasing angles and at radii
+    from `least` to 1 times `radius` (below about 0.7 the polygon is seldom convex)."""
+    n = draw(st.integers(*sides))
     base = draw(st.floats(0, 2 * math.pi))
     pts = []
     for k in range(n):
-        a = base + 2 * math.pi * (k + draw(st.floats(-0.25, 0.25))) / n
-        r = radius * draw(st.floats(0.75, 1.0))
+        a = base + 2 * math.pi * (k + draw(st.floats(-jitter, jitter))) / n
+        r = radius * draw(st.floats(least, 1.0))
         pts.append((centre[0] + r * math.cos(a), centre[1] + r * math.sin(a)))
+    return pts
+
+
+@st.composite
+def star_loop(draw, centre, radius, allow_arcs=True):
+    """A simple loop star-shaped about `centre`: jittered regular polygon, some edges arcs."""
+    pts = draw(star_points(centre, radius))
+    n = len(pts)
     edges = []
     for k in range(n):
         p, q = pts[k], pts[(k + 1) % n]
