@@ -36,9 +36,10 @@ def build_parser() -> argparse.ArgumentParser:
     t.add_argument("scene", metavar="SCENE")
     add_trace_options(t)
     t.add_argument("--workers", type=whole(1), dest="trace_workers", metavar="N",
-                   help="processes to trace on (default 1); the result does not depend on it")
-    t.add_argument("--json", metavar="FILE", help="write the summary (ledger, efficiencies, stats) as JSON")
-    t.add_argument("--csv", metavar="FILE", help="write the ray table (one row per segment) as CSV")
+                   help="processes to trace on (default and most: the CPUs this process may use); "
+                        "the result does not depend on it")
+    t.add_argument("--json", metavar="FILE", help="write the summary (ledger, efficiencies, stats) as JSON (- for standard output)")
+    t.add_argument("--csv", metavar="FILE", help="write the ray table (one row per segment) as CSV (- for standard output)")
     t.add_argument("--record", metavar="first:N|all|none", type=parse_record, default=None,
                    help="which source rays the ray table holds (default with --csv: first:1000)")
     t.add_argument("--detectors-csv", metavar="FILE", dest="detectors_csv",
@@ -60,7 +61,8 @@ def build_parser() -> argparse.ArgumentParser:
     w.add_argument("--vary", metavar="NAME=START:STOP:COUNT", action="append", required=True,
                    help="a number to vary (once or twice; two make a grid)")
     w.add_argument("--csv", metavar="OUT", required=True, help="the table to write")
-    w.add_argument("--workers", type=int, help="local worker processes (default: CPU count; 1 = in this process)")
+    w.add_argument("--workers", type=int, help="local worker processes (default and most: the CPUs this process may use; "
+                        "1 = in this process)")
     w.add_argument("--dask", metavar="ADDRESS",
                    help="run the points on the Dask scheduler at ADDRESS (needs the dask extra)")
     add_trace_options(w)
@@ -170,14 +172,18 @@ def trace_kwargs(args) -> dict:
 
 def cmd_trace(args) -> int:
     from .api import trace
+    from .parallel import capped_workers
     from .report import Progress, detectors_text, summary_text
     from .scene_io import load_scene
+    if refuse_clashing_outputs({"scene": args.scene}, {"--json": args.json, "--csv": args.csv,
+                                                        "--detectors-csv": args.detectors_csv}):
+        return EXIT_USAGE
     scene = load_scene(args.scene)
     record = args.record or (("first", 1000) if args.csv else ("none", 0))
     progress = Progress(enabled=not args.quiet)
     try:
         result = trace(scene, record=record[0], record_count=record[1], progress=progress.trace,
-                       track_paths=args.paths is not None, workers=getattr(args, "trace_workers", None) or 1,
+                       track_paths=args.paths is not None, workers=capped_workers(args.trace_workers),
                        path_min_relative_flux=args.path_min_relative_flux, **trace_kwargs(args))
     except SceneError as exc:      # found while tracing (a wavelength no material can take)
         raise SceneError([replace(p, file=p.file or args.scene) for p in exc.problems]) from None
@@ -225,6 +231,8 @@ def cmd_sweep(args) -> int:
     from .report import Progress
     from .scene_io import load_scene, scene_to_dict
     from .sweep import SweepError, parse_vary, sweep
+    if refuse_clashing_outputs({"scene": args.scene}, {"--csv": args.csv}):
+        return EXIT_USAGE
     scene = load_scene(args.scene)
     try:
         variables = [parse_vary(v) for v in args.vary]
@@ -278,8 +286,23 @@ def cmd_materials(args) -> int:
     return EXIT_OK
 
 
+def refuse_clashing_outputs(inputs: dict, outputs: dict) -> bool:
+    """Print an error for each output that would overwrite an input or another output
+    (also through symlinks and hard links); True when any does."""
+    from .atomic import clashing_outputs
+    clashes = clashing_outputs(inputs, {k: v for k, v in outputs.items() if v})
+    for text in clashes:
+        print(f"error: {text}", file=sys.stderr)
+    return bool(clashes)
+
+
 def write_output(path: str, text: str) -> bool:
+    """Write an output file atomically; "-" writes to standard output."""
     from .scene_io import atomic_write_text
+    if path == "-":
+        sys.stdout.write(text)
+        sys.stdout.flush()
+        return True
     try:
         atomic_write_text(path, text)
         return True

@@ -9,6 +9,7 @@ from __future__ import annotations
 import json
 import math
 import os
+import stat
 from dataclasses import replace
 from pathlib import Path
 from typing import Any
@@ -35,19 +36,28 @@ SOURCE_KEYS = ("name", "kind", "position", "direction_deg", "width", "half_angle
 DETECTOR_KEYS = ("name", "start", "end", "absorbing", "bins", "angle_bins", "central_fraction")
 TRACE_KEYS = ("rays", "mode", "min_relative_flux", "max_depth", "max_segments", "seed")
 MODES = ("branching", "monte_carlo")
+# Largest source flux: sums and squares of fluxes must stay finite (1e308 overflowed to a
+# non-standard Infinity in the JSON summary); the Sun gives about 3.8e26 W.
+MAX_FLUX = 1e30
 MAX_BINS = 1_000_000   # histogram bins per detector: beyond this a histogram is only memory
 
 
 # ----------------------------------------------------------------------------- loading
+
+MAX_SCENE_BYTES = 64 * 2**20   # far above any hand-made or generated scene (a 10,000-edge film is ~1 MB)
+
 
 def load_scene(path: str | os.PathLike) -> Scene:
     """Read, validate and build a scene.  Raises SceneError listing every problem."""
     path = Path(path)
     problems = Problems(file=str(path))
     try:
-        text = path.read_text(encoding="utf-8-sig")   # -sig: accept the BOM some editors write
+        text = read_scene_text(path)
     except FileNotFoundError:
         problems.add("$", "<no such file>", "an existing scene file")
+        raise SceneError(problems.items)
+    except _NotAScene as exc:
+        problems.add("$", f"<{exc}>", exc.expected)
         raise SceneError(problems.items)
     except (OSError, UnicodeDecodeError) as exc:
         problems.add("$", f"<unreadable file: {exc}>", "a readable UTF-8 JSON file")
@@ -55,10 +65,33 @@ def load_scene(path: str | os.PathLike) -> Scene:
     return scene_from_text(text, problems)
 
 
+class _NotAScene(OSError):
+    def __init__(self, found: str, expected: str):
+        super().__init__(found)
+        self.expected = expected
+
+
+def read_scene_text(path: Path) -> str:
+    """The file's text, read only from a regular file and at most MAX_SCENE_BYTES: a FIFO
+    would wait for a writer and /dev/zero would be read forever."""
+    from .atomic import describe_kind
+    st = os.stat(path)
+    if not stat.S_ISREG(st.st_mode):
+        raise _NotAScene(describe_kind(st.st_mode), "a regular scene file")
+    with open(path, "rb") as fh:
+        data = fh.read(MAX_SCENE_BYTES + 1)
+    if len(data) > MAX_SCENE_BYTES:
+        size = f"{MAX_SCENE_BYTES / 2**20:.3g} MB"
+        raise _NotAScene(f"a file of more than {size}", f"a scene file of at most {size}")
+    return data.decode("utf-8-sig")   # -sig: accept the BOM some editors write
+
+
 def scene_from_text(text: str, problems: Problems | None = None) -> Scene:
     problems = problems or Problems()
+    duplicates = DuplicateKeys()
     try:
-        data = json.loads(text, parse_constant=F.NonFinite, parse_int=F.parse_int)
+        data = json.loads(text, parse_constant=F.NonFinite, parse_int=F.parse_int,
+                          object_pairs_hook=duplicates.hook)
     except json.JSONDecodeError as exc:
         problems.add("$", f"<malformed JSON at line {exc.lineno} column {exc.colno}: {exc.msg}>",
                      "valid JSON")
@@ -66,7 +99,49 @@ def scene_from_text(text: str, problems: Problems | None = None) -> Scene:
     except RecursionError:
         problems.add("$", "<JSON nested too deeply>", "a scene file of ordinary depth")
         raise SceneError(problems.items)
+    duplicates.report(data, problems)
     return scene_from_dict(data, problems)
+
+
+class DuplicateKeys:
+    """JSON object hook that notes keys given twice in one object (Python's parser keeps the
+    last silently: a second "parts": [] would drop every part), to report them by JSON path."""
+
+    def __init__(self):
+        self.found: dict[int, tuple[dict, list[str]]] = {}
+
+    def hook(self, pairs: list[tuple[str, Any]]) -> dict:
+        out: dict = {}
+        twice = []
+        for k, v in pairs:
+            if k in out and k not in twice:
+                twice.append(k)
+            out[k] = v
+        if twice:
+            self.found[id(out)] = (out, twice)
+        return out
+
+    def report(self, data: Any, problems: Problems) -> None:
+        if not self.found:
+            return
+        for where, obj in _objects(data, "$"):
+            hit = self.found.get(id(obj))
+            if hit is not None and hit[0] is obj:
+                for k in hit[1]:
+                    problems.add(f"{where}.{_key(k)}", f"<the key {k!r} given more than once>",
+                                 "each key once in an object (only the last would count)")
+        problems.raise_if_errors()
+
+
+def _objects(value: Any, where: str):
+    """Every JSON object in `value` with its path."""
+    if isinstance(value, dict):
+        yield where, value
+        for k, v in value.items():
+            yield from _objects(v, f"{where}.{_key(str(k))}")
+    elif isinstance(value, list):
+        for k, v in enumerate(value):
+            yield from _objects(v, f"{where}[{k}]")
 
 
 def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
@@ -95,6 +170,10 @@ def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
     mats = top.get("materials", {})
     if F.obj(mats, "$.materials", problems) is not None:
         for mname, mdata in mats.items():
+            if F.bad_text(mname):
+                problems.add(f"$.materials.{_key(mname)}", mname, f"a material name without {F.bad_text(mname)}")
+                failed_materials.add(mname)
+                continue
             m = material_from_dict(mname, mdata, f"$.materials.{_key(mname)}", problems)
             if m is not None:
                 materials[mname] = m
@@ -443,7 +522,7 @@ def _source(value: Any, where: str, problems: Problems) -> Source | None:
         distribution=F.string(d, "distribution", where, problems, default="uniform", choices=DISTRIBUTIONS),
         cos_power=F.number(d, "cos_power", where, problems, default=1.0, minimum=0.0, exclusive=True,
                            what="an exponent m of cos^m"),
-        flux=F.number(d, "flux", where, problems, default=1.0, minimum=0.0, what="a flux"),
+        flux=F.number(d, "flux", where, problems, default=1.0, minimum=0.0, maximum=MAX_FLUX, what="a flux"),
         polarization=F.string(d, "polarization", where, problems, default="unpolarized", choices=POLARIZATIONS),
         sampling=F.string(d, "sampling", where, problems, default="even", choices=SAMPLINGS),
         note=F.string(d, "note", where, problems, default=""),

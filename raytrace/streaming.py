@@ -164,9 +164,9 @@ def trace_chunked(cs: CompiledScene, start: StartRays, mode: str, limits: Limits
                   workers: int = 1, keep_hits: bool = True, accel: str = "auto", progress=None) -> RawTrace:
     """Trace in chunks, on `workers` processes when more than one, and merge in chunk order."""
     jobs = plan_chunks(len(start), chunk_size, seed, limits)
-    if len(jobs) == 1 and workers <= 1:
-        job = jobs[0]
-        # one chunk: the plain single trace (seed as given, so small traces are unchanged)
+    if len(jobs) == 1:
+        # one chunk: the plain single trace (seed as given, so small traces are unchanged, and
+        # the same whatever the number of workers)
         return trace_rays(cs, start, mode=mode, limits=limits, seed=seed, record=record,
                           track_paths=track_paths, n_sources=n_sources, accel=accel,
                           keep_hits=keep_hits, progress=progress)

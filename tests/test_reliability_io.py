@@ -1,0 +1,232 @@
+"""Faults a tester tries on purpose: outputs that would destroy inputs, odd save targets
+(devices, symlinks, hard links, read-only files), scene files that are not files, duplicate
+JSON keys, hostile names, limits that must hold, and worker processes that must not outlive
+their parent.  One named test per fault (issue: reliability of files, limits and processes).
+
+Facts of the trade relied on here are "common practice" of POSIX systems: a rename replaces a
+directory entry (so it breaks hard links and replaces device nodes), a symlink is a name for
+another file, and mode 0444 marks a file read-only."""
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import stat
+import sys
+from pathlib import Path
+
+import pytest
+
+from raytrace import cli
+from raytrace.atomic import OutputRefused, atomic_write_text, clashing_outputs
+from raytrace.errors import SceneError
+from raytrace.scene_io import load_scene, save_scene, scene_from_text
+
+SAMPLES = Path(__file__).resolve().parent.parent / "samples"
+WINDOW = SAMPLES / "oblique-window.json"
+
+
+def run(args, capsys):
+    code = cli.main([str(a) for a in args])
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+@pytest.fixture
+def scene_file(tmp_path) -> Path:
+    p = tmp_path / "s.json"
+    shutil.copy(WINDOW, p)
+    return p
+
+
+# ----------------------------------------------------------------------------- 2: outputs vs inputs
+
+@pytest.mark.parametrize("flag", ["--json", "--csv", "--detectors-csv"])
+def test_trace_refuses_an_output_that_is_the_scene(scene_file, flag, capsys):
+    before = scene_file.read_bytes()
+    code, _, err = run(["trace", scene_file, flag, scene_file, "--quiet"], capsys)
+    assert code == cli.EXIT_USAGE
+    assert f"{flag} {scene_file}: found the same file as the scene" in err
+    assert scene_file.read_bytes() == before
+
+
+def test_trace_refuses_an_output_reaching_the_scene_through_a_symlink_or_hard_link(scene_file, capsys):
+    before = scene_file.read_bytes()
+    sym, hard = scene_file.with_name("sym.json"), scene_file.with_name("hard.json")
+    sym.symlink_to(scene_file.name)
+    os.link(scene_file, hard)
+    for target in (sym, hard):
+        code, _, err = run(["trace", scene_file, "--json", target, "--quiet"], capsys)
+        assert code == cli.EXIT_USAGE, target
+        assert "the same file as the scene" in err
+    assert scene_file.read_bytes() == before
+
+
+def test_trace_refuses_two_outputs_on_one_file(scene_file, tmp_path, capsys):
+    out = tmp_path / "both.csv"
+    code, _, err = run(["trace", scene_file, "--csv", out, "--detectors-csv", tmp_path / "." / "both.csv",
+                        "--quiet"], capsys)
+    assert code == cli.EXIT_USAGE
+    assert "--detectors-csv" in err and "the same file as --csv" in err
+    assert not out.exists()
+
+
+def test_sweep_refuses_a_csv_that_is_the_scene(scene_file, capsys):
+    before = scene_file.read_bytes()
+    code, _, err = run(["sweep", scene_file, "--vary", "trace.seed=1,2", "--csv", scene_file,
+                        "--workers", "1", "--quiet"], capsys)
+    assert code == cli.EXIT_USAGE
+    assert "the same file as the scene" in err
+    assert scene_file.read_bytes() == before
+
+
+def test_outputs_to_dev_null_and_stdout_may_be_shared(scene_file, capsys):
+    assert clashing_outputs({"scene": str(scene_file)}, {"--json": "/dev/null", "--csv": "/dev/null"}) == []
+    code, out, _ = run(["trace", scene_file, "--json", "-", "--quiet"], capsys)
+    assert code == cli.EXIT_OK
+    assert json.loads(out)["mode"] == "branching"
+
+
+# ----------------------------------------------------------------------------- 3, 4: save targets
+
+@pytest.mark.skipif(not os.path.exists("/dev/null"), reason="needs /dev/null")
+def test_writing_to_dev_null_keeps_the_device(scene_file, capsys):
+    code, _, err = run(["trace", scene_file, "--csv", "/dev/null", "--json", "/dev/null", "--quiet"], capsys)
+    assert code == cli.EXIT_OK, err
+    assert stat.S_ISCHR(os.stat("/dev/null").st_mode)
+
+
+def test_writing_to_a_fifo_writes_into_it_and_keeps_it(tmp_path):
+    fifo = tmp_path / "pipe"
+    os.mkfifo(fifo)
+    import threading
+    got = []
+    reader = threading.Thread(target=lambda: got.append(fifo.read_text()))
+    reader.start()
+    atomic_write_text(fifo, "a,b\n1,2\n")
+    reader.join(5)
+    assert got == ["a,b\n1,2\n"]
+    assert stat.S_ISFIFO(os.stat(fifo).st_mode)
+
+
+def test_a_directory_as_output_is_refused_with_a_clear_message(scene_file, tmp_path, capsys):
+    code, _, err = run(["trace", scene_file, "--json", tmp_path, "--quiet"], capsys)
+    assert code == cli.EXIT_OUTPUT
+    assert "is a directory, not a file" in err
+
+
+def test_saving_through_a_symlink_updates_the_real_file(scene_file, tmp_path):
+    link = tmp_path / "link.json"
+    link.symlink_to(scene_file.name)
+    scene = load_scene(scene_file)
+    scene.name = "renamed through the link"
+    save_scene(scene, link)
+    assert link.is_symlink()
+    assert load_scene(scene_file).name == "renamed through the link"
+
+
+def test_saving_over_a_read_only_file_is_refused(scene_file):
+    scene = load_scene(scene_file)
+    before = scene_file.read_bytes()
+    scene_file.chmod(0o444)
+    try:
+        scene.name = "changed"
+        with pytest.raises(OutputRefused, match="read-only"):
+            save_scene(scene, scene_file)
+        assert scene_file.read_bytes() == before
+    finally:
+        scene_file.chmod(0o644)
+
+
+def test_saving_a_hard_linked_file_updates_every_name(scene_file, tmp_path):
+    other = tmp_path / "other-name.json"
+    os.link(scene_file, other)
+    scene = load_scene(scene_file)
+    scene.name = "seen under both names"
+    save_scene(scene, scene_file)
+    assert os.stat(scene_file).st_ino == os.stat(other).st_ino
+    assert load_scene(other).name == "seen under both names"
+    assert [p.name for p in tmp_path.iterdir() if p.name.endswith(".tmp")] == []
+
+
+def test_a_plain_save_keeps_the_file_mode(scene_file):
+    scene_file.chmod(0o640)
+    save_scene(load_scene(scene_file), scene_file)
+    assert stat.S_IMODE(os.stat(scene_file).st_mode) == 0o640
+
+
+# ----------------------------------------------------------------------------- 13b: what is read
+
+def test_a_fifo_as_scene_is_refused_without_waiting(tmp_path):
+    fifo = tmp_path / "scene.json"
+    os.mkfifo(fifo)
+    with pytest.raises(SceneError) as exc:
+        load_scene(fifo)     # would wait for a writer forever if opened
+    assert "a pipe (FIFO)" in str(exc.value.problems[0]) and "a regular scene file" in str(exc.value.problems[0])
+
+
+@pytest.mark.skipif(not os.path.exists("/dev/zero"), reason="needs /dev/zero")
+def test_dev_zero_as_scene_is_refused(capsys):
+    code, out, _ = run(["check", "/dev/zero"], capsys)
+    assert code == cli.EXIT_SCENE
+    assert "found <a character device>; expected a regular scene file" in out
+
+
+def test_an_oversized_scene_file_is_refused_after_a_bounded_read(tmp_path, monkeypatch):
+    import raytrace.scene_io as sio
+    monkeypatch.setattr(sio, "MAX_SCENE_BYTES", 1000)
+    big = tmp_path / "big.json"
+    big.write_text(" " * 5000 + WINDOW.read_text())
+    with pytest.raises(SceneError, match="a file of more than 0.000954 MB"):
+        load_scene(big)
+
+
+# ----------------------------------------------------------------------------- 11: duplicate keys
+
+def test_a_duplicate_top_level_key_is_refused_with_its_path(tmp_path):
+    text = WINDOW.read_text().rstrip().rstrip("}") + ', "parts": []}'
+    with pytest.raises(SceneError) as exc:
+        scene_from_text(text)
+    msgs = [str(p) for p in exc.value.problems]
+    assert msgs == ["$.parts: found <the key 'parts' given more than once>; "
+                    "expected each key once in an object (only the last would count)"]
+
+
+def test_a_duplicate_nested_key_names_the_file_and_path(tmp_path):
+    data = json.loads(WINDOW.read_text())
+    text = json.dumps(data, indent=1)
+    # give the first source its flux twice
+    text = text.replace('"flux": ', '"flux": 5, "flux": ', 1)
+    p = tmp_path / "dup.json"
+    p.write_text(text)
+    with pytest.raises(SceneError) as exc:
+        load_scene(p)
+    assert str(exc.value.problems[0]).startswith(f"{p}: $.sources[0].flux: found <the key 'flux' given more than once>")
+
+
+# ----------------------------------------------------------------------------- 12: names, huge flux
+
+@pytest.mark.parametrize("bad, why", [("\\udc80", "lone surrogate"), ("\\u001b[31mred", "control characters"),
+                                      ("two\\nlines", "control characters")])
+def test_names_with_surrogates_or_control_characters_are_refused(tmp_path, bad, why, capsys):
+    text = WINDOW.read_text()
+    data = json.loads(text)
+    old = data["sources"][0]["name"]
+    text = text.replace(json.dumps(old), '"' + bad + '"', 1)
+    p = tmp_path / "names.json"
+    p.write_text(text)
+    code, out, _ = run(["check", p], capsys)
+    assert code == cli.EXIT_SCENE
+    assert "$.sources[0].name" in out and why in out
+    assert "\x1b" not in out and "\n" not in out.strip()   # the terminal sees escapes, not raw codes
+    out.encode("utf-8")                                     # printable as UTF-8
+
+
+def test_a_huge_flux_is_refused_so_no_infinity_reaches_the_json(tmp_path, capsys):
+    data = json.loads(WINDOW.read_text())
+    data["sources"][0]["flux"] = 1e308
+    p = tmp_path / "huge.json"
+    p.write_text(json.dumps(data))
+    code, out, _ = run(["check", p], capsys)
+    assert code == cli.EXIT_SCENE
+    assert "$.sources[0].flux: found 1e+308" in out
