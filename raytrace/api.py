@@ -11,7 +11,7 @@ from .errors import BudgetExceeded, Problems
 from .ledger import Ledger
 from .results import TraceResult
 from .scene import Scene
-from .sources import StartRays, sample_sources
+from .sources import StartRays, band_span_nm, band_warnings, sample_sources
 from .streaming import DEFAULT_CHUNK, trace_chunked
 from .tracer import Limits, Recording
 
@@ -62,8 +62,14 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
             raise BudgetExceeded(f"{rays:,} starting rays need about {need / 1e6:,.0f} MB, more than the "
                                  f"memory limit max_memory_mb={limits.max_memory_mb:g}; raise max_memory_mb "
                                  f"or trace fewer rays")
-        start = sample_sources(scene.sources, rays, seed=seed, sampling=sampling)
-    warnings = check_wavelengths(scene, cs, start)
+        span = band_span_nm(cs.media)
+        problems = Problems()
+        warnings = band_warnings(scene.sources, span, problems)
+        problems.raise_if_errors()
+        start = sample_sources(scene.sources, rays, seed=seed, sampling=sampling, span_nm=span)
+    else:
+        warnings = []
+    warnings += check_wavelengths(scene, cs, start)
     recording = record if isinstance(record, Recording) else Recording(record, record_count)
     if hits not in ("auto", "keep", "histogram"):
         raise ValueError(f"hits: expected one of auto, keep, histogram, found {hits!r}")

@@ -15,6 +15,7 @@ import stat
 import sys
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from raytrace import cli
@@ -230,3 +231,140 @@ def test_a_huge_flux_is_refused_so_no_infinity_reaches_the_json(tmp_path, capsys
     code, out, _ = run(["check", p], capsys)
     assert code == cli.EXIT_SCENE
     assert "$.sources[0].flux: found 1e+308" in out
+
+
+# ----------------------------------------------------------------------------- 7: band spectra
+
+def _window_with_band(center, fwhm):
+    from raytrace.scene_io import scene_from_dict
+    data = json.loads(WINDOW.read_text())
+    data["sources"][0]["spectrum"] = {"band": {"center_nm": center, "fwhm_nm": fwhm}}
+    return scene_from_dict(data)
+
+
+@pytest.mark.parametrize("sampling", ["even", "random"])
+def test_a_wide_band_is_truncated_to_the_materials_data_and_warned(sampling):
+    # 400 nm centre, 600 nm FWHM: a plain Gaussian puts 25 % of the rays below 230 nm, the
+    # start of the data for air (and 16 % at negative wavelengths)
+    import raytrace
+    result = raytrace.trace(_window_with_band(400.0, 600.0), rays=2000, sampling=sampling)
+    wl = result.raw.wavelengths
+    assert wl.min() >= 230.0 and wl.max() <= 1690.0
+    # share outside 230-1690 nm of N(400, 600 / 2.3548): from the normal CDF (common practice)
+    from statistics import NormalDist
+    d = NormalDist(400.0, 600.0 / (2 * (2 * np.log(2)) ** 0.5))
+    outside = 1 - (d.cdf(1690.0) - d.cdf(230.0))
+    assert [w for w in result.warnings if "of its band" in w] == [
+        f"source 'probe beam': {100 * outside:.3g} % of its band (centre 400 nm, FWHM 600 nm) lies outside "
+        "230-1690 nm, the range of the materials' data; the band is truncated there and its flux carried by the rest"]
+    result.ledger.check()
+
+
+def test_a_band_entirely_outside_the_materials_data_is_refused():
+    import raytrace
+    with pytest.raises(SceneError) as exc:
+        raytrace.trace(_window_with_band(19000.0, 10.0), rays=10)
+    assert str(exc.value.problems[0]).startswith("$.sources[0].spectrum.band: found <centre 19000 nm, FWHM 10 nm")
+
+
+def test_a_narrow_band_inside_the_data_is_sampled_as_before():
+    from raytrace.scene import Spectrum
+    from raytrace.sources import sample_spectrum
+    from statistics import NormalDist
+    rng = np.random.default_rng(1)
+    wl = sample_spectrum(Spectrum.band(525.0, 30.0), 64, rng, True, (436.8, 1052.0))
+    d = NormalDist(525.0, 30.0 / (2 * (2 * np.log(2)) ** 0.5))
+    assert sorted(wl) == pytest.approx([d.inv_cdf((i + 0.5) / 64) for i in range(64)], rel=1e-12)
+
+
+# ----------------------------------------------------------------------------- 9: sweep names
+
+def test_sweep_refuses_two_names_for_one_number(scene_file, tmp_path, capsys):
+    out = tmp_path / "sweep.csv"
+    code, _, err = run(["sweep", scene_file, "--vary", "probe beam.flux=1,2", "--vary", "$.sources[0].flux=3,4",
+                        "--csv", out, "--workers", "1", "--quiet"], capsys)
+    assert code == cli.EXIT_USAGE
+    assert "--vary $.sources[0].flux: found <the number probe beam.flux sets too ($.sources[0].flux)>" in err
+    assert not out.exists()
+
+
+def test_sweep_refuses_wavelength_together_with_a_source_wavelength(scene_file, tmp_path, capsys):
+    code, _, err = run(["sweep", scene_file, "--vary", "wavelength=500,600", "--vary", "probe beam.wavelength=550,650",
+                        "--csv", tmp_path / "s.csv", "--workers", "1", "--quiet"], capsys)
+    assert code == cli.EXIT_USAGE
+    assert "sets too" in err
+
+
+@pytest.mark.parametrize("spec", ["trace.seed=1:2:1000000000", "trace.seed=1:400:400"])
+def test_sweep_counts_and_grids_are_bounded(scene_file, tmp_path, spec, capsys):
+    args = ["sweep", scene_file, "--vary", spec, "--csv", tmp_path / "s.csv", "--workers", "1", "--quiet"]
+    if spec.endswith(":400"):
+        args[2:2] = ["--vary", "probe beam.flux=1:2:400"]     # 400 x 400 = 160,000 points
+    code, _, err = run(args, capsys)
+    assert code == cli.EXIT_USAGE
+    assert "expected at most 100,000 points in one sweep" in err
+
+
+# ----------------------------------------------------------------------------- 10: workers
+
+def test_workers_default_to_and_are_capped_at_the_usable_cpus(scene_file, monkeypatch, capsys):
+    from raytrace import api
+    from raytrace.parallel import capped_workers
+    usable = len(os.sched_getaffinity(0))
+    assert capped_workers(None) == usable and capped_workers(1000) == usable and capped_workers(1) == 1
+    seen = []
+    real = api.trace
+    monkeypatch.setattr(api, "trace", lambda *a, **k: seen.append(k["workers"]) or real(*a, **k))
+    for extra in ([], ["--workers", "1000"]):
+        assert run(["trace", scene_file, "--quiet", *extra], capsys)[0] == cli.EXIT_OK
+    assert seen == [usable, usable]
+
+
+def _children(pid: int) -> set[int]:
+    kids = set()
+    for task in Path(f"/proc/{pid}/task").iterdir():
+        text = (task / "children").read_text().split()
+        kids |= {int(t) for t in text}
+    return kids
+
+
+def _running(pid: int) -> bool:
+    try:
+        state = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()[0]
+    except OSError:
+        return False
+    return state != "Z"    # a zombie has ended; only its exit status is left
+
+
+@pytest.mark.skipif(not Path("/proc/self/task").exists(), reason="reads worker processes from /proc")
+@pytest.mark.parametrize("command", ["sweep", "trace"])
+def test_sigterm_to_the_parent_ends_the_pool_workers(scene_file, tmp_path, command):
+    import signal
+    import subprocess
+    import time
+    if len(os.sched_getaffinity(0)) < 2:
+        pytest.skip("needs two usable CPUs for a pool")
+    args = (["sweep", str(scene_file), "--vary", "trace.seed=1:8:8", "--rays", "400000", "--csv",
+             str(tmp_path / "s.csv"), "--workers", "2"] if command == "sweep" else
+            ["trace", str(scene_file), "--rays", "3000000", "--workers", "2"])
+    proc = subprocess.Popen([sys.executable, "-m", "raytrace.cli", *args, "--quiet"],
+                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    kids: set[int] = set()
+    try:
+        deadline = time.monotonic() + 60
+        while time.monotonic() < deadline and len(kids) < 2 and proc.poll() is None:
+            time.sleep(0.2)
+            kids = {k for k in _children(proc.pid)}
+        assert len(kids) >= 2, "the pool did not start"
+        proc.send_signal(signal.SIGTERM)
+        proc.wait(10)
+        deadline = time.monotonic() + 10
+        while time.monotonic() < deadline and any(_running(k) for k in kids):
+            time.sleep(0.1)
+        assert not any(_running(k) for k in kids), "workers outlived their parent"
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+        for k in kids:          # a failed run must not leave orphans behind
+            if _running(k):
+                os.kill(k, signal.SIGKILL)
