@@ -322,8 +322,10 @@ class MainWindow(QMainWindow):
     def _save_to(self, path: Path) -> bool:
         try:
             self.doc.save(path)
-        except OSError as exc:
-            reason = exc.strerror or str(exc)
+        except (OSError, SceneError) as exc:
+            # a SceneError: a value no scene file can hold (NaN from code): say which
+            reason = "; ".join(str(p) for p in exc.problems) if isinstance(exc, SceneError) \
+                else exc.strerror or str(exc)
             self.show_error("Not saved", f"Could not save {path}: {reason}. "
                                          "The scene is still open with its changes unsaved.")
             self._update_title()

@@ -213,16 +213,17 @@ def cmd_trace(args) -> int:
         if not write_output(args.json, json.dumps(summary, indent=2) + "\n"):
             return EXIT_OUTPUT
     if args.csv:
-        from .raytable import ray_table
-        table = ray_table(result)
-        if table is None or not write_output(args.csv, table.to_csv()):
+        from .raytable import write_rows
+        rows: list[int] = []
+        if result.segments is None or not write_stream(args.csv, lambda fh: rows.append(write_rows(result, fh))):
             return EXIT_OUTPUT
         if not args.quiet and record[0] == "first" and record[1] < result.stats["source_rays"]:
             print(f"note: the ray table holds the first {record[1]:,} of {result.stats['source_rays']:,} "
-                  f"source rays ({len(table):,} segments); use --record all for every ray", file=sys.stderr)
+                  f"source rays ({rows[0]:,} segments); use --record all for every ray", file=sys.stderr)
     if args.detectors_csv:
-        from .detectors import detector_reports, profiles_csv
-        if not write_output(args.detectors_csv, profiles_csv(detector_reports(result))):
+        from .detectors import detector_reports, write_profiles
+        reports = detector_reports(result)
+        if not write_stream(args.detectors_csv, lambda fh: write_profiles(reports, fh)):
             return EXIT_OUTPUT
     return EXIT_OK
 
@@ -298,13 +299,24 @@ def refuse_clashing_outputs(inputs: dict, outputs: dict) -> bool:
 
 def write_output(path: str, text: str) -> bool:
     """Write an output file atomically; "-" writes to standard output."""
-    from .scene_io import atomic_write_text
+    return write_stream(path, lambda fh: fh.write(text))
+
+
+def write_stream(path: str, fill) -> bool:
+    """fill(text file) writes an output: into standard output for "-", else into a temporary
+    file put in place atomically (see atomic.py for devices, symlinks and hard links).  Prints
+    the error and returns False when the file cannot be written."""
+    from .atomic import atomic_write
     if path == "-":
-        sys.stdout.write(text)
+        fill(sys.stdout)
         sys.stdout.flush()
         return True
+
+    def write(target: str) -> None:
+        with open(target, "w", encoding="utf-8", errors="backslashreplace", newline="") as fh:
+            fill(fh)
     try:
-        atomic_write_text(path, text)
+        atomic_write(path, write)
         return True
     except OSError as exc:
         print(f"error: could not write {path}: {exc.strerror or exc}", file=sys.stderr)
