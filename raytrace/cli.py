@@ -17,10 +17,12 @@ from __future__ import annotations
 import argparse
 from dataclasses import replace
 import json
+import math
 import sys
 from pathlib import Path
 
 from .errors import BudgetExceeded, RaytraceError, SceneError
+from .scene import MAX_GENERATIONS
 
 EXIT_OK, EXIT_SCENE, EXIT_USAGE, EXIT_LIMIT, EXIT_OUTPUT, EXIT_SWEEP_POINTS = 0, 1, 2, 3, 4, 5
 
@@ -87,17 +89,29 @@ def parse_record(text: str) -> tuple[str, int]:
     raise argparse.ArgumentTypeError(f"found {text!r}; expected none, all, or first:N with N a whole number > 0")
 
 
-def whole(minimum: int):
+def whole(minimum: int, maximum: int | None = None):
     """argparse type: a whole number of at least `minimum` (the scene file's own rule)."""
     def parse(text: str) -> int:
         try:
             value = int(text)
         except ValueError:
             raise argparse.ArgumentTypeError(f"expected a whole number, found {text!r}") from None
-        if value < minimum:
-            raise argparse.ArgumentTypeError(f"expected a whole number of at least {minimum}, found {value}")
+        if value < minimum or (maximum is not None and value > maximum):
+            most = f" and at most {maximum:,}" if maximum is not None else ""
+            raise argparse.ArgumentTypeError(f"expected a whole number of at least {minimum}{most}, found {value}")
         return value
     return parse
+
+
+def positive(text: str) -> float:
+    """argparse type: a finite number above 0."""
+    try:
+        value = float(text)
+    except ValueError:
+        value = float("nan")
+    if not 0.0 < value < float("inf"):     # also refuses nan
+        raise argparse.ArgumentTypeError(f"expected a number above 0, found {text!r}")
+    return value
 
 
 def fraction(text: str) -> float:
@@ -140,13 +154,16 @@ def add_trace_options(t: argparse.ArgumentParser) -> None:
     t.add_argument("--seed", type=whole(0), help="random seed for Monte Carlo and random sampling")
     t.add_argument("--flux-floor", type=fraction, dest="flux_floor",
                    help="end children below this fraction of their source ray's flux")
-    t.add_argument("--max-generations", type=whole(1),
+    t.add_argument("--max-generations", type=whole(1, MAX_GENERATIONS),
                    help="follow each ray for at most this many generations (the source ray is generation 0, "
                         "each interaction's children one more)")
     t.add_argument("--segment-budget", type=whole(1), help="most ray segments the whole trace may hold")
     add_earlier_name(t, "--min-flux", "--flux-floor", "flux_floor", type=fraction)
     add_earlier_name(t, "--max-depth", "--max-generations", "max_generations", type=whole(1))
     add_earlier_name(t, "--max-segments", "--segment-budget", "segment_budget", type=whole(1))
+    t.add_argument("--max-memory-mb", type=positive, dest="max_memory_mb", metavar="MB",
+                   help="memory the trace may use (default: the scene's trace.max_memory_mb, 4096); "
+                        "past it the trace stops with exit code 3")
     t.add_argument("--sampling", choices=("even", "random"), help="override each source's sampling")
     t.add_argument("--quiet", action="store_true", help="print nothing but errors")
 
@@ -165,6 +182,14 @@ def main(argv: list[str] | None = None) -> int:
         return EXIT_SCENE
     except BudgetExceeded as exc:
         print(f"stopped: {exc}", file=sys.stderr)
+        return EXIT_LIMIT
+    except MemoryError:
+        # the machine ran out before the limit did (other programs, or a limit above the RAM)
+        from .errors import memory_limit_text
+        limit = getattr(args, "max_memory_mb", None) or 4096.0
+        print(f"stopped: the machine ran out of memory; lower the work (fewer rays, --record first:N) or "
+              f"set {memory_limit_text(limit)} below the free memory so the trace stops before it runs out",
+              file=sys.stderr)
         return EXIT_LIMIT
     except RaytraceError as exc:
         print(f"error: {exc}", file=sys.stderr)
@@ -199,7 +224,8 @@ def cmd_check(args) -> int:
 
 def trace_kwargs(args) -> dict:
     return {k: getattr(args, k) for k in ("rays", "mode", "seed", "flux_floor", "max_generations",
-                                         "segment_budget", "sampling") if getattr(args, k, None) is not None}
+                                         "segment_budget", "sampling", "max_memory_mb")
+            if getattr(args, k, None) is not None}
 
 
 def cmd_trace(args) -> int:
@@ -243,7 +269,7 @@ def cmd_trace(args) -> int:
                 kept[g.bucket] = kept.get(g.bucket, 0) + 1
                 if kept[g.bucket] <= args.routes:
                     summary["routes"].append(g.to_dict())
-        if not write_output(args.json, json.dumps(summary, indent=2) + "\n"):
+        if not write_output(args.json, standard_json(summary)):
             return EXIT_OUTPUT
     if args.csv:
         from .raytable import write_rows
@@ -319,6 +345,27 @@ def cmd_materials(args) -> int:
     from .report import materials_text
     print(materials_text(catalog_table()))
     return EXIT_OK
+
+
+def standard_json(data) -> str:
+    """JSON text without the non-standard NaN/Infinity tokens other readers refuse: a value
+    that is not finite is written as null, with a warning naming where."""
+    bad: list[str] = []
+
+    def clean(v, where):
+        if isinstance(v, float) and not math.isfinite(v):
+            bad.append(where)
+            return None
+        if isinstance(v, dict):
+            return {k: clean(x, f"{where}.{k}") for k, x in v.items()}
+        if isinstance(v, (list, tuple)):
+            return [clean(x, f"{where}[{i}]") for i, x in enumerate(v)]
+        return v
+    data = clean(data, "$")
+    if bad:
+        print(f"warning: {len(bad)} value(s) in the JSON summary are not finite and are written as null "
+              f"(first: {bad[0]})", file=sys.stderr)
+    return json.dumps(data, indent=2, allow_nan=False) + "\n"
 
 
 def refuse_clashing_outputs(inputs: dict, outputs: dict) -> bool:

@@ -97,12 +97,11 @@ def ray_table(result: TraceResult) -> RayTable | None:
     need = plan.table_bytes(len(plan.order))
     limit = float(result.settings.get("max_memory_mb", 4096.0))
     if need > limit * 1e6:
-        from .errors import BudgetExceeded
+        from .errors import BudgetExceeded, memory_limit_text
         raise BudgetExceeded(
             f"the ray table of {len(plan.order):,} segments needs about {need / 1e6:,.0f} MB in memory, more "
-            f"than the memory limit max_memory_mb={limit:g}; raise it (--max-memory-mb, or trace.max_memory_mb "
-            f"in the scene), record fewer rays (record=\"first\"), or write the table to a file, which "
-            f"streams it (--csv)")
+            f"than {memory_limit_text(limit)}; or record fewer rays (record=\"first\"), or write the table "
+            f"to a file with write_csv, which streams it")
     return RayTable(plan.columns(plan.order))
 
 

@@ -20,7 +20,7 @@ from .compile import check_geometry, resolve_materials
 from .errors import Problems, SceneError
 from .geometry import (MIRROR, TREATMENT_KINDS, Edge, Loop, Part, ShapeSpec, Treatment)
 from .materials import material_from_dict
-from .scene import (DISTRIBUTIONS, POLARIZATIONS, SAMPLINGS, SOURCE_KINDS, Detector, Scene,
+from .scene import (MAX_GENERATIONS, DISTRIBUTIONS, POLARIZATIONS, SAMPLINGS, SOURCE_KINDS, Detector, Scene,
                     Source, Spectrum, TraceSettings)
 
 FORMAT_NAME = "raytrace2d-scene"
@@ -34,7 +34,7 @@ FACE_KEYS = ("treatment", "name")
 SOURCE_KEYS = ("name", "kind", "position", "direction_deg", "width", "half_angle_deg",
                "distribution", "cos_power", "flux", "spectrum", "polarization", "sampling", "note")
 DETECTOR_KEYS = ("name", "start", "end", "absorbing", "bins", "angle_bins", "central_fraction")
-TRACE_KEYS = ("rays", "mode", "flux_floor", "max_generations", "segment_budget", "seed")
+TRACE_KEYS = ("rays", "mode", "flux_floor", "max_generations", "segment_budget", "seed", "max_memory_mb")
 # Earlier names of trace settings, still read (with a note) so older files keep working.
 OLD_TRACE_KEYS = {"min_relative_flux": "flux_floor", "max_depth": "max_generations",
                   "max_segments": "segment_budget"}
@@ -42,7 +42,8 @@ MODES = ("branching", "monte_carlo")
 # Largest source flux: sums and squares of fluxes must stay finite (1e308 overflowed to a
 # non-standard Infinity in the JSON summary); the Sun gives about 3.8e26 W.
 MAX_FLUX = 1e30
-MAX_BINS = 1_000_000   # histogram bins per detector: beyond this a histogram is only memory
+MAX_BINS = 1_000_000
+MAX_MEMORY_MB = 1e9    # 1 PB: any real machine is below it   # histogram bins per detector: beyond this a histogram is only memory
 
 
 # ----------------------------------------------------------------------------- loading
@@ -576,9 +577,12 @@ def _settings(value: Any, where: str, problems: Problems) -> TraceSettings | Non
         mode=F.string(d, "mode", where, problems, default=base.mode, choices=MODES),
         flux_floor=F.number(d, "flux_floor", where, problems, default=base.flux_floor,
                                    minimum=0.0, maximum=1.0, what="a relative flux"),
-        max_generations=F.integer(d, "max_generations", where, problems, default=base.max_generations, minimum=1),
+        max_generations=F.integer(d, "max_generations", where, problems, default=base.max_generations, minimum=1,
+                                  maximum=MAX_GENERATIONS),
         segment_budget=F.integer(d, "segment_budget", where, problems, default=base.segment_budget, minimum=1),
         seed=F.integer(d, "seed", where, problems, default=base.seed, minimum=0),
+        max_memory_mb=F.number(d, "max_memory_mb", where, problems, default=base.max_memory_mb, minimum=0.0,
+                               exclusive=True, maximum=MAX_MEMORY_MB, what="a memory limit in MB"),
     )
     if any(v is None for v in kw.values()):
         return None
@@ -620,6 +624,8 @@ def scene_to_dict(scene: Scene) -> dict:
     t = scene.settings
     out["trace"] = {"rays": int(t.rays), "mode": t.mode, "flux_floor": float(t.flux_floor),
                     "max_generations": int(t.max_generations), "segment_budget": int(t.segment_budget), "seed": int(t.seed)}
+    if t.max_memory_mb != TraceSettings().max_memory_mb:    # written only when set: files stay as they were
+        out["trace"]["max_memory_mb"] = float(t.max_memory_mb)
     return out
 
 

@@ -53,12 +53,13 @@ from .errors import Problems, RaytraceError, SceneError
 KINDS = {"part": "parts", "source": "sources", "detector": "detectors"}
 SOURCE_FIELDS = ("position", "direction_deg", "width", "half_angle_deg", "cos_power", "flux")
 DETECTOR_FIELDS = ("start", "end", "bins", "angle_bins", "central_fraction")
-TRACE_FIELDS = ("rays", "flux_floor", "max_generations", "segment_budget", "seed")
+TRACE_FIELDS = ("rays", "flux_floor", "max_generations", "segment_budget", "seed", "max_memory_mb")
 WHOLE_NUMBER_FIELDS = {"rays", "max_generations", "segment_budget", "seed", "bins", "angle_bins", "sides", "count"}
 # Points in one sweep: a table of this many rows is a long night of tracing already; the
 # limit keeps a mistyped COUNT (1e9) from filling memory with values before anything runs.
 MAX_POINTS = 100_000
-TRACE_OPTIONS = ("rays", "mode", "seed", "flux_floor", "max_generations", "segment_budget", "sampling")
+TRACE_OPTIONS = ("rays", "mode", "seed", "flux_floor", "max_generations", "segment_budget", "sampling",
+                 "max_memory_mb")
 
 
 class SweepError(SceneError):
@@ -416,6 +417,8 @@ def run_point(data: dict, settings: list[tuple[tuple, Any]], options: dict) -> d
         return {"status": "invalid: " + "; ".join(str(p) for p in exc.problems)}
     except RaytraceError as exc:
         return {"status": f"stopped: {exc}"}
+    except MemoryError:
+        return {"status": "stopped: out of memory (set trace.max_memory_mb below the free memory)"}
     return {
         "status": "ok",
         "source_flux": result.source_flux,

@@ -368,3 +368,147 @@ def test_sigterm_to_the_parent_ends_the_pool_workers(scene_file, tmp_path, comma
         for k in kids:          # a failed run must not leave orphans behind
             if _running(k):
                 os.kill(k, signal.SIGKILL)
+
+
+# ----------------------------------------------------------------------------- 8: memory limit
+
+PIPE = SAMPLES / "light-pipe-90.json"
+
+
+def test_the_memory_limit_is_set_from_the_command_line(capsys):
+    code, _, err = run(["trace", PIPE, "--rays", "60000", "--max-memory-mb", "100", "--quiet"], capsys)
+    assert code == cli.EXIT_LIMIT
+    assert "Traceback" not in err
+    assert 'max_memory_mb = 100 MB (raise it with --max-memory-mb, "max_memory_mb" under "trace" in the scene' in err
+
+
+def test_the_memory_limit_is_set_from_the_scene_file_and_saved(tmp_path, capsys):
+    data = json.loads(PIPE.read_text())
+    data["trace"]["max_memory_mb"] = 1
+    p = tmp_path / "limited.json"
+    p.write_text(json.dumps(data))
+    code, _, err = run(["trace", p, "--rays", "2000", "--quiet"], capsys)
+    assert code == cli.EXIT_LIMIT and "max_memory_mb = 1 MB" in err
+    # the flag wins over the file, as for every trace setting
+    assert run(["trace", p, "--rays", "2000", "--max-memory-mb", "4096", "--quiet"], capsys)[0] == cli.EXIT_OK
+    scene = load_scene(p)
+    assert scene.settings.max_memory_mb == 1.0
+    save_scene(scene, tmp_path / "again.json")
+    assert json.loads((tmp_path / "again.json").read_text())["trace"]["max_memory_mb"] == 1.0
+    assert "max_memory_mb" not in json.loads(WINDOW.read_text())["trace"]     # default: not written
+
+
+@pytest.mark.parametrize("bad", [0, -5, 1e12])
+def test_a_memory_limit_out_of_range_is_refused(tmp_path, bad, capsys):
+    data = json.loads(WINDOW.read_text())
+    data["trace"]["max_memory_mb"] = bad
+    p = tmp_path / "bad.json"
+    p.write_text(json.dumps(data))
+    code, out, _ = run(["check", p], capsys)
+    assert code == cli.EXIT_SCENE and "$.trace.max_memory_mb" in out
+    assert run(["trace", WINDOW, "--max-memory-mb", "nan"], capsys)[0] == cli.EXIT_USAGE
+
+
+def test_sweep_varies_and_passes_the_memory_limit(scene_file, tmp_path, capsys):
+    import csv as csvmod
+    out = tmp_path / "mem.csv"
+    code, _, _ = run(["sweep", PIPE, "--vary", "trace.max_memory_mb=1,4096", "--rays", "2000",
+                      "--csv", out, "--workers", "1", "--quiet"], capsys)
+    assert code == cli.EXIT_SWEEP_POINTS
+    rows = list(csvmod.DictReader(out.open()))
+    assert rows[0]["status"].startswith("stopped: generation") and "max_memory_mb = 1 MB" in rows[0]["status"]
+    assert rows[1]["status"] == "ok"
+
+
+def test_out_of_memory_is_exit_3_with_a_message_not_a_traceback(monkeypatch, capsys):
+    from raytrace import api
+
+    def exhausted(*_a, **_k):
+        raise MemoryError
+    monkeypatch.setattr(api, "trace", exhausted)
+    code, _, err = run(["trace", WINDOW, "--max-memory-mb", "800", "--quiet"], capsys)
+    assert code == cli.EXIT_LIMIT
+    assert "Traceback" not in err and "ran out of memory" in err and "max_memory_mb = 800 MB" in err
+
+
+def test_a_max_generations_beyond_a_million_is_refused(tmp_path, capsys):
+    assert run(["trace", WINDOW, "--max-generations", "1000001"], capsys)[0] == cli.EXIT_USAGE
+    data = json.loads(WINDOW.read_text())
+    data["trace"]["max_generations"] = 10**15
+    p = tmp_path / "deep.json"
+    p.write_text(json.dumps(data))
+    code, out, _ = run(["check", p], capsys)
+    assert code == cli.EXIT_SCENE and "$.trace.max_generations" in out
+
+
+@pytest.mark.skipif(not Path("/proc/self/smaps_rollup").exists(), reason="measures memory from /proc")
+@pytest.mark.parametrize("limit_mb, rays, outcome", [(300, 20000, "stopped"), (250, 4000, "ok")])
+def test_the_memory_limit_holds_for_a_recorded_trace(limit_mb, rays, outcome):
+    """Every segment of a light pipe recorded: the trace either fits or stops, and the memory
+    it adds to the process (summed PSS of the process and its workers, sampled every 50 ms)
+    stays under the limit."""
+    import raytrace
+    from raytrace.bench import PeakMemory
+    from raytrace.errors import BudgetExceeded
+    scene = load_scene(PIPE)
+    with PeakMemory() as before:
+        pass
+    with PeakMemory() as pm:
+        try:
+            raytrace.trace(scene, rays=rays, record="all", max_memory_mb=limit_mb, workers=2)
+            got = "ok"
+        except BudgetExceeded:
+            got = "stopped"
+    assert got == outcome
+    assert (pm.peak - before.peak) / 1e6 < limit_mb
+
+
+def test_ray_table_refuses_a_table_over_the_limit_and_write_csv_streams_it(tmp_path):
+    import raytrace
+    from raytrace.errors import BudgetExceeded
+    from raytrace.raytable import ray_table, write_csv
+    scene = load_scene(PIPE)
+    small = raytrace.trace(scene, rays=300, record="all", max_memory_mb=12)
+    with pytest.raises(BudgetExceeded, match="the ray table of .* segments needs about"):
+        ray_table(small)
+    n = write_csv(small, tmp_path / "streamed.csv")
+    full = raytrace.trace(scene, rays=300, record="all")
+    assert (tmp_path / "streamed.csv").read_text() == ray_table(full).to_csv()
+    assert n == len(ray_table(full))
+
+
+def test_csv_writers_hold_one_block_at_a_time(monkeypatch, tmp_path):
+    """Peak Python memory (tracemalloc) of streaming the ray table and an 8,000-bin detector's
+    profiles, against building the whole text first as before."""
+    import io
+    import tracemalloc
+    import raytrace
+    import raytrace.raytable as rt
+    from raytrace.detectors import detector_reports, profiles_rows, write_profiles
+    data = json.loads(WINDOW.read_text())
+    data["detectors"] = data["detectors"][:1]
+    data["detectors"][0].update(bins=8_000, angle_bins=8_000)
+    from raytrace.scene_io import scene_from_dict
+    reports = detector_reports(raytrace.trace(scene_from_dict(data), rays=200))
+    pipe = raytrace.trace(load_scene(PIPE), rays=60, record="all")
+    monkeypatch.setattr(rt, "CSV_BLOCK_ROWS", 200)
+
+    def peak(fn) -> int:
+        tracemalloc.start()
+        fn()
+        top = tracemalloc.get_traced_memory()[1]
+        tracemalloc.stop()
+        return top
+
+    class Sink(io.TextIOBase):
+        def write(self, s):
+            return len(s)
+    streamed = peak(lambda: rt.write_rows(pipe, Sink()))
+    whole = peak(lambda: rt.ray_table(pipe).to_csv())
+    assert streamed < whole / 4
+    import raytrace.detectors as det
+    real = det.profiles_rows
+    monkeypatch.setattr(det, "profiles_rows", lambda reports: real(reports, block=400))
+    streamed = peak(lambda: write_profiles(reports, Sink()))
+    whole = peak(lambda: list(profiles_rows(reports)))
+    assert streamed < whole / 4
