@@ -13,6 +13,7 @@ from PySide6.QtGui import QAction, QActionGroup, QKeySequence
 from PySide6.QtWidgets import (QDockWidget, QDoubleSpinBox, QFileDialog, QLabel, QMainWindow,
                                QMessageBox, QScrollArea, QTabWidget, QToolBar)
 
+from raytrace.atomic import clashing_outputs
 from raytrace.errors import SceneError
 from raytrace.scene import Scene
 from raytrace.scene_io import scene_from_text
@@ -338,6 +339,10 @@ class MainWindow(QMainWindow):
     def _export(self, what: str, suffix: str, filt: str, write) -> bool:
         path = self.ask_save_path(f"Export {what}", filt, suffix)
         if not path:
+            return False
+        if self.doc.path is not None and clashing_outputs({"scene": str(self.doc.path)}, {"the export": path}):
+            self.show_error("Not exported", f"{path} is the open scene's own file; exporting there would "
+                                            "destroy it. Choose another name.")
             return False
         try:
             n = write(path)

@@ -56,6 +56,7 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
     if route_flux_floor is not None:
         limits.route_flux_floor = float(route_flux_floor)
     cs = compiled or compile_scene(scene)
+    check_profile_memory(scene, limits.max_memory_mb, workers)
     if start is None:
         need = rays * BYTES_PER_START_RAY
         if need > limits.max_memory_mb * 1e6:
@@ -91,6 +92,19 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
         settings["source_ray_counts"] = np.bincount(start.source, minlength=len(scene.sources)).tolist()
     warnings += result_warnings(ledger, raw.stats, limits)
     return TraceResult(cs, raw, ledger, mode, settings, warnings)
+
+
+BYTES_PER_PROFILE_BIN = 8 * 4      # a bin's flux, its edges, and the density of the report
+
+
+def check_profile_memory(scene: Scene, limit_mb: float, workers: int) -> None:
+    """Detector profiles are allocated per detector, per process (binned hits) and again for
+    the reports: refuse before allocating when their bins alone would pass the limit."""
+    bins = sum(d.bins + d.angle_bins for d in scene.detectors)
+    need = bins * BYTES_PER_PROFILE_BIN * (max(1, int(workers)) + 1)
+    if need > limit_mb * 1e6:
+        raise BudgetExceeded(f"the detectors' {bins:,} profile bins need about {need / 1e6:,.0f} MB, more than "
+                             f"{memory_limit_text(limit_mb)}; or give the detectors fewer bins")
 
 
 def check_wavelengths(scene: Scene, cs: CompiledScene, start: StartRays) -> list[str]:

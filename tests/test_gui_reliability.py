@@ -192,3 +192,18 @@ def test_a_sidecar_without_its_copy_or_with_a_bad_name_is_ignored(home):
     (rec / "recovery-..%2f.meta.json").write_text(json.dumps({"pid": 999999999}))
     assert find_recoveries() == []
     assert autosave._alive(os.getpid(), session="someone-else") is False
+
+
+def test_export_refuses_the_open_scene_file(qtbot, win, tmp_path):
+    scene = tmp_path / "scene.json"
+    scene.write_text(WINDOW.read_text())
+    assert win.open_file(str(scene))
+    qtbot.waitUntil(lambda: win.canvas.result is not None, timeout=TIMEOUT_MS)
+    before = scene.read_bytes()
+    link = tmp_path / "link.csv"
+    link.symlink_to(scene.name)
+    for target in (scene, link):
+        win.ask_save_path = lambda *a, **k: str(target)
+        assert not win.export_csv()
+        assert "the open scene's own file" in win.errors[-1]
+    assert scene.read_bytes() == before

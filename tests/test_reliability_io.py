@@ -512,3 +512,30 @@ def test_csv_writers_hold_one_block_at_a_time(monkeypatch, tmp_path):
     streamed = peak(lambda: write_profiles(reports, Sink()))
     whole = peak(lambda: list(profiles_rows(reports)))
     assert streamed < whole / 4
+
+
+def test_detector_bins_beyond_the_limit_stop_before_allocating(tmp_path, capsys):
+    data = json.loads(WINDOW.read_text())
+    for det in data["detectors"]:
+        det.update(bins=1_000_000, angle_bins=1_000_000)    # 4 million bins: 32 MB a copy
+    p = tmp_path / "fine.json"
+    p.write_text(json.dumps(data))
+    code, _, err = run(["trace", p, "--max-memory-mb", "50", "--workers", "1", "--quiet"], capsys)
+    assert code == cli.EXIT_LIMIT
+    assert "the detectors' 4,000,000 profile bins need about 256 MB" in err and "--max-memory-mb" in err
+
+
+def test_a_failed_in_place_save_of_a_hard_linked_file_keeps_the_new_content_beside_it(scene_file, tmp_path,
+                                                                                       monkeypatch):
+    import raytrace.atomic as atomic
+    os.link(scene_file, tmp_path / "other.json")
+    scene = load_scene(scene_file)
+    scene.name = "the new content"
+
+    def disk_full(*_a, **_k):
+        raise OSError(28, "No space left on device")
+    monkeypatch.setattr(atomic.shutil, "copyfileobj", disk_full)
+    with pytest.raises(OSError, match=r"No space left on device; the new content is in .*s\.json\.new"):
+        save_scene(scene, scene_file)
+    monkeypatch.undo()
+    assert load_scene(scene_file.with_name("s.json.new")).name == "the new content"
