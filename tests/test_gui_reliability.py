@@ -27,35 +27,11 @@ from raytrace.scene_io import load_scene  # noqa: E402
 
 from gui import autosave, edits  # noqa: E402
 from gui.autosave import find_recoveries  # noqa: E402
-from gui.main_window import MainWindow  # noqa: E402
+from test_gui import home, make_window, win  # noqa: E402,F401  (the GUI tests' own fixtures)
 
 SAMPLES = Path(__file__).resolve().parents[1] / "samples"
 WINDOW = SAMPLES / "oblique-window.json"
 TIMEOUT_MS = 30_000
-
-
-@pytest.fixture
-def home(tmp_path, monkeypatch):
-    h = tmp_path / "home"
-    monkeypatch.setenv("RAYTRACE_GUI_HOME", str(h))
-    return h
-
-
-def make_window(qtbot, autosave_s=3600.0):
-    win = MainWindow(autosave_s=autosave_s)
-    qtbot.addWidget(win)
-    win.errors = []
-    win.show_error = lambda title, text: win.errors.append(text)
-    win.show_info = lambda title, html: None
-    win.ask_unsaved = lambda: "discard"
-    return win
-
-
-@pytest.fixture
-def win(qtbot, home):
-    w = make_window(qtbot)
-    yield w
-    w.worker.shutdown()
 
 
 def type_into_cell(qtbot, table, row, col, text, paste=False):
