@@ -169,6 +169,11 @@ def add_trace_options(t: argparse.ArgumentParser) -> None:
 
 
 def main(argv: list[str] | None = None) -> int:
+    for stream in (sys.stdout, sys.stderr):
+        try:    # a file name with bytes that are not UTF-8 prints escaped, never crashes a message
+            stream.reconfigure(errors="backslashreplace")
+        except (AttributeError, ValueError):
+            pass
     parser = build_parser()
     try:
         args = parser.parse_args(argv)

@@ -539,3 +539,13 @@ def test_a_failed_in_place_save_of_a_hard_linked_file_keeps_the_new_content_besi
         save_scene(scene, scene_file)
     monkeypatch.undo()
     assert load_scene(scene_file.with_name("s.json.new")).name == "the new content"
+
+
+def test_a_file_name_that_is_not_utf8_prints_escaped(tmp_path):
+    import subprocess
+    name = os.fsdecode(b"scene\xff.json")          # a byte no UTF-8 text has
+    shutil.copy(WINDOW, tmp_path / name)
+    run_ = subprocess.run([sys.executable, "-m", "raytrace.cli", "check", name], cwd=tmp_path,
+                          capture_output=True, env={**os.environ, "PYTHONIOENCODING": "utf-8"})
+    assert run_.returncode == cli.EXIT_OK, run_.stderr
+    assert run_.stdout.decode("utf-8").startswith("scene\\udcff.json: ok")
