@@ -95,7 +95,8 @@ class Merger:
             raise BudgetExceeded(
                 f"after {self.chunks} chunks the kept detector records and ray-table rows need about "
                 f"{need / 1e6:,.0f} MB, more than the {self.kept_mb:,.0f} MB left for them by "
-                f"{memory_limit_text(self.max_memory_mb)}; or record fewer rays (--record first:N)")
+                f"{memory_limit_text(self.max_memory_mb)}; or record fewer rays (--record first:N, "
+                f"record=\"first\" in Python) or bin detector hits (hits=\"histogram\" in Python)")
         self.bins = raw.bins.copy() if self.bins is None else self.bins + raw.bins
         self.source_flux += raw.source_flux
         remap = None

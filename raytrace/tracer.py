@@ -280,7 +280,8 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
                 f"generation {gen} has {m:,} live rays (about {m * BYTES_PER_LIVE_RAY / 1e6:,.0f} MB) and "
                 f"{seg_rows:,} ray-table rows and {hit_rows:,} detector records are kept (about {kept / 1e6:,.0f} MB), "
                 f"more than {_share_text(limits)}{memory_limit_text(limits.max_memory_mb)}; or trace "
-                f"fewer rays, raise the flux floor (--flux-floor), or record fewer rays (--record first:N)")
+                f"fewer rays, raise the flux floor (--flux-floor), record fewer rays (--record first:N, "
+                f"record=\"first\" in Python) or bin detector hits (hits=\"histogram\" in Python)")
         stats["generations"] += 1
         stats["segments"] += m
         if progress is not None:

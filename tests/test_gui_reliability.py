@@ -60,7 +60,7 @@ def test_vertex_table_refuses_nan_infinity_and_huge_values(qtbot, win, tmp_path,
     type_into_cell(qtbot, page.table, 1, 0, typed)
     assert win.doc.scene is before, "the bad value reached the scene"
     message = win.statusBar().currentMessage()
-    assert message == f"row 2: expected a coordinate in mm from -1e+06 to 1e+06, found {typed!r}"
+    assert message == f"row 2: expected a coordinate in mm from -1,000,000 to 1,000,000, found {typed!r}"
     assert page.table.item(1, 0).text() != typed, "the table shows the part's real value again"
     # a good value typed the same way goes in, and the saved file reopens
     type_into_cell(qtbot, page.table, 1, 0, "21.25")
@@ -90,7 +90,7 @@ def test_mirror_reflectance_and_spectrum_lines_refuse_nan(qtbot, win):
     qtbot.keyClicks(sp.lines, "550:1, inf:2")
     qtbot.keyClick(sp.lines, Qt.Key_Return)
     assert [s.spectrum for s in win.doc.scene.sources] == [s.spectrum for s in before.sources]
-    assert "expected a wavelength in nm from 100 to 20000, found 'inf'" in win.statusBar().currentMessage()
+    assert "expected a wavelength in nm from 100 to 20,000, found 'inf'" in win.statusBar().currentMessage()
 
 
 def test_names_with_control_characters_are_refused(qtbot, win):

@@ -44,8 +44,13 @@ def typed_number(text: str, what: str, lo: float, hi: float, exclusive_lo: bool 
         v = math.nan
     low_ok = v > lo if exclusive_lo else v >= lo
     if not (low_ok and v <= hi):      # also refuses nan
-        raise ValueError(f"expected {what} from {lo:g} to {hi:g}, found {text!r}")
+        raise ValueError(f"expected {what} from {_plain(lo)} to {_plain(hi)}, found {text!r}")
     return v
+
+
+def _plain(v: float) -> str:
+    """A bound as people write it: 1,000,000 rather than 1e+06."""
+    return f"{int(v):,}" if v == int(v) and abs(v) < 1e15 else f"{v:g}"
 
 
 def clean_text(text: str, what: str) -> str:
