@@ -85,7 +85,7 @@ def sample_sources(sources: list[Source], n_rays: int, seed: int = 1,
 
 
 def sample_source(src: Source, n: int, rng: np.random.Generator, sampling: str,
-                  span_nm: tuple[float, float] = None) -> StartRays:
+                  span_nm: tuple[float, float] | None = None) -> StartRays:
     even = sampling == EVEN
     base = math.radians(src.direction_deg)
     if src.kind == BEAM:
@@ -187,7 +187,7 @@ def _angles(src: Source, n: int, rng, even: bool) -> tuple[np.ndarray, np.ndarra
 
 
 def sample_spectrum(spec: Spectrum, n: int, rng, even: bool,
-                    span_nm: tuple[float, float] = None) -> np.ndarray:
+                    span_nm: tuple[float, float] | None = None) -> np.ndarray:
     """Wavelengths for n rays.
 
     even: the wavelengths sit at the centres of n equal-weight strata of the spectrum (so the
@@ -258,24 +258,21 @@ def _sample_band(spec: Spectrum, n: int, rng, even: bool, span_nm: tuple[float, 
     sigma = _sigma(spec)
     dist = NormalDist(spec.band_center_nm, sigma)
     lo, hi = span_nm
-    if band_share_outside(spec, span_nm) <= TRUNCATED_SHARE:
-        # the span holds the whole band for any practical purpose: the plain Gaussian
-        if not even:
-            return np.clip(rng.normal(spec.band_center_nm, sigma, n), lo, hi)
-        # a fixed set of at most 64 Gaussian quantiles: few distinct wavelengths keep the
-        # per-wavelength index table small
-        k = min(n, 64)
-        q = np.array([dist.inv_cdf((i + 0.5) / k) for i in range(k)])
-        return _golden_deal(q[np.minimum((_strata(n, rng, True) * k).astype(int), k - 1)])
-    # truncated: quantiles of the part of the Gaussian inside the span
-    c_lo, c_hi = dist.cdf(lo), dist.cdf(hi)
+    whole = band_share_outside(spec, span_nm) <= TRUNCATED_SHARE
+    if whole and not even:
+        # the span holds the whole band for any practical purpose: plain Gaussian draws
+        return np.clip(rng.normal(spec.band_center_nm, sigma, n), lo, hi)
+    c_lo, c_hi = (0.0, 1.0) if whole else (dist.cdf(lo), dist.cdf(hi))
 
     def quantiles(u: np.ndarray) -> np.ndarray:
+        """Wavelengths at cumulative shares u of the band's part inside the span."""
         p = np.clip(c_lo + u * (c_hi - c_lo), 1e-300, 1 - 1e-16)
         return np.clip(np.array([dist.inv_cdf(float(x)) for x in p]), lo, hi)
     if not even:
         grid = np.linspace(0.0, 1.0, 4097)     # inverse CDF tabulated once, then interpolated
         return np.interp(rng.random(n), grid, quantiles(grid))
+    # a fixed set of at most 64 quantiles: few distinct wavelengths keep the per-wavelength
+    # index table small
     k = min(n, 64)
     q = quantiles((np.arange(k) + 0.5) / k)
     return _golden_deal(q[np.minimum((_strata(n, rng, True) * k).astype(int), k - 1)])
