@@ -184,3 +184,19 @@ def test_export_refuses_the_open_scene_file(qtbot, win, tmp_path):
         assert not win.export_csv()
         assert "the open scene's own file" in win.errors[-1]
     assert scene.read_bytes() == before
+
+
+def test_saving_over_a_read_only_file_says_so_and_keeps_it(qtbot, win, tmp_path):
+    target = tmp_path / "locked.json"
+    target.write_text(WINDOW.read_text())
+    target.chmod(0o444)
+    try:
+        assert win.open_file(str(target))
+        win.canvas.select((edits.SOURCE, 0))
+        win.properties.pages[edits.SOURCE].direction.setValue(31.0)
+        assert not win.save()
+        assert "is read-only (mode 444); make it writable or choose another name" in win.errors[-1]
+        assert target.read_text() == WINDOW.read_text()
+        assert win.doc.modified
+    finally:
+        target.chmod(0o644)
