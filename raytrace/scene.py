@@ -6,6 +6,7 @@ tracer consumes; `scene_io` reads and writes the JSON form.
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from typing import Any
 
 from .geometry import Part, Point
 from .materials import Material
@@ -116,6 +117,9 @@ class Scene:
     settings: TraceSettings = field(default_factory=TraceSettings)
     story: str = ""       # one line: what this scene is for
     name: str = ""
+    # the file's linked numbers (linked.Links), so saving writes them back; values above are
+    # always the evaluated ones
+    links: Any = field(default=None, compare=False, repr=False)
 
     def copy(self) -> "Scene":
         return replace(self, parts=list(self.parts), sources=list(self.sources),

@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import Any
 
 from . import fields as F
+from . import linked
 from .atomic import atomic_write_text  # noqa: F401  (re-exported: callers import it from here)
 from .compile import check_geometry, resolve_materials
 from .errors import Problems, SceneError
@@ -74,6 +75,8 @@ def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
     top = F.obj(data, "$", problems)
     if top is None:
         raise SceneError(problems.items)
+    # named numbers, expressions, aimed sources and repeated parts become plain numbers first
+    top, linker = linked.resolve(top, problems)
     F.check_keys(top, TOP_KEYS, "$", problems)
     fmt = top.get("format", F.MISSING)
     if fmt != FORMAT_NAME:
@@ -127,8 +130,19 @@ def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
     # scene-level checks run on every part that could be read, so one pass reports all problems
     resolve_materials(scene, problems, part_paths, skip=frozenset(failed_materials))
     check_geometry(scene, problems, part_paths)
+    if linker is not None:
+        _file_paths(problems, linker)
     problems.raise_if_errors()
+    if linker is not None:
+        scene.links = linker.links(_plain_dict(scene))
     return scene
+
+
+def _file_paths(problems: Problems, linker) -> None:
+    """Loader problems as the file reads: paths of copies of a repeated part name the part
+    written in the file, and a field whose link already has a problem is not reported twice."""
+    problems.items = [replace(p, path=linker.file_path(p.path)) for p in problems.items
+                      if linked.UNRESOLVED not in p.found]
 
 
 def _key(name: str) -> str:
@@ -504,6 +518,12 @@ def _settings(value: Any, where: str, problems: Problems) -> TraceSettings | Non
 # ----------------------------------------------------------------------------- saving
 
 def scene_to_dict(scene: Scene) -> dict:
+    """The file form of a scene, with its linked numbers (scene.links) written back where the
+    scene still holds the values they gave; a value edited since is written as a plain number."""
+    return linked.restore(_plain_dict(scene), scene.links)
+
+
+def _plain_dict(scene: Scene) -> dict:
     out: dict[str, Any] = {"format": FORMAT_NAME, "version": FORMAT_VERSION, "units": dict(UNITS)}
     if scene.name:
         out["name"] = scene.name
