@@ -325,38 +325,58 @@ class _Resolver:
         return i, index
 
     def _copies(self, i: int) -> int:
-        spec = self.repeat_spec(i)
-        if spec is None:
+        count = self._repeat_field(i, "count", F.MISSING, Problems())
+        if count is None:
             raise _Failed    # reported where the repeat is expanded
-        return spec[0]
+        return count
 
-    def repeat_spec(self, i: int, problems: Problems | None = None):
-        """(count, pitch, direction_deg) of part i's repeat, or None (problems reported)."""
-        rep = self.parts[i].get("repeat")
+    def _repeat_field(self, i: int, key: str, default, sink: Problems):
+        """One field of part i's repeat, checked (None after a problem, added to `sink`)."""
         base = ("parts", i, "repeat")
-        sink = problems or Problems()
-        d = F.obj(rep, json_path(base), sink)
+        where = json_path(base)
+        rep = self.parts[i].get("repeat")
+        if not isinstance(rep, dict):
+            return None
+        vals = {key: self.number_at(base + (key,), default)}
+        if vals[key] is F.MISSING:
+            del vals[key]
+        if key == "count":
+            return F.integer(vals, key, where, sink, minimum=1, maximum=MAX_COPIES)
+        if key == "pitch":
+            return F.number(vals, key, where, sink, minimum=0.0, exclusive=True,
+                            maximum=F.MAX_COORD, what="a pitch in mm")
+        return F.number(vals, key, where, sink, default=0.0, what="an angle in degrees")
+
+    def repeat_spec(self, i: int, problems: Problems):
+        """(count, pitch, direction_deg) of part i's repeat, or None (problems reported)."""
+        where = json_path(("parts", i, "repeat"))
+        d = F.obj(self.parts[i].get("repeat"), where, problems)
         if d is None:
             return None
-        F.check_keys(d, REPEAT_KEYS, json_path(base), sink)
-        vals = {k: self.number_at(base + (k,), default) for k, default in
-                (("count", F.MISSING), ("pitch", F.MISSING), ("direction_deg", 0.0))}
-        where = json_path(base)
-        count = F.integer(vals, "count", where, sink, minimum=1, maximum=MAX_COPIES)
-        pitch = F.number(vals, "pitch", where, sink, minimum=0.0, exclusive=True,
-                         maximum=F.MAX_COORD, what="a pitch in mm")
-        direction = F.number(vals, "direction_deg", where, sink, what="an angle in degrees")
-        if count is None or pitch is None or direction is None or sink.errors:
+        F.check_keys(d, REPEAT_KEYS, where, problems)
+        try:
+            out = tuple(self._repeat_field(i, k, F.MISSING, problems) for k in REPEAT_KEYS)
+        except _Failed:
             return None
-        return count, pitch, direction
+        return None if None in out else out
+
+    def _step(self, i: int) -> tuple[float, float]:
+        """The pitch and direction of part i's repeat, for copies after the first."""
+        sink = Problems()
+        pitch = self._repeat_field(i, "pitch", F.MISSING, sink)
+        direction = self._repeat_field(i, "direction_deg", F.MISSING, sink)
+        if pitch is None or direction is None:
+            raise _Failed
+        return pitch, direction
 
     def _part_values(self, i: int, copy_index: int | None) -> dict:
         from .geometry import ShapeSpec
         from .shapes import ShapeParameterError, derived_values
         shape = self.resolved(self.parts[i]["shape"], ("parts", i, "shape"))
         try:
-            pos = shape.get("position", [0.0, 0.0])
-            x, y = _offset(pos, self.repeat_spec(i), copy_index)
+            x, y = shape.get("position", [0.0, 0.0])
+            if copy_index:
+                x, y = _offset((x, y), self._step(i), copy_index)
             spec = ShapeSpec(shape["kind"], dict(shape.get("params", {})), (x, y),
                              shape.get("rotation_deg", 0.0))
             return derived_values(spec)
@@ -367,15 +387,12 @@ class _Resolver:
 _FAILED = object()
 
 
-def _offset(position, repeat, copy_index):
-    """A copy's position: k pitches along the repeat direction (exact along the axes)."""
+def _offset(position, step: tuple[float, float], k: int):
+    """Copy k's position: k pitches along the repeat direction (exact along the axes)."""
     from .shapes import _cos_sin_deg
-    x, y = position[0], position[1]
-    if copy_index is None or repeat is None:
-        return x, y
-    _, pitch, direction = repeat
+    pitch, direction = step
     c, s = _cos_sin_deg(direction)
-    return x + copy_index * pitch * c, y + copy_index * pitch * s
+    return position[0] + k * pitch * c, position[1] + k * pitch * s
 
 
 # ----------------------------------------------------------------------------- resolving
@@ -581,7 +598,7 @@ def _shift(part: dict, spec, k: int) -> None:
     """Move copy k of a part: its shape's position, or every point of its boundary and holes."""
     if k == 0:
         return
-    dx, dy = _offset((0.0, 0.0), spec, k)
+    dx, dy = _offset((0.0, 0.0), spec[1:], k)
     shape = part.get("shape")
     if isinstance(shape, dict):
         shape["position"] = _moved(shape.get("position", [0.0, 0.0]), dx, dy)
