@@ -41,7 +41,7 @@ MAX_COPIES = 10_000
 UNRESOLVED = "<a linked value with a problem (see its own message)>"
 _NAME = re.compile(r"[A-Za-z_]\w*$")
 _COPY_NAME = re.compile(r"(.*)\[(\d+)\]$", re.S)
-_COPY_FACE = re.compile(r"(.*)\[(\d+)\]\.(.+)$", re.S)
+_COPY_FACE = re.compile(r"(.*)\[(-?\d+)\]\.(.+)$", re.S)   # NAME[k].FACE; k < 0 counts from the end
 
 
 class _Failed(Exception):
@@ -576,9 +576,10 @@ def _faces_per_copy(faces, name, count: int, where: str, problems: Problems):
             continue
         m = _COPY_FACE.match(key)
         k, face = int(m.group(2)), m.group(3)
-        if k >= count:
+        k = k + count if k < 0 else k
+        if not 0 <= k < count:
             problems.add(f"{where}.{json.dumps(key)}", key,
-                         f"a face of a copy {name}[0] .. {name}[{count - 1}]")
+                         f"a face of a copy {name}[0] .. {name}[{count - 1}] (or {name}[-1], the last)")
             continue
         merged = dict(per[k].get(face, {})) if isinstance(per[k].get(face), dict) else {}
         if isinstance(value, dict):
