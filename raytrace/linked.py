@@ -426,7 +426,14 @@ class Linker:
 
 
 def _dumps(value) -> str:
-    return json.dumps(value, sort_keys=True)
+    """Stable text of a piece of a file (a value JSON cannot hold, such as a NaN token, is in
+    a file that fails to load, so its text only has to exist)."""
+    return json.dumps(value, sort_keys=True, default=repr)
+
+
+def _text(value) -> str:
+    """A piece of a file as written, key order kept (see _dumps for values JSON cannot hold)."""
+    return json.dumps(value, default=repr)
 
 
 def resolve(data: dict, problems: Problems) -> tuple[dict, Linker | None]:
@@ -477,7 +484,7 @@ def resolve(data: dict, problems: Problems) -> tuple[dict, Linker | None]:
         else:
             where = (collection, None, path[1:])
         kept.append((where, _get(data, path), r.memo.get(("leaf", path))))
-    numbers = None if numbers_raw is None else json.dumps(numbers_raw)
+    numbers = None if numbers_raw is None else _text(numbers_raw)
     return plain, Linker(numbers, kept, placements, repeats, origin)
 
 
@@ -530,7 +537,7 @@ def _place_sources(data: dict, plain: dict, problems: Problems) -> list[Placemen
             direction = direction + turn
         s["position"], s["direction_deg"] = [pos[0], pos[1]], direction
         raw = data["sources"][i]
-        out.append(Placement(raw.get("name"), json.dumps({k: raw[k] for k in PLACEMENT_KEYS if k in raw}),
+        out.append(Placement(raw.get("name"), _text({k: raw[k] for k in PLACEMENT_KEYS if k in raw}),
                              (pos[0], pos[1]), direction))
     return out
 
@@ -560,7 +567,7 @@ def _expand_repeats(r: _Resolver, data: dict, plain: dict, problems: Problems):
             copies.append(c)
             out_parts.append(c)
             origin.append((i, k))
-        repeats.append((name, json.dumps(data["parts"][i]), [c["name"] for c in copies], _dumps(copies)))
+        repeats.append((name, _text(data["parts"][i]), [c["name"] for c in copies], _dumps(copies)))
     plain["parts"] = out_parts
     return repeats, origin
 

@@ -4,10 +4,13 @@ from __future__ import annotations
 
 import json
 import math
+import os
 from dataclasses import replace
 from pathlib import Path
 
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from raytrace import cli
 from raytrace.errors import SceneError
@@ -344,3 +347,34 @@ def test_sheet_sample_round_trips_as_written(tmp_path):
     data = scene_to_dict(moved)      # one copy moved by hand: the row is written copy by copy
     assert [p["name"] for p in data["parts"]] == [f"sheet[{k}]" for k in range(7)]
     assert "repeat" not in json.dumps(data["parts"])
+
+
+# ----------------------------------------------------------------------------- fuzzed links
+
+EXPRESSION_TEXT = st.text(alphabet="0123456789.e+-*/()[], '_abcdghinoprstuwxy", max_size=30)
+LINKED_SPOTS = [
+    (PIPE, ("parts", 1, "shape", "position", 0)), (PIPE, ("numbers", "gap")),
+    (PIPE, ("detectors", 0, "bins")), (SHEET, ("parts", 0, "repeat", "count")),
+    (SHEET, ("parts", 0, "repeat", "pitch")), (SHEET, ("sources", 0, "aim_at", 1)),
+    (SHEET, ("sources", 0, "turn_deg")), (SHEET, ("numbers", "leg")),
+]
+
+
+@settings(max_examples=int(os.environ.get("RAYTRACE_FUZZ_EXAMPLES", "300")), deadline=None,
+          derandomize=True)
+@given(spot=st.sampled_from(LINKED_SPOTS), text=EXPRESSION_TEXT, eq=st.booleans())
+def test_random_expressions_load_or_fail_cleanly(spot, text, eq):
+    """Any text in a linked field ends in a Scene or in problems that each name a JSON path
+    (never another exception), and a scene that loads saves and reloads the same."""
+    path, where = spot
+    d = json.loads(path.read_text())
+    target = d
+    for k in where[:-1]:
+        target = target[k]
+    target[where[-1]] = ("= " if eq else "") + text
+    try:
+        scene = scene_from_dict(d)
+    except SceneError as e:
+        assert e.problems and all(p.path.startswith("$") for p in e.problems)
+        return
+    assert scene_from_dict(scene_to_dict(scene)) == scene
