@@ -26,13 +26,15 @@ from .scene import (DISTRIBUTIONS, POLARIZATIONS, SAMPLINGS, SOURCE_KINDS, Detec
 FORMAT_NAME = "raytrace2d-scene"
 FORMAT_VERSION = 1
 UNITS = {"length": "mm", "wavelength": "nm"}
-TOP_KEYS = ("format", "version", "units", "name", "story", "ambient", "materials", "parts",
-            "sources", "detectors", "trace")
-PART_KEYS = ("name", "material", "boundary", "holes", "shape", "faces")
+# "numbers", "repeat", "aim_at", "pivot" and "turn_deg" are read by linked.resolve, before these
+TOP_KEYS = ("format", "version", "units", "name", "story", "ambient", "numbers", "materials",
+            "parts", "sources", "detectors", "trace")
+PART_KEYS = ("name", "material", "boundary", "holes", "shape", "faces", "repeat")
 EDGE_KEYS = ("from", "face", "treatment", "arc")
 FACE_KEYS = ("treatment", "name")
-SOURCE_KEYS = ("name", "kind", "position", "direction_deg", "width", "half_angle_deg",
-               "distribution", "cos_power", "flux", "spectrum", "polarization", "sampling", "note")
+SOURCE_KEYS = ("name", "kind", "position", "direction_deg", "aim_at", "pivot", "turn_deg", "width",
+               "half_angle_deg", "distribution", "cos_power", "flux", "spectrum", "polarization",
+               "sampling", "note")
 DETECTOR_KEYS = ("name", "start", "end", "absorbing", "bins", "angle_bins", "central_fraction")
 TRACE_KEYS = ("rays", "mode", "min_relative_flux", "max_depth", "max_segments", "seed")
 MODES = ("branching", "monte_carlo")
