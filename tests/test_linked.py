@@ -274,14 +274,14 @@ def test_repeated_part_copies_sit_a_pitch_apart_with_their_own_face_names():
 
 def test_copy_faces_show_in_the_ledger_and_routes():
     import raytrace
-    from raytrace.paths import paths_text
+    from raytrace.routes import routes_text
     scene = load_scene(SHEET)
     d = json.loads(SHEET.read_text())
     d["sources"][0]["width"] = 24.0    # the whole strip lit: light reaches the sealed ends
     result = raytrace.trace(scene_from_dict(d), rays=300, track_paths=True)
     labels = {b.label for b in result.ledger.buckets if b.flux > 0}
     assert "absorbed at sheet[0] / sealed end" in labels
-    assert "enter through sheet[3] / hypotenuse" in paths_text(result, 10)
+    assert "enter through sheet[3] / hypotenuse" in routes_text(result, 10)
     assert scene.parts  # loaded once more unchanged
 
 
