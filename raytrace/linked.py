@@ -90,6 +90,18 @@ class Repeat:
 class Links:
     numbers: str | None   # JSON of the "numbers" section as written
     items: tuple
+    values: tuple = ()    # (name, value) of each named number, evaluated
+
+    def named_numbers(self) -> dict[str, float]:
+        return dict(self.values)
+
+    def placed(self) -> set[str]:
+        """Names of the sources placed by aim_at, pivot or turn_deg."""
+        return {x.source for x in self.items if isinstance(x, Placement)}
+
+    def repeated(self) -> dict[str, tuple[str, ...]]:
+        """Each repeated part's name as written, and the names of its copies."""
+        return {x.part: x.copies for x in self.items if isinstance(x, Repeat)}
 
 
 # ----------------------------------------------------------------------------- paths
@@ -400,8 +412,9 @@ def _offset(position, step: tuple[float, float], k: int):
 class Linker:
     """What `resolve` learned; `links(saved)` records it against the scene as it saves."""
 
-    def __init__(self, numbers, leaves, placements, repeats, part_origin):
+    def __init__(self, numbers, values, leaves, placements, repeats, part_origin):
         self.numbers, self.leaves, self.placements, self.repeats = numbers, leaves, placements, repeats
+        self.values = values
         self.part_origin = part_origin    # plain part index -> (file part index, copy or None)
 
     def file_path(self, path: str) -> str:
@@ -422,7 +435,7 @@ class Linker:
         for name, raw, copies, plain in self.repeats:
             saved_copies = [_find(saved, "parts", c) for c in copies]
             items.append(Repeat(name, raw, tuple(copies), plain, _dumps(saved_copies)))
-        return Links(self.numbers, tuple(items))
+        return Links(self.numbers, tuple(items), self.values)
 
 
 def _dumps(value) -> str:
@@ -485,7 +498,9 @@ def resolve(data: dict, problems: Problems) -> tuple[dict, Linker | None]:
             where = (collection, None, path[1:])
         kept.append((where, _get(data, path), r.memo.get(("leaf", path))))
     numbers = None if numbers_raw is None else _text(numbers_raw)
-    return plain, Linker(numbers, kept, placements, repeats, origin)
+    values = tuple((n, float(r.memo[("number", n)])) for n in r.numbers
+                   if r.memo.get(("number", n), _FAILED) is not _FAILED)
+    return plain, Linker(numbers, values, kept, placements, repeats, origin)
 
 
 def _order(data: dict):
