@@ -651,7 +651,7 @@ def restore(plain: dict, links: Links | None) -> dict:
     give another value (it refers to something edited by hand)."""
     if links is None:
         return plain
-    active = [x for x in links.items if _holds_saved(x, plain)]
+    active = [x for x in links.items if _holds(x, plain, saved=True)]
     while True:
         out = _apply(plain, links.numbers, active)
         if not active:
@@ -663,28 +663,21 @@ def restore(plain: dict, links: Links | None) -> dict:
         if again is None:
             active = []
             continue
-        bad = [x for x in active if not _holds_plain(x, again)]
+        bad = [x for x in active if not _holds(x, again, saved=False)]
         if not bad:
             return out
         active = [x for x in active if x not in bad]
 
 
-def _holds_saved(link, saved: dict) -> bool:
+def _holds(link, data: dict, saved: bool) -> bool:
+    """Whether `data` holds the values `link` gave: as the scene saves them (saved=True), or as
+    the resolver gives them."""
     if isinstance(link, Leaf):
-        spot = _at(saved, link.where)
-        return spot is not None and _same(spot[0][spot[1]], link.saved)
+        spot = _at(data, link.where)
+        return spot is not None and _same(spot[0][spot[1]], link.saved if saved else link.value)
     if isinstance(link, Placement):
-        return _placed_as(link, saved)
-    return _dumps([_find(saved, "parts", c) for c in link.copies]) == link.saved
-
-
-def _holds_plain(link, plain: dict) -> bool:
-    if isinstance(link, Leaf):
-        spot = _at(plain, link.where)
-        return spot is not None and _same(spot[0][spot[1]], link.value)
-    if isinstance(link, Placement):
-        return _placed_as(link, plain)
-    return _dumps([_find(plain, "parts", c) for c in link.copies]) == link.plain
+        return _placed_as(link, data)
+    return _dumps([_find(data, "parts", c) for c in link.copies]) == (link.saved if saved else link.plain)
 
 
 def _placed_as(link: Placement, data: dict) -> bool:

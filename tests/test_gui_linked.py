@@ -15,7 +15,7 @@ pytest.importorskip("pytestqt")
 from raytrace.scene_io import load_scene  # noqa: E402
 
 from gui import edits  # noqa: E402
-from test_gui import TIMEOUT_MS, home, make_window, open_sample, wait_traced, win  # noqa: E402,F401
+from test_gui import home, make_window, open_sample, run_sweep_dialog, wait_traced, win  # noqa: E402,F401
 
 SAMPLES = Path(__file__).resolve().parent.parent / "samples"
 PIPE = SAMPLES / "light-pipe-90.json"
@@ -79,13 +79,7 @@ def test_sweep_dialog_offers_named_numbers_and_runs_one(qtbot, win):
     assert names[:3] == ["leg", "count", "entry_deg"]
     assert "emitter beam.turn_deg" in names and "emitter beam.direction_deg" not in names
     assert not any("sheet[" in n for n in names)
-    dlg.name.setCurrentText("entry_deg")
-    dlg.start.setValue(0.0)
-    dlg.stop.setValue(8.0)
-    dlg.count.setValue(2)
-    dlg.rays.setValue(200)
-    dlg.run()
-    qtbot.waitUntil(lambda: not dlg.running(), timeout=TIMEOUT_MS)
+    run_sweep_dialog(qtbot, dlg, "entry_deg", 0.0, 8.0, 2, 200)
     assert dlg.message == "" and [r["status"] for r in dlg.result.rows] == ["ok", "ok"]
     # published (Snell and the critical angle): past the +-5.5 degree acceptance of a crown
     # roof prism one leg leaks, so far less returns at 8 degrees than at normal incidence
