@@ -42,7 +42,8 @@ class Reference:
     def __str__(self) -> str:
         base = self.base if re.fullmatch(r"[A-Za-z_]\w*", self.base) else f"'{self.base}'"
         index = f"[{self.index}]" if self.index is not None else ""
-        return base + index + "".join("." + a for a in self.attrs)
+        return base + index + "".join("." + (a if re.fullmatch(r"[A-Za-z_]\w*", a) else f"'{a}'")
+                                      for a in self.attrs)
 
 
 def _asin(x: float) -> float:
@@ -214,8 +215,8 @@ class _Parser:
         attrs = []
         while self.peek("."):
             self.take()
-            if not self.peek(kind="name"):
-                self.fail("a name after the dot, such as output_x")
+            if not (self.peek(kind="name") or self.peek(kind="quoted")):
+                self.fail("a name after the dot, such as output_x or 'right leg'")
             attrs.append(self.take()[1])
         return ("ref", Reference(value, index, tuple(attrs)))
 

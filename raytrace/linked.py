@@ -298,14 +298,15 @@ class _Resolver:
             raise ExpressionError(f"unknown name {ref}: expected a named number ({known}) or "
                                   "PART.VALUE such as guide.output_x")
         i, copy_index = self._part_of(ref)
-        if len(ref.attrs) != 1:
-            raise ExpressionError(f"{ref}: expected one value after the part's name, e.g. "
-                                  f"{Reference(ref.base, ref.index)}.x")
         values = self.value(("part", i, copy_index))
-        attr = ref.attrs[0]
+        attr = ".".join(ref.attrs)
         if attr not in values:
-            raise ExpressionError(f"{ref}: part {self.parts[i].get('name')!r} offers "
-                                  + ", ".join(values))
+            plain = [k for k in values if "." not in k]
+            faces = sorted({k.rpartition(".")[0] for k in values if "." in k})
+            raise ExpressionError(
+                f"{ref}: part {self.parts[i].get('name')!r} offers " + ", ".join(plain)
+                + ("; and FACE.start_x (start_y, end_x, end_y, mid_x, mid_y) for its faces "
+                   + ", ".join(repr(f) for f in faces) if faces else ""))
         return values[attr]
 
     def _part_index(self, name: str) -> int | None:
@@ -383,7 +384,7 @@ class _Resolver:
 
     def _part_values(self, i: int, copy_index: int | None) -> dict:
         from .geometry import ShapeSpec
-        from .shapes import ShapeParameterError, derived_values
+        from .shapes import ShapeParameterError, derived_values, face_values
         shape = self.resolved(self.parts[i]["shape"], ("parts", i, "shape"))
         try:
             x, y = shape.get("position", [0.0, 0.0])
@@ -391,7 +392,7 @@ class _Resolver:
                 x, y = _offset((x, y), self._step(i), copy_index)
             spec = ShapeSpec(shape["kind"], dict(shape.get("params", {})), (x, y),
                              shape.get("rotation_deg", 0.0))
-            return derived_values(spec)
+            return {**derived_values(spec), **face_values(spec)}
         except (ShapeParameterError, KeyError, TypeError, ValueError, ArithmeticError):
             raise _Failed from None   # the loader reports what is wrong with the shape
 

@@ -23,7 +23,7 @@ __all__ = [
     "ParamInfo", "ShapeParameterError", "PARAMETERS", "BUILDERS", "build", "check_params",
     "rectangle", "prism", "roof_prism", "regular_polygon", "light_pipe", "light_pipe_ends",
     "light_pipe_centerline_length", "microprism_strip", "window", "lens", "place_point",
-    "place_direction", "derived_values",
+    "place_direction", "derived_values", "FACE_POINTS",
 ]
 
 
@@ -607,6 +607,26 @@ def derived_values(spec: ShapeSpec) -> dict[str, float]:
         out["length"] = spec.params["count"] * spec.params["pitch"]
     for name, local in points.items():
         out[f"{name}_x"], out[f"{name}_y"] = place_point(local, (x, y), spec.rotation_deg)
+    return out
+
+
+FACE_POINTS = ("start_x", "start_y", "end_x", "end_y", "mid_x", "mid_y")
+
+
+def face_values(spec: ShapeSpec) -> dict[str, float]:
+    """The end points and middle of each face that is one edge, keyed FACE.start_x, ...,
+    FACE.mid_y by the builder's face name, in scene coordinates (the loop runs
+    counter-clockwise, so start -> end keeps the part on the left)."""
+    edges: dict[str, list] = {}
+    for e in build(spec).edges:
+        if e.face:
+            edges.setdefault(e.face, []).append(e)
+    out = {}
+    for face, es in edges.items():
+        if len(es) == 1:
+            e = es[0]
+            for key, (x, y) in (("start", e.start), ("end", e.end), ("mid", e.point_at(0.5))):
+                out[f"{face}.{key}_x"], out[f"{face}.{key}_y"] = float(x), float(y)
     return out
 
 

@@ -378,3 +378,21 @@ def test_random_expressions_load_or_fail_cleanly(spot, text, eq):
         assert e.problems and all(p.path.startswith("$") for p in e.problems)
         return
     assert scene_from_dict(scene_to_dict(scene)) == scene
+
+
+def test_a_detector_laid_along_one_copys_face():
+    """Face values of a copy place a detector just under the middle prism's hypotenuse: from
+    memory, a right-angle prism with 2 mm legs has a 2 sqrt 2 mm hypotenuse, here centred on
+    x = 0 (copy 3 of 7 at pitch 2 sqrt 2, the first at -3 pitches)."""
+    d = json.loads(SHEET.read_text())
+    d["detectors"].append({"name": "under prism 3",
+                           "start": ["= sheet[3].hypotenuse.start_x", "= sheet[3].hypotenuse.start_y - 0.5"],
+                           "end": ["= sheet[3].'hypotenuse'.end_x", "= sheet[3].hypotenuse.end_y - 0.5"],
+                           "absorbing": False})
+    det = scene_from_dict(d).detectors[1]
+    half = math.sqrt(2.0)
+    assert det.start == pytest.approx((-half, -0.5), abs=1e-12)
+    assert det.end == pytest.approx((half, -0.5), abs=1e-12)
+    d["detectors"][1]["end"][0] = "= sheet[3].'left leg'.middle_x"
+    msg = problems_of(d)["$.detectors[1].end[0]"]
+    assert "FACE.start_x (start_y, end_x, end_y, mid_x, mid_y) for its faces 'hypotenuse'" in msg
