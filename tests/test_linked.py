@@ -396,3 +396,12 @@ def test_a_detector_laid_along_one_copys_face():
     d["detectors"][1]["end"][0] = "= sheet[3].'left leg'.middle_x"
     msg = problems_of(d)["$.detectors[1].end[0]"]
     assert "FACE.start_x (start_y, end_x, end_y, mid_x, mid_y) for its faces 'hypotenuse'" in msg
+
+
+def test_renaming_a_part_others_link_to_saves_them_as_plain_numbers():
+    scene = load_scene(PIPE)
+    renamed = replace(scene, parts=[replace(scene.parts[0], name="light guide"), scene.parts[1]])
+    data = scene_to_dict(renamed)
+    assert data["parts"][1]["shape"]["position"] == [19.5, 22.0]
+    assert data["detectors"][0]["end"] == [25.5, 25.5]
+    assert scene_from_dict(data) == renamed
