@@ -6,6 +6,7 @@ tracer consumes; `scene_io` reads and writes the JSON form.
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from typing import Any
 
 from .geometry import Part, Point
 from .materials import Material
@@ -102,6 +103,12 @@ class TraceSettings:
     segment_budget: int = 1_000_000_000  # total ray segments in one trace: a guard against runaway
                                        # traces (10 million light-pipe rays need about 660 million)
     seed: int = 1
+    max_memory_mb: float = 4096.0    # memory a trace may use; past it, it stops and says so
+
+
+# Largest max_generations a file or flag may ask for: a ray's flux after a million events is
+# zero in double precision, so a larger bound only promises work that never ends.
+MAX_GENERATIONS = 1_000_000
 
 
 @dataclass
@@ -116,6 +123,9 @@ class Scene:
     settings: TraceSettings = field(default_factory=TraceSettings)
     story: str = ""       # one line: what this scene is for
     name: str = ""
+    # the file's linked numbers (linked.Links), so saving writes them back; values above are
+    # always the evaluated ones
+    links: Any = field(default=None, compare=False, repr=False)
     # notes from loading (earlier key names read, for example); not saved, not compared
     notes: list[str] = field(default_factory=list, compare=False, repr=False)
 
