@@ -71,9 +71,10 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
     raw = trace_chunked(cs, start, mode, limits, seed, recording, track_paths, len(scene.sources),
                         chunk_size=chunk_size or DEFAULT_CHUNK, workers=max(1, int(workers)),
                         keep_hits=keep_hits, accel=accel, progress=progress)
-    ledger = Ledger(cs, raw.bins, raw.source_flux)
+    ledger = Ledger(cs, raw.bins, raw.source_flux, batch_bins=raw.batch_bins, batch_flux=raw.batch_flux)
     settings = {"rays": rays, "mode": mode, "seed": seed, **asdict(limits),
                 "sampling": sampling or "per source", "source_names": [src.name for src in scene.sources],
+                "source_samplings": [sampling or src.sampling for src in scene.sources],
                 "source_positions": [list(src.position) for src in scene.sources],
                 "workers": max(1, int(workers)), "chunk_size": chunk_size or DEFAULT_CHUNK,
                 "hits": "keep" if keep_hits else "histogram",

@@ -23,6 +23,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .results import DetectorHits, TraceResult
+from .uncertainty import format_error
 
 C_MM_PER_PS = 0.299792458   # speed of light in vacuum, mm per picosecond (exact by definition)
 MAX_WAVELENGTHS = 12        # more distinct wavelengths than this: a band, or too many to list
@@ -108,6 +109,7 @@ class DetectorReport:
     uniformity: Uniformity
     times: ArrivalTimes
     per_wavelength: list[WavelengthFigures] = field(default_factory=list)   # empty: not applicable
+    efficiency_error: float = float("nan")   # standard error of `efficiency` (see raytrace.uncertainty)
 
     @property
     def centroid_spread_mm(self) -> float:
@@ -124,7 +126,8 @@ class DetectorReport:
         u, t = self.uniformity, self.times
         return {"name": self.name, "length_mm": self.length_mm, "absorbing": self.absorbing, "hits": self.hits,
                 "total_flux": self.total_flux, "flux_s": self.flux_s, "flux_p": self.flux_p,
-                "efficiency": self.efficiency, "centroid_mm": num(self.centroid_mm),
+                "efficiency": self.efficiency, "efficiency_error": num(self.efficiency_error),
+                "centroid_mm": num(self.centroid_mm),
                 "mean_angle_deg": num(self.mean_angle_deg),
                 "uniformity": {"central_fraction": u.fraction, "bins": u.bins,
                                "min_over_mean": num(u.min_over_mean), "max_over_mean": num(u.max_over_mean)},
@@ -134,7 +137,7 @@ class DetectorReport:
 
     def summary_line(self) -> str:
         u, t = self.uniformity, self.times
-        parts = [f"{self.name}: {self.total_flux:.6g} ({100 * self.efficiency:.3f} %)"]
+        parts = [f"{self.name}: {self.total_flux:.6g} ({format_error(self.efficiency, self.efficiency_error).strip()})"]
         if self.hits:
             parts.append(f"centroid {self.centroid_mm:.3f} mm, mean angle {self.mean_angle_deg:+.3f} deg")
             parts.append(f"uniformity (central {100 * u.fraction:.0f} %) min/mean {u.min_over_mean:.3f} "
@@ -166,7 +169,8 @@ def detector_report(result: TraceResult, name: str) -> DetectorReport:
         centroid_mm=_weighted_mean(hits.position, f), mean_angle_deg=_weighted_mean(hits.angle_deg, f),
         irradiance=irr, angular=ang, uniformity=uniformity(hits, det.bins, det.central_fraction),
         times=arrival_times(hits),
-        per_wavelength=[] if result.settings.get("band_spectrum") else per_wavelength(hits))
+        per_wavelength=[] if result.settings.get("band_spectrum") else per_wavelength(hits),
+        efficiency_error=result.efficiency_error(name))
 
 
 def _report_from_histogram(result: TraceResult, det, hist: dict) -> DetectorReport:
@@ -189,7 +193,8 @@ def _report_from_histogram(result: TraceResult, det, hist: dict) -> DetectorRepo
         total_flux=total, flux_s=float(fs.sum()), flux_p=float(fp.sum()),
         efficiency=total / result.source_flux if result.source_flux else 0.0,
         centroid_mm=_weighted_mean(c, irr.flux), mean_angle_deg=_weighted_mean(ang.centers, ang.flux),
-        irradiance=irr, angular=ang, uniformity=uni, times=ArrivalTimes(nan, nan, nan, nan))
+        irradiance=irr, angular=ang, uniformity=uni, times=ArrivalTimes(nan, nan, nan, nan),
+        efficiency_error=result.efficiency_error(det.name))
 
 
 def detector_reports(result: TraceResult) -> list[DetectorReport]:

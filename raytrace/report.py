@@ -3,6 +3,7 @@ from __future__ import annotations
 
 from .ledger import ABSORBED, DETECTOR, ESCAPED, TRUNCATED
 from .results import TraceResult
+from .uncertainty import format_error
 
 
 def summary_text(result: TraceResult, title: str = "", story: str = "") -> str:
@@ -28,9 +29,10 @@ def summary_text(result: TraceResult, title: str = "", story: str = "") -> str:
             for prefix in ("detector ", "escaped via ", "absorbed ", "truncated: "):
                 if label.startswith(prefix) and kind != ABSORBED:
                     label = label[len(prefix):]
-            lines.append(f"  {label:<46} {b.flux:>12.6g}  {100 * b.flux / total:7.3f} %")
+            lines.append(f"  {label:<46} {b.flux:>12.6g}  {format_error(b.flux / total, L.share_error(b.label))}")
     closure = L.total - L.source_flux
     lines.append(f"Ledger: buckets sum to {L.total:.12g} (difference {closure:.2e})")
+    lines.append(f"Errors (+-, in points of %): {result.error_meaning}")
     if st.get("vertex_hits") or st.get("grazing_hits") or st.get("medium_mismatches"):
         lines.append(f"Edge cases: {st['vertex_hits']} hits at a vertex, {st['grazing_hits']} grazing hits, "
                      f"{st['medium_mismatches']} medium mismatches (traced deterministically)")

@@ -72,6 +72,8 @@ class Merger:
         self.n_codes = cs.n_edges * N_EVENT_KINDS
         self.trie = PathTrie(n_sources, track_paths, MAX_PATH_NODES, n_bins=0)
         self.bins = None
+        self.batch_bins = None       # per sub-batch of source rays (uncertainty)
+        self.batch_flux = None
         self.source_flux = 0.0
         self.hits: dict[str, list[np.ndarray]] = {}
         self.segments: dict[str, list[np.ndarray]] | None = None
@@ -95,6 +97,8 @@ class Merger:
                 f"raise max_memory_mb, record fewer rays (record=\"first\") or bin detector hits "
                 f"(hits=\"histogram\")")
         self.bins = raw.bins.copy() if self.bins is None else self.bins + raw.bins
+        self.batch_bins = raw.batch_bins.copy() if self.batch_bins is None else self.batch_bins + raw.batch_bins
+        self.batch_flux = raw.batch_flux.copy() if self.batch_flux is None else self.batch_flux + raw.batch_flux
         self.source_flux += raw.source_flux
         remap = None
         if self.trie.enabled:
@@ -140,7 +144,7 @@ class Merger:
             hits={k: np.concatenate(v) for k, v in self.hits.items()},
             path_parent=self.trie.parent.copy(), path_code=self.trie.code.copy(),
             path_flux=self.trie.flux_dict() if self.trie.enabled else {}, wavelengths=wl, stats=stats,
-            histograms=self.histograms)
+            histograms=self.histograms, batch_bins=self.batch_bins, batch_flux=self.batch_flux)
 
 
 def _flux_arrays(path_flux) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
