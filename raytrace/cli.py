@@ -63,6 +63,12 @@ def build_parser() -> argparse.ArgumentParser:
     w.add_argument("--workers", type=int, help="local worker processes (default: CPU count; 1 = in this process)")
     w.add_argument("--dask", metavar="ADDRESS",
                    help="run the points on the Dask scheduler at ADDRESS (needs the dask extra)")
+    w.add_argument("--figure", metavar="DETECTOR.FIELD", action="append", default=[],
+                   help="add a column with a detector figure, e.g. \"return.accepted\" or "
+                        "\"viewer side.centroid_mm\" (repeatable; see docs/python-api.md for the fields)")
+    w.add_argument("--route", metavar="BUCKET=STEPS", action="append", default=[],
+                   help="add a column with the share of one route, e.g. "
+                        "\"return=reflect off roof prism / hypotenuse\" (the steps as --paths lists them)")
     add_trace_options(w)
 
     sub.add_parser("materials", help="list the material catalog with its sources")
@@ -221,12 +227,22 @@ def cmd_trace(args) -> int:
     return EXIT_OK
 
 
+def option_flags() -> dict[str, str]:
+    """The command-line flag of each trace option, by its keyword (rays -> --rays)."""
+    p = argparse.ArgumentParser(add_help=False)
+    add_trace_options(p)
+    return {a.dest: a.option_strings[0] for a in p._actions if a.option_strings}
+
+
 def cmd_sweep(args) -> int:
+    from .figures import parse_figure, parse_route
     from .report import Progress
     from .scene_io import load_scene, scene_to_dict
     from .sweep import SweepError, parse_vary, sweep
     scene = load_scene(args.scene)
     try:
+        detectors = [d.name for d in scene.detectors]
+        figures = [parse_figure(f, detectors) for f in args.figure] + [parse_route(r, detectors) for r in args.route]
         variables = [parse_vary(v) for v in args.vary]
         if len(variables) > 2:
             print("error: --vary: found more than two names; expected one or two", file=sys.stderr)
@@ -251,12 +267,13 @@ def cmd_sweep(args) -> int:
         progress = Progress(enabled=not args.quiet)
         try:
             result = sweep(scene_to_dict(scene), variables, trace_kwargs(args), executor=executor,
-                           workers=args.workers, progress=progress.points, file=args.scene)
+                           workers=args.workers, progress=progress.points, file=args.scene,
+                           figures=figures, option_names=option_flags())
         finally:
             progress.close()
             if client is not None:
                 client.close()
-    except SweepError as exc:
+    except SceneError as exc:       # a --vary, --figure or --route that cannot be used
         for p in exc.problems:
             print(f"error: {p}", file=sys.stderr)
         return EXIT_USAGE
@@ -265,6 +282,9 @@ def cmd_sweep(args) -> int:
     if not args.quiet:
         from .report import sweep_text
         print(sweep_text(result))
+    from .report import sweep_warnings
+    for line in sweep_warnings(result):
+        print(f"warning: {line}", file=sys.stderr)
     for row in result.failed:
         print(f"point {row['point']} ({', '.join(f'{n} = {row[n]:g}' for n in result.names)}): {row['status']}",
               file=sys.stderr)

@@ -118,16 +118,34 @@ class Progress:
 
 
 def sweep_text(result) -> str:
-    """The swept values and each detector's efficiency, one line per point."""
+    """The swept values and each detector's efficiency with its error, one line per point."""
     head = result.names + [f"eff. {d}" for d in result.detectors]
-    widths = [max(12, len(h)) for h in head]
+    widths = [max(12, len(h)) for h in result.names] + [max(20, len(h)) for h in head[len(result.names):]]
     lines = ["  ".join(f"{h:>{w}}" for h, w in zip(head, widths))]
     for row in result.rows:
         cells = [f"{row[n]:>{w}.6g}" for n, w in zip(result.names, widths)]
         if row["status"] == "ok":
-            cells += [f"{100 * row[f'efficiency: {d}']:>{w - 2}.3f} %"
+            cells += [f"{format_error(row[f'efficiency: {d}'], _number(row[f'efficiency error: {d}'])).strip():>{w}}"
                       for d, w in zip(result.detectors, widths[len(result.names):])]
         else:
             cells.append("  (not traced: see below)")
         lines.append("  ".join(cells))
     return "\n".join(lines)
+
+
+def _number(cell) -> float:
+    return float("nan") if cell == "" or cell is None else float(cell)
+
+
+def sweep_warnings(result) -> list[str]:
+    """Each distinct warning of a sweep once, with the points that gave it."""
+    seen: dict[str, list[int]] = {}
+    for row in result.rows:
+        for w in filter(None, row.get("warnings", "").split(" | ")):
+            seen.setdefault(w, []).append(row["point"])
+    out = []
+    for w, points in seen.items():
+        which = "every point" if len(points) == len(result.rows) > 1 else \
+            ("point " if len(points) == 1 else "points ") + ", ".join(map(str, points))
+        out.append(f"{which}: {w}")
+    return out

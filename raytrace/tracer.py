@@ -825,8 +825,10 @@ class _Histograms:
         self.flux_p = [np.zeros((d.bins, d.angle_bins)) for d in cs.detectors]
         self.count = np.zeros(len(cs.detectors), dtype=np.int64)
         self.batch_flux = np.zeros((len(cs.detectors), SUB_BATCHES))   # for the efficiency's error
+        self.acceptance = cs.acceptance or [None] * len(cs.detectors)
+        self.accepted_batch = np.zeros((len(cs.detectors), SUB_BATCHES))  # flux within the acceptance
 
-    def add(self, det, pos, angle, fs, fp, root):
+    def add(self, det, pos, angle, fs, fp, root, dx, dy):
         for d in np.unique(det).tolist():
             sel = det == d
             spec = self.dets[d]
@@ -839,6 +841,9 @@ class _Histograms:
             self.flux_p[d] += np.bincount(k, weights=fp[sel], minlength=size).reshape(spec.bins, spec.angle_bins)
             self.count[d] += int(sel.sum())
             self.batch_flux[d] += batch_sums(root[sel], fs[sel] + fp[sel])
+            if self.acceptance[d] is not None:
+                inside = within_acceptance(dx[sel], dy[sel], *self.acceptance[d])
+                self.accepted_batch[d] += batch_sums(root[sel][inside], fs[sel][inside] + fp[sel][inside])
 
     def to_dict(self) -> dict:
         out = {}
@@ -847,8 +852,16 @@ class _Histograms:
             out[spec.name] = {"position_edges": np.linspace(0.0, length, spec.bins + 1),
                               "angle_edges": np.linspace(-90.0, 90.0, spec.angle_bins + 1),
                               "flux_s": self.flux_s[d], "flux_p": self.flux_p[d], "hits": int(self.count[d]),
-                              "batch_flux": self.batch_flux[d]}
+                              "batch_flux": self.batch_flux[d], "accepted_batch": self.accepted_batch[d]}
         return out
+
+
+def within_acceptance(dx: np.ndarray, dy: np.ndarray, direction_deg: float, half_angle_deg: float) -> np.ndarray:
+    """Whether each direction of travel lies within +-half_angle_deg of direction_deg."""
+    a = np.radians(direction_deg)
+    ca, sa = np.cos(a), np.sin(a)
+    off = np.degrees(np.abs(np.arctan2(dx * sa - dy * ca, dx * ca + dy * sa)))
+    return off <= half_angle_deg
 
 
 def merge_histograms(target: dict | None, other: dict | None) -> dict | None:
@@ -862,6 +875,7 @@ def merge_histograms(target: dict | None, other: dict | None) -> dict | None:
         t["flux_p"] = t["flux_p"] + h["flux_p"]
         t["hits"] += h["hits"]
         t["batch_flux"] = t["batch_flux"] + h["batch_flux"]
+        t["accepted_batch"] = t["accepted_batch"] + h["accepted_batch"]
     return target
 
 
@@ -877,7 +891,7 @@ def _store_hits(store, hist, cs, idx, ed, hx, hy, dx, dy, fs, fp, wl, opl, path,
     sint = dx * (ex / L) + dy * (ey / L)
     angle = np.degrees(np.arctan2(sint, np.abs(cosn)))
     if hist is not None:
-        hist.add(d, s, angle, fs, fp, root)
+        hist.add(d, s, angle, fs, fp, root, dx, dy)
         return
     front = cosn >= 0
     for k, v in (("detector", d), ("position", s), ("angle_deg", angle), ("front", front),
