@@ -397,7 +397,8 @@ def run_point(data: dict, settings: list[tuple[tuple, Any]], options: dict, figu
             _set(data, path, {"wavelength_nm": value} if path[-1] == "spectrum" else value)
     try:
         scene = scene_from_dict(data)
-        result = trace(scene, track_paths=False, **options)
+        routes = any(f.kind == "route" for f in figures or [])     # route shares need path tallies
+        result = trace(scene, track_paths=routes, **options)
     except SceneError as exc:
         return {"status": "invalid: " + "; ".join(str(p) for p in exc.problems)}
     except RaytraceError as exc:
