@@ -71,8 +71,8 @@ def figure_values(result, figures: list[Figure]) -> dict[str, float | None]:
             out[f.column] = None if value is None else float(value)
         else:
             if groups is None:
-                from .paths import path_groups
-                groups = path_groups(result)
+                from .routes import route_groups
+                groups = route_groups(result)
             out[f.column] = sum(g.share_of_source for g in groups if g.bucket == f.owner and g.text == f.field)
     return out
 

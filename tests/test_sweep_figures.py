@@ -21,20 +21,20 @@ def read_rows(path: Path) -> list[dict]:
 def test_sweep_keeps_each_points_warnings_and_prints_them_once(tmp_path, capsys):
     out = tmp_path / "pipe.csv"
     code = main(["sweep", str(SAMPLES / "light-pipe-90.json"), "--vary", "guide.segments[1].bend.radius=3,6",
-                 "--max-depth", "15", "--rays", "300", "--workers", "1", "--csv", str(out), "--quiet"])
+                 "--max-generations", "15", "--rays", "300", "--workers", "1", "--csv", str(out), "--quiet"])
     assert code == 0
     rows = read_rows(out)
-    assert all("cut by the maximum depth (15)" in r["warnings"] for r in rows)
+    assert all("cut by the generation limit (15)" in r["warnings"] for r in rows)
     err = capsys.readouterr().err
     assert "warning: point 0:" in err and "warning: point 1:" in err
     # the warned share is the truncated bucket of that row (printed to 4 significant digits)
     for r in rows:
-        assert f"{100 * float(r['share: truncated: maximum depth']):.4g} %" in r["warnings"]
+        assert f"{100 * float(r['share: truncated: generation limit']):.4g} %" in r["warnings"]
 
 
 @pytest.mark.parametrize("vary,flag", [("trace.rays=100,200", ["--rays", "500"]),
                                        ("$.trace.seed=1,2", ["--seed", "3"]),
-                                       ("trace.max_depth=5,10", ["--max-depth", "20"])])
+                                       ("trace.max_generations=5,10", ["--max-generations", "20"])])
 def test_a_flag_that_overrides_a_varied_setting_is_refused(tmp_path, capsys, vary, flag):
     out = tmp_path / "x.csv"
     code = main(["sweep", str(SAMPLES / "oblique-window.json"), "--vary", vary, *flag, "--csv", str(out)])
@@ -65,8 +65,8 @@ def test_sweep_columns_carry_errors_and_asked_figures(tmp_path):
                                                    "direction_deg": float(r["emitter beam.direction_deg"])}]})
         res = trace(s)
         assert float(r["return.accepted"]) == pytest.approx(res.accepted("return"), rel=1e-12)
-        from raytrace.paths import path_groups
-        want = sum(g.share_of_source for g in path_groups(res) if g.bucket == "detector return" and g.text == glint)
+        from raytrace.routes import route_groups
+        want = sum(g.share_of_source for g in route_groups(res) if g.bucket == "detector return" and g.text == glint)
         assert float(r[f"route: return: {glint}"]) == pytest.approx(want, rel=1e-12)
         assert want > 0.03      # the hypotenuse glint, about 4 % (Fresnel at n = 1.51)
     # at 85 degrees the glint leaves 10 degrees off the way back: not accepted; at 90 it is
@@ -122,7 +122,7 @@ def test_true_retroreflection_is_the_two_tir_routes():
     normal the light going straight back within 0.01 degrees is exactly the routes with an even
     number of reflections (each a mirror image; two make a half turn, since the faces are
     perpendicular or the same face seen twice), and the hypotenuse glint (one) is not in it."""
-    from raytrace.paths import path_groups
+    from raytrace.routes import route_groups
 
     import re
 
@@ -136,8 +136,8 @@ def test_true_retroreflection_is_the_two_tir_routes():
         return count
     data = json.loads((SAMPLES / "roof-prism-retroreflector.json").read_text())
     data["detectors"][0]["acceptance"] = {"half_angle_deg": 0.01, "back_to_source": "emitter beam"}
-    res = trace(scene_from_dict(data), path_min_relative_flux=1e-9)
-    groups = [g for g in path_groups(res) if g.bucket == "detector return"]
+    res = trace(scene_from_dict(data), route_flux_floor=1e-9)
+    groups = [g for g in route_groups(res) if g.bucket == "detector return"]
     assert not any(g.lumped for g in groups)
     retro = sum(g.share_of_source for g in groups if reflections(g.steps) % 2 == 0)
     assert retro > 0.9

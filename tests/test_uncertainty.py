@@ -33,7 +33,7 @@ def plate(absorbing_through: bool = True) -> dict:
         "detectors": [{"name": "through", "start": [5.0, -200.0], "end": [5.0, 200.0],
                        "absorbing": absorbing_through},
                       {"name": "back", "start": [-3.0, 200.0], "end": [-3.0, -200.0]}],
-        "trace": {"rays": 2000, "min_relative_flux": 1e-13, "max_depth": 400},
+        "trace": {"rays": 2000, "flux_floor": 1e-13, "max_generations": 400},
     }
 
 
