@@ -39,8 +39,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="processes to trace on (default 1); the result does not depend on it")
     t.add_argument("--json", metavar="FILE", help="write the summary (ledger, efficiencies, stats) as JSON")
     t.add_argument("--csv", metavar="FILE", help="write the ray table (one row per segment) as CSV")
-    t.add_argument("--record", metavar="first:N|all|none", type=parse_record, default=None,
-                   help="which source rays the ray table holds (default with --csv: first:1000)")
+    t.add_argument("--record", metavar="spread:N|first:N|all|none", type=parse_record, default=None,
+                   help="which source rays the ray table holds: N spread evenly over the source, the "
+                        "first N, all or none (default with --csv: spread:1000)")
     t.add_argument("--detectors-csv", metavar="FILE", dest="detectors_csv",
                    help="write each detector's irradiance and angular profiles as CSV")
     t.add_argument("--routes", metavar="N", type=whole(0), nargs="?", const=10, default=None,
@@ -81,14 +82,15 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def parse_record(text: str) -> tuple[str, int]:
-    """--record value: none, all, or first:N."""
+    """--record value: none, all, spread:N or first:N."""
     text = text.strip()
     if text in ("none", "all"):
         return text, 0
     kind, _, count = text.partition(":")
-    if kind == "first" and count.isdigit() and int(count) > 0:
-        return "first", int(count)
-    raise argparse.ArgumentTypeError(f"found {text!r}; expected none, all, or first:N with N a whole number > 0")
+    if kind in ("spread", "first") and count.isdigit() and int(count) > 0:
+        return kind, int(count)
+    raise argparse.ArgumentTypeError(f"found {text!r}; expected none, all, spread:N or first:N with N a "
+                                     "whole number > 0")
 
 
 def whole(minimum: int):
@@ -212,7 +214,7 @@ def cmd_trace(args) -> int:
     from .scene_io import load_scene
     scene = load_scene(args.scene)
     print_notes(scene)
-    record = args.record or (("first", 1000) if args.csv else ("none", 0))
+    record = args.record or (("spread", 1000) if args.csv else ("none", 0))
     progress = Progress(enabled=not args.quiet)
     try:
         result = trace(scene, record=record[0], record_count=record[1], progress=progress.trace,
@@ -250,9 +252,10 @@ def cmd_trace(args) -> int:
         table = ray_table(result)
         if table is None or not write_output(args.csv, table.to_csv()):
             return EXIT_OUTPUT
-        if not args.quiet and record[0] == "first" and record[1] < result.stats["source_rays"]:
-            print(f"note: the ray table holds the first {record[1]:,} of {result.stats['source_rays']:,} "
-                  f"source rays ({len(table):,} segments); use --record all for every ray", file=sys.stderr)
+        if not args.quiet:
+            note = record_note(record, result.stats["source_rays"], len(table))
+            if note:
+                print(f"note: {note}", file=sys.stderr)
     if args.detectors_csv:
         from .detectors import detector_reports, profiles_csv
         if not write_output(args.detectors_csv, profiles_csv(detector_reports(result))):
@@ -269,6 +272,21 @@ def option_flags() -> dict[str, str]:
         if a.option_strings:
             flags.setdefault(a.dest, a.option_strings[0])
     return flags
+
+
+def record_note(record: tuple[str, int], total: int, segments: int) -> str:
+    """Which source rays a partial ray table holds ("" when it holds them all)."""
+    kind, count = record
+    if kind not in ("first", "spread") or count >= total:
+        return ""
+    if kind == "first":
+        return (f"the ray table holds the first {count:,} of {total:,} source rays ({segments:,} segments); "
+                "with even sampling that is one end of each source; --record spread:N spreads them")
+    from .tracer import spread_rays
+    ids = spread_rays(count, total)
+    shown = ", ".join(f"{i:,}" for i in ids[:3].tolist()) + (f", ..., {int(ids[-1]):,}" if count > 3 else "")
+    return (f"the ray table holds {count:,} of {total:,} source rays, spread evenly (one in every "
+            f"{total / count:.4g}: source rays {shown}; {segments:,} segments); use --record all for every ray")
 
 
 def cmd_sweep(args) -> int:

@@ -69,15 +69,36 @@ class Limits:
 class Recording:
     """Which source rays get their segments written to the ray table."""
 
-    mode: str = "none"     # "none", "first" (the first `count` source rays) or "all"
-    count: int = 0
+    mode: str = "none"     # "none", "all", "first" (the first `count` source rays) or "spread"
+    count: int = 0         # (`count` source rays spread evenly over all `total` of them)
+    total: int = 0
 
     def wants(self, root: np.ndarray) -> np.ndarray | None:
-        if self.mode == "all":
+        if self.mode == "all" or (self.mode == "spread" and self.count >= self.total):
             return np.ones(len(root), dtype=bool)
         if self.mode == "first":
             return root < self.count
+        if self.mode == "spread":
+            return in_spread(root, self.count, self.total)
         return None
+
+
+def spread_rays(count: int, total: int) -> np.ndarray:
+    """The `count` source rays, of `total`, spread evenly: the middle ray of each of `count`
+    equal runs, so an even fan's recorded rays cover the whole source (not one end of it)."""
+    i = np.arange(min(count, total), dtype=np.int64)
+    return ((2 * i + 1) * total) // (2 * min(count, total))
+
+
+def in_spread(root: np.ndarray, count: int, total: int) -> np.ndarray:
+    """Whether each source ray is one of `spread_rays(count, total)` (without listing them)."""
+    root = np.asarray(root, dtype=np.int64)
+    guess = (root * count) // max(total, 1)
+    out = np.zeros(len(root), dtype=bool)
+    for i in (guess - 1, guess, guess + 1):
+        ok = (i >= 0) & (i < count)
+        out |= ok & (((2 * i + 1) * total) // (2 * count) == root)
+    return out
 
 
 @dataclass
