@@ -35,6 +35,10 @@ def build_parser() -> argparse.ArgumentParser:
     t = sub.add_parser("trace", help="trace a scene and print the energy ledger")
     t.add_argument("scene", metavar="SCENE")
     add_trace_options(t)
+    add_error_options(t)
+    t.add_argument("--set", metavar="NAME=VALUE", action="append", default=[], dest="set",
+                   help="change one number of the scene for this trace, named as for sweep --vary "
+                        "(e.g. guide.width=3.5; repeatable); the file is not changed")
     t.add_argument("--workers", type=whole(1), dest="trace_workers", metavar="N",
                    help="processes to trace on (default 1); the result does not depend on it")
     t.add_argument("--json", metavar="FILE", help="write the summary (ledger, efficiencies, stats) as JSON")
@@ -73,6 +77,7 @@ def build_parser() -> argparse.ArgumentParser:
                    help="add a column with the share of one route, e.g. "
                         "\"return=reflect off roof prism / hypotenuse\" (the steps as trace --routes lists them)")
     add_trace_options(w)
+    add_error_options(w)
 
     sub.add_parser("materials", help="list the material catalog with its sources")
 
@@ -157,6 +162,38 @@ def add_trace_options(t: argparse.ArgumentParser) -> None:
     t.add_argument("--quiet", action="store_true", help="print nothing but errors")
 
 
+def add_error_options(t: argparse.ArgumentParser) -> None:
+    t.add_argument("--target-error", metavar="E", type=target_error, dest="target_error",
+                   help="trace more rays until every figure's standard error (or --target-figure's) is at "
+                        "most E: a share such as 0.001, or points of %% such as 0.1%%")
+    t.add_argument("--target-figure", metavar="NAME", dest="target_figure",
+                   help="with --target-error: the one figure to judge, a detector's name, DETECTOR.accepted "
+                        "or a ledger bucket label such as \"escaped via guide / input\"")
+    t.add_argument("--ray-cap", metavar="N", type=whole(1), dest="ray_cap",
+                   help="with --target-error: trace at most N rays (default 2,000,000)")
+
+
+def target_error(text: str) -> float:
+    """argparse type: a share (0.001) or points of % (0.1%), more than 0 and less than 1/2."""
+    points = text.strip().endswith("%")
+    try:
+        value = float(text.strip().rstrip("%")) / (100.0 if points else 1.0)
+    except ValueError:
+        value = float("nan")
+    if not 0.0 < value < 0.5:
+        raise argparse.ArgumentTypeError(f"found {text!r}; expected a standard error above 0 and below 0.5, as a "
+                                         "share (0.001) or in points of % (0.1%)")
+    return value
+
+
+def error_kwargs(args) -> dict:
+    """--target-error, --target-figure, --ray-cap as keywords (empty without --target-error)."""
+    if getattr(args, "target_error", None) is None:
+        return {}
+    return {k: getattr(args, k) for k in ("target_error", "target_figure", "ray_cap")
+            if getattr(args, k, None) is not None}
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = build_parser()
     try:
@@ -212,14 +249,32 @@ def cmd_trace(args) -> int:
     from .api import trace
     from .report import Progress, detectors_text, summary_text
     from .scene_io import load_scene
+    from .sweep import SweepError
     scene = load_scene(args.scene)
     print_notes(scene)
+    if args.set:
+        scene = scene_with_settings(scene, args)
+        if scene is None:
+            return EXIT_USAGE
     record = args.record or (("spread", 1000) if args.csv else ("none", 0))
     progress = Progress(enabled=not args.quiet)
+    errors = error_kwargs(args)
     try:
-        result = trace(scene, record=record[0], record_count=record[1], progress=progress.trace,
+        options = dict(record=record[0], record_count=record[1], progress=progress.trace,
                        track_paths=args.routes is not None, workers=getattr(args, "trace_workers", None) or 1,
                        route_flux_floor=args.route_flux_floor, **trace_kwargs(args))
+        if errors:
+            from .converge import DEFAULT_RAY_CAP, trace_to_error
+            result = trace_to_error(scene, errors["target_error"], errors.get("target_figure"),
+                                    errors.get("ray_cap") or DEFAULT_RAY_CAP, **options)
+            if not args.quiet:
+                print(f"note: {target_note(result.settings['target_error'])}", file=sys.stderr)
+        else:
+            result = trace(scene, **options)
+    except SweepError as exc:      # a --target-figure that names nothing
+        for p in exc.problems:
+            print(f"error: {p}", file=sys.stderr)
+        return EXIT_USAGE
     except SceneError as exc:      # found while tracing (a wavelength no material can take)
         raise SceneError([replace(p, file=p.file or args.scene) for p in exc.problems]) from None
     finally:
@@ -274,6 +329,35 @@ def option_flags() -> dict[str, str]:
     return flags
 
 
+def scene_with_settings(scene, args):
+    """The scene with each --set NAME=VALUE applied, or None after printing why not."""
+    from .errors import Problems
+    from .scene_io import scene_from_dict, scene_to_dict
+    from .sweep import SweepError, apply_settings, parse_set
+    try:
+        pairs = [parse_set(text) for text in args.set]
+        data = apply_settings(scene_to_dict(scene), pairs, args.scene, trace_kwargs(args), option_flags())
+    except SweepError as exc:
+        for p in exc.problems:
+            print(f"error: {p}", file=sys.stderr)
+        return None
+    try:
+        return scene_from_dict(data, Problems(file=args.scene))
+    except SceneError as exc:     # the value makes the scene invalid (a part pushed into another)
+        changed = ", ".join(args.set)
+        raise SceneError([replace(p, expected=f"{p.expected} (after --set {changed})") for p in exc.problems]) from None
+
+
+def target_note(t: dict) -> str:
+    """How many rays a --target-error trace took, round by round."""
+    rounds = " -> ".join(f"{r['rays']:,}" for r in t["rounds"])
+    last = t["rounds"][-1]
+    err = "unknown" if last["largest_error"] is None else f"{100 * last['largest_error']:.3g}"
+    verdict = "reached" if t["reached"] else "NOT reached"
+    return (f"target error {100 * t['target']:.3g} points of % {verdict}: traced {rounds} rays; "
+            f"largest error {err} points ({last['figure']})")
+
+
 def record_note(record: tuple[str, int], total: int, segments: int) -> str:
     """Which source rays a partial ray table holds ("" when it holds them all)."""
     kind, count = record
@@ -322,7 +406,8 @@ def cmd_sweep(args) -> int:
             executor = client.get_executor()
         progress = Progress(enabled=not args.quiet)
         try:
-            result = sweep(scene_to_dict(scene), variables, trace_kwargs(args), executor=executor,
+            result = sweep(scene_to_dict(scene), variables, {**trace_kwargs(args), **error_kwargs(args)},
+                           executor=executor,
                            workers=args.workers, progress=progress.points, file=args.scene,
                            figures=figures, option_names=option_flags())
         finally:

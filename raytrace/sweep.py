@@ -140,10 +140,11 @@ def parse_vary(text: str, where: str = "--vary") -> Variable:
     return Variable(name, values)
 
 
-def resolve(data: dict, name: str, file: str = "") -> Target:
-    """Find where `name` lands in the scene dict `data`; SweepError if it addresses nothing."""
+def resolve(data: dict, name: str, file: str = "", how: str = "--vary") -> Target:
+    """Find where `name` lands in the scene dict `data`; SweepError if it addresses nothing.
+    `how` is the option the name came from, for the messages (--vary or --set)."""
     problems = Problems(file=file)
-    label = f"--vary {name}"
+    label = f"{how} {name}"
 
     def fail(found, expected):
         problems.add(label, found, expected)
@@ -325,7 +326,8 @@ def sweep(scene, variables: list[Variable], trace_options: dict | None = None,
             if bad:
                 raise SweepError([_problem(f"--vary {v.name}", bad[0], "whole numbers (this field counts things)")])
     points = _grid(variables, targets)
-    options = {k: v for k, v in (trace_options or {}).items() if k in TRACE_OPTIONS and v is not None}
+    options = {k: v for k, v in (trace_options or {}).items()
+               if k in TRACE_OPTIONS + ("target_error", "target_figure", "ray_cap") and v is not None}
     refuse_overrides(targets, options, option_names, "--vary")
     figures = list(figures or [])
     tasks = [(data, [(t.paths, val) for t, val in zip(targets, vals)], options, figures) for vals in points]
@@ -365,8 +367,8 @@ def refuse_overrides(targets: list[Target], options: dict, option_names: dict[st
             if len(path) == 2 and path[0] == "trace" and path[1] in options:
                 flag = (option_names or {}).get(path[1], path[1])
                 problems.add(flag, f"{flag} together with {how} {t.name}",
-                             f"one or the other: {flag} would set {t.name} to {options[path[1]]!r} "
-                             f"at every point")
+                             f"one or the other: {flag} would set {t.name} to {options[path[1]]!r}"
+                             + (" at every point" if how == "--vary" else ", overriding " + how))
     if problems.items:
         raise SweepError(problems.items)
 
@@ -391,14 +393,18 @@ def run_point(data: dict, settings: list[tuple[tuple, Any]], options: dict, figu
     Runs in a worker: everything it needs comes in its arguments."""
     from .api import trace
     from .scene_io import scene_from_dict
-    data = json.loads(json.dumps(data))
-    for paths, value in settings:
-        for path in paths:
-            _set(data, path, {"wavelength_nm": value} if path[-1] == "spectrum" else value)
+    data = _applied(data, settings)
+    options = dict(options)
+    target = {k: options.pop(k) for k in ("target_error", "target_figure", "ray_cap") if k in options}
     try:
         scene = scene_from_dict(data)
         routes = any(f.kind == "route" for f in figures or [])     # route shares need path tallies
-        result = trace(scene, track_paths=routes, **options)
+        if target.get("target_error"):
+            from .converge import DEFAULT_RAY_CAP, trace_to_error
+            result = trace_to_error(scene, target["target_error"], target.get("target_figure"),
+                                    target.get("ray_cap") or DEFAULT_RAY_CAP, track_paths=routes, **options)
+        else:
+            result = trace(scene, track_paths=routes, **options)
     except SceneError as exc:
         return {"status": "invalid: " + "; ".join(str(p) for p in exc.problems)}
     except RaytraceError as exc:
@@ -415,6 +421,40 @@ def run_point(data: dict, settings: list[tuple[tuple, Any]], options: dict, figu
                    for b in result.ledger.buckets if b.kind != "detector"},
         "share_errors": {b.label: result.share_error(b.label) for b in result.ledger.buckets if b.kind != "detector"},
     }
+
+
+def _applied(data: dict, settings: list[tuple[tuple, Any]]) -> dict:
+    """A copy of the scene dict with each (key paths, value) set (a wavelength replaces the spectrum)."""
+    data = json.loads(json.dumps(data))
+    for paths, value in settings:
+        for path in paths:
+            _set(data, path, {"wavelength_nm": value} if path[-1] == "spectrum" else value)
+    return data
+
+
+def parse_set(text: str) -> tuple[str, float]:
+    """--set NAME=VALUE -> (name, value): one finite number, named as for --vary."""
+    name, sep, value = text.rpartition("=")
+    try:
+        number = float(value)
+        if not sep or not name.strip() or not math.isfinite(number):
+            raise ValueError
+    except ValueError:
+        raise SweepError([_problem("--set", text, "NAME=VALUE with one finite number, named as for --vary "
+                                                  "(e.g. guide.width=3.5 or trace.rays=5000)")]) from None
+    return name.strip(), number
+
+
+def apply_settings(data: dict, pairs: list[tuple[str, float]], file: str = "", options: dict | None = None,
+                   option_names: dict[str, str] | None = None) -> dict:
+    """The scene dict with each named number set (`raytrace trace --set`); SweepError for a name
+    that addresses nothing, a fraction in a whole-number field, or a trace option also given."""
+    targets = [resolve(data, name, file, how="--set") for name, _ in pairs]
+    for (name, value), t in zip(pairs, targets):
+        if t.whole and value != round(value):
+            raise SweepError([_problem(f"--set {name}", value, "a whole number (this field counts things)")])
+    refuse_overrides(targets, {k: v for k, v in (options or {}).items() if v is not None}, option_names, "--set")
+    return _applied(data, [(t.paths, int(round(v)) if t.whole else v) for t, (_, v) in zip(targets, pairs)])
 
 
 def _table(variables, points, results, detectors, figure_columns=()) -> SweepResult:
