@@ -718,3 +718,17 @@ def test_recent_files_menu_reopens(qtbot, win):
     assert [a.text() for a in actions[:2]] == [str(LIGHT_PIPE.resolve()), str(WINDOW.resolve())]
     actions[1].trigger()
     assert win.doc.path == WINDOW.resolve() and win.doc.scene == load_scene(WINDOW)
+
+
+def test_ledger_panel_shows_each_shares_standard_error(qtbot, win):
+    """The ledger panel's error column shows the engine's standard error of each share, in points
+    of % (the GUI adds no statistics of its own), and the summary says what it means."""
+    result = open_sample(qtbot, win, LIGHT_PIPE)
+    tree = win.ledger.tree
+    assert tree.headerItem().text(3) == "\u00b1 error"
+    shown = {tree.topLevelItem(i).toolTip(0): tree.topLevelItem(i).text(3) for i in range(tree.topLevelItemCount())
+             if tree.topLevelItem(i).toolTip(0)}
+    for b in result.ledger.buckets:
+        assert shown[b.label] == f"{100 * result.share_error(b.label):.2f}"
+    assert "\u00b1 " in win.ledger.summary.text()
+    assert "sampling error" in win.ledger.summary.toolTip()
