@@ -30,7 +30,7 @@ v1,v2,...  With two names the points form a grid, the first name varying slowest
 The table (one row per point, in point order whatever order the points finish in):
     point, <each name>, status ("ok", or the problem that stopped this point), warnings (what
     `raytrace trace` would have warned about at that point, joined by " | "; empty when none),
-    source_flux,
+    rays (source rays traced; with a target error, those of the last round), source_flux,
     "efficiency: <detector>" for every detector (flux reaching it / source flux) and
     "efficiency error: <detector>" (its standard error, see raytrace.uncertainty),
     each figure asked for with `figures` (see raytrace.figures), then
@@ -413,6 +413,7 @@ def run_point(data: dict, settings: list[tuple[tuple, Any]], options: dict, figu
     return {
         "status": "ok",
         "warnings": list(result.warnings),
+        "rays": int(result.stats["source_rays"]),
         "source_flux": result.source_flux,
         "efficiency": {d.name: result.efficiency(d.name) for d in result.compiled.detectors},
         "efficiency_error": {d.name: result.efficiency_error(d.name) for d in result.compiled.detectors},
@@ -467,7 +468,7 @@ def _table(variables, points, results, detectors, figure_columns=()) -> SweepRes
     # order loss columns by their largest share over the sweep: the big losses come first
     peak = {lab: max((r or {}).get("shares", {}).get(lab, 0.0) for r in results) for lab in labels}
     labels.sort(key=lambda lab: -peak[lab])
-    columns = (["point"] + names + ["status", "warnings", "source_flux"]
+    columns = (["point"] + names + ["status", "warnings", "rays", "source_flux"]
                + [c for d in detectors for c in (f"efficiency: {d}", f"efficiency error: {d}")]
                + list(figure_columns)
                + [c for lab in labels for c in (f"share: {lab}", f"share error: {lab}")])
@@ -476,6 +477,7 @@ def _table(variables, points, results, detectors, figure_columns=()) -> SweepRes
         row: dict[str, Any] = {"point": i, **dict(zip(names, vals)), "status": r["status"],
                                "warnings": " | ".join(r.get("warnings", []))}
         if r["status"] == "ok":
+            row["rays"] = r["rays"]
             row["source_flux"] = r["source_flux"]
             for d in detectors:
                 row[f"efficiency: {d}"] = r["efficiency"].get(d, 0.0)
