@@ -498,11 +498,10 @@ def _detector(value: Any, where: str, problems: Problems) -> Detector | None:
 
 def _acceptance(value: Any, where: str, problems: Problems) -> Acceptance | None:
     """{"half_angle_deg": a, "direction_deg": d} or {"half_angle_deg": a, "back_to_source": NAME}."""
-    d = F.obj(value, where, problems)
+    before = len(problems.errors)
+    d = F.object_with_keys(value, ACCEPTANCE_KEYS, where, problems)
     if d is None:
         return None
-    F.check_keys(d, ACCEPTANCE_KEYS, where, problems)
-    before = len(problems.errors)
     half = F.number(d, "half_angle_deg", where, problems, minimum=0.0, exclusive=True, maximum=180.0,
                     what="an angle in degrees")
     if ("direction_deg" in d) == ("back_to_source" in d):

@@ -12,29 +12,20 @@ import numpy as np
 import pytest
 
 from raytrace import trace
-from raytrace.catalog import lookup
 from raytrace.scene_io import scene_from_dict
 from raytrace.uncertainty import SUB_BATCHES, ratio_error, sub_batch
+from test_sweep import plate_dict
 
 ANGLE_DEG = 75.0
 
 
 def plate(absorbing_through: bool = True) -> dict:
-    """A 1 mm fused-silica plate in vacuum, an s-polarised 633 nm beam at 75 degrees (R about 0.4
-    per face, so the shares are far from 0 and 1), a detector behind and one in front."""
-    return {
-        "format": "raytrace2d-scene", "version": 1, "units": {"length": "mm", "wavelength": "nm"},
-        "ambient": "vacuum",
-        "parts": [{"name": "plate", "material": "fused silica",
-                   "shape": {"kind": "window", "params": {"thickness": 1.0, "height": 400.0},
-                             "position": [0.0, 0.0], "rotation_deg": 0.0}}],
-        "sources": [{"name": "probe", "kind": "beam", "position": [-2.0, 0.0], "direction_deg": ANGLE_DEG,
-                     "width": 0.5, "flux": 1.0, "spectrum": {"wavelength_nm": 632.8}, "polarization": "s"}],
-        "detectors": [{"name": "through", "start": [5.0, -200.0], "end": [5.0, 200.0],
-                       "absorbing": absorbing_through},
-                      {"name": "back", "start": [-3.0, 200.0], "end": [-3.0, -200.0]}],
-        "trace": {"rays": 2000, "flux_floor": 1e-13, "max_generations": 400},
-    }
+    """test_sweep's 1 mm fused-silica plate in vacuum with an s-polarised beam at 75 degrees (R
+    about 0.4 per face, so the shares are far from 0 and 1), a detector behind and one in front."""
+    data = plate_dict("s")
+    data["sources"][0]["direction_deg"] = ANGLE_DEG
+    data["detectors"][0]["absorbing"] = absorbing_through
+    return data
 
 
 def test_monte_carlo_share_error_is_the_binomial_standard_error():
