@@ -370,8 +370,9 @@ def test_gui_trace_equals_cli(qtbot, win, tmp_path, sample):
     out = tmp_path / "summary.json"
     assert cli.main(["trace", str(path), "--json", str(out), "--quiet"]) == 0
     summary = json.loads(out.read_text())
-    assert [b.to_dict() for b in result.ledger.buckets] == summary["buckets"]
+    assert result.to_summary_dict()["buckets"] == summary["buckets"]      # fluxes, shares and their errors
     assert {d.name: result.efficiency(d.name) for d in result.compiled.detectors} == summary["efficiency"]
+    assert result.to_summary_dict()["efficiency_error"] == summary["efficiency_error"]
     assert result.stats["segments"] == summary["stats"]["segments"]
 
 
