@@ -21,6 +21,7 @@ import sys
 from pathlib import Path
 
 from .errors import BudgetExceeded, RaytraceError, SceneError
+from .figures import DETECTOR_FIGURES
 
 EXIT_OK, EXIT_SCENE, EXIT_USAGE, EXIT_LIMIT, EXIT_OUTPUT, EXIT_SWEEP_POINTS = 0, 1, 2, 3, 4, 5
 
@@ -72,7 +73,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="run the points on the Dask scheduler at ADDRESS (needs the dask extra)")
     w.add_argument("--figure", metavar="DETECTOR.FIELD", action="append", default=[],
                    help="add a column with a detector figure, e.g. \"return.accepted\" or "
-                        "\"viewer side.centroid_mm\" (repeatable; see docs/python-api.md for the fields)")
+                        "\"viewer side.centroid_mm\" (repeatable); FIELD is one of "
+                        + ", ".join(DETECTOR_FIGURES))
     w.add_argument("--route", metavar="BUCKET=STEPS", action="append", default=[],
                    help="add a column with the share of one route, e.g. "
                         "\"return=reflect off roof prism / hypotenuse\" (the steps as trace --routes lists them)")
