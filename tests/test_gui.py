@@ -431,6 +431,11 @@ def test_sweep_dialog_runs_plots_and_cancels(qtbot, win, tmp_path):
     assert [r["probe beam.direction_deg"] for r in dlg.result.rows] == [30.0, 40.0, 50.0]
     assert dlg.bar.value() == 3
     assert len(dlg.plot.listDataItems()) == len(win.doc.scene.detectors)
+    import pyqtgraph as pg
+    bars = [i for i in dlg.plot.getPlotItem().items if isinstance(i, pg.ErrorBarItem)]
+    assert len(bars) == len(win.doc.scene.detectors)        # one +-1 standard error bar set each
+    first = dlg.result.detectors[0]
+    assert list(bars[0].opts["height"]) == [200 * r[f"efficiency error: {first}"] for r in dlg.result.rows]
     import pandas
     table = tmp_path / "sweep.csv"
     assert dlg.save_table(str(table))
