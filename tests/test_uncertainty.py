@@ -92,3 +92,14 @@ def test_even_fan_sampling_error_covers_the_change_to_many_rays():
     for b in coarse.ledger.buckets:
         if b.flux / coarse.source_flux > 0.01:
             assert abs(coarse.share(b.label) - fine.share(b.label)) <= 2 * coarse.share_error(b.label), b.label
+
+
+def test_errors_do_not_depend_on_chunks_or_workers():
+    """Sub-batches go by a ray's number over the whole trace, so splitting the trace into chunks
+    or spreading it over processes leaves every error as it was (branching: the same rays)."""
+    scene = scene_from_dict(plate())
+    whole = trace(scene, rays=3000)
+    parts = trace(scene, rays=3000, chunk_size=400, workers=2)
+    for b in whole.ledger.buckets:
+        assert parts.share_error(b.label) == pytest.approx(whole.share_error(b.label), rel=1e-9, abs=1e-15)
+    assert parts.efficiency_error("through") == pytest.approx(whole.efficiency_error("through"), rel=1e-9)
