@@ -356,8 +356,10 @@ def target_note(t: dict) -> str:
     last = t["rounds"][-1]
     err = "unknown" if last["largest_error"] is None else f"{100 * last['largest_error']:.3g}"
     verdict = "reached" if t["reached"] else "NOT reached"
+    moved = "" if last.get("largest_change") is None else \
+        f", largest change from the round before {100 * last['largest_change']:.3g} points"
     return (f"target error {100 * t['target']:.3g} points of % {verdict}: traced {rounds} rays; "
-            f"largest error {err} points ({last['figure']})")
+            f"largest error {err} points ({last['figure']}){moved}")
 
 
 def record_note(record: tuple[str, int], total: int, segments: int) -> str:
