@@ -66,7 +66,7 @@ class LedgerPanel(QWidget):
                         f"{_points(result.efficiency_error(d.name))}" for d in result.compiled.detectors)
         self.summary.setText(
             f"<b>Efficiency</b> {eff or '(no detector)'}<br>"
-            f"{st['source_rays']:,} source rays, {st['segments']:,} segments, {st['elapsed_s'] * 1000:.0f} ms; "
+            f"{st['source_rays']:,} source rays, {st['segments']:,} segments; "
             f"ledger closes to {L.total - L.source_flux:.1e}")
         self.summary.setToolTip("\u00b1: " + result.error_meaning + ".  Trace more rays to shrink it.")
 
