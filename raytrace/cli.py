@@ -190,8 +190,15 @@ def target_error(text: str) -> float:
 
 
 def error_kwargs(args) -> dict:
-    """--target-error, --target-figure, --ray-cap as keywords (empty without --target-error)."""
+    """--target-error, --target-figure, --ray-cap as keywords (empty without --target-error);
+    SweepError when the other two come without it (they would do nothing)."""
     if getattr(args, "target_error", None) is None:
+        alone = [flag for flag, key in (("--target-figure", "target_figure"), ("--ray-cap", "ray_cap"))
+                 if getattr(args, key, None) is not None]
+        if alone:
+            from .sweep import SweepError, _problem
+            raise SweepError([_problem(alone[0], f"{alone[0]} without --target-error",
+                                       "--target-error E as well (it sets the error to reach)")])
         return {}
     return {k: getattr(args, k) for k in ("target_error", "target_figure", "ray_cap")
             if getattr(args, k, None) is not None}
@@ -261,8 +268,8 @@ def cmd_trace(args) -> int:
             return EXIT_USAGE
     record = args.record or (("spread", 1000) if args.csv else ("none", 0))
     progress = Progress(enabled=not args.quiet)
-    errors = error_kwargs(args)
     try:
+        errors = error_kwargs(args)
         options = dict(record=record[0], record_count=record[1], progress=progress.trace,
                        track_paths=args.routes is not None, workers=getattr(args, "trace_workers", None) or 1,
                        route_flux_floor=args.route_flux_floor, **trace_kwargs(args))
@@ -274,7 +281,7 @@ def cmd_trace(args) -> int:
                 print(f"note: {target_note(result.settings['target_error'])}", file=sys.stderr)
         else:
             result = trace(scene, **options)
-    except SweepError as exc:      # a --target-figure that names nothing
+    except SweepError as exc:      # a --target-figure that names nothing, or one without --target-error
         for p in exc.problems:
             print(f"error: {p}", file=sys.stderr)
         return EXIT_USAGE

@@ -60,13 +60,18 @@ def test_target_error_traces_until_the_monte_carlo_error_is_reached():
     assert result.warnings == []
 
 
-def test_target_error_stops_at_the_ray_cap_and_says_so(capsys):
+def test_target_error_stops_at_the_ray_cap_and_says_so(capsys, tmp_path):
     assert main(["trace", WINDOW, "--mode", "monte_carlo", "--target-error", "0.01%", "--ray-cap", "5000"]) == 0
     err = capsys.readouterr().err
     assert "NOT reached" in err and "raise --ray-cap" in err
     assert main(["trace", WINDOW, "--target-error", "0.1%", "--target-figure", "nowhere", "--quiet"]) == 2
     assert "'inside chamber'" in capsys.readouterr().err
     assert main(["trace", WINDOW, "--target-error", "2"]) == 2
+    for alone in (["--ray-cap", "1000"], ["--target-figure", "inside chamber"]):
+        assert main(["trace", WINDOW, *alone]) == 2
+        assert "--target-error E as well" in capsys.readouterr().err
+        assert main(["sweep", WINDOW, "--vary", "probe beam.direction_deg=0,45", *alone, "--csv", str(tmp_path / "x.csv")]) == 2
+        assert "--target-error E as well" in capsys.readouterr().err
 
 
 def test_sweep_with_target_error_reaches_it_at_every_point(tmp_path):
