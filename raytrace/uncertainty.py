@@ -24,7 +24,7 @@ What the figure means depends on how the rays were chosen:
   share depends on where the rays of the fan happen to fall.  It does not see an error that
   every sub-fan shares: an even emitter lays its rays on a grid of about sqrt(n) positions by
   sqrt(n) angles, and every sub-fan samples that grid (the light pipe sample at 2,000 rays is
-  2.5 points off at a 4 mm bend with an error of +-0.64).  Compare two ray counts, or use
+  1.4 points off at a 9 mm bend with an error of +-0.49).  Compare two ray counts, or use
   `converge.trace_to_error`, which also waits for the figures to stop moving.
 """
 from __future__ import annotations

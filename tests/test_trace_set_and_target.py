@@ -86,8 +86,8 @@ def test_sweep_with_target_error_reaches_it_at_every_point(tmp_path):
 
 def test_target_error_of_an_even_fan_also_waits_for_the_figures_to_settle():
     """An even emitter fan's sub-batch error cannot see the error every sub-fan shares (its grid of
-    about sqrt(n) x sqrt(n) positions and angles): at a 4 mm bend the light pipe's 300-ray error
-    says +-3.8 points while the fan is further off.  A deterministic trace therefore stops only when
+    about sqrt(n) x sqrt(n) positions and angles), so a coarse fan can be further off than its error
+    says (README: the light pipe at 2,000 rays and a 9 mm bend).  A deterministic trace therefore stops only when
     the figures also moved by at most the target since the round before; the figure it stops at
     must be within twice the target of a trace with 8x its rays (common practice: a converged
     quadrature agrees with a finer one)."""

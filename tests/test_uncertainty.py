@@ -83,7 +83,7 @@ def test_even_fan_sampling_error_covers_the_change_to_many_rays():
     """Branching with an even fan is deterministic; its error is a sampling error.  Common practice
     for such an estimate: the figure at n rays should lie within about 2 of its errors of the
     figure at 20 n rays.  Light pipe sample as it is (8 mm bend), 1000 vs 20000 rays, every bucket
-    above 1 %.  (It cannot see an error all sub-fans share, as at a 4 mm bend: the target-error
+    above 1 %.  (It cannot see an error all sub-fans share, as at a 9 mm bend: the target-error
     tests in test_trace_set_and_target.py check what covers that.)"""
     from pathlib import Path
     from raytrace.scene_io import load_scene
