@@ -52,7 +52,23 @@ def parse_route(text: str, detectors: list[str], where: str = "--route") -> Figu
         _fail(where, text, "BUCKET=STEPS, e.g. \"return=reflect off roof prism / hypotenuse\" "
                            "(the steps as `raytrace trace --routes` lists them)")
     label = f"detector {bucket}" if bucket in detectors else bucket
+    if not _is_bucket_label(label, detectors):
+        # A misspelt bucket would match no route and give a silent column of zeros.
+        _fail(where, text, "BUCKET=STEPS with BUCKET a detector's name ("
+              + ", ".join(repr(d) for d in detectors) + ") or a ledger bucket label as `raytrace "
+              "trace` prints it: \"escaped via PART / FACE\", \"escaped without meeting anything\", "
+              "\"absorbed at PART / FACE\", \"absorbed in bulk of PART\" or \"truncated: REASON\"")
     return Figure(f"route: {bucket}: {steps}", "route", label, steps)
+
+
+def _is_bucket_label(label: str, detectors: list[str]) -> bool:
+    """Whether LABEL has the form of a ledger bucket label (see ledger.Bucket.label)."""
+    if label.startswith("detector "):
+        return label[len("detector "):] in detectors
+    if label == "escaped without meeting anything":
+        return True
+    return any(label.startswith(prefix) and len(label) > len(prefix)
+               for prefix in ("escaped via ", "absorbed at ", "absorbed in bulk of ", "truncated: "))
 
 
 def figure_values(result, figures: list[Figure]) -> dict[str, float | None]:

@@ -85,6 +85,17 @@ def test_bad_figure_names_say_what_was_expected(tmp_path, capsys, bad, words):
     assert words in capsys.readouterr().err
 
 
+@pytest.mark.parametrize("bucket", ["retrun", "detector nowhere", "escaped via "])
+def test_route_with_a_misspelt_bucket_is_refused_not_a_column_of_zeros(tmp_path, capsys, bucket):
+    out = tmp_path / "x.csv"
+    code = main(["sweep", str(SAMPLES / "roof-prism-retroreflector.json"), "--vary",
+                 "emitter beam.direction_deg=85,90", "--route", f"{bucket}=reflect off roof prism / hypotenuse",
+                 "--csv", str(out)])
+    assert code == 2 and not out.exists()
+    err = capsys.readouterr().err
+    assert "--route" in err and "'return'" in err and "escaped via PART / FACE" in err
+
+
 def _free_beam(direction_deg: float, acceptance: dict) -> dict:
     """A beam in air travelling at `direction_deg`, wholly caught by a long detector across it."""
     import math
