@@ -194,6 +194,7 @@ class _Resolver:
         self.memo: dict[tuple, Any] = {}
         self.stack: list[tuple] = []
         self.numbers: dict[str, Any] = {}
+        self.refused: set[str] = set()   # named numbers whose value was refused (already reported)
         self.parts = [p for p in data.get("parts", []) if isinstance(p, dict)] \
             if isinstance(data.get("parts"), list) else []
         self.leaves = set(_expression_leaves(data))
@@ -292,6 +293,9 @@ class _Resolver:
         if ref.index is None and not ref.attrs:
             if ref.base in self.numbers:
                 return self.value(("number", ref.base))
+            if ref.base in self.refused:
+                raise ExpressionError(f"{ref} is a named number whose own value is refused: expected "
+                                      f"a valid value at {json_path(('numbers', ref.base))} (see there)")
             if self._part_index(ref.base) is not None:
                 raise ExpressionError(f"{ref} is a part: expected one of its values, e.g. {ref}.x")
             known = ", ".join(self.numbers) or "none in this file"
@@ -467,6 +471,7 @@ def resolve(data: dict, problems: Problems) -> tuple[dict, Linker | None]:
             elif isinstance(value, str) or F.is_number(value):
                 r.numbers[name] = value
             else:
+                r.refused.add(name)
                 problems.add(where, f"<{F.type_name(value)}>",
                              "a number or an expression such as \"2 * radius\"")
         for name in r.numbers:

@@ -159,6 +159,17 @@ def test_a_cycle_is_reported_once_with_its_chain():
     assert "a -> b -> a" in got["$.numbers.a"]
 
 
+@pytest.mark.parametrize("bad", [True, None, [8]])
+def test_a_field_linked_to_a_refused_named_number_points_back_to_it(bad):
+    d = base_scene({"bend_radius": bad})
+    got = problems_of(d)
+    assert "expected a number or an expression" in got["$.numbers.bend_radius"]
+    linked = got["$.parts[0].shape.params.segments[1].bend.radius"]
+    assert "unknown name" not in linked     # it is known, only its value is bad
+    assert "bend_radius is a named number whose own value is refused" in linked
+    assert "$.numbers.bend_radius" in linked
+
+
 def test_a_cycle_through_part_values_names_the_fields():
     d = base_scene()
     d["parts"][0]["shape"]["params"]["width"] = "= 'panel window'.x / 10"
