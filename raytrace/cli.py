@@ -295,9 +295,12 @@ def cmd_trace(args) -> int:
     from .report import Progress, detectors_text, summary_text
     from .scene_io import load_scene
     from .sweep import SweepError
-    if refuse_clashing_outputs({"scene": args.scene}, {"--json": args.json, "--csv": args.csv,
-                                                        "--detectors-csv": args.detectors_csv}):
+    outputs = {"--json": args.json, "--csv": args.csv, "--detectors-csv": args.detectors_csv}
+    if refuse_clashing_outputs({"scene": args.scene}, outputs) or refuse_two_on_stdout(outputs):
         return EXIT_USAGE
+    # With an output on standard output the printed report goes to stderr, so that what is
+    # piped on stays valid JSON or CSV.
+    report = sys.stderr if "-" in outputs.values() else sys.stdout
     scene = load_scene(args.scene)
     print_notes(scene)
     if args.set:
@@ -330,12 +333,12 @@ def cmd_trace(args) -> int:
     for w in result.warnings:
         print(f"warning: {w}", file=sys.stderr)
     if not args.quiet:
-        print(summary_text(result, title=scene.name or Path(args.scene).stem, story=scene.story))
+        print(summary_text(result, title=scene.name or Path(args.scene).stem, story=scene.story), file=report)
         if scene.detectors:
-            print(detectors_text(result))
+            print(detectors_text(result), file=report)
         if args.routes is not None:
             from .routes import routes_text
-            print(routes_text(result, args.routes))
+            print(routes_text(result, args.routes), file=report)
     if args.json:
         from .detectors import detector_reports
         summary = result.to_summary_dict()
@@ -521,6 +524,15 @@ def refuse_clashing_outputs(inputs: dict, outputs: dict) -> bool:
     for text in clashes:
         print(f"error: {text}", file=sys.stderr)
     return bool(clashes)
+
+
+def refuse_two_on_stdout(outputs: dict) -> bool:
+    """Print an error when more than one output is "-" (they would be mixed); True when so."""
+    flags = [flag for flag, path in outputs.items() if path == "-"]
+    if len(flags) > 1:
+        print(f"error: {' and '.join(flags)}: found '-' (standard output) for {len(flags)} outputs; "
+              "expected at most one of them on standard output (give the others file names)", file=sys.stderr)
+    return len(flags) > 1
 
 
 def write_output(path: str, text: str) -> bool:

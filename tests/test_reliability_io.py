@@ -88,6 +88,23 @@ def test_outputs_to_dev_null_and_stdout_may_be_shared(scene_file, capsys):
     assert json.loads(out)["mode"] == "branching"
 
 
+@pytest.mark.parametrize("flag", ["--json", "--csv"])
+def test_an_output_on_stdout_without_quiet_stays_valid_and_the_report_goes_to_stderr(scene_file, capsys, flag):
+    code, out, err = run(["trace", scene_file, flag, "-", "--routes", "2"], capsys)
+    assert code == cli.EXIT_OK
+    if flag == "--json":
+        assert json.loads(out)["mode"] == "branching"
+    else:
+        assert out.splitlines()[0].startswith("ray_id,parent_id,")
+    assert "Reached detectors:" in err and "Top routes" in err and "Reached detectors:" not in out
+
+
+def test_two_outputs_on_stdout_are_refused(scene_file, capsys):
+    code, out, err = run(["trace", scene_file, "--json", "-", "--csv", "-"], capsys)
+    assert code == cli.EXIT_USAGE and out == ""
+    assert "--json and --csv" in err and "at most one of them on standard output" in err
+
+
 # ----------------------------------------------------------------------------- 3, 4: save targets
 
 @pytest.mark.skipif(not os.path.exists("/dev/null"), reason="needs /dev/null")
