@@ -417,18 +417,19 @@ def refuse_overrides(targets: list[Target], options: dict, option_names: dict[st
         raise SweepError(problems.items)
 
 
-def _refuse_shared_number(targets: list[Target]) -> None:
+def _refuse_shared_number(targets: list[Target], how: str = "--vary") -> None:
     """Two names for one number (guide.width and $.parts[0].shape.params.width, or wavelength
-    and LED.wavelength): the second would silently overwrite the first at every point."""
-    if len(targets) < 2:
-        return
-    a, b = targets
-    for pa in a.paths:
-        for pb in b.paths:
-            n = min(len(pa), len(pb))
-            if pa[:n] == pb[:n]:
-                raise SweepError([_problem(f"--vary {b.name}", f"<the number {a.name} sets too ($.{_render_path(pb)})>",
-                                           "two names for two different numbers")])
+    and LED.wavelength, or one name twice): the later would silently overwrite the earlier."""
+    for i, b in enumerate(targets):
+        for a in targets[:i]:
+            for pa in a.paths:
+                for pb in b.paths:
+                    n = min(len(pa), len(pb))
+                    if pa[:n] == pb[:n]:
+                        found = (f"<{b.name} given twice>" if a.name == b.name else
+                                 f"<the number {a.name} sets too ($.{_render_path(pb)})>")
+                        raise SweepError([_problem(f"{how} {b.name}", found,
+                                                   "two names for two different numbers")])
 
 
 def _problem(path, found, expected):
@@ -514,6 +515,7 @@ def apply_settings(data: dict, pairs: list[tuple[str, float]], file: str = "", o
     for (name, value), t in zip(pairs, targets):
         if t.whole and value != round(value):
             raise SweepError([_problem(f"--set {name}", value, "a whole number (this field counts things)")])
+    _refuse_shared_number(targets, "--set")
     refuse_overrides(targets, {k: v for k, v in (options or {}).items() if v is not None}, option_names, "--set")
     return _applied(data, [(t.paths, int(round(v)) if t.whole else v) for t, (_, v) in zip(targets, pairs)])
 

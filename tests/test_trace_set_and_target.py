@@ -38,6 +38,8 @@ def test_set_changes_the_traced_scene_like_an_edited_file(tmp_path, capsys):
     (["--set", "trace.rays=10.5"], 2, "a whole number"),
     (["--set", "trace.rays=100", "--rays", "300"], 2, "one or the other"),
     (["--set", "gap=-1"], 1, "after --set gap=-1"),           # the window pushed into the guide
+    (["--set", "gap=1", "--set", "gap=2"], 2, "gap given twice"),   # the second silently won
+    (["--set", "wavelength=500", "--set", "LED.wavelength=520"], 2, "two names for two different numbers"),
 ])
 def test_set_refuses_what_it_cannot_do(capsys, args, code, words):
     assert main(["trace", PIPE, *args]) == code
