@@ -19,7 +19,7 @@ from PySide6.QtWidgets import (QGraphicsPathItem, QHBoxLayout, QLabel, QSizePoli
 from raytrace.scene import EMITTER, POINT, Scene
 
 from . import edits, style
-from .raydraw import KINDS, LEVEL_ALPHA, LEVELS, RayDrawing, ray_drawing
+from .raydraw import ESCAPE_REACH, KINDS, LEVEL_ALPHA, LEVELS, RayDrawing, arrow_strokes, ray_drawing
 from .spectral import faded_rgb, spectral_rgb
 from .tools import TOOLS, SELECT
 
@@ -205,14 +205,21 @@ class Canvas(QWidget):
         self._part_paths: list[QPainterPath] = []
         self._edge_polys: list[tuple[int, int, np.ndarray]] = []   # (part, edge, points)
         self._glyph_items: list[QGraphicsPathItem] = []
+        self._problem_items: list[QGraphicsPathItem] = []
+        self.problems = []
         self.colour_by_wavelength = False
         self._ray_items: list[pg.PlotCurveItem] = []    # reused between traces, one per group
         # what each ray item shows: (kind name or wavelength bin in nm, level, pen colour, segments)
         self.ray_groups: list[tuple[object, int, object, int]] = []
-        self._hits = pg.ScatterPlotItem(size=5, pen=None, brush=pg.mkBrush(style.HIT), pxMode=True)
-        self._hits.setZValue(16)
+        # hit marks sit beside the detector line on the side the ray came from, under the line
+        self._hits = pg.ScatterPlotItem(size=style.HIT_PX, pen=None, brush=pg.mkBrush(style.HIT), pxMode=True)
+        self._hits.setZValue(14)
         self._escapes = pg.ScatterPlotItem(pxMode=True, brush=None, pen=_pen(style.ESCAPE_MARK, 2))
         self._escapes.setZValue(11)
+        self.escape_xy: list[tuple[float, float]] = []      # where each escape ring is drawn
+        self._cues = pg.PlotCurveItem(pen=_pen(style.CUE, 1.3), connect="pairs", antialias=False)
+        self._cues.setZValue(10)
+        self.plot.addItem(self._cues)
         self._handles = pg.ScatterPlotItem(size=style.HANDLE_PX, pxMode=True, symbol="s",
                                            pen=pg.mkPen(style.HANDLE_EDGE, width=1.2),
                                            brush=pg.mkBrush(style.HANDLE))
@@ -379,6 +386,9 @@ class Canvas(QWidget):
     def _view_changed(self) -> None:
         self._draw_glyphs()
         self._draw_grid()
+        self._draw_marks()
+        if self.problems:
+            self.set_problems(self.problems)
 
     def _draw_grid(self) -> None:
         """Minor and major lines at the axes' own tick spacings, across the visible range."""
@@ -426,21 +436,32 @@ class Canvas(QWidget):
         self._draw_parts()
         self._draw_glyphs()
 
+    def parts_box(self):
+        """(x0, y0, x1, y1) around the parts, or None without parts."""
+        boxes = [p.outer.bounds() for p in self.scene.parts]
+        if not boxes:
+            return None
+        return (min(b[0] for b in boxes), min(b[1] for b in boxes),
+                max(b[2] for b in boxes), max(b[3] for b in boxes))
+
     def fit(self) -> None:
-        """Frame the scene: parts, sources, detectors and a margin."""
+        """Frame the parts and sources with a margin; detectors only when they are near the parts
+        (a detector far away would shrink a thin film to a sliver)."""
         s = self.scene
         xs, ys = [], []
-        for p in s.parts:
-            x0, y0, x1, y1 = p.outer.bounds()
-            xs += [x0, x1]
-            ys += [y0, y1]
+        box = self.parts_box()
+        if box:
+            xs += [box[0], box[2]]
+            ys += [box[1], box[3]]
         for src in s.sources:
             for q in self.source_span(src):
                 xs.append(q[0])
                 ys.append(q[1])
+        reach = 0.5 * math.hypot(box[2] - box[0], box[3] - box[1]) if box else math.inf
         for d in s.detectors:
-            xs += [d.start[0], d.end[0]]
-            ys += [d.start[1], d.end[1]]
+            if box is None or all(_box_distance(q, box) <= reach for q in (d.start, d.end)):
+                xs += [d.start[0], d.end[0]]
+                ys += [d.start[1], d.end[1]]
         if not xs:
             xs, ys = [-10, 10], [-10, 10]
         w = max(max(xs) - min(xs), max(ys) - min(ys), 1e-3)
@@ -485,6 +506,44 @@ class Canvas(QWidget):
                 handles += part.outer.vertices
         self._vertex_handles = handles
 
+    def set_problems(self, problems) -> None:
+        """Mark geometry problems: the parts concerned get a red dashed outline, the areas where
+        parts overlap a red hatch (see `gui.problems`)."""
+        for it in self._problem_items:
+            self.plot.removeItem(it)
+        self._problem_items = []
+        self.problems = list(problems)
+        concerned = sorted({i for p in self.problems for i in p.parts if i < len(self._part_paths)})
+        for i in concerned:
+            item = QGraphicsPathItem(self._part_paths[i])
+            item.setPen(_pen(style.PROBLEM, 2.0, Qt.DashLine))
+            item.setBrush(QBrush(Qt.NoBrush))
+            item.setZValue(13)
+            self._problem_items.append(item)
+        for p in self.problems:
+            for area in p.areas:
+                path = QPainterPath()
+                path.moveTo(*area[0])
+                for q in area[1:]:
+                    path.lineTo(*q)
+                path.closeSubpath()
+                item = QGraphicsPathItem(path)
+                item.setPen(_pen(style.PROBLEM, 1.5))
+                brush = QBrush(style.PROBLEM, Qt.BDiagPattern)
+                brush.setTransform(self._hatch_transform())
+                item.setBrush(brush)
+                item.setZValue(13)
+                item.setToolTip(p.text)
+                self._problem_items.append(item)
+        for it in self._problem_items:
+            self.plot.addItem(it)
+
+    def _hatch_transform(self):
+        """Hatch lines a few pixels apart whatever the zoom (a brush pattern is in item units)."""
+        from PySide6.QtGui import QTransform
+        s = 1.0 * self.pixel_mm()
+        return QTransform.fromScale(s, s)
+
     def _draw_glyphs(self) -> None:
         for it in self._glyph_items:
             self.plot.removeItem(it)
@@ -503,7 +562,7 @@ class Canvas(QWidget):
             line = QPainterPath()
             line.moveTo(*det.start)
             line.lineTo(*det.end)
-            self._add_path(line, style.SELECTED if selected else style.DETECTOR, None, 4.0,
+            self._add_path(line, style.SELECTED if selected else style.DETECTOR, None, style.DETECTOR_PX,
                            f"detector {det.name}" + ("" if det.absorbing else " (monitor: rays pass)"),
                            False, Qt.SolidLine if det.absorbing else Qt.DashLine)
             handles += [det.start, det.end]
@@ -524,17 +583,48 @@ class Canvas(QWidget):
     def set_result(self, result) -> None:
         """Draw a trace result (None clears the rays)."""
         self.result = result
-        self.drawing = (ray_drawing(result, colour_by_wavelength=self.colour_by_wavelength)
+        box = self.parts_box()
+        reach = ESCAPE_REACH * max(box[2] - box[0], box[3] - box[1], 1e-6) if box else None
+        self.drawing = (ray_drawing(result, colour_by_wavelength=self.colour_by_wavelength, escape_reach=reach)
                         if result is not None else RayDrawing())
         self._draw_rays()
-        self._hits.setData(self.drawing.hits_x, self.drawing.hits_y)
-        esc = self.drawing.escapes
-        if esc:
-            sizes = [max(6.0, 60.0 * math.sqrt(share)) for _, _, share, _ in esc]
-            self._escapes.setData([e[0] for e in esc], [e[1] for e in esc], size=sizes,
-                                  data=[f"{e[3]}: {100 * e[2]:.2f} % escapes" for e in esc])
+        self._draw_marks()
+
+    def escape_ring_px(self, share: float) -> float:
+        """Diameter of an escape ring: grows with the share, capped so it hides nothing."""
+        return min(style.ESCAPE_RING_MAX_PX, max(6.0, 60.0 * math.sqrt(share)))
+
+    def _draw_marks(self) -> None:
+        """Marks sized in screen pixels, redone when the zoom changes: hit marks beside the
+        detector line, escape rings clear of the source glyphs, direction arrows."""
+        d, px = self.drawing, self.pixel_mm()
+        off = (0.5 * style.DETECTOR_PX + 0.5 * style.HIT_PX + 1) * px
+        if len(d.hits_nx) == len(d.hits_x):
+            self._hits.setData(d.hits_x + off * d.hits_nx, d.hits_y + off * d.hits_ny)
+        else:
+            self._hits.setData(d.hits_x, d.hits_y)
+        self.escape_xy = [self._ring_place(edge, self.escape_ring_px(share) * px)
+                          for (_, _, share, _), edge in zip(d.escapes, d.escape_edges)]
+        if self.escape_xy:
+            self._escapes.setData([p[0] for p in self.escape_xy], [p[1] for p in self.escape_xy],
+                                  size=[self.escape_ring_px(e[2]) for e in d.escapes])
         else:
             self._escapes.setData([], [])
+        xs, ys = arrow_strokes(d.cue_x0, d.cue_y0, d.cue_x1, d.cue_y1, style.CUE_PX * px, 8 * style.CUE_PX * px)
+        self._cues.setData(xs, ys, connect="pairs")
+
+    def _ring_place(self, edge, diameter: float):
+        """Where on its face an escape ring goes: the midpoint, or the point along the face
+        farthest from the source glyphs when the ring would cover one."""
+        clear = 0.5 * diameter + style.GLYPH_PX * self.pixel_mm()
+        spots = [edge.point_at(t) for t in (0.5, 0.3, 0.7, 0.15, 0.85)]
+        sources = [s.position for s in self.scene.sources]
+        if not sources:
+            return spots[0]
+        room = [min(math.dist(p, q) for q in sources) for p in spots]
+        if room[0] >= clear:
+            return spots[0]
+        return spots[int(np.argmax(room))]
 
     def set_colour_by_wavelength(self, on: bool) -> None:
         """Colour rays by their wavelength instead of by kind (a view choice, not saved)."""
@@ -592,7 +682,7 @@ class Canvas(QWidget):
     def hover_text(self, x, y) -> str:
         """What the tooltip says at (x, y): the face name and treatment, or an escape figure."""
         tol = style.PICK_PX * self.pixel_mm()
-        for ex, ey, share, label in self.drawing.escapes:
+        for (ex, ey), (_, _, share, label) in zip(self.escape_xy, self.drawing.escapes):
             if math.dist((ex, ey), (x, y)) <= tol:
                 return f"{label}: {100 * share:.2f} % of the source flux escapes here"
         f = self.face_at(x, y)
@@ -643,7 +733,8 @@ def _source_path(canvas: Canvas, src, g: float) -> QPainterPath:
 
 
 def _detector_ticks(det, g: float) -> QPainterPath:
-    """Short ticks on the back of a detector; the front (the side it counts) is left clear."""
+    """Short ticks on the back of a detector (left of start -> end): they show which way the
+    detector runs; rays are counted from either side."""
     path = QPainterPath()
     (sx, sy), (ex, ey) = det.start, det.end
     L = math.dist(det.start, det.end)
@@ -656,6 +747,13 @@ def _detector_ticks(det, g: float) -> QPainterPath:
         path.moveTo(x, y)
         path.lineTo(x + 0.45 * g * (bx - 0.5 * ux), y + 0.45 * g * (by - 0.5 * uy))
     return path
+
+
+def _box_distance(p, box) -> float:
+    """Distance from a point to an (x0, y0, x1, y1) box (0 inside)."""
+    dx = max(box[0] - p[0], 0.0, p[0] - box[2])
+    dy = max(box[1] - p[1], 0.0, p[1] - box[3])
+    return math.hypot(dx, dy)
 
 
 def _segment_distance(p, a, b) -> float:

@@ -25,6 +25,8 @@ from .export import save_ray_table_csv, save_widget_png, save_widget_svg
 from .panels.controls import TraceControls
 from .panels.ledger import LedgerPanel
 from .panels.plots import ProfilePanel
+from .panels.problems import ProblemsPanel
+from .problems import scene_problems
 from .panels.properties import PropertiesPanel
 from .recent import add_recent, recent_files
 from .tools import DETECTOR_TOOL, POLYGON, RECTANGLE, ROTATE, SELECT, SOURCE_TOOL
@@ -32,6 +34,17 @@ from .tracing import TraceCancelled, run_trace
 from .worker import TraceOutcome, TraceRequest, TraceWorker
 
 SCENE_FILTER = "Scene files (*.json);;All files (*)"
+
+
+def redo_keys() -> list[QKeySequence]:
+    """The platform's redo keys, with Ctrl+Shift+Z and Ctrl+Y added where the platform lacks
+    them, each once: a key bound twice to one action is "ambiguous" and does nothing."""
+    keys: list[QKeySequence] = []
+    for k in (*QKeySequence.keyBindings(QKeySequence.StandardKey.Redo),
+              QKeySequence("Ctrl+Shift+Z"), QKeySequence("Ctrl+Y")):
+        if not k.isEmpty() and k not in keys:
+            keys.append(k)
+    return keys
 
 
 def _scrolled(widget):
@@ -60,12 +73,15 @@ class MainWindow(QMainWindow):
         self.controls = TraceControls(self.doc)
         self.ledger = LedgerPanel()
         self.profiles = ProfilePanel()
+        self.problems_panel = ProblemsPanel()
+        self.problems = []
         edit_tabs = QTabWidget()
         edit_tabs.addTab(_scrolled(self.properties), "Selection")
         edit_tabs.addTab(_scrolled(self.controls), "Trace")
         result_tabs = QTabWidget()
         result_tabs.addTab(self.ledger, "Where the flux went")
         result_tabs.addTab(_scrolled(self.profiles), "Detector profiles")
+        result_tabs.addTab(self.problems_panel, "Problems")
         self.edit_tabs, self.result_tabs = edit_tabs, result_tabs
         docks = []
         for title, w, name in (("Edit", edit_tabs, "edit"), ("Results", result_tabs, "results")):
@@ -90,6 +106,7 @@ class MainWindow(QMainWindow):
         self.canvas.selection_changed.connect(self._selection_changed)
         self.canvas.cursor_moved.connect(lambda x, y: self.cursor_label.setText(f"x {x:.3f}, y {y:.3f} mm"))
         self.canvas.status_message.connect(self.status_note)
+        self.problems_panel.part_chosen.connect(lambda i: self.canvas.select((edits.PART, i)))
         self.worker.finished.connect(self._show_outcome)
         # a bound slot, so the call is queued to this thread (busy is emitted by the trace thread)
         self.worker.busy.connect(self._trace_busy)
@@ -135,7 +152,7 @@ class MainWindow(QMainWindow):
         self.undo_action = self.doc.undo_stack.createUndoAction(self, "&Undo")
         self.undo_action.setShortcut(QKeySequence.Undo)
         self.redo_action = self.doc.undo_stack.createRedoAction(self, "&Redo")
-        self.redo_action.setShortcuts([QKeySequence.Redo, QKeySequence("Ctrl+Y")])
+        self.redo_action.setShortcuts(redo_keys())
         e.addAction(self.undo_action)
         e.addAction(self.redo_action)
         e.addSeparator()
@@ -305,7 +322,12 @@ class MainWindow(QMainWindow):
         add_recent(path)
         self.canvas.select(None)
         self.canvas.fit()
-        self.status_note(f"Opened {path}")
+        if self.problems:
+            self.result_tabs.setCurrentWidget(self.problems_panel)
+            self.status_note(f"Opened {path}: {len(self.problems)} problem(s) to fix before it can be "
+                             "traced (see Problems)")
+        else:
+            self.status_note(f"Opened {path}")
         return True
 
     def save(self) -> bool:
@@ -330,7 +352,8 @@ class MainWindow(QMainWindow):
             return False
         add_recent(path)
         self.autosaver.discard()
-        self.status_note(f"Saved {path}")
+        self.status_note(f"Saved {path}" + (f" with {len(self.problems)} problem(s) still to fix (see Problems)"
+                                            if self.problems else ""))
         return True
 
     def _export(self, what: str, suffix: str, filt: str, write) -> bool:
@@ -369,7 +392,7 @@ class MainWindow(QMainWindow):
                 rec.discard()
                 continue
             try:
-                scene = scene_from_text(rec.scene_file.read_text(encoding="utf-8"))
+                scene = scene_from_text(rec.scene_file.read_text(encoding="utf-8"), check_shapes=False)
             except (SceneError, OSError) as exc:
                 self.show_error("Cannot restore", f"The recovery copy {rec.scene_file} cannot be read: {exc}")
                 return False
@@ -456,10 +479,18 @@ class MainWindow(QMainWindow):
     def _scene_changed(self) -> None:
         scene = self.doc.scene
         self.canvas.set_scene(scene)
+        self._show_problems(scene_problems(scene))
         self.properties.show_selection(scene, self.canvas.selection)
         self.controls.show_scene(scene)
         self._update_title()
         self.request_trace()
+
+    def _show_problems(self, problems) -> None:
+        self.problems = problems
+        self.canvas.set_problems(problems)
+        self.problems_panel.show_problems(problems)
+        i = self.result_tabs.indexOf(self.problems_panel)
+        self.result_tabs.setTabText(i, f"Problems ({len(problems)})" if problems else "Problems")
 
     # ------------------------------------------------------------------ tracing
     def request_trace(self, force: bool = False) -> int | None:

@@ -40,8 +40,11 @@ MAX_BINS = 1_000_000   # histogram bins per detector: beyond this a histogram is
 
 # ----------------------------------------------------------------------------- loading
 
-def load_scene(path: str | os.PathLike) -> Scene:
-    """Read, validate and build a scene.  Raises SceneError listing every problem."""
+def load_scene(path: str | os.PathLike, check_shapes: bool = True) -> Scene:
+    """Read, validate and build a scene.  Raises SceneError listing every problem.
+
+    `check_shapes=False` skips the geometry checks (self-crossing loops, overlapping parts):
+    the editor opens such a scene so the user can fix it, and shows those problems itself."""
     path = Path(path)
     problems = Problems(file=str(path))
     try:
@@ -52,10 +55,10 @@ def load_scene(path: str | os.PathLike) -> Scene:
     except (OSError, UnicodeDecodeError) as exc:
         problems.add("$", f"<unreadable file: {exc}>", "a readable UTF-8 JSON file")
         raise SceneError(problems.items)
-    return scene_from_text(text, problems)
+    return scene_from_text(text, problems, check_shapes)
 
 
-def scene_from_text(text: str, problems: Problems | None = None) -> Scene:
+def scene_from_text(text: str, problems: Problems | None = None, check_shapes: bool = True) -> Scene:
     problems = problems or Problems()
     try:
         data = json.loads(text, parse_constant=F.NonFinite, parse_int=F.parse_int)
@@ -66,10 +69,10 @@ def scene_from_text(text: str, problems: Problems | None = None) -> Scene:
     except RecursionError:
         problems.add("$", "<JSON nested too deeply>", "a scene file of ordinary depth")
         raise SceneError(problems.items)
-    return scene_from_dict(data, problems)
+    return scene_from_dict(data, problems, check_shapes)
 
 
-def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
+def scene_from_dict(data: Any, problems: Problems | None = None, check_shapes: bool = True) -> Scene:
     problems = problems or Problems()
     top = F.obj(data, "$", problems)
     if top is None:
@@ -126,7 +129,8 @@ def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
                   name=name or "")
     # scene-level checks run on every part that could be read, so one pass reports all problems
     resolve_materials(scene, problems, part_paths, skip=frozenset(failed_materials))
-    check_geometry(scene, problems, part_paths)
+    if check_shapes:
+        check_geometry(scene, problems, part_paths)
     problems.raise_if_errors()
     return scene
 
