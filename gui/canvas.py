@@ -20,6 +20,7 @@ from raytrace.scene import EMITTER, POINT, Scene
 
 from . import edits, style
 from .raydraw import ESCAPE_REACH, KINDS, LEVEL_ALPHA, LEVELS, RayDrawing, arrow_strokes, ray_drawing
+from .flow_layout import FlowLayout
 from .spectral import faded_rgb, spectral_rgb
 from .tools import TOOLS, SELECT
 
@@ -94,51 +95,68 @@ class _View(pg.ViewBox):
         super().mouseDragEvent(ev, axis)
 
 
+def _entry(*widgets) -> QWidget:
+    """Swatch and text kept together when the legend wraps."""
+    w = QWidget()
+    lay = QHBoxLayout(w)
+    lay.setContentsMargins(0, 0, 0, 0)
+    lay.setSpacing(4)
+    for x in widgets:
+        lay.addWidget(x)
+    return w
+
+
 class LegendBar(QWidget):
-    """The legend sits under the drawing, never on it."""
+    """The legend sits under the drawing, never on it; in a narrow window it wraps onto more
+    rows.  Why the scene is not traced, if so, has a row of its own in plain text."""
 
     def __init__(self, parent=None):
         super().__init__(parent)
-        lay = QHBoxLayout(self)
-        lay.setContentsMargins(6, 2, 6, 2)
-        lay.setSpacing(8)
+        outer = QVBoxLayout(self)
+        outer.setContentsMargins(6, 2, 6, 2)
+        outer.setSpacing(1)
+        flow = FlowLayout(spacing=12)
+        outer.addLayout(flow)
         self._kind_widgets = []
         items = [(style.RAY, "line", KIND_LABEL["ray"]), (style.TIR, "line", KIND_LABEL["tir"]),
                  (style.ESCAPING, "line", KIND_LABEL["escaping"]), (style.HIT, "dot", "detector hit"),
-                 (style.ESCAPE_MARK, "ring", "escape (size = share)"),
+                 (style.ESCAPE_MARK, "ring", "escape (size = share)"), (style.CUE, "arrow", "direction"),
                  (style.SOURCE, "dot", "source"), (style.DETECTOR, "bar", "detector")]
+        entries = []
         for colour, shape, text in items:
-            lab = QLabel()
+            lab = QLabel("\u2192" if shape == "arrow" else "")
             c = colour.name()
             css = {"line": f"background:{c}; min-height:3px; max-height:3px; min-width:22px;",
                    "dot": f"background:{c}; border-radius:5px; min-width:10px; max-width:10px; "
                           f"min-height:10px; max-height:10px;",
                    "ring": f"border:2px solid {c}; border-radius:6px; min-width:9px; max-width:9px; "
                            f"min-height:9px; max-height:9px;",
+                   "arrow": f"color:{c}; font-weight: bold;",
                    "bar": f"background:{c}; min-height:5px; max-height:5px; min-width:22px;"}[shape]
             lab.setStyleSheet(css)
             text_label = QLabel(text)
-            lay.addWidget(lab)
-            lay.addWidget(text_label)
+            entry = _entry(lab, text_label)
+            entries.append(entry)
             if text in KIND_LABEL.values():
-                self._kind_widgets += [lab, text_label]
+                self._kind_widgets.append(entry)
         # shown instead of the three ray kinds when rays are coloured by wavelength
         self.spectrum_swatch = QLabel()
         self.spectrum_swatch.setStyleSheet(_spectrum_css() + " min-height:5px; max-height:5px; min-width:60px;")
         self.spectrum_text = QLabel("wavelength 380-780 nm")
         self.spectrum_text.setToolTip("Rays are coloured by wavelength; grey outside 380-780 nm")
-        lay.insertWidget(0, self.spectrum_text)
-        lay.insertWidget(0, self.spectrum_swatch)
         self.fade_note = QLabel("(all fade with flux)")
         self.fade_note.setToolTip(FADE_NOTE)
         self.fade_note.setStyleSheet("color: #555")
-        lay.insertWidget(2 + len(self._kind_widgets), self.fade_note)   # right after the ray colours
-        lay.addStretch(1)
+        self._spectrum_entry = _entry(self.spectrum_swatch, self.spectrum_text)
+        for w in [self._spectrum_entry] + entries[:3] + [self.fade_note] + entries[3:]:
+            flow.addWidget(w)
         self.problem = QLabel("")
+        self.problem.setTextFormat(Qt.PlainText)     # "<part 'a' ...>" is text, not a tag
+        self.problem.setWordWrap(True)
         self.problem.setStyleSheet("color: #b00020; font-weight: bold")
-        lay.addWidget(self.problem)
-        # a narrow window clips the legend's end rather than forcing the window wider
-        self.setSizePolicy(QSizePolicy.Ignored, QSizePolicy.Fixed)
+        self.problem.setVisible(False)
+        outer.addWidget(self.problem)
+        self.setSizePolicy(QSizePolicy.Ignored, QSizePolicy.Preferred)
         self.setToolTip("Ray colours: legs that began with total internal reflection and legs "
                         "leaving the scene have their own colours; every leg fades as its flux "
                         "drops, equally in every colour.")
@@ -147,15 +165,19 @@ class LegendBar(QWidget):
     def set_colour_by_wavelength(self, on: bool) -> None:
         for w in self._kind_widgets:
             w.setVisible(not on)
+        self._spectrum_entry.setVisible(on)
         self.spectrum_swatch.setVisible(on)
         self.spectrum_text.setVisible(on)
-
+        self.updateGeometry()
 
     def show_problem(self, text: str) -> None:
-        """Why the rays are missing (the scene cannot be traced as it stands), or nothing."""
-        short = text if len(text) < 90 else text[:87] + "..."
+        """Why the rays are missing (the scene cannot be traced as it stands), or nothing; the
+        whole text, wrapped, at most about three lines (the rest is in the tooltip)."""
+        short = text if len(text) <= 300 else text[:297] + "..."
         self.problem.setText(f"not traced: {short}" if text else "")
         self.problem.setToolTip(text)
+        self.problem.setVisible(bool(text))
+        self.updateGeometry()
 
 
 class Canvas(QWidget):
@@ -178,6 +200,7 @@ class Canvas(QWidget):
 
         self.view = _View(self)
         self.plot = pg.PlotWidget(viewBox=self.view, background=style.BACKGROUND)
+        self.plot.hideButtons()      # no auto-range "A": Ctrl+0 fits, and it must not show in pictures
         self.plot.setLabel("bottom", "x", units="mm")
         self.plot.setLabel("left", "y", units="mm")
         for ax in ("bottom", "left"):
@@ -457,11 +480,16 @@ class Canvas(QWidget):
             for q in self.source_span(src):
                 xs.append(q[0])
                 ys.append(q[1])
-        reach = 0.5 * math.hypot(box[2] - box[0], box[3] - box[1]) if box else math.inf
+        # detectors count as far as they lie within reach of the parts (ends clamped there)
+        reach = 0.75 * math.hypot(box[2] - box[0], box[3] - box[1]) if box else math.inf
         for d in s.detectors:
-            if box is None or all(_box_distance(q, box) <= reach for q in (d.start, d.end)):
-                xs += [d.start[0], d.end[0]]
-                ys += [d.start[1], d.end[1]]
+            for q in (d.start, d.end):
+                if box is None:
+                    xs.append(q[0])
+                    ys.append(q[1])
+                else:
+                    xs.append(min(max(q[0], box[0] - reach), box[2] + reach))
+                    ys.append(min(max(q[1], box[1] - reach), box[3] + reach))
         if not xs:
             xs, ys = [-10, 10], [-10, 10]
         w = max(max(xs) - min(xs), max(ys) - min(ys), 1e-3)
@@ -747,13 +775,6 @@ def _detector_ticks(det, g: float) -> QPainterPath:
         path.moveTo(x, y)
         path.lineTo(x + 0.45 * g * (bx - 0.5 * ux), y + 0.45 * g * (by - 0.5 * uy))
     return path
-
-
-def _box_distance(p, box) -> float:
-    """Distance from a point to an (x0, y0, x1, y1) box (0 inside)."""
-    dx = max(box[0] - p[0], 0.0, p[0] - box[2])
-    dy = max(box[1] - p[1], 0.0, p[1] - box[3])
-    return math.hypot(dx, dy)
 
 
 def _segment_distance(p, a, b) -> float:

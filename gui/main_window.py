@@ -5,6 +5,7 @@ methods so tests can answer them without opening modal dialogs.
 """
 from __future__ import annotations
 
+import html
 import time
 from pathlib import Path
 
@@ -21,7 +22,7 @@ from . import edits, help as help_text
 from .autosave import Autosaver, find_recoveries
 from .canvas import Canvas
 from .document import Document
-from .export import save_ray_table_csv, save_widget_png, save_widget_svg
+from .export import save_figure_png, save_figure_svg, save_ray_table_csv
 from .panels.controls import TraceControls
 from .panels.ledger import LedgerPanel
 from .panels.plots import ProfilePanel
@@ -79,8 +80,8 @@ class MainWindow(QMainWindow):
         edit_tabs.addTab(_scrolled(self.properties), "Selection")
         edit_tabs.addTab(_scrolled(self.controls), "Trace")
         result_tabs = QTabWidget()
-        result_tabs.addTab(self.ledger, "Where the flux went")
-        result_tabs.addTab(_scrolled(self.profiles), "Detector profiles")
+        result_tabs.addTab(self.ledger, "Flux ledger")
+        result_tabs.addTab(self.profiles, "Profiles")      # the plots shrink to fit; no scrolling
         result_tabs.addTab(self.problems_panel, "Problems")
         self.edit_tabs, self.result_tabs = edit_tabs, result_tabs
         docks = []
@@ -91,8 +92,6 @@ class MainWindow(QMainWindow):
             dock.setFeatures(QDockWidget.DockWidgetMovable | QDockWidget.DockWidgetFloatable)
             self.addDockWidget(Qt.RightDockWidgetArea, dock)
             docks.append(dock)
-        self.resizeDocks(docks, [520, 380], Qt.Vertical)
-        self.resizeDocks(docks[:1], [470], Qt.Horizontal)
 
         self.cursor_label = QLabel("x -, y - mm")
         self.cursor_label.setMinimumWidth(190)
@@ -114,9 +113,27 @@ class MainWindow(QMainWindow):
         self.controls.options_changed.connect(self.request_trace)
         self.controls.trace_now.connect(lambda: self.request_trace(force=True))
         self.controls.stop.connect(self.stop_trace)
+        self.status_text = ""
+        self._docks = docks
+        self._arranged = False
         self.resize(1400, 900)
         self._scene_changed()
         self._update_title()
+
+    def arrange_docks(self) -> None:
+        """Share the window between drawing and panels by its size: at 1024 x 700 the drawing
+        keeps most of the width and the flux ledger its rows; at 1400 x 900 the panels grow."""
+        w, h = self.width(), self.height()
+        self.resizeDocks(self._docks[:1], [int(min(470, max(330, 0.34 * w)))], Qt.Horizontal)
+        avail = h - self.menuBar().sizeHint().height() - self.statusBar().sizeHint().height()
+        results = int(min(max(0.5 * avail, 400), avail - 200))
+        self.resizeDocks(self._docks, [avail - results, results], Qt.Vertical)
+
+    def showEvent(self, ev):
+        super().showEvent(ev)
+        if not self._arranged:       # once: later the user's own dock sizes are kept
+            self._arranged = True
+            self.arrange_docks()
 
     # ------------------------------------------------------------------ actions and menus
     def _act(self, menu, text, slot, shortcut=None, tip="", checkable=False):
@@ -275,14 +292,27 @@ class MainWindow(QMainWindow):
 
     def show_error(self, title: str, text: str) -> None:
         self.last_error = text
-        self.statusBar().showMessage(text, 15000)
-        QMessageBox.warning(self, title, text)
+        self.status_note(text, 15000)
+        box = QMessageBox(QMessageBox.Warning, title, text, parent=self)
+        box.setTextFormat(Qt.PlainText)       # "<part 'a' ...>" in a problem is text, not a tag
+        box.exec()
 
     def show_info(self, title: str, html: str) -> None:
         QMessageBox.information(self, title, html)
 
-    def status_note(self, text: str) -> None:
-        self.statusBar().showMessage(text, 8000)
+    def status_note(self, text: str, ms: int = 8000) -> None:
+        """A message left of the permanent labels, cut with "..." where it would run into them
+        (the whole text is in the status bar's tooltip)."""
+        bar = self.statusBar()
+        labels = [w for w in (self.trace_label, self.cursor_label) if w.isVisible()]
+        if labels and all(w.geometry().left() > 0 for w in labels):
+            room = min(w.geometry().left() for w in labels) - 24
+        else:
+            room = bar.width() - sum(max(w.sizeHint().width(), w.minimumWidth()) + 12 for w in labels) - 24
+        room = max(80, room)
+        self.status_text = text
+        bar.setToolTip(text)
+        bar.showMessage(bar.fontMetrics().elidedText(text, Qt.ElideRight, room), ms)
 
     def _dir(self) -> Path:
         return self.doc.path.parent if self.doc.path else Path.cwd()
@@ -375,12 +405,29 @@ class MainWindow(QMainWindow):
         return self._export("the ray table", ".csv", "CSV (*.csv)",
                             lambda p: save_ray_table_csv(self.canvas.result, p))
 
+    def _figure_titles(self, with_title: bool = True) -> dict:
+        if not with_title:
+            return {}
+        from .figure import figure_subtitle
+        return {"title": self.doc.scene.name or self.doc.title, "subtitle": figure_subtitle(self.canvas.result)}
+
+    def ask_png_options(self) -> dict | None:
+        """Size, resolution and title block of a PNG export, or None when cancelled."""
+        from .dialogs.png_export import PngExportDialog
+        size = self.canvas.plot.size()
+        dlg = PngExportDialog(size.width(), size.height(), self)
+        return dlg.options() if dlg.exec() else None
+
     def export_png(self) -> bool:
-        return self._export("the drawing", ".png", "PNG image (*.png)", lambda p: save_widget_png(self.canvas, p))
+        opts = self.ask_png_options()
+        if opts is None:
+            return False
+        return self._export("the drawing", ".png", "PNG image (*.png)", lambda p: save_figure_png(
+            self.canvas, p, opts["width"], opts["height"], opts["dpi"], **self._figure_titles(opts["title_block"])))
 
     def export_svg(self) -> bool:
         return self._export("the drawing", ".svg", "SVG image (*.svg)",
-                            lambda p: save_widget_svg(self.canvas, p, self.doc.scene.name))
+                            lambda p: save_figure_svg(self.canvas, p, **self._figure_titles()))
 
     def offer_recovery(self) -> bool:
         """After a crash: offer the newest recovery copy; True when one was restored."""
@@ -460,7 +507,10 @@ class MainWindow(QMainWindow):
         if not dlg.exec():
             return
         part = edits.shape_part(dlg.spec(), dlg.material.currentText(), dlg.name.text().strip())
-        scene = edits.add_part(self.doc.scene, part)
+        placed = edits.place_clear(self.doc.scene, part)
+        if placed is not part:
+            self.status_note(f"{part.name} placed beside the other parts: at the view centre it would overlap one")
+        scene = edits.add_part(self.doc.scene, placed)
         self.doc.apply(scene, f"add {scene.parts[-1].name}")
         self.canvas.select((edits.PART, len(scene.parts) - 1))
 
@@ -541,7 +591,7 @@ class MainWindow(QMainWindow):
             self.canvas.set_result(None)
             self.ledger.show_result(None)
             self.profiles.show_result(None)
-            self.ledger.summary.setText(f"<b>Not traced:</b> {out.error}")
+            self.ledger.summary.setText(f"<b>Not traced:</b> {html.escape(out.error)}")
             self.canvas.legend.show_problem(out.error)
             self.trace_label.setText("not traced: see the flux panel")
             self.status_note(out.error)
