@@ -481,7 +481,7 @@ class Canvas(QWidget):
                 xs.append(q[0])
                 ys.append(q[1])
         # detectors count as far as they lie within reach of the parts (ends clamped there)
-        reach = 0.75 * math.hypot(box[2] - box[0], box[3] - box[1]) if box else math.inf
+        reach = 0.5 * math.hypot(box[2] - box[0], box[3] - box[1]) if box else math.inf
         for d in s.detectors:
             for q in (d.start, d.end):
                 if box is None:
@@ -638,7 +638,8 @@ class Canvas(QWidget):
                                   size=[self.escape_ring_px(e[2]) for e in d.escapes])
         else:
             self._escapes.setData([], [])
-        xs, ys = arrow_strokes(d.cue_x0, d.cue_y0, d.cue_x1, d.cue_y1, style.CUE_PX * px, 8 * style.CUE_PX * px)
+        xs, ys = arrow_strokes(d.cue_x0, d.cue_y0, d.cue_x1, d.cue_y1, style.CUE_PX * px, 8 * style.CUE_PX * px,
+                               d.cue_at if len(d.cue_at) == len(d.cue_x0) else 0.55)
         self._cues.setData(xs, ys, connect="pairs")
 
     def _ring_place(self, edge, diameter: float):

@@ -305,10 +305,10 @@ class MainWindow(QMainWindow):
         (the whole text is in the status bar's tooltip)."""
         bar = self.statusBar()
         labels = [w for w in (self.trace_label, self.cursor_label) if w.isVisible()]
+        # the labels' place once laid out, or what their current texts will need (just changed)
+        room = bar.width() - sum(max(w.sizeHint().width(), w.minimumWidth()) + 12 for w in labels) - 24
         if labels and all(w.geometry().left() > 0 for w in labels):
-            room = min(w.geometry().left() for w in labels) - 24
-        else:
-            room = bar.width() - sum(max(w.sizeHint().width(), w.minimumWidth()) + 12 for w in labels) - 24
+            room = min(room, min(w.geometry().left() for w in labels) - 24)
         room = max(80, room)
         self.status_text = text
         bar.setToolTip(text)
@@ -593,7 +593,7 @@ class MainWindow(QMainWindow):
             self.profiles.show_result(None)
             self.ledger.summary.setText(f"<b>Not traced:</b> {html.escape(out.error)}")
             self.canvas.legend.show_problem(out.error)
-            self.trace_label.setText("not traced: see the flux panel")
+            self.trace_label.setText("not traced: see Problems" if self.problems else "not traced: see Flux ledger")
             self.status_note(out.error)
             return
         if out.result is None:

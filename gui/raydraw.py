@@ -43,6 +43,7 @@ class RayDrawing:
     cue_y0: np.ndarray = field(default_factory=lambda: np.zeros(0))
     cue_x1: np.ndarray = field(default_factory=lambda: np.zeros(0))
     cue_y1: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    cue_at: np.ndarray = field(default_factory=lambda: np.zeros(0))   # where along the leg (0..1)
     n_segments: int = 0
     # with colour by wavelength: (wavelength bin in nm, or nan, level, x, y) per non-empty group,
     # in stacking order within each level
@@ -129,7 +130,7 @@ def ray_drawing(result, min_escape_share: float = 1e-3, colour_by_wavelength: bo
     return d
 
 
-CUE_RAYS = 7          # source rays whose brightest legs carry a direction arrow
+CUE_RAYS = 3          # source rays whose brightest legs carry a direction arrow
 CUE_MAX = 24          # arrows drawn at most
 
 
@@ -139,13 +140,16 @@ def _direction_cues(d: RayDrawing, seg, root: np.ndarray, level: np.ndarray) -> 
     roots = np.unique(root)
     chosen = roots[np.unique(np.linspace(0, len(roots) - 1, min(CUE_RAYS, len(roots))).round().astype(int))]
     sel = np.isin(root, chosen) & (level == 0)
+    # each chosen ray has its arrows at its own place along the legs, so the arrows of a
+    # parallel beam are staggered instead of lined up across it like a hatch
+    d.cue_at = np.array([0.3, 0.55, 0.8])[np.searchsorted(chosen, root[sel]) % 3]
     d.cue_x0, d.cue_y0 = np.asarray(seg["x0"])[sel], np.asarray(seg["y0"])[sel]
     d.cue_x1, d.cue_y1 = np.asarray(seg["x1"])[sel], np.asarray(seg["y1"])[sel]
 
 
-def arrow_strokes(x0, y0, x1, y1, head: float, min_length: float, at: float = 0.55):
+def arrow_strokes(x0, y0, x1, y1, head: float, min_length: float, at=0.55):
     """Pairs of points (connect="pairs") drawing an open arrowhead `head` mm long at fraction
-    `at` along each leg longer than `min_length` mm."""
+    `at` (one for all, or one per leg) along each leg longer than `min_length` mm."""
     dx, dy = x1 - x0, y1 - y0
     length = np.hypot(dx, dy)
     keep = length > min_length
@@ -154,6 +158,7 @@ def arrow_strokes(x0, y0, x1, y1, head: float, min_length: float, at: float = 0.
     if not keep.any():
         return np.zeros(0), np.zeros(0)
     ux, uy = dx[keep] / length[keep], dy[keep] / length[keep]
+    at = np.broadcast_to(np.asarray(at, dtype=float), length.shape)[keep]
     tx, ty = x0[keep] + at * dx[keep], y0[keep] + at * dy[keep]
     bx, by = tx - head * ux, ty - head * uy          # back of the head, then +-half width
     wx, wy = -0.5 * head * uy, 0.5 * head * ux
