@@ -69,6 +69,13 @@ def shown(qtbot, win, size=(1400, 900)):
     qtbot.wait(30)
 
 
+def open_traced(qtbot, win, path, size=(1400, 900)):
+    """Show the window at `size`, open a sample and wait for its trace."""
+    shown(qtbot, win, size)
+    assert win.open_file(str(path))
+    return wait_traced(qtbot, win)
+
+
 def view_point(canvas, p):
     return canvas.plot.mapFromScene(canvas.view.mapViewToScene(QPointF(*p)))
 
@@ -237,9 +244,7 @@ def test_detector_panel_says_it_counts_both_sides(win):
 # ---------------------------------------------------------------------------- 5. SVG export
 
 def test_svg_export_of_the_light_pipe_is_vector_only(qtbot, win, tmp_path):
-    shown(qtbot, win)
-    assert win.open_file(str(LIGHT_PIPE))
-    wait_traced(qtbot, win)
+    open_traced(qtbot, win, LIGHT_PIPE)
     svg = tmp_path / "pipe.svg"
     win.ask_save_path = lambda *a, **k: str(svg)
     assert win.export_svg(), win.errors
@@ -281,9 +286,7 @@ def test_tir_colour_stands_out_on_the_pmma_tint(win):
 
 
 def test_drawing_marks_are_readable(qtbot, win):
-    shown(qtbot, win)
-    assert win.open_file(str(LIGHT_PIPE))
-    wait_traced(qtbot, win)
+    open_traced(qtbot, win, LIGHT_PIPE)
     c, d = win.canvas, win.canvas.drawing
     px = c.pixel_mm()
     # escaping legs stop a quarter of the parts' size out
@@ -310,9 +313,7 @@ def test_drawing_marks_are_readable(qtbot, win):
 
 
 def test_incoming_and_returning_beams_have_opposite_arrows(qtbot, win):
-    shown(qtbot, win)
-    assert win.open_file(str(ROOF))
-    wait_traced(qtbot, win)
+    open_traced(qtbot, win, ROOF)
     x, y = win.canvas._cues.getData()
     tips, backs = y[0::4], y[1::4]
     outside = (tips < 0) & (backs < 0)         # below the prism: the beam going up and coming back
@@ -355,9 +356,7 @@ def test_layout_fits_at_common_window_sizes(qtbot, win, size):
 
 
 def test_png_export_with_size_dpi_and_title_block(qtbot, win, tmp_path):
-    shown(qtbot, win)
-    assert win.open_file(str(WINDOW))
-    wait_traced(qtbot, win)
+    open_traced(qtbot, win, WINDOW)
     png = tmp_path / "fig.png"
     win.ask_save_path = lambda *a, **k: str(png)
     win.ask_png_options = lambda: {"width": 1800, "height": 1200, "dpi": 300, "title_block": True}
