@@ -6,6 +6,7 @@ tracer consumes; `scene_io` reads and writes the JSON form.
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from typing import Any
 
 from .geometry import Part, Point
 from .materials import Material
@@ -97,9 +98,9 @@ class TraceSettings:
 
     rays: int = 1000
     mode: str = "branching"          # "branching" (deterministic tree) or "monte_carlo"
-    min_relative_flux: float = 1e-4  # children below this share of their source ray's flux end
-    max_depth: int = 200             # generations after which a ray ends
-    max_segments: int = 1_000_000_000  # total ray segments in one trace: a guard against runaway
+    flux_floor: float = 1e-4  # children below this share of their source ray's flux end
+    max_generations: int = 200             # generations after which a ray ends
+    segment_budget: int = 1_000_000_000  # total ray segments in one trace: a guard against runaway
                                        # traces (10 million light-pipe rays need about 660 million)
     seed: int = 1
 
@@ -116,6 +117,11 @@ class Scene:
     settings: TraceSettings = field(default_factory=TraceSettings)
     story: str = ""       # one line: what this scene is for
     name: str = ""
+    # the file's linked numbers (linked.Links), so saving writes them back; values above are
+    # always the evaluated ones
+    links: Any = field(default=None, compare=False, repr=False)
+    # notes from loading (earlier key names read, for example); not saved, not compared
+    notes: list[str] = field(default_factory=list, compare=False, repr=False)
 
     def copy(self) -> "Scene":
         return replace(self, parts=list(self.parts), sources=list(self.sources),

@@ -415,18 +415,23 @@ def test_long_trace_can_be_stopped(qtbot, win):
     assert win.worker.dropped >= 1
 
 
+def run_sweep_dialog(qtbot, dlg, name: str, start: float, stop: float, count: int, rays: int):
+    """Fill in the sweep dialog as a user does, run it and wait for the table."""
+    dlg.name.setCurrentText(name)
+    dlg.start.setValue(start)
+    dlg.stop.setValue(stop)
+    dlg.count.setValue(count)
+    dlg.rays.setValue(rays)
+    dlg.run()
+    qtbot.waitUntil(lambda: not dlg.running(), timeout=TIMEOUT_MS)
+
+
 def test_sweep_dialog_runs_plots_and_cancels(qtbot, win, tmp_path):
     from gui.dialogs.sweep import SweepDialog
     open_sample(qtbot, win, WINDOW)
     dlg = SweepDialog(win.doc.scene, {}, win)
     qtbot.addWidget(dlg)
-    dlg.name.setCurrentText("probe beam.direction_deg")
-    dlg.start.setValue(30.0)
-    dlg.stop.setValue(50.0)
-    dlg.count.setValue(3)
-    dlg.rays.setValue(20)
-    dlg.run()
-    qtbot.waitUntil(lambda: not dlg.running(), timeout=TIMEOUT_MS)
+    run_sweep_dialog(qtbot, dlg, "probe beam.direction_deg", 30.0, 50.0, 3, 20)
     assert dlg.message == "" and len(dlg.result.rows) == 3
     assert [r["probe beam.direction_deg"] for r in dlg.result.rows] == [30.0, 40.0, 50.0]
     assert dlg.bar.value() == 3
@@ -580,10 +585,10 @@ def test_mode_and_limits_controls_trace_like_the_engine(qtbot, win):
     c.threshold.setValue(0.01)
     c.threshold.editingFinished.emit()
     s = win.doc.scene.settings
-    assert (s.mode, s.max_depth, s.min_relative_flux) == ("monte_carlo", 2, 0.01)
+    assert (s.mode, s.max_generations, s.flux_floor) == ("monte_carlo", 2, 0.01)
     result = wait_traced(qtbot, win)
     assert ledger_rows(result) == ledger_rows(raytrace.trace(win.doc.scene))
-    assert result.ledger.flux("truncated", reason="maximum depth") > 0, "depth 2 truncates rays inside the prisms"
+    assert result.ledger.flux("truncated", reason="generation limit") > 0, "depth 2 truncates rays inside the prisms"
 
 
 def test_escape_markers_add_up_to_the_ledger(qtbot, win):

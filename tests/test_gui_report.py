@@ -19,15 +19,16 @@ import pytest  # noqa: E402
 
 pytest.importorskip("pytestqt")
 
-from PySide6.QtCore import QPointF, Qt  # noqa: E402
+from PySide6.QtCore import Qt  # noqa: E402
 from PySide6.QtGui import QImage, QKeySequence  # noqa: E402
-from PySide6.QtTest import QTest  # noqa: E402
 from PySide6.QtWidgets import QWidget  # noqa: E402
 
 from raytrace import cli  # noqa: E402
 from raytrace.shapes import PARAMETERS  # noqa: E402
 
 from gui import edits, spectral, style  # noqa: E402
+
+import gui_events  # noqa: E402  (tests/gui_events.py: real mouse events)
 from gui.main_window import MainWindow, redo_keys  # noqa: E402
 from gui.raydraw import LEVEL_ALPHA  # noqa: E402
 from gui.tools import POLYGON, RECTANGLE  # noqa: E402
@@ -74,24 +75,6 @@ def open_traced(qtbot, win, path, size=(1400, 900)):
     shown(qtbot, win, size)
     assert win.open_file(str(path))
     return wait_traced(qtbot, win)
-
-
-def view_point(canvas, p):
-    return canvas.plot.mapFromScene(canvas.view.mapViewToScene(QPointF(*p)))
-
-
-def double_click(widget, pos) -> None:
-    """What a real double-click delivers, in Qt's order: press, release, double-click, release.
-    (QTest.mouseDClick sends the double-click event alone, which no mouse does.)"""
-    from PySide6.QtCore import QEvent
-    from PySide6.QtGui import QMouseEvent
-    from PySide6.QtWidgets import QApplication
-    QTest.mousePress(widget, Qt.LeftButton, Qt.NoModifier, pos)
-    QTest.mouseRelease(widget, Qt.LeftButton, Qt.NoModifier, pos)
-    p = QPointF(pos)
-    QApplication.sendEvent(widget, QMouseEvent(QEvent.MouseButtonDblClick, p, p, QPointF(widget.mapToGlobal(pos)),
-                                               Qt.LeftButton, Qt.LeftButton, Qt.NoModifier))
-    QTest.mouseRelease(widget, Qt.LeftButton, Qt.NoModifier, pos)
 
 
 def lum(rgb) -> float:
@@ -389,13 +372,10 @@ def test_polygon_drawn_with_real_clicks_and_a_double_click_through_the_view(qtbo
     win.canvas.view.setRange(xRange=(-10, 10), yRange=(-10, 10), padding=0)
     qtbot.wait(20)
     win.set_tool(POLYGON)
-    vp = win.canvas.plot.viewport()
     pts = [(-5.0, -5.0), (5.0, -5.0), (5.0, 5.0)]
     for p in pts[:-1]:
-        QTest.mouseClick(vp, Qt.LeftButton, Qt.NoModifier, view_point(win.canvas, p))
-        qtbot.wait(300)            # slower than a double-click: separate clicks
-    double_click(vp, view_point(win.canvas, pts[-1]))
-    qtbot.wait(20)
+        gui_events.click(qtbot, win.canvas, p)
+    gui_events.double_click(qtbot, win.canvas, pts[-1])
     parts = win.doc.scene.parts
     assert len(parts) == 1, "the double-click closed the part"
     px = win.canvas.pixel_mm()
