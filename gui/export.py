@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from raytrace.atomic import atomic_write as _atomic
 from raytrace.atomic import atomic_write_text
-from raytrace.raytable import ray_table
+from raytrace.raytable import write_csv
 
 
 def save_widget_png(widget, path) -> None:
@@ -35,8 +35,7 @@ def save_figure_png(canvas, path, width_px: int, height_px: int, dpi: float = 96
 
 def save_ray_table_csv(result, path) -> int:
     """Write the recorded ray segments as CSV; returns the number of rows."""
-    table = ray_table(result)
-    if table is None:
+    n = write_csv(result, path)      # streamed, atomic
+    if n is None:
         raise ValueError("this trace recorded no ray segments (set Drawn rays above 0)")
-    table.to_csv(path)      # atomic inside raytable
-    return len(table)
+    return n
