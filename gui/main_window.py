@@ -348,7 +348,9 @@ class MainWindow(QMainWindow):
         room = max(80, room)
         self.status_text = text
         bar.setToolTip(text)
-        bar.showMessage(bar.fontMetrics().elidedText(text, Qt.ElideRight, room), ms)
+        # a window not on screen has no width to fit: keep the whole text
+        shown = bar.isVisible() and bar.width() > 0
+        bar.showMessage(bar.fontMetrics().elidedText(text, Qt.ElideRight, room) if shown else text, ms)
 
     def _dir(self) -> Path:
         return self.doc.path.parent if self.doc.path else Path.cwd()
