@@ -21,7 +21,9 @@ from . import fresnel
 from .accel import edge_table, hit_function
 from .compile import (T_ABSORBER, T_AR, T_BARE, T_DETECT_ABSORB, T_DETECT_MONITOR, T_MIRROR,
                       CompiledScene)
+from . import kernel, kernel_step
 from .errors import BudgetExceeded
+from .kernel import timed_first_call
 from .intersect import edge_normal, nearest_hit
 from .ledger import TRUNC_BUDGET, TRUNC_DEPTH, TRUNC_FLUX, BinLayout
 from .pathtrie import PathTrie
@@ -122,6 +124,17 @@ class _SceneArrays:
         self.n_codes = ne * N_EVENT_KINDS
         self.eps = cs.eps
         self.detector_ids = np.flatnonzero(cs.detector >= 0)
+        # the same extended tables with the dtypes kernel_step.interface_step takes
+        i64 = lambda a: np.ascontiguousarray(a, dtype=np.int64)
+        f64 = lambda a: np.ascontiguousarray(a, dtype=float)
+        self.step_tables = (i64(self.treat), i64(self.escape_code), f64(self.nx), f64(self.ny),
+                            np.ascontiguousarray(self.is_arc, dtype=np.bool_), f64(self.cx), f64(self.cy),
+                            i64(self.med_plus), i64(self.med_minus), f64(self.reflectance),
+                            i64(ext(cs.detector, -1)))
+        dex, dey = cs.x1 - cs.x0, cs.y1 - cs.y0
+        self.detector_tables = (f64(ext(cs.x0, 0.0)), f64(ext(cs.y0, 0.0)), f64(ext(dex, 1.0)), f64(ext(dey, 0.0)),
+                                f64(ext(np.hypot(dex, dey), 1.0)))
+        self.x0, self.y0, self.x1, self.y1 = (f64(a) for a in (self.x0, self.y0, self.x1, self.y1))
         self.detectors_touch_boundary = _detectors_touch_boundary(cs)
 
 
@@ -204,6 +217,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     limits = limits or Limits()
     record = record or Recording()
     hit_fn = hit_fn or hit_function(cs, accel)
+    compiled = kernel.compiled()
     tune_allocator()
     rng = np.random.default_rng(seed)
     t0 = time.perf_counter()
@@ -294,19 +308,22 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
                 t = np.where(first, td, t)
                 e = np.where(first, ed, e)
         # a hit on a vertex belongs to every edge meeting there: let the one between the
-        # ray's medium and the medium beyond the vertex act (see _vertex_edges)
-        hit = e >= 0
-        ev = np.where(hit, e, -1)
-        vx, vy = x + np.where(hit, t, 0.0) * dx, y + np.where(hit, t, 0.0) * dy
-        vnear = np.minimum((vx - K.x0[ev]) ** 2 + (vy - K.y0[ev]) ** 2, (vx - K.x1[ev]) ** 2 + (vy - K.y1[ev]) ** 2)
-        iv = np.flatnonzero(hit & (vnear < vertex_tol2) & (K.treat[ev] < T_DETECT_ABSORB))
-        unsettled = None            # vertex hits no edge fitted: their children are probed
-        if len(iv):
-            e = e.copy()
-            e[iv], fitted = _vertex_edges(cs, K, vx[iv], vy[iv], dx[iv], dy[iv], med[iv], e[iv])
-            if not fitted.all():
-                unsettled = np.zeros(len(x), dtype=bool)
-                unsettled[iv[~fitted]] = True
+        # ray's medium and the medium beyond the vertex act (see resolve_vertex_hits)
+        if compiled:
+            iv = kernel_step.vertex_candidates(x, y, dx, dy, t, e, K.x0, K.y0, K.x1, K.y1, K.treat, vertex_tol2)
+        else:
+            iv = _vertex_candidates(K, x, y, dx, dy, t, e, vertex_tol2)
+        e, unsettled = resolve_vertex_hits(cs, K, x, y, dx, dy, med, t, e, iv)
+        if compiled:
+            step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording)
+            r, next_id, seg_rows = _after_compiled_step(
+                cs, K, r, e, step, paths, path_thr, recording, record, root_offset, next_id, seg_store,
+                seg_rows, hit_store, hist, wavelengths, unsettled, bins, gen, stats, len(iv))
+            if hit_store:
+                hit_rows = sum(len(v) for v in hit_store["root"])
+            gen += 1
+            continue
+        # --- the reference array code of the step that kernel_step.interface_step compiles
         esc = e < 0
         L = np.where(esc, 0.0, t)
         codes: list[np.ndarray] = []      # ledger deposits of this generation
@@ -405,20 +422,9 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         stats["vertex_hits"] += len(iv)     # segments that ended on a vertex
 
         if seg_store is not None:
-            want = record.wants(r["root"] + root_offset)
-            if want is not None and want.any():
-                ex = np.where(esc, hx + 3 * cs.scale * dx, hx)
-                ey = np.where(esc, hy + 3 * cs.scale * dy, hy)
-                cols = {"x": x, "y": y, "ex": ex, "ey": ey, "dx": dx, "dy": dy, "fs": fs_start,
-                        "fp": fp_start, "med": med, "opl": opl, "root": r["root"] + root_offset,
-                        "rid": r["rid"], "parent": r["parent"], "born": r["born"], "end": end,
-                        "edge": e, "wli": r["wli"]}
-                if not want.all():
-                    cols = {k: v[want] for k, v in cols.items()}
-                cols["gen"] = np.full(len(cols["x"]), gen, dtype=np.int64)
-                seg_rows += len(cols["x"])
-                for k, v in cols.items():
-                    seg_store.setdefault(k, []).append(v)
+            ex = np.where(esc, hx + 3 * cs.scale * dx, hx)
+            ey = np.where(esc, hy + 3 * cs.scale * dy, hy)
+            seg_rows += _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen)
         if hit_store:
             hit_rows = sum(len(v) for v in hit_store["root"])
 
@@ -449,6 +455,31 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         path_parent=paths.parent.copy(), path_code=paths.code.copy(),
         path_flux=paths.flux_dict() if paths.enabled else {}, wavelengths=wavelengths, stats=stats,
         histograms=hist.to_dict() if hist is not None else None)
+
+
+def _vertex_candidates(K, x, y, dx, dy, t, e, vertex_tol2):
+    """Rays whose hit lies on (within 1e3 eps of) an end of the edge hit, detectors excepted."""
+    hit = e >= 0
+    ev = np.where(hit, e, -1)
+    vx, vy = x + np.where(hit, t, 0.0) * dx, y + np.where(hit, t, 0.0) * dy
+    vnear = np.minimum((vx - K.x0[ev]) ** 2 + (vy - K.y0[ev]) ** 2, (vx - K.x1[ev]) ** 2 + (vy - K.y1[ev]) ** 2)
+    return np.flatnonzero(hit & (vnear < vertex_tol2) & (K.treat[ev] < T_DETECT_ABSORB))
+
+
+def resolve_vertex_hits(cs, K, x, y, dx, dy, med, t, e, iv):
+    """Vertex and corner hits, for both kernels: rows `iv` hit an end of their edge.  Returns
+    the edges that act (see _vertex_edges) and, where no edge fitted, a mask of the rays whose
+    children are probed for their medium (None when every vertex hit fitted)."""
+    unsettled = None
+    if len(iv):
+        vx = x[iv] + t[iv] * dx[iv]
+        vy = y[iv] + t[iv] * dy[iv]
+        e = e.copy()
+        e[iv], fitted = _vertex_edges(cs, K, vx, vy, dx[iv], dy[iv], med[iv], e[iv])
+        if not fitted.all():
+            unsettled = np.zeros(len(x), dtype=bool)
+            unsettled[iv[~fitted]] = True
+    return e, unsettled
 
 
 def _normals(cs, K, e, hx, hy):
@@ -610,9 +641,17 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
            "wli": r["wli"][pidx], "root": root[pidx]}
     if at_vertex is not None:
         _settle_vertex_children(cs, out, np.flatnonzero(at_vertex[pidx]))
-    parent_path = r["path"][pidx]
+    next_id = _child_paths_and_ids(out, r, pidx, start, col(7), col(8) if recording else None, paths,
+                                   path_thr, K, next_id)
+    return out, next_id
+
+
+def _child_paths_and_ids(out, r, pidx, start, ev, born, paths, path_thr, K, next_id, parent_path=None):
+    """The children's path nodes (parent's path extended by the event, or "other paths" for
+    faint rays) and, when a ray table is recorded (`born` given), their ids and parents."""
+    if parent_path is None:
+        parent_path = r["path"][pidx]
     if paths.enabled:
-        ev = col(7)
         bright = (out["fs"] + out["fp"]) >= path_thr[out["root"]]
         if bright.all():
             out["path"] = paths.extend(parent_path, start * N_EVENT_KINDS + ev, K.n_codes)
@@ -623,13 +662,89 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
             out["path"] = node
     else:
         out["path"] = parent_path
-    if recording:
+    if born is not None:
         k = len(pidx)
         out["rid"] = np.arange(next_id, next_id + k, dtype=np.int64)
         out["parent"] = r["rid"][pidx]
-        out["born"] = col(8)
+        out["born"] = born
         next_id += k
-    return out, next_id
+    return next_id
+
+
+def _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen) -> int:
+    """Append this generation's segments of the recorded source rays to the ray table; returns
+    the number of rows added."""
+    want = record.wants(r["root"] + root_offset)
+    if want is None or not want.any():
+        return 0
+    cols = {"x": r["x"], "y": r["y"], "ex": ex, "ey": ey, "dx": r["dx"], "dy": r["dy"], "fs": r["fs"],
+            "fp": r["fp"], "med": r["med"], "opl": opl, "root": r["root"] + root_offset,
+            "rid": r["rid"], "parent": r["parent"], "born": r["born"], "end": end,
+            "edge": e, "wli": r["wli"]}
+    if not want.all():
+        cols = {k: v[want] for k, v in cols.items()}
+    cols["gen"] = np.full(len(cols["x"]), gen, dtype=np.int64)
+    for k, v in cols.items():
+        seg_store.setdefault(k, []).append(v)
+    return len(cols["x"])
+
+
+_NO_DRAWS = np.zeros(0)
+
+
+def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording):
+    """kernel_step.interface_step for this generation, with the Monte Carlo draws the array
+    code would take (one per ray at a dielectric face, in ray order)."""
+    mc = mode == MONTE_CARLO
+    u = _NO_DRAWS
+    if mc:
+        tr = K.treat[e]
+        n_di = int(np.count_nonzero((tr == T_BARE) | (tr == T_AR)))
+        if n_di:
+            u = rng.random(n_di)
+    R = tuple(np.ascontiguousarray(r[k]) for k in _STEP_STATE)
+    P = (int(W), bool(K.absorbing), mc, int(layout.bulk0), int(layout.face0),
+         int(layout.trunc0 + TRUNC_FLUX), float(cs.eps), float(cs.scale), bool(recording))
+    return timed_first_call("interface step", lambda: kernel_step.interface_step(
+        R, t, e, K.step_tables, K.detector_tables, (n_flat, K.alpha, thr_root), P, u))
+
+
+_STEP_STATE = ("x", "y", "dx", "dy", "fs", "fp", "opl", "wli", "med", "root", "last", "path")
+
+
+def _after_compiled_step(cs, K, r, e, step, paths, path_thr, recording, record, root_offset, next_id,
+                         seg_store, seg_rows, hit_store, hist, wavelengths, unsettled, bins, gen, stats,
+                         n_vertex):
+    """Book what the compiled step produced: stats, detector records, ray table, ledger bins and
+    path deposits; returns the next generation."""
+    (end, ex, ey, opl), (dcode, dflux, dnode), children, records, counts = step
+    stats["tir_events"] += int(counts[0])
+    stats["medium_mismatches"] += int(counts[1])
+    stats["grazing_hits"] += int(counts[2])
+    stats["vertex_hits"] += n_vertex
+    if len(records[0]):
+        det, pos, angle, front, hfs, hfp, hwli, hopl, hpath, hroot = records
+        if hist is not None:
+            hist.add(det, pos, angle, hfs, hfp)
+        else:
+            for k, v in (("detector", det), ("position", pos), ("angle_deg", angle), ("front", front),
+                         ("flux_s", hfs), ("flux_p", hfp), ("wavelength_nm", wavelengths[hwli]),
+                         ("optical_path", hopl), ("path", hpath), ("root", hroot + root_offset)):
+                hit_store.setdefault(k, []).append(v)
+    if seg_store is not None:
+        seg_rows += _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen)
+    if len(dcode):
+        bins += np.bincount(dcode, weights=dflux, minlength=len(bins))
+        if paths.enabled:
+            paths.deposit(dcode, dnode, dflux)
+    cx, cy, cdx, cdy, cfs, cfp, copl, cmed, clast, start, cwli, croot, cpath, pidx, cev, cborn = children
+    out = {"x": cx, "y": cy, "dx": cdx, "dy": cdy, "fs": cfs, "fp": cfp, "med": cmed, "start": start,
+           "last": clast, "opl": copl, "wli": cwli, "root": croot}
+    if unsettled is not None:
+        _settle_vertex_children(cs, out, np.flatnonzero(unsettled[pidx]))
+    next_id = _child_paths_and_ids(out, r, pidx, start, cev, cborn if recording else None, paths, path_thr,
+                                   K, next_id, parent_path=cpath)
+    return out, next_id, seg_rows
 
 
 def _vertex_groups(cs: CompiledScene):

@@ -1,0 +1,229 @@
+"""Compiled nearest-hit search: every ray against every edge, or through the uniform grid.
+
+The same pair formulas as `intersect.line_t` / `intersect.arc_t`, written out per pair, with
+the same operations in the same order (numba does not fuse or reorder floating-point operations
+without fast-math), so every (ray, edge) pair gives the same bits as the array code.  The same
+tie order as the plain search: the line of lowest index, then the arc of lowest index.  The
+grid walk is `accel.EdgeGrid._walk` for one ray at a time, on the grid that class builds.
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from .accel import GRID_MIN_EDGES, _cached, edge_grid
+from .compile import CompiledScene
+from .intersect import arc_constants
+from .kernel import jit, timed_first_call
+
+INF = math.inf
+
+
+@jit(inline="always")
+def line_t(x, y, dx, dy, ax, ay, ex, ey, eps):
+    denom = dx * ey - dy * ex
+    wx = ax - x
+    wy = ay - y
+    inv = 1.0 / denom
+    t = (wx * ey - wy * ex) * inv
+    u = (wx * dy - wy * dx) * inv
+    if u >= 0.0 and u <= 1.0 and t > eps:
+        return t
+    return INF
+
+
+@jit(inline="always")
+def arc_t(x, y, dx, dy, cx, cy, r2, sx, sy, qx, qy, major, tol, eps):
+    fx = x - cx
+    fy = y - cy
+    b = fx * dx + fy * dy
+    c = fx * fx + fy * fy - r2
+    disc = b * b - c
+    if not disc >= 0.0:
+        return INF
+    sq = math.sqrt(disc)
+    nb = -b
+    best = INF
+    for k in range(2):
+        t = nb - sq if k == 0 else nb + sq
+        hx = fx + t * dx
+        hy = fy + t * dy
+        c1 = sx * hy - sy * hx >= -tol
+        c2 = hx * qy - hy * qx >= -tol
+        on = (c1 or c2) if major else (c1 and c2)
+        if on and t > eps and t < best:
+            best = t
+    return best
+
+
+@jit
+def brute_one(x, y, dx, dy, start, L, A, eps):
+    """Nearest hit of one ray on the edges listed in L (lines) and A (arcs): (t, edge)."""
+    lid, lax, lay, lex, ley = L
+    aid, acx, acy, ar2, asx, asy, aqx, aqy, amaj, atol = A
+    tb = INF
+    eb = -1
+    for j in range(len(lid)):
+        if lid[j] == start:
+            continue
+        t = line_t(x, y, dx, dy, lax[j], lay[j], lex[j], ley[j], eps)
+        if t < tb:
+            tb = t
+            eb = lid[j]
+    for j in range(len(aid)):
+        t = arc_t(x, y, dx, dy, acx[j], acy[j], ar2[j], asx[j], asy[j], aqx[j], aqy[j], amaj[j], atol[j], eps)
+        if t < tb:
+            tb = t
+            eb = aid[j]
+    return tb, eb
+
+
+@jit
+def brute_all(x, y, dx, dy, start, L, A, eps, t_out, e_out):
+    for i in range(len(x)):
+        t_out[i], e_out[i] = brute_one(x[i], y[i], dx[i], dy[i], start[i], L, A, eps)
+
+
+@jit
+def grid_all(x, y, dx, dy, start, L, A, eps, G, cells, E, t_out, e_out):
+    """Big edges every ray against, then a 2D DDA walk through the grid's cells."""
+    gx0, gy0, gx1, gy1, h = G
+    nx, ny, ne = cells[0], cells[1], cells[2]
+    line_cells, line_count, arc_cells, arc_count, rank = E[0], E[1], E[2], E[3], E[4]
+    eax, eay, eex, eey, kcx, kcy, kr2, ksx, ksy, kqx, kqy, ktol = E[5], E[6], E[7], E[8], E[9], \
+        E[10], E[11], E[12], E[13], E[14], E[15], E[16]
+    kmaj = E[17]
+    for i in range(len(x)):
+        xi, yi, dxi, dyi, st = x[i], y[i], dx[i], dy[i], start[i]
+        tb, eb = brute_one(xi, yi, dxi, dyi, st, L, A, eps)
+        rb = rank[eb] if eb >= 0 else 2 * ne + 1
+        idx_ = 1.0 / dxi
+        idy_ = 1.0 / dyi
+        tx0 = (gx0 - xi) * idx_
+        tx1 = (gx1 - xi) * idx_
+        ty0 = (gy0 - yi) * idy_
+        ty1 = (gy1 - yi) * idy_
+        if dxi == 0.0:
+            inside = xi >= gx0 and xi <= gx1
+            tx0 = -INF if inside else INF
+            tx1 = INF if inside else -INF
+        if dyi == 0.0:
+            inside = yi >= gy0 and yi <= gy1
+            ty0 = -INF if inside else INF
+            ty1 = INF if inside else -INF
+        t_in = max(max(min(tx0, tx1), min(ty0, ty1)), 0.0)
+        t_exit = min(max(tx0, tx1), max(ty0, ty1))
+        if t_in <= t_exit and t_in < tb:
+            fx = math.floor((xi + t_in * dxi - gx0) / h)
+            fy = math.floor((yi + t_in * dyi - gy0) / h)
+            ix = int(min(max(fx, 0.0), nx - 1))
+            iy = int(min(max(fy, 0.0), ny - 1))
+            sx = 1 if dxi > 0 else -1
+            sy = 1 if dyi > 0 else -1
+            if dxi == 0.0:
+                tmx = INF
+                tdx = INF
+            else:
+                tmx = (gx0 + (ix + (1 if sx > 0 else 0)) * h - xi) * idx_
+                tdx = abs(idx_) * h
+            if dyi == 0.0:
+                tmy = INF
+                tdy = INF
+            else:
+                tmy = (gy0 + (iy + (1 if sy > 0 else 0)) * h - yi) * idy_
+                tdy = abs(idy_) * h
+            while True:
+                cell = iy * nx + ix
+                for k in range(line_count[cell]):
+                    ed = line_cells[cell, k]
+                    if ed == st:
+                        continue
+                    t = line_t(xi, yi, dxi, dyi, eax[ed], eay[ed], eex[ed], eey[ed], eps)
+                    if t < INF and (t < tb or (t == tb and rank[ed] < rb)):
+                        tb, eb, rb = t, ed, rank[ed]
+                for k in range(arc_count[cell]):
+                    ed = arc_cells[cell, k]
+                    t = arc_t(xi, yi, dxi, dyi, kcx[ed], kcy[ed], kr2[ed], ksx[ed], ksy[ed], kqx[ed],
+                              kqy[ed], kmaj[ed], ktol[ed], eps)
+                    if t < INF and (t < tb or (t == tb and rank[ed] < rb)):
+                        tb, eb, rb = t, ed, rank[ed]
+                t_far = min(tmx, tmy)
+                if tb <= t_far or t_far >= t_exit:
+                    break
+                if tmx < tmy:
+                    ix += sx
+                    tmx += tdx
+                else:
+                    iy += sy
+                    tmy += tdy
+                if ix < 0 or ix >= nx or iy < 0 or iy >= ny:
+                    break
+        t_out[i] = tb
+        e_out[i] = eb
+
+
+def _edge_lists(cs: CompiledScene, ids: np.ndarray):
+    """(lines, arcs) constant tuples for the edges `ids`, in ascending index within each kind."""
+    ids = np.asarray(ids, dtype=np.int64)
+    lines = np.ascontiguousarray(ids[~cs.is_arc[ids]])
+    arcs = np.ascontiguousarray(ids[cs.is_arc[ids]])
+    ex = cs.x1 - cs.x0
+    ey = cs.y1 - cs.y0
+    L = (lines, cs.x0[lines].copy(), cs.y0[lines].copy(), ex[lines].copy(), ey[lines].copy())
+    k = arc_constants(cs, arcs)
+    A = (arcs,) + tuple(np.ascontiguousarray(k[f], dtype=float) for f in ("cx", "cy", "r2", "sx", "sy", "qx", "qy")) \
+        + (np.ascontiguousarray(k["major"], dtype=np.bool_), np.ascontiguousarray(k["tol"], dtype=float))
+    return L, A
+
+
+class CompiledHits:
+    """A compiled scene's edge constants in the layouts the kernels take."""
+
+    def __init__(self, cs: CompiledScene, method: str):
+        self.eps = float(cs.eps)
+        self.method = method
+        if method == "grid":
+            g = edge_grid(cs)
+            self.L, self.A = _edge_lists(cs, g.big.lines.tolist() + g.big.arcs.tolist())
+            self.G = (float(g.x0), float(g.y0), float(g.x1), float(g.y1), float(g.h))
+            self.cells = np.array([g.nx, g.ny, cs.n_edges], dtype=np.int64)
+            lc = np.ascontiguousarray(g.line_cells)
+            ac = np.ascontiguousarray(g.arc_cells)
+            k = g.arc_k
+            self.E = (lc, np.ascontiguousarray(g.line_count, dtype=np.int64), ac,
+                      np.ascontiguousarray(g.arc_count, dtype=np.int64), np.ascontiguousarray(g.rank),
+                      g.ax, g.ay, g.ex, g.ey) + tuple(np.ascontiguousarray(k[f], dtype=float) for f in
+                                                      ("cx", "cy", "r2", "sx", "sy", "qx", "qy", "tol")) \
+                + (np.ascontiguousarray(k["major"], dtype=np.bool_),)
+        else:
+            self.L, self.A = _edge_lists(cs, np.arange(cs.n_edges))
+
+    def __call__(self, _cs, x, y, dx, dy, start):
+        n = len(x)
+        t = np.empty(n)
+        e = np.empty(n, dtype=np.int64)
+        if n == 0:
+            return t, e
+        args = (np.ascontiguousarray(x, dtype=float), np.ascontiguousarray(y, dtype=float),
+                np.ascontiguousarray(dx, dtype=float), np.ascontiguousarray(dy, dtype=float),
+                np.ascontiguousarray(start, dtype=np.int64))
+        if self.method == "grid":
+            timed_first_call("grid hit search", lambda: grid_all(*args, self.L, self.A, self.eps, self.G,
+                                                                 self.cells, self.E, t, e))
+        else:
+            timed_first_call("plain hit search", lambda: brute_all(*args, self.L, self.A, self.eps, t, e))
+        return t, e
+
+
+def compiled_hit_function(cs: CompiledScene, method: str = "auto"):
+    """The compiled nearest-hit function: "plain" (every edge), "grid", or "auto" (the grid
+    above accel.GRID_MIN_EDGES edges, as the array code decides; "sweep" is plain here: a
+    compiled loop over every edge is the sweep)."""
+    if method == "auto":
+        method = "grid" if cs.n_edges > GRID_MIN_EDGES else "plain"
+    if method == "sweep":
+        method = "plain"
+    if method not in ("plain", "grid"):
+        raise ValueError(f"acceleration: expected one of auto, plain, sweep, grid, found {method!r}")
+    return _cached(cs, f"compiled hits {method}", lambda: CompiledHits(cs, method))
