@@ -127,5 +127,5 @@ def run_plain(cs, start, mode, limits, seed):
     f64 = lambda a: np.ascontiguousarray(a, dtype=float)
     return plain_trace(f64(x0), f64(y0), f64(start.dx), f64(start.dy), f64(start.flux_s), f64(start.flux_p),
                        np.ascontiguousarray(med0, np.int64), np.ascontiguousarray(wli, np.int64), L, A, S,
-                       n_flat, K.alpha, len(wavelengths), float(cs.eps), float(limits.min_relative_flux),
-                       int(limits.max_depth), mode == MONTE_CARLO, int(seed if np.isscalar(seed) else seed[0]))
+                       n_flat, K.alpha, len(wavelengths), float(cs.eps), float(limits.flux_floor),
+                       int(limits.max_generations), mode == MONTE_CARLO, int(seed if np.isscalar(seed) else seed[0]))
