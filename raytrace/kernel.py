@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import os
 import tempfile
+from contextlib import contextmanager
 import time
 from pathlib import Path
 
@@ -47,6 +48,17 @@ def use(kernel: str | None) -> None:
     if kernel is not None and kernel not in KERNELS:
         raise RaytraceError(f"kernel: expected one of {', '.join(KERNELS)}, found {kernel!r}")
     _chosen = kernel
+
+
+@contextmanager
+def using(kernel: str):
+    """`with using("numpy"): ...` runs the block with that kernel, then restores the choice."""
+    before = _chosen
+    use(kernel)
+    try:
+        yield
+    finally:
+        use(before)
 
 
 def compiled() -> bool:
