@@ -51,7 +51,7 @@ def vertex_candidates(x, y, dx, dy, t, e, x0, y0, x1, y1, treat, tol2):
     return out[:k]
 
 
-@jit(inline="always")
+@jit
 def _unit(vx, vy):
     n = vx * vx
     n += vy * vy
@@ -61,7 +61,7 @@ def _unit(vx, vy):
     return vx / n, vy / n
 
 
-@jit(inline="always")
+@jit
 def dielectric(dx, dy, nx, ny, mp, mm, med, wli, W, n_flat, anti_reflection):
     """A ray meeting a bare (or anti-reflection coated) interface, as tracer._interfaces and
     fresnel.py compute it: (medium before, medium after, cos of incidence, TIR, R_s, R_p,
@@ -106,7 +106,7 @@ def dielectric(dx, dy, nx, ny, mp, mm, med, wli, W, n_flat, anti_reflection):
     return m_from, m_to, ci, tir, Rs, Rp, rx, ry, tx, ty
 
 
-@jit(inline="always")
+@jit
 def edge_normal_at(ee, hx, hy, enx, eny, is_arc, ecx, ecy):
     """Unit geometric normal at a hit (towards the med_plus side): the table's for a line, by
     the vector's own length for an arc, so a hit a rounding error off the circle gets a unit one."""
@@ -120,13 +120,13 @@ def edge_normal_at(ee, hx, hy, enx, eny, is_arc, ecx, ecy):
     return ax / r, ay / r
 
 
-@jit(inline="always")
+@jit
 def mirror_direction(dx, dy, nx, ny):
     dot = dx * nx + dy * ny
     return _unit(dx - 2 * dot * nx, dy - 2 * dot * ny)
 
 
-@jit(inline="always")
+@jit
 def _stable_by_tag(tag, n, n_tags):
     """Positions that sort entries 0..n-1 stably by tag (a counting sort)."""
     count = np.zeros(n_tags + 1, dtype=np.int64)
