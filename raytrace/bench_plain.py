@@ -18,8 +18,8 @@ from .kernel_step import (T_ABSORBER, T_AR, T_BARE, T_DETECT_ABSORB, T_DETECT_MO
 
 
 @jit
-def plain_trace(x0, y0, dx0, dy0, fs0, fp0, med0, wli0, L, A, S, n_flat, alpha, W, eps, thr_rel,
-                max_gen, monte_carlo, seed):
+def plain_trace(x0, y0, dx0, dy0, fs0, fp0, med0, wli0, lid, lf, aid, af, amaj, S, n_flat, alpha, W, eps,
+                thr_rel, max_gen, monte_carlo, seed):
     """Returns (segments traced, flux out by fate: escaped, absorbed, detected, truncated)."""
     treat_t, enx, eny, is_arc, ecx, ecy, med_plus, med_minus, refl_t = S
     np.random.seed(seed)
@@ -50,7 +50,7 @@ def plain_trace(x0, y0, dx0, dy0, fs0, fp0, med0, wli0, L, A, S, n_flat, alpha, 
                 out[3] += fs + fp
                 continue
             events += 1
-            t, e = brute_one(x, y, dx, dy, start, L, A, eps)
+            t, e = brute_one(x, y, dx, dy, start, lid, lf, aid, af, amaj, eps)
             a = alpha[med]
             if e < 0:
                 out[0 if a == 0 else 1] += fs + fp
@@ -112,13 +112,13 @@ def plain_trace(x0, y0, dx0, dy0, fs0, fp0, med0, wli0, L, A, S, n_flat, alpha, 
 def run_plain(cs, start, mode, limits, seed):
     """Trace `start` rays with the plain compiled loop, from the same start points, media and
     indices as `tracer.trace_rays`: (segments traced, flux out by fate)."""
-    from .kernel_hits import _edge_lists
+    from .kernel_hits import edge_lists
     from .tracer import MONTE_CARLO, _scene_arrays, _start_points, medium_at
     from .accel import hit_function
     K = _scene_arrays(cs)
-    L, A = _edge_lists(cs, np.arange(cs.n_edges))
-    tabs = K.step_tables
-    S = (tabs[0], tabs[2], tabs[3], tabs[4], tabs[5], tabs[6], tabs[7], tabs[8], tabs[9])
+    edges = edge_lists(cs, np.arange(cs.n_edges))
+    f, i = K.edge_float, K.edge_int
+    S = (i[0], f[0], f[1], i[2], f[2], f[3], i[3], i[4], f[4])
     wavelengths, wli = np.unique(start.wavelength, return_inverse=True)
     n_flat = np.array([np.broadcast_to(np.asarray(m.index(wavelengths), dtype=float), wavelengths.shape)
                        for m in cs.media]).reshape(-1)
@@ -126,6 +126,6 @@ def run_plain(cs, start, mode, limits, seed):
     med0 = medium_at(cs, x0, y0, start.dx, start.dy)
     f64 = lambda a: np.ascontiguousarray(a, dtype=float)
     return plain_trace(f64(x0), f64(y0), f64(start.dx), f64(start.dy), f64(start.flux_s), f64(start.flux_p),
-                       np.ascontiguousarray(med0, np.int64), np.ascontiguousarray(wli, np.int64), L, A, S,
+                       np.ascontiguousarray(med0, np.int64), np.ascontiguousarray(wli, np.int64), *edges, S,
                        n_flat, K.alpha, len(wavelengths), float(cs.eps), float(limits.flux_floor),
                        int(limits.max_generations), mode == MONTE_CARLO, int(seed if np.isscalar(seed) else seed[0]))

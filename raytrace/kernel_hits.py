@@ -58,21 +58,21 @@ def arc_t(x, y, dx, dy, cx, cy, r2, sx, sy, qx, qy, major, tol, eps):
 
 
 @jit
-def brute_one(x, y, dx, dy, start, L, A, eps):
-    """Nearest hit of one ray on the edges listed in L (lines) and A (arcs): (t, edge)."""
-    lid, lax, lay, lex, ley = L
-    aid, acx, acy, ar2, asx, asy, aqx, aqy, amaj, atol = A
+def brute_one(x, y, dx, dy, start, lid, lf, aid, af, amaj, eps):
+    """Nearest hit of one ray on the lines `lid` (rows of lf: start x, y, extent x, y) and the
+    arcs `aid` (rows of af: centre x, y, r^2, span start x, y, span end x, y, slack): (t, edge)."""
     tb = INF
     eb = -1
     for j in range(len(lid)):
         if lid[j] == start:
             continue
-        t = line_t(x, y, dx, dy, lax[j], lay[j], lex[j], ley[j], eps)
+        t = line_t(x, y, dx, dy, lf[0, j], lf[1, j], lf[2, j], lf[3, j], eps)
         if t < tb:
             tb = t
             eb = lid[j]
     for j in range(len(aid)):
-        t = arc_t(x, y, dx, dy, acx[j], acy[j], ar2[j], asx[j], asy[j], aqx[j], aqy[j], amaj[j], atol[j], eps)
+        t = arc_t(x, y, dx, dy, af[0, j], af[1, j], af[2, j], af[3, j], af[4, j], af[5, j], af[6, j], amaj[j],
+                  af[7, j], eps)
         if t < tb:
             tb = t
             eb = aid[j]
@@ -80,23 +80,19 @@ def brute_one(x, y, dx, dy, start, L, A, eps):
 
 
 @jit
-def brute_all(x, y, dx, dy, start, L, A, eps, t_out, e_out):
+def brute_all(x, y, dx, dy, start, lid, lf, aid, af, amaj, eps, t_out, e_out):
     for i in range(len(x)):
-        t_out[i], e_out[i] = brute_one(x[i], y[i], dx[i], dy[i], start[i], L, A, eps)
+        t_out[i], e_out[i] = brute_one(x[i], y[i], dx[i], dy[i], start[i], lid, lf, aid, af, amaj, eps)
 
 
 @jit
-def grid_all(x, y, dx, dy, start, L, A, eps, G, cells, E, t_out, e_out):
-    """Big edges every ray against, then a 2D DDA walk through the grid's cells."""
-    gx0, gy0, gx1, gy1, h = G
-    nx, ny, ne = cells[0], cells[1], cells[2]
-    line_cells, line_count, arc_cells, arc_count, rank = E[0], E[1], E[2], E[3], E[4]
-    eax, eay, eex, eey, kcx, kcy, kr2, ksx, ksy, kqx, kqy, ktol = E[5], E[6], E[7], E[8], E[9], \
-        E[10], E[11], E[12], E[13], E[14], E[15], E[16]
-    kmaj = E[17]
+def grid_all(x, y, dx, dy, start, lid, lf, aid, af, amaj, eps, gx0, gy0, gx1, gy1, h, nx, ny, ne,
+             line_cells, line_count, arc_cells, arc_count, rank, ef, kf, kmaj, t_out, e_out):
+    """Big edges every ray against, then a 2D DDA walk through the grid's cells (per-edge rows
+    ef: start x, y, extent x, y; kf: the arc constants as in brute_one)."""
     for i in range(len(x)):
         xi, yi, dxi, dyi, st = x[i], y[i], dx[i], dy[i], start[i]
-        tb, eb = brute_one(xi, yi, dxi, dyi, st, L, A, eps)
+        tb, eb = brute_one(xi, yi, dxi, dyi, st, lid, lf, aid, af, amaj, eps)
         rb = rank[eb] if eb >= 0 else 2 * ne + 1
         idx_ = 1.0 / dxi
         idy_ = 1.0 / dyi
@@ -139,13 +135,13 @@ def grid_all(x, y, dx, dy, start, L, A, eps, G, cells, E, t_out, e_out):
                     ed = line_cells[cell, k]
                     if ed == st:
                         continue
-                    t = line_t(xi, yi, dxi, dyi, eax[ed], eay[ed], eex[ed], eey[ed], eps)
+                    t = line_t(xi, yi, dxi, dyi, ef[0, ed], ef[1, ed], ef[2, ed], ef[3, ed], eps)
                     if t < INF and (t < tb or (t == tb and rank[ed] < rb)):
                         tb, eb, rb = t, ed, rank[ed]
                 for k in range(arc_count[cell]):
                     ed = arc_cells[cell, k]
-                    t = arc_t(xi, yi, dxi, dyi, kcx[ed], kcy[ed], kr2[ed], ksx[ed], ksy[ed], kqx[ed],
-                              kqy[ed], kmaj[ed], ktol[ed], eps)
+                    t = arc_t(xi, yi, dxi, dyi, kf[0, ed], kf[1, ed], kf[2, ed], kf[3, ed], kf[4, ed], kf[5, ed],
+                              kf[6, ed], kmaj[ed], kf[7, ed], eps)
                     if t < INF and (t < tb or (t == tb and rank[ed] < rb)):
                         tb, eb, rb = t, ed, rank[ed]
                 t_far = min(tmx, tmy)
@@ -163,41 +159,41 @@ def grid_all(x, y, dx, dy, start, L, A, eps, G, cells, E, t_out, e_out):
         e_out[i] = eb
 
 
-def _edge_lists(cs: CompiledScene, ids: np.ndarray):
-    """(lines, arcs) constant tuples for the edges `ids`, in ascending index within each kind."""
+ARC_ROWS = ("cx", "cy", "r2", "sx", "sy", "qx", "qy", "tol")
+
+
+def edge_lists(cs: CompiledScene, ids: np.ndarray):
+    """(line ids, line rows, arc ids, arc rows, arc is major) for the edges `ids`, in ascending
+    index within each kind: the arguments of brute_one after the ray."""
     ids = np.asarray(ids, dtype=np.int64)
     lines = np.ascontiguousarray(ids[~cs.is_arc[ids]])
     arcs = np.ascontiguousarray(ids[cs.is_arc[ids]])
-    ex = cs.x1 - cs.x0
-    ey = cs.y1 - cs.y0
-    L = (lines, cs.x0[lines].copy(), cs.y0[lines].copy(), ex[lines].copy(), ey[lines].copy())
+    lf = np.ascontiguousarray(np.array([cs.x0[lines], cs.y0[lines], (cs.x1 - cs.x0)[lines], (cs.y1 - cs.y0)[lines]],
+                                       dtype=float).reshape(4, len(lines)))
     k = arc_constants(cs, arcs)
-    A = (arcs,) + tuple(np.ascontiguousarray(k[f], dtype=float) for f in ("cx", "cy", "r2", "sx", "sy", "qx", "qy")) \
-        + (np.ascontiguousarray(k["major"], dtype=np.bool_), np.ascontiguousarray(k["tol"], dtype=float))
-    return L, A
+    af = np.ascontiguousarray(np.array([k[f] for f in ARC_ROWS], dtype=float).reshape(len(ARC_ROWS), len(arcs)))
+    return lines, lf, arcs, af, np.ascontiguousarray(k["major"], dtype=np.bool_)
 
 
 class CompiledHits:
-    """A compiled scene's edge constants in the layouts the kernels take."""
+    """A compiled scene's edge constants in the layouts the kernels take (plain arrays only:
+    numba types plain array arguments fast, tuples slowly, and a generation makes a few calls)."""
 
     def __init__(self, cs: CompiledScene, method: str):
         self.eps = float(cs.eps)
         self.method = method
         if method == "grid":
             g = edge_grid(cs)
-            self.L, self.A = _edge_lists(cs, g.big.lines.tolist() + g.big.arcs.tolist())
-            self.G = (float(g.x0), float(g.y0), float(g.x1), float(g.y1), float(g.h))
-            self.cells = np.array([g.nx, g.ny, cs.n_edges], dtype=np.int64)
-            lc = np.ascontiguousarray(g.line_cells)
-            ac = np.ascontiguousarray(g.arc_cells)
+            self.edges = edge_lists(cs, np.concatenate([g.big.lines, g.big.arcs]).astype(np.int64))
+            c = np.ascontiguousarray
             k = g.arc_k
-            self.E = (lc, np.ascontiguousarray(g.line_count, dtype=np.int64), ac,
-                      np.ascontiguousarray(g.arc_count, dtype=np.int64), np.ascontiguousarray(g.rank),
-                      g.ax, g.ay, g.ex, g.ey) + tuple(np.ascontiguousarray(k[f], dtype=float) for f in
-                                                      ("cx", "cy", "r2", "sx", "sy", "qx", "qy", "tol")) \
-                + (np.ascontiguousarray(k["major"], dtype=np.bool_),)
+            self.grid = (float(g.x0), float(g.y0), float(g.x1), float(g.y1), float(g.h), int(g.nx), int(g.ny),
+                         int(cs.n_edges), c(g.line_cells), c(g.line_count, dtype=np.int64), c(g.arc_cells),
+                         c(g.arc_count, dtype=np.int64), c(g.rank),
+                         c(np.array([g.ax, g.ay, g.ex, g.ey], dtype=float)),
+                         c(np.array([k[f] for f in ARC_ROWS], dtype=float)), c(k["major"], dtype=np.bool_))
         else:
-            self.L, self.A = _edge_lists(cs, np.arange(cs.n_edges))
+            self.edges = edge_lists(cs, np.arange(cs.n_edges))
 
     def __call__(self, _cs, x, y, dx, dy, start):
         n = len(x)
@@ -205,14 +201,13 @@ class CompiledHits:
         e = np.empty(n, dtype=np.int64)
         if n == 0:
             return t, e
-        args = (np.ascontiguousarray(x, dtype=float), np.ascontiguousarray(y, dtype=float),
-                np.ascontiguousarray(dx, dtype=float), np.ascontiguousarray(dy, dtype=float),
-                np.ascontiguousarray(start, dtype=np.int64))
+        c = np.ascontiguousarray
+        args = (c(x, dtype=float), c(y, dtype=float), c(dx, dtype=float), c(dy, dtype=float),
+                c(start, dtype=np.int64)) + self.edges + (self.eps,)
         if self.method == "grid":
-            timed_first_call("grid hit search", lambda: grid_all(*args, self.L, self.A, self.eps, self.G,
-                                                                 self.cells, self.E, t, e))
+            timed_first_call("grid hit search", lambda: grid_all(*args, *self.grid, t, e))
         else:
-            timed_first_call("plain hit search", lambda: brute_all(*args, self.L, self.A, self.eps, t, e))
+            timed_first_call("plain hit search", lambda: brute_all(*args, t, e))
         return t, e
 
 

@@ -141,29 +141,33 @@ def _stable_by_tag(tag, n, n_tags):
     return pos
 
 
+# rows of the per-edge tables (extended by one "no edge" column at index ne)
+EDGE_FLOAT_ROWS = ("nx", "ny", "cx", "cy", "reflectance", "x0", "y0", "ex", "ey", "length")
+EDGE_INT_ROWS = ("treat", "escape_code", "is_arc", "med_plus", "med_minus", "detector")
+
+
 @jit
-def interface_step(R, t, e, S, D, N, P, u):
+def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, TF, TI, n_flat, alpha,
+                   thr_root, W, absorbing, mc, bulk0, face0, trunc_code, eps, scale, rec, u):
     """One generation after its hit search.
 
-    R: ray state (x, y, dx, dy, fs, fp, opl, wli, med, root, last, path).
-    S: per-edge tables extended by one "no edge" row at index ne (treat, escape code, normal x, y,
-       is_arc, centre x, y, medium +, medium -, reflectance, detector id).
-    D: per-edge detector constants (start x, y, start -> end x, y, length).
-    N: (n_flat, alpha, thr_root): index per (medium, wavelength), absorption per medium,
-       truncation threshold per source ray.
-    P: (W, absorbing, monte_carlo, bulk0, face0, trunc code, eps, scale, recording).
-    u: uniform draws for the dielectric rays of a Monte Carlo generation, in ray order.
+    x .. path: ray state; t, e: the hits.  TF, TI: per-edge tables (EDGE_FLOAT_ROWS,
+    EDGE_INT_ROWS): normal (lines), arc centre, mirror reflectance, detector start, extent and
+    length; treatment, escape bin, arc flag, media on both sides, detector id.  n_flat: index
+    per (medium, wavelength); alpha: absorption per medium; thr_root: truncation threshold per
+    source ray.  W wavelengths; bulk0, face0, trunc_code: ledger bins; rec: write the per-ray
+    columns of the ray table.  u: uniform draws for the dielectric rays of a Monte Carlo
+    generation, in ray order.  (Plain array and scalar arguments only: numba types those fast,
+    tuples slowly, and a generation of a small fan is over in well under a millisecond.)
 
     Everything is written in one pass over the rays into buffers kept in ray order; where the
     array code orders a list by kind first (deposits: bulk, escapes, detectors, absorbing faces,
     mirrors, faint children; children: passed, mirror, reflected, transmitted) the buffers are
     put in that order at the end with a stable counting sort.
     """
-    x, y, dx, dy, fs, fp, opl, wli, med, root, last, path = R
-    treat_t, esc_code, enx, eny, is_arc, ecx, ecy, med_plus, med_minus, refl_t, det_id = S
-    dsx, dsy, dex, dey, dlen = D
-    n_flat, alpha, thr_root = N
-    W, absorbing, mc, bulk0, face0, trunc_code, eps, scale, rec = P
+    enx, eny, ecx, ecy, refl_t = TF[0], TF[1], TF[2], TF[3], TF[4]
+    dsx, dsy, dex, dey, dlen = TF[5], TF[6], TF[7], TF[8], TF[9]
+    treat_t, esc_code, is_arc, med_plus, med_minus, det_id = TI[0], TI[1], TI[2], TI[3], TI[4], TI[5]
     m = len(x)
     ne = len(treat_t) - 1
     back = 2.0 * eps

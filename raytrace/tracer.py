@@ -124,16 +124,15 @@ class _SceneArrays:
         self.n_codes = ne * N_EVENT_KINDS
         self.eps = cs.eps
         self.detector_ids = np.flatnonzero(cs.detector >= 0)
-        # the same extended tables with the dtypes kernel_step.interface_step takes
+        # the same extended tables as kernel_step.interface_step takes them (EDGE_*_ROWS)
         i64 = lambda a: np.ascontiguousarray(a, dtype=np.int64)
         f64 = lambda a: np.ascontiguousarray(a, dtype=float)
-        self.step_tables = (i64(self.treat), i64(self.escape_code), f64(self.nx), f64(self.ny),
-                            np.ascontiguousarray(self.is_arc, dtype=np.bool_), f64(self.cx), f64(self.cy),
-                            i64(self.med_plus), i64(self.med_minus), f64(self.reflectance),
-                            i64(ext(cs.detector, -1)))
         dex, dey = cs.x1 - cs.x0, cs.y1 - cs.y0
-        self.detector_tables = (f64(ext(cs.x0, 0.0)), f64(ext(cs.y0, 0.0)), f64(ext(dex, 1.0)), f64(ext(dey, 0.0)),
-                                f64(ext(np.hypot(dex, dey), 1.0)))
+        self.edge_float = f64(np.array([self.nx, self.ny, self.cx, self.cy, self.reflectance, ext(cs.x0, 0.0),
+                                        ext(cs.y0, 0.0), ext(dex, 1.0), ext(dey, 0.0), ext(np.hypot(dex, dey), 1.0)],
+                                       dtype=float))
+        self.edge_int = i64(np.array([self.treat, self.escape_code, self.is_arc, self.med_plus, self.med_minus,
+                                      ext(cs.detector, -1)], dtype=np.int64))
         self.x0, self.y0, self.x1, self.y1 = (f64(a) for a in (self.x0, self.y0, self.x1, self.y1))
         self.detectors_touch_boundary = _detectors_touch_boundary(cs)
 
@@ -702,11 +701,12 @@ def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recor
         n_di = int(np.count_nonzero((tr == T_BARE) | (tr == T_AR)))
         if n_di:
             u = rng.random(n_di)
-    R = tuple(np.ascontiguousarray(r[k]) for k in _STEP_STATE)
-    P = (int(W), bool(K.absorbing), mc, int(layout.bulk0), int(layout.face0),
-         int(layout.trunc0 + TRUNC_FLUX), float(cs.eps), float(cs.scale), bool(recording))
+    c = np.ascontiguousarray
+    state = [c(r[k]) for k in _STEP_STATE]
     return timed_first_call("interface step", lambda: kernel_step.interface_step(
-        R, t, e, K.step_tables, K.detector_tables, (n_flat, K.alpha, thr_root), P, u))
+        *state, t, e, K.edge_float, K.edge_int, n_flat, K.alpha, thr_root, int(W), bool(K.absorbing), mc,
+        int(layout.bulk0), int(layout.face0), int(layout.trunc0 + TRUNC_FLUX), float(cs.eps), float(cs.scale),
+        bool(recording), u))
 
 
 _STEP_STATE = ("x", "y", "dx", "dy", "fs", "fp", "opl", "wli", "med", "root", "last", "path")
