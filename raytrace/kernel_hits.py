@@ -14,21 +14,21 @@ import numpy as np
 
 from .accel import GRID_MIN_EDGES, _cached, edge_grid
 from .compile import CompiledScene
-from .intersect import arc_constants
+from .intersect import arc_constants, line_reach
 from .kernel import jit, timed_first_call
 
 INF = math.inf
 
 
 @jit(inline="always")
-def line_t(x, y, dx, dy, ax, ay, ex, ey, eps):
+def line_t(x, y, dx, dy, ax, ay, ex, ey, reach, eps):
     denom = dx * ey - dy * ex
     wx = ax - x
     wy = ay - y
     inv = 1.0 / denom
     t = (wx * ey - wy * ex) * inv
     u = (wx * dy - wy * dx) * inv
-    if u >= 0.0 and u <= 1.0 and t > eps:
+    if u >= -reach and u <= 1.0 + reach and t > eps:
         return t
     return INF
 
@@ -59,14 +59,15 @@ def arc_t(x, y, dx, dy, cx, cy, r2, sx, sy, qx, qy, major, tol, eps):
 
 @jit
 def brute_one(x, y, dx, dy, start, lid, lf, aid, af, amaj, eps):
-    """Nearest hit of one ray on the lines `lid` (rows of lf: start x, y, extent x, y) and the
+    """Nearest hit of one ray on the lines `lid` (rows of lf: start x, y, extent x, y, reach past
+    the ends as a fraction of the length, `intersect.line_reach`) and the
     arcs `aid` (rows of af: centre x, y, r^2, span start x, y, span end x, y, slack): (t, edge)."""
     tb = INF
     eb = -1
     for j in range(len(lid)):
         if lid[j] == start:
             continue
-        t = line_t(x, y, dx, dy, lf[0, j], lf[1, j], lf[2, j], lf[3, j], eps)
+        t = line_t(x, y, dx, dy, lf[0, j], lf[1, j], lf[2, j], lf[3, j], lf[4, j], eps)
         if t < tb:
             tb = t
             eb = lid[j]
@@ -89,7 +90,7 @@ def brute_all(x, y, dx, dy, start, lid, lf, aid, af, amaj, eps, t_out, e_out):
 def grid_all(x, y, dx, dy, start, lid, lf, aid, af, amaj, eps, gx0, gy0, gx1, gy1, h, nx, ny, ne,
              line_cells, line_count, arc_cells, arc_count, rank, ef, kf, kmaj, t_out, e_out):
     """Big edges every ray against, then a 2D DDA walk through the grid's cells (per-edge rows
-    ef: start x, y, extent x, y; kf: the arc constants as in brute_one)."""
+    ef: start x, y, extent x, y, reach; kf: the arc constants as in brute_one)."""
     for i in range(len(x)):
         xi, yi, dxi, dyi, st = x[i], y[i], dx[i], dy[i], start[i]
         tb, eb = brute_one(xi, yi, dxi, dyi, st, lid, lf, aid, af, amaj, eps)
@@ -135,7 +136,7 @@ def grid_all(x, y, dx, dy, start, lid, lf, aid, af, amaj, eps, gx0, gy0, gx1, gy
                     ed = line_cells[cell, k]
                     if ed == st:
                         continue
-                    t = line_t(xi, yi, dxi, dyi, ef[0, ed], ef[1, ed], ef[2, ed], ef[3, ed], eps)
+                    t = line_t(xi, yi, dxi, dyi, ef[0, ed], ef[1, ed], ef[2, ed], ef[3, ed], ef[4, ed], eps)
                     if t < INF and (t < tb or (t == tb and rank[ed] < rb)):
                         tb, eb, rb = t, ed, rank[ed]
                 for k in range(arc_count[cell]):
@@ -168,8 +169,8 @@ def edge_lists(cs: CompiledScene, ids: np.ndarray):
     ids = np.asarray(ids, dtype=np.int64)
     lines = np.ascontiguousarray(ids[~cs.is_arc[ids]])
     arcs = np.ascontiguousarray(ids[cs.is_arc[ids]])
-    lf = np.ascontiguousarray(np.array([cs.x0[lines], cs.y0[lines], (cs.x1 - cs.x0)[lines], (cs.y1 - cs.y0)[lines]],
-                                       dtype=float).reshape(4, len(lines)))
+    lf = np.ascontiguousarray(np.array([cs.x0[lines], cs.y0[lines], (cs.x1 - cs.x0)[lines], (cs.y1 - cs.y0)[lines],
+                                        line_reach(cs, lines)], dtype=float).reshape(5, len(lines)))
     k = arc_constants(cs, arcs)
     af = np.ascontiguousarray(np.array([k[f] for f in ARC_ROWS], dtype=float).reshape(len(ARC_ROWS), len(arcs)))
     return lines, lf, arcs, af, np.ascontiguousarray(k["major"], dtype=np.bool_)
@@ -190,7 +191,7 @@ class CompiledHits:
             self.grid = (float(g.x0), float(g.y0), float(g.x1), float(g.y1), float(g.h), int(g.nx), int(g.ny),
                          int(cs.n_edges), c(g.line_cells), c(g.line_count, dtype=np.int64), c(g.arc_cells),
                          c(g.arc_count, dtype=np.int64), c(g.rank),
-                         c(np.array([g.ax, g.ay, g.ex, g.ey], dtype=float)),
+                         c(np.array([g.ax, g.ay, g.ex, g.ey, g.reach], dtype=float)),
                          c(np.array([k[f] for f in ARC_ROWS], dtype=float)), c(k["major"], dtype=np.bool_))
         else:
             self.edges = edge_lists(cs, np.arange(cs.n_edges))

@@ -10,8 +10,8 @@ transmitted, each in ray order).  So the ledger sums in the same order, the Mont
 to the same rays, and the next generation is the same arrays.
 
 Vertex and corner hits are not resolved here: the tracer resolves them between the hit search
-and this step (`tracer.resolve_vertex_hits`, shared by both kernels), and `vertex_candidates`
-only finds the rays that need it.
+and this step (`tracer._corner_hits`, the corner rules, shared by both kernels), and
+`vertex_candidates` only finds the rays that need them.
 """
 from __future__ import annotations
 

@@ -46,6 +46,11 @@ N_EVENT_KINDS = len(EVENT_KINDS)
 MAX_PATH_NODES = 500_000     # past this, new paths are lumped as "other paths"
 T_ESCAPE = 6                 # treatment code of "no edge": index -1 of the extended tables
 GRAZING_COS = 1e-9           # |cos| below which a hit counts as grazing
+VERTEX_TOL = 1e3             # eps from an edge's end within which a hit is on the vertex
+# directions (rad) of the casts that find the medium at a point when no direction is given
+PROBE_ANGLES = (0.7390851332151607, 2.2903914791364015, 4.4076789862512483)
+CORNER_PROBE = 4.0           # eps past a vertex hit where the medium beyond is probed
+CORNER_ROUNDS = 8            # corners a ray may pass straight on through within one segment
 
 # Bytes a live ray costs during one generation: its state plus the temporaries of the hit
 # search and the interface physics.  tracemalloc on the light pipe (200,000 rays in one chunk)
@@ -261,7 +266,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     stats = {"segments": 0, "generations": 0, "vertex_hits": 0, "grazing_hits": 0,
              "medium_mismatches": 0, "tir_events": 0, "source_rays": n}
     budget = limits.max_memory_mb * 1e6
-    vertex_tol2 = (1e3 * cs.eps) ** 2
+    vertex_tol2 = (VERTEX_TOL * cs.eps) ** 2
     gen = 0
     seg_rows = hit_rows = 0
 
@@ -297,27 +302,13 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
 
         x, y, dx, dy = r["x"], r["y"], r["dx"], r["dy"]
         fs, fp, med = r["fs"], r["fp"], r["med"]
-        # --- nearest hit, then travel to it
-        t, e = hit_fn(cs, x, y, dx, dy, r["start"])
-        if K.detectors_touch_boundary:
-            # a detector drawn on a face is met first: it records the ray, then the face acts
-            td, ed = nearest_hit(cs, x, y, dx, dy, r["start"], edge_ids=K.detector_ids)
-            first = (ed >= 0) & (ed != e) & (td <= t + cs.eps)
-            if first.any():
-                t = np.where(first, td, t)
-                e = np.where(first, ed, e)
-        # a hit on a vertex belongs to every edge meeting there: let the one between the
-        # ray's medium and the medium beyond the vertex act (see resolve_vertex_hits)
-        if compiled:
-            iv = kernel_step.vertex_candidates(x, y, dx, dy, t, e, K.x0, K.y0, K.x1, K.y1, K.treat, vertex_tol2)
-        else:
-            iv = _vertex_candidates(K, x, y, dx, dy, t, e, vertex_tol2)
-        e, unsettled = resolve_vertex_hits(cs, K, x, y, dx, dy, med, t, e, iv)
+        # --- nearest hit (with the corner rules, see _corner_hits), then travel to it
+        t, e, unsettled = _corner_hits(cs, K, r, hit_fn, vertex_tol2, stats, compiled)
         if compiled:
             step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording)
             r, next_id, seg_rows = _after_compiled_step(
                 cs, K, r, e, step, paths, path_thr, recording, record, root_offset, next_id, seg_store,
-                seg_rows, hit_store, hist, wavelengths, unsettled, bins, gen, stats, len(iv))
+                seg_rows, hit_store, hist, wavelengths, unsettled, bins, gen, stats)
             if hit_store:
                 hit_rows = sum(len(v) for v in hit_store["root"])
             gen += 1
@@ -418,8 +409,6 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
             if len(di):
                 _interfaces(cs, K, r, di, e, hx, hy, fs, fp, treat, n_flat, W, mode, rng, stats, end, kids)
 
-        stats["vertex_hits"] += len(iv)     # segments that ended on a vertex
-
         if seg_store is not None:
             ex = np.where(esc, hx + 3 * cs.scale * dx, hx)
             ey = np.where(esc, hy + 3 * cs.scale * dy, hy)
@@ -454,31 +443,6 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         path_parent=paths.parent.copy(), path_code=paths.code.copy(),
         path_flux=paths.flux_dict() if paths.enabled else {}, wavelengths=wavelengths, stats=stats,
         histograms=hist.to_dict() if hist is not None else None)
-
-
-def _vertex_candidates(K, x, y, dx, dy, t, e, vertex_tol2):
-    """Rays whose hit lies on (within 1e3 eps of) an end of the edge hit, detectors excepted."""
-    hit = e >= 0
-    ev = np.where(hit, e, -1)
-    vx, vy = x + np.where(hit, t, 0.0) * dx, y + np.where(hit, t, 0.0) * dy
-    vnear = np.minimum((vx - K.x0[ev]) ** 2 + (vy - K.y0[ev]) ** 2, (vx - K.x1[ev]) ** 2 + (vy - K.y1[ev]) ** 2)
-    return np.flatnonzero(hit & (vnear < vertex_tol2) & (K.treat[ev] < T_DETECT_ABSORB))
-
-
-def resolve_vertex_hits(cs, K, x, y, dx, dy, med, t, e, iv):
-    """Vertex and corner hits, for both kernels: rows `iv` hit an end of their edge.  Returns
-    the edges that act (see _vertex_edges) and, where no edge fitted, a mask of the rays whose
-    children are probed for their medium (None when every vertex hit fitted)."""
-    unsettled = None
-    if len(iv):
-        vx = x[iv] + t[iv] * dx[iv]
-        vy = y[iv] + t[iv] * dy[iv]
-        e = e.copy()
-        e[iv], fitted = _vertex_edges(cs, K, vx, vy, dx[iv], dy[iv], med[iv], e[iv])
-        if not fitted.all():
-            unsettled = np.zeros(len(x), dtype=bool)
-            unsettled[iv[~fitted]] = True
-    return e, unsettled
 
 
 def _normals(cs, K, e, hx, hy):
@@ -713,15 +677,13 @@ _STEP_STATE = ("x", "y", "dx", "dy", "fs", "fp", "opl", "wli", "med", "root", "l
 
 
 def _after_compiled_step(cs, K, r, e, step, paths, path_thr, recording, record, root_offset, next_id,
-                         seg_store, seg_rows, hit_store, hist, wavelengths, unsettled, bins, gen, stats,
-                         n_vertex):
+                         seg_store, seg_rows, hit_store, hist, wavelengths, unsettled, bins, gen, stats):
     """Book what the compiled step produced: stats, detector records, ray table, ledger bins and
     path deposits; returns the next generation."""
     (end, ex, ey, opl), (dcode, dflux, dnode), children, records, counts = step
     stats["tir_events"] += int(counts[0])
     stats["medium_mismatches"] += int(counts[1])
     stats["grazing_hits"] += int(counts[2])
-    stats["vertex_hits"] += n_vertex
     if len(records[0]):
         det, pos, angle, front, hfs, hfp, hwli, hopl, hpath, hroot = records
         if hist is not None:
@@ -749,11 +711,11 @@ def _after_compiled_step(cs, K, r, e, step, paths, path_thr, recording, record, 
 
 def _vertex_groups(cs: CompiledScene):
     """Boundary edges grouped by the vertices they end at: (group of each edge's start, group of
-    each edge's end, CSR offsets, edges of each group).  Vertices closer than 1e3 eps are one."""
+    each edge's end, CSR offsets, edges of each group).  Vertices closer than VERTEX_TOL eps are one."""
     cache = cs.__dict__.setdefault("_accel_cache", {})
     if "vertex_groups" in cache:
         return cache["vertex_groups"]
-    q = 1.0 / (1e3 * cs.eps)
+    q = 1.0 / (VERTEX_TOL * cs.eps)
     keys: dict[tuple[int, int], int] = {}
     n = cs.n_edges
     group = np.empty(2 * n, dtype=np.int64)
@@ -776,33 +738,103 @@ def _vertex_groups(cs: CompiledScene):
     return cache["vertex_groups"]
 
 
-def _vertex_edges(cs, K, hx, hy, dx, dy, med, chosen):
-    """For rays hitting a vertex: among the boundary edges that end there, the one that has the
-    ray's medium on the side it comes from and, on the other side, the medium just beyond the
-    vertex along the ray.  Where none has (a ray grazing a corner), the search's choice stays.
-    Returns the edges and whether one fitted."""
-    step = 4.0 * cs.eps
-    beyond = medium_at(cs, hx + step * dx, hy + step * dy, dx, dy)
+def _first_hit(cs, K, x, y, dx, dy, start, hit_fn):
+    """Nearest hit; a detector drawn on a face is met first: it records the ray, then the face acts."""
+    t, e = hit_fn(cs, x, y, dx, dy, start)
+    if K.detectors_touch_boundary:
+        td, ed = nearest_hit(cs, x, y, dx, dy, start, edge_ids=K.detector_ids)
+        first = (ed >= 0) & (ed != e) & (td <= t + cs.eps)
+        if first.any():
+            t = np.where(first, td, t)
+            e = np.where(first, ed, e)
+    return t, e
+
+
+def _near_vertex(cs, K, e, hx, hy, tol2):
+    """Hits on a boundary edge within sqrt(tol2) of one of its end points."""
+    ev = np.where(e >= 0, e, -1)
+    d2 = np.minimum((hx - K.x0[ev]) ** 2 + (hy - K.y0[ev]) ** 2, (hx - K.x1[ev]) ** 2 + (hy - K.y1[ev]) ** 2)
+    return (e >= 0) & (d2 < tol2) & (K.treat[ev] < T_DETECT_ABSORB)
+
+
+def _corner_hits(cs, K, r, hit_fn, tol2, stats, compiled=False):
+    """Nearest hit of every ray, with the corner rules.  Returns (t, e, unsettled).
+
+    A hit on a vertex belongs to every edge meeting there.  The medium is probed CORNER_PROBE
+    eps past the hit along the ray:
+    - the same medium as the ray's: the ray passes straight on, with no event, and its segment
+      runs on to the next hit beyond (searched from the probe point, so it agrees with the probe);
+    - another medium: the edge between the two acts, the lowest-numbered one among the edges
+      ending at the vertex; where none fits, the search's edge, and `unsettled` marks the row
+      (its children take the medium they head into, see _settle_vertex_children)."""
+    x, y, dx, dy, med = r["x"], r["y"], r["dx"], r["dy"], r["med"]
+    t, e = _first_hit(cs, K, x, y, dx, dy, r["start"], hit_fn)
+    if compiled:        # the same test as _near_vertex, in one compiled pass
+        idx = kernel_step.vertex_candidates(x, y, dx, dy, t, e, K.x0, K.y0, K.x1, K.y1, K.treat, tol2)
+    else:
+        hit = e >= 0
+        at_vertex = _near_vertex(cs, K, e, x + np.where(hit, t, 0.0) * dx, y + np.where(hit, t, 0.0) * dy, tol2)
+        idx = np.flatnonzero(at_vertex)
+    if len(idx) == 0:
+        return t, e, None
+    t, e = t.copy(), e.copy()
+    unsettled = np.zeros(len(x), dtype=bool)
+    events = 0
+    step = CORNER_PROBE * cs.eps
+    for _ in range(CORNER_ROUNDS):
+        if len(idx) == 0:
+            break
+        events += len(idx)
+        hx, hy = x[idx] + t[idx] * dx[idx], y[idx] + t[idx] * dy[idx]
+        px, py = hx + step * dx[idx], hy + step * dy[idx]
+        beyond = medium_at(cs, px, py, dx[idx], dy[idx])
+        act = np.flatnonzero(beyond != med[idx])
+        if len(act):
+            ia = idx[act]
+            e[ia], fitted = _corner_edge(cs, hx[act], hy[act], dx[ia], dy[ia], med[ia], beyond[act], e[ia])
+            unsettled[ia[~fitted]] = True
+        on = beyond == med[idx]
+        idx, px, py = idx[on], px[on], py[on]
+        if len(idx) == 0:
+            break
+        # pass straight on: the segment goes on from the probe point to the next hit
+        t2, e2 = _first_hit(cs, K, px, py, dx[idx], dy[idx], np.full(len(idx), -1, dtype=np.int64), hit_fn)
+        t[idx] = t[idx] + step + t2
+        e[idx] = e2
+        h = e2 >= 0
+        tt = np.where(h, t[idx], 0.0)
+        again = _near_vertex(cs, K, e2, x[idx] + tt * dx[idx], y[idx] + tt * dy[idx], tol2)
+        idx = idx[again]
+    unsettled[idx] = True      # still at a vertex after CORNER_ROUNDS passes
+    stats["vertex_hits"] += events
+    return t, e, unsettled if unsettled.any() else None
+
+
+def _corner_edge(cs, hx, hy, dx, dy, med, beyond, near):
+    """For rays at a vertex: the lowest-numbered boundary edge ending there that has the ray's
+    medium `med` on the side the ray comes from and `beyond` on the other.  The vertex is the
+    end of edge `near` closest to the hit.  Returns (edges, fitted); where none fits the edge
+    is `near`."""
     g_start, g_end, offsets, members = _vertex_groups(cs)
-    at_start = (hx - cs.x0[chosen]) ** 2 + (hy - cs.y0[chosen]) ** 2 <= (hx - cs.x1[chosen]) ** 2 + (hy - cs.y1[chosen]) ** 2
-    g = np.where(at_start, g_start[chosen], g_end[chosen])
+    at_start = (hx - cs.x0[near]) ** 2 + (hy - cs.y0[near]) ** 2 <= (hx - cs.x1[near]) ** 2 + (hy - cs.y1[near]) ** 2
+    g = np.where(at_start, g_start[near], g_end[near])
     sizes = offsets[g + 1] - offsets[g]
     rows = np.repeat(np.arange(len(g)), sizes)
     local = np.arange(len(rows)) - np.repeat(np.cumsum(sizes) - sizes, sizes)
     cols = members[offsets[g][rows] + local]
+    out = near.copy()
+    fitted = np.zeros(len(near), dtype=bool)
     if len(rows) == 0:
-        return chosen, np.zeros(len(chosen), dtype=bool)
+        return out, fitted
     nx, ny = edge_normal(cs, cols, hx[rows], hy[rows])
     cos = dx[rows] * nx + dy[rows] * ny
     cur, nxt = med[rows], beyond[rows]
     fits = ((cs.med_plus[cols] == cur) & (cs.med_minus[cols] == nxt) & (cos < 0)) | \
            ((cs.med_minus[cols] == cur) & (cs.med_plus[cols] == nxt) & (cos > 0))
-    out = chosen.copy()
     # the lowest fitting edge per ray: assign the fitting pairs from the highest edge down
     fit = np.flatnonzero(fits)
     order = fit[np.argsort(-cols[fit], kind="stable")]
     out[rows[order]] = cols[order]
-    fitted = np.zeros(len(chosen), dtype=bool)
     fitted[rows[fit]] = True
     return out, fitted
 
@@ -862,20 +894,22 @@ def _segment_table(store, wavelengths):
     return out
 
 
-def medium_at(cs: CompiledScene, x, y, dx=None, dy=None) -> np.ndarray:
+def medium_at(cs: CompiledScene, x, y, dx=None, dy=None, _probe: int = 0) -> np.ndarray:
     """Medium each ray starts in: cast it and read the medium on the near side of the first
     boundary it meets (ambient when it meets none).
 
     With directions given (a source's rays) each ray is cast along its own direction, so a ray
     that starts exactly on a face is in the medium it is heading into, and its medium always
-    agrees with its first interface.  Without, an irrational-ish fixed direction is used (it
-    avoids passing exactly through vertices of axis-aligned parts)."""
+    agrees with its first interface.  Without, fixed irrational-ish directions are used (they
+    avoid passing exactly through vertices of axis-aligned parts).  A cast whose first boundary
+    hit grazes the edge or lands on a vertex cannot tell the side: those points are cast again
+    in the next fixed direction (PROBE_ANGLES)."""
     n = len(x)
     if n == 0:
         return np.zeros(0, dtype=np.int64)
     fixed = dx is None or dy is None
     if fixed:
-        ang = 0.7390851332151607
+        ang = PROBE_ANGLES[_probe]
         dx = np.full(n, np.cos(ang))
         dy = np.full(n, np.sin(ang))
     else:
@@ -905,14 +939,15 @@ def medium_at(cs: CompiledScene, x, y, dx=None, dy=None) -> np.ndarray:
         nx, ny = edge_normal(cs, eh, hx, hy)
         cos = dx[hit] * nx + dy[hit] * ny
         med[hit] = np.where(cos < 0, cs.med_plus[eh], cs.med_minus[eh])
-        if not fixed:
-            # a probe that grazes its first edge cannot tell the side: probe those points again
-            # in the fixed direction
-            again = np.flatnonzero(hit)[np.abs(cos) < GRAZING_COS]
+        nxt = _probe + 1 if fixed else 0
+        if nxt < len(PROBE_ANGLES):
+            tol2 = (VERTEX_TOL * cs.eps) ** 2
+            at_vertex = np.minimum((hx - cs.x0[eh]) ** 2 + (hy - cs.y0[eh]) ** 2,
+                                   (hx - cs.x1[eh]) ** 2 + (hy - cs.y1[eh]) ** 2) < tol2
+            again = np.flatnonzero(hit)[(np.abs(cos) < GRAZING_COS) | at_vertex]
             if len(again):
-                med[again] = medium_at(cs, x[again], y[again])
+                med[again] = medium_at(cs, x[again], y[again], _probe=nxt)
     return med
-
 
 
 class _Histograms:
