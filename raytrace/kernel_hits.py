@@ -86,6 +86,14 @@ def brute_all(x, y, dx, dy, start, lid, lf, aid, af, amaj, eps, t_out, e_out):
         t_out[i], e_out[i] = brute_one(x[i], y[i], dx[i], dy[i], start[i], lid, lf, aid, af, amaj, eps)
 
 
+@jit(inline="always")
+def _next_line(d, inv, g0, i, step, h, p):
+    """Along one axis: t at which the ray crosses the next cell line, and t between lines."""
+    if d == 0.0:
+        return INF, INF
+    return (g0 + (i + (1 if step > 0 else 0)) * h - p) * inv, abs(inv) * h
+
+
 @jit
 def grid_all(x, y, dx, dy, start, lid, lf, aid, af, amaj, eps, gx0, gy0, gx1, gy1, h, nx, ny, ne,
              line_cells, line_count, arc_cells, arc_count, rank, ef, kf, kmaj, t_out, e_out):
@@ -118,18 +126,8 @@ def grid_all(x, y, dx, dy, start, lid, lf, aid, af, amaj, eps, gx0, gy0, gx1, gy
             iy = int(min(max(fy, 0.0), ny - 1))
             sx = 1 if dxi > 0 else -1
             sy = 1 if dyi > 0 else -1
-            if dxi == 0.0:
-                tmx = INF
-                tdx = INF
-            else:
-                tmx = (gx0 + (ix + (1 if sx > 0 else 0)) * h - xi) * idx_
-                tdx = abs(idx_) * h
-            if dyi == 0.0:
-                tmy = INF
-                tdy = INF
-            else:
-                tmy = (gy0 + (iy + (1 if sy > 0 else 0)) * h - yi) * idy_
-                tdy = abs(idy_) * h
+            tmx, tdx = _next_line(dxi, idx_, gx0, ix, sx, h, xi)
+            tmy, tdy = _next_line(dyi, idy_, gy0, iy, sy, h, yi)
             while True:
                 cell = iy * nx + ix
                 for k in range(line_count[cell]):

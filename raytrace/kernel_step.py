@@ -126,6 +126,35 @@ def mirror_direction(dx, dy, nx, ny):
     return _unit(dx - 2 * dot * nx, dy - 2 * dot * ny)
 
 
+CHILD_FLOAT_ROWS = ("x", "y", "dx", "dy", "fs", "fp", "opl")
+CHILD_INT_ROWS = ("med", "last", "start", "wli", "root", "path", "parent row", "event", "born")
+
+
+@jit
+def _put_child(CF, CI, k, f, med, last, start, wli, root, path, parent, event, born):
+    """Write child k: f = (x, y, dx, dy, fs, fp, optical path), then its integers."""
+    for r in range(7):
+        CF[r, k] = f[r]
+    CI[0, k] = med
+    CI[1, k] = last
+    CI[2, k] = start
+    CI[3, k] = wli
+    CI[4, k] = root
+    CI[5, k] = path
+    CI[6, k] = parent
+    CI[7, k] = event
+    CI[8, k] = born
+
+
+@jit(inline="always")
+def _book_faint(tflux, tnode, ttag, nt, f, node, group):
+    """A child below its source ray's flux floor ends: book its flux as truncated."""
+    tflux[nt] = f
+    tnode[nt] = node
+    ttag[nt] = group
+    return nt + 1
+
+
 @jit
 def _stable_by_tag(tag, n, n_tags):
     """Positions that sort entries 0..n-1 stably by tag (a counting sort)."""
@@ -188,43 +217,16 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
     tflux = np.empty(2 * m)
     tnode = np.empty(2 * m, dtype=np.int64)
     ttag = np.empty(2 * m, dtype=np.int64)
-    # children A (passed / mirror / reflected, tagged) from 0 up; B (transmitted) in their own buffer
-    cap = 2 * m
-    cx_ = np.empty(cap)
-    cy_ = np.empty(cap)
-    cdx = np.empty(cap)
-    cdy = np.empty(cap)
-    cfs = np.empty(cap)
-    cfp = np.empty(cap)
-    copl = np.empty(cap)
-    cmed = np.empty(cap, dtype=np.int64)
-    clast = np.empty(cap, dtype=np.int64)
-    cpidx = np.empty(cap, dtype=np.int64)
-    cev = np.empty(cap, dtype=np.int64)
-    cborn = np.empty(cap, dtype=np.int64)
-    cstart = np.empty(cap, dtype=np.int64)
-    cwli = np.empty(cap, dtype=np.int64)
-    croot = np.empty(cap, dtype=np.int64)
-    cpath = np.empty(cap, dtype=np.int64)
+    # children: rows CHILD_FLOAT_ROWS / CHILD_INT_ROWS; A children (passed, mirror, reflected,
+    # tagged by group) from column 0 up, B children (transmitted) from column m up, moved down
+    # behind the A children at the end
+    CF = np.empty((7, 2 * m))
+    CI = np.empty((9, 2 * m), dtype=np.int64)
     ctag = np.empty(m, dtype=np.int64)
-    bx_ = np.empty(m)
-    by_ = np.empty(m)
-    bdx = np.empty(m)
-    bdy = np.empty(m)
-    bfs = np.empty(m)
-    bfp = np.empty(m)
-    bmed = np.empty(m, dtype=np.int64)
-    bopl = np.empty(m)
-    bpidx = np.empty(m, dtype=np.int64)
-    # detector records, in ray order
-    hdet = np.empty(m, dtype=np.int64)
-    hpos = np.empty(m)
-    hang = np.empty(m)
+    # detector records, in ray order: position, angle, fs, fp, optical path; detector, ray
+    HF = np.empty((5, m))
+    HI = np.empty((5, m), dtype=np.int64)
     hfront = np.empty(m, dtype=np.bool_)
-    hfs = np.empty(m)
-    hfp = np.empty(m)
-    hrow = np.empty(m, dtype=np.int64)
-    hopl = np.empty(m)
     nb = nf = nt = na = nbk = nh = 0
     n_tir = n_mismatch = n_graze = k_u = 0
     for i in range(m):
@@ -286,14 +288,14 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
             # (normal = right of start -> end), and the side it came from
             gx, gy, Ld = dex[ee], dey[ee], dlen[ee]
             cosn = -(ddx * (gy / Ld) + ddy * (-gx / Ld))
-            hdet[nh] = det_id[ee]
-            hpos[nh] = ((hx - dsx[ee]) * gx + (hy - dsy[ee]) * gy) / Ld
-            hang[nh] = math.degrees(math.atan2(ddx * (gx / Ld) + ddy * (gy / Ld), abs(cosn)))
+            HF[0, nh] = ((hx - dsx[ee]) * gx + (hy - dsy[ee]) * gy) / Ld
+            HF[1, nh] = math.degrees(math.atan2(ddx * (gx / Ld) + ddy * (gy / Ld), abs(cosn)))
+            HF[2, nh] = f_s
+            HF[3, nh] = f_p
+            HF[4, nh] = o_end
+            HI[0, nh] = det_id[ee]
+            HI[1, nh] = i
             hfront[nh] = cosn >= 0
-            hfs[nh] = f_s
-            hfp[nh] = f_p
-            hopl[nh] = o_end
-            hrow[nh] = i
             nh += 1
             if tt == T_DETECT_ABSORB:
                 e_code = E_DETECTED
@@ -369,41 +371,19 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
                 if take_b:
                     f = b_fs + b_fp
                     if f >= thr_root[root[i]] and f > 0:
-                        bx_[nbk] = hx
-                        by_[nbk] = hy
-                        bdx[nbk] = tx
-                        bdy[nbk] = ty
-                        bfs[nbk] = b_fs
-                        bfp[nbk] = b_fp
-                        bmed[nbk] = m_to
-                        bopl[nbk] = o_end
-                        bpidx[nbk] = i
+                        _put_child(CF, CI, m + nbk, (hx, hy, tx, ty, b_fs, b_fp, o_end), m_to, ed, ed,
+                                   wli[i], root[i], node, i, EV_THROUGH, B_REFRACTED)
                         nbk += 1
                     else:
-                        tflux[nt] = f
-                        tnode[nt] = node
-                        ttag[nt] = G_TRANSMIT
-                        nt += 1
+                        nt = _book_faint(tflux, tnode, ttag, nt, f, node, G_TRANSMIT)
         if take_a:
             f = a[4] + a[5]
             if f >= thr_root[root[i]] and f > 0:
-                cx_[na], cy_[na], cdx[na], cdy[na], cfs[na], cfp[na], copl[na] = a
-                cmed[na] = a_med
-                clast[na] = a_last
-                cev[na] = a_ev
-                cborn[na] = a_born
-                cpidx[na] = i
-                cstart[na] = ed
-                cwli[na] = wli[i]
-                croot[na] = root[i]
-                cpath[na] = node
+                _put_child(CF, CI, na, a, a_med, a_last, ed, wli[i], root[i], node, i, a_ev, a_born)
                 ctag[na] = a_grp
                 na += 1
             else:
-                tflux[nt] = f
-                tnode[nt] = node
-                ttag[nt] = a_grp
-                nt += 1
+                nt = _book_faint(tflux, tnode, ttag, nt, f, node, a_grp)
         if rec:
             end[i] = e_code
 
@@ -435,43 +415,24 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
             break
     if not sorted_a:
         pos = _stable_by_tag(ctag, na, 4)
-        for col in (cx_, cy_, cdx, cdy, cfs, cfp, copl):
-            tmp = col[:na].copy()
+        for row in range(CF.shape[0]):
+            tmp = CF[row, :na].copy()
             for j in range(na):
-                col[pos[j]] = tmp[j]
-        for col in (cmed, clast, cev, cborn, cpidx, cstart, cwli, croot, cpath):
-            tmpi = col[:na].copy()
+                CF[row, pos[j]] = tmp[j]
+        for row in range(CI.shape[0]):
+            tmpi = CI[row, :na].copy()
             for j in range(na):
-                col[pos[j]] = tmpi[j]
-    for j in range(nbk):
-        k = na + j
-        i = bpidx[j]
-        cx_[k] = bx_[j]
-        cy_[k] = by_[j]
-        cdx[k] = bdx[j]
-        cdy[k] = bdy[j]
-        cfs[k] = bfs[j]
-        cfp[k] = bfp[j]
-        cmed[k] = bmed[j]
-        cpidx[k] = i
-        copl[k] = bopl[j]
-        clast[k] = e[i]
-        cev[k] = EV_THROUGH
-        cborn[k] = B_REFRACTED
-        cstart[k] = e[i]
-        cwli[k] = wli[i]
-        croot[k] = root[i]
-        cpath[k] = path[i]
+                CI[row, pos[j]] = tmpi[j]
+    if na < m:
+        for j in range(nbk):          # destination before source: a forward copy is safe
+            CF[:, na + j] = CF[:, m + j]
+            CI[:, na + j] = CI[:, m + j]
     nk = na + nbk
-    hwli = np.empty(nh, dtype=np.int64)
-    hpath = np.empty(nh, dtype=np.int64)
-    hroot = np.empty(nh, dtype=np.int64)
     for j in range(nh):
-        hwli[j] = wli[hrow[j]]
-        hpath[j] = path[hrow[j]]
-        hroot[j] = root[hrow[j]]
+        i = HI[1, j]
+        HI[2, j] = wli[i]
+        HI[3, j] = path[i]
+        HI[4, j] = root[i]
     counts = np.array([n_tir, n_mismatch, n_graze, k_u], dtype=np.int64)
-    children = (cx_[:nk], cy_[:nk], cdx[:nk], cdy[:nk], cfs[:nk], cfp[:nk], copl[:nk], cmed[:nk],
-                clast[:nk], cstart[:nk], cwli[:nk], croot[:nk], cpath[:nk], cpidx[:nk], cev[:nk], cborn[:nk])
-    records = (hdet[:nh], hpos[:nh], hang[:nh], hfront[:nh], hfs[:nh], hfp[:nh], hwli, hopl[:nh], hpath, hroot)
-    return (end, ex, ey, opl_end), (dcode, dflux, dnode), children, records, counts
+    return (end, ex, ey, opl_end), (dcode, dflux, dnode), (CF[:, :nk], CI[:, :nk]), \
+        (HF[:, :nh], HI[:, :nh], hfront[:nh]), counts

@@ -684,8 +684,10 @@ def _after_compiled_step(cs, K, r, e, step, paths, path_thr, recording, record, 
     stats["tir_events"] += int(counts[0])
     stats["medium_mismatches"] += int(counts[1])
     stats["grazing_hits"] += int(counts[2])
-    if len(records[0]):
-        det, pos, angle, front, hfs, hfp, hwli, hopl, hpath, hroot = records
+    HF, HI, front = records
+    if len(front):
+        pos, angle, hfs, hfp, hopl = HF
+        det, _row, hwli, hpath, hroot = HI
         if hist is not None:
             hist.add(det, pos, angle, hfs, hfp)
         else:
@@ -699,7 +701,9 @@ def _after_compiled_step(cs, K, r, e, step, paths, path_thr, recording, record, 
         bins += np.bincount(dcode, weights=dflux, minlength=len(bins))
         if paths.enabled:
             paths.deposit(dcode, dnode, dflux)
-    cx, cy, cdx, cdy, cfs, cfp, copl, cmed, clast, start, cwli, croot, cpath, pidx, cev, cborn = children
+    CF, CI = children
+    cx, cy, cdx, cdy, cfs, cfp, copl = CF
+    cmed, clast, start, cwli, croot, cpath, pidx, cev, cborn = CI
     out = {"x": cx, "y": cy, "dx": cdx, "dy": cdy, "fs": cfs, "fp": cfp, "med": cmed, "start": start,
            "last": clast, "opl": copl, "wli": cwli, "root": croot}
     if unsettled is not None:
