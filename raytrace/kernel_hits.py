@@ -25,8 +25,13 @@ def line_t(x, y, dx, dy, ax, ay, ex, ey, reach, eps):
     denom = dx * ey - dy * ex
     wx = ax - x
     wy = ay - y
+    tn = wx * ey - wy * ex
+    # t = tn / denom has the sign of tn * denom (exactly: rounding keeps signs, and t = 0 or a
+    # parallel pair fails anyway), so a segment behind the ray is out without the division
+    if not ((tn > 0.0 and denom > 0.0) or (tn < 0.0 and denom < 0.0)):
+        return INF
     inv = 1.0 / denom
-    t = (wx * ey - wy * ex) * inv
+    t = tn * inv
     u = (wx * dy - wy * dx) * inv
     if u >= -reach and u <= 1.0 + reach and t > eps:
         return t
