@@ -263,6 +263,8 @@ def _at_point(geom) -> str:
 
 def _check_overlaps(scene: Scene, polys: list, paths: list[str], problems: Problems) -> None:
     """Partial overlaps are errors; nesting (one inside the other) and touching are fine.
+    Coincident parts (the same region, to within the flattening slack) are errors too: which
+    of the two materials fills the region would depend on the order of the parts.
 
     Only pairs whose shapes intersect are measured; an R-tree finds them in one bulk query."""
     import shapely
@@ -279,7 +281,15 @@ def _check_overlaps(scene: Scene, polys: list, paths: list[str], problems: Probl
         area_tol = _area_slack(a, b, part_tolerance(scene.parts[i], size), part_tolerance(scene.parts[j], size), size)
         if inter <= area_tol:
             continue
-        if b.difference(a).area <= area_tol or a.difference(b).area <= area_tol:
+        a_in_b, b_in_a = a.difference(b).area <= area_tol, b.difference(a).area <= area_tol
+        if a_in_b and b_in_a:
+            pa, pb = scene.parts[i], scene.parts[j]
+            problems.add(paths[j], f"<part {pb.name!r} ({pb.material}) covering the same region as part "
+                                   f"{pa.name!r} ({pa.material}, {paths[i]})>",
+                         "parts that do not coincide: remove one of the two, or make one smaller so it "
+                         "lies inside the other")
+            continue
+        if a_in_b or b_in_a:
             continue   # nested
         problems.add(paths[j], f"<part {scene.parts[j].name!r} overlapping part {scene.parts[i].name!r} "
                                    f"({paths[i]}) by {inter:.6g} mm^2>",

@@ -40,7 +40,7 @@ def line_t(x, y, dx, dy, ax, ay, ex, ey, reach, eps):
     denom = dx * ey - dy * ex
     wx = ax - x
     wy = ay - y
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):   # a near-parallel pair
         inv = 1.0 / denom
         t = (wx * ey - wy * ex) * inv
         u = (wx * dy - wy * dx) * inv

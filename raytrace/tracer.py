@@ -254,6 +254,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         "wli": wli.astype(np.int64), "med": med0,
         "root": np.arange(n, dtype=np.int64), "start": np.full(n, -1, dtype=np.int64),
         "last": np.full(n, -1, dtype=np.int64), "path": start.source.astype(np.int64),
+        "corner_edge": np.full(n, -1, dtype=np.int64),
     }
     if recording:
         r.update(rid=np.arange(n, dtype=np.int64) + root_offset, parent=np.full(n, -1, dtype=np.int64),
@@ -303,12 +304,12 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         x, y, dx, dy = r["x"], r["y"], r["dx"], r["dy"]
         fs, fp, med = r["fs"], r["fp"], r["med"]
         # --- nearest hit (with the corner rules, see _corner_hits), then travel to it
-        t, e, unsettled = _corner_hits(cs, K, r, hit_fn, vertex_tol2, stats, compiled)
+        t, e, at_vertex = _corner_hits(cs, K, r, hit_fn, vertex_tol2, stats, compiled)
         if compiled:
             step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording)
             r, next_id, seg_rows = _after_compiled_step(
                 cs, K, r, e, step, paths, path_thr, recording, record, root_offset, next_id, seg_store,
-                seg_rows, hit_store, hist, wavelengths, unsettled, bins, gen, stats)
+                seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats)
             if hit_store:
                 hit_rows = sum(len(v) for v in hit_store["root"])
             gen += 1
@@ -419,7 +420,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         # --- the next generation: children that carry enough flux
         r, next_id = _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording,
                                       next_id, hx, hy, e, opl, deposit, n_here,
-                                      unsettled, cs)
+                                      at_vertex, cs)
 
         if codes:
             code = np.concatenate(codes)
@@ -601,9 +602,9 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
         oopl = np.where(passed, oopl - back * n_here[pidx], oopl)   # the 2 eps are travelled again
     out = {"x": ox, "y": oy, "dx": col(1), "dy": col(2), "fs": col(3), "fp": col(4),
            "med": col(5), "start": start, "last": start if same_last else col(6), "opl": oopl,
-           "wli": r["wli"][pidx], "root": root[pidx]}
+           "wli": r["wli"][pidx], "root": root[pidx], "corner_edge": np.full(len(pidx), -1, dtype=np.int64)}
     if at_vertex is not None:
-        _settle_vertex_children(cs, out, np.flatnonzero(at_vertex[pidx]))
+        _corner_children(cs, out, np.flatnonzero(at_vertex[pidx]))
     next_id = _child_paths_and_ids(out, r, pidx, start, col(7), col(8) if recording else None, paths,
                                    path_thr, K, next_id)
     return out, next_id
@@ -677,7 +678,7 @@ _STEP_STATE = ("x", "y", "dx", "dy", "fs", "fp", "opl", "wli", "med", "root", "l
 
 
 def _after_compiled_step(cs, K, r, e, step, paths, path_thr, recording, record, root_offset, next_id,
-                         seg_store, seg_rows, hit_store, hist, wavelengths, unsettled, bins, gen, stats):
+                         seg_store, seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats):
     """Book what the compiled step produced: stats, detector records, ray table, ledger bins and
     path deposits; returns the next generation."""
     (end, ex, ey, opl), (dcode, dflux, dnode), children, records, counts = step
@@ -705,9 +706,10 @@ def _after_compiled_step(cs, K, r, e, step, paths, path_thr, recording, record, 
     cx, cy, cdx, cdy, cfs, cfp, copl = CF
     cmed, clast, start, cwli, croot, cpath, pidx, cev, cborn = CI
     out = {"x": cx, "y": cy, "dx": cdx, "dy": cdy, "fs": cfs, "fp": cfp, "med": cmed, "start": start,
-           "last": clast, "opl": copl, "wli": cwli, "root": croot}
-    if unsettled is not None:
-        _settle_vertex_children(cs, out, np.flatnonzero(unsettled[pidx]))
+           "last": clast, "opl": copl, "wli": cwli, "root": croot,
+           "corner_edge": np.full(len(pidx), -1, dtype=np.int64)}
+    if at_vertex is not None:
+        _corner_children(cs, out, np.flatnonzero(at_vertex[pidx]))
     next_id = _child_paths_and_ids(out, r, pidx, start, cev, cborn if recording else None, paths, path_thr,
                                    K, next_id, parent_path=cpath)
     return out, next_id, seg_rows
@@ -762,28 +764,40 @@ def _near_vertex(cs, K, e, hx, hy, tol2):
 
 
 def _corner_hits(cs, K, r, hit_fn, tol2, stats, compiled=False):
-    """Nearest hit of every ray, with the corner rules.  Returns (t, e, unsettled).
+    """Nearest hit of every ray, with the corner rules.  Returns (t, e, at_vertex).
 
     A hit on a vertex belongs to every edge meeting there.  The medium is probed CORNER_PROBE
     eps past the hit along the ray:
     - the same medium as the ray's: the ray passes straight on, with no event, and its segment
       runs on to the next hit beyond (searched from the probe point, so it agrees with the probe);
-    - another medium: the edge between the two acts, the lowest-numbered one among the edges
-      ending at the vertex; where none fits, the search's edge, and `unsettled` marks the row
-      (its children take the medium they head into, see _settle_vertex_children)."""
+    - another medium: the edge between the two acts.  The edge the search met, if it is such an
+      edge (it is the one a ray just off the vertex really meets); else the lowest-numbered one
+      among the edges ending at the vertex; else (no edge fits) the search's edge.
+    A ray with a corner edge (`corner_edge`, set by _corner_children) meets it where it starts,
+    at t = 0.  `at_vertex` marks the rows whose hit is at a vertex: their children are checked
+    by _corner_children."""
     x, y, dx, dy, med = r["x"], r["y"], r["dx"], r["dy"], r["med"]
     t, e = _first_hit(cs, K, x, y, dx, dy, r["start"], hit_fn)
+    forced = np.flatnonzero(r["corner_edge"] >= 0)
     if compiled:        # the same test as _near_vertex, in one compiled pass
         idx = kernel_step.vertex_candidates(x, y, dx, dy, t, e, K.x0, K.y0, K.x1, K.y1, K.treat, tol2)
+        if len(forced) == 0 and len(idx) == 0:
+            return t, e, None
+        at_vertex = np.zeros(len(x), dtype=bool)
+        at_vertex[idx] = True
     else:
         hit = e >= 0
         at_vertex = _near_vertex(cs, K, e, x + np.where(hit, t, 0.0) * dx, y + np.where(hit, t, 0.0) * dy, tol2)
         idx = np.flatnonzero(at_vertex)
-    if len(idx) == 0:
-        return t, e, None
+        if len(forced) == 0 and len(idx) == 0:
+            return t, e, at_vertex
+    events = len(forced)
     t, e = t.copy(), e.copy()
-    unsettled = np.zeros(len(x), dtype=bool)
-    events = 0
+    if len(forced):
+        t[forced] = 0.0
+        e[forced] = r["corner_edge"][forced]
+        at_vertex[forced] = True
+        idx = np.setdiff1d(idx, forced, assume_unique=True)
     step = CORNER_PROBE * cs.eps
     for _ in range(CORNER_ROUNDS):
         if len(idx) == 0:
@@ -795,8 +809,7 @@ def _corner_hits(cs, K, r, hit_fn, tol2, stats, compiled=False):
         act = np.flatnonzero(beyond != med[idx])
         if len(act):
             ia = idx[act]
-            e[ia], fitted = _corner_edge(cs, hx[act], hy[act], dx[ia], dy[ia], med[ia], beyond[act], e[ia])
-            unsettled[ia[~fitted]] = True
+            e[ia], _ = _corner_edge(cs, hx[act], hy[act], dx[ia], dy[ia], med[ia], beyond[act], e[ia], own="prefer")
         on = beyond == med[idx]
         idx, px, py = idx[on], px[on], py[on]
         if len(idx) == 0:
@@ -808,17 +821,18 @@ def _corner_hits(cs, K, r, hit_fn, tol2, stats, compiled=False):
         h = e2 >= 0
         tt = np.where(h, t[idx], 0.0)
         again = _near_vertex(cs, K, e2, x[idx] + tt * dx[idx], y[idx] + tt * dy[idx], tol2)
+        at_vertex[idx] = again
         idx = idx[again]
-    unsettled[idx] = True      # still at a vertex after CORNER_ROUNDS passes
     stats["vertex_hits"] += events
-    return t, e, unsettled if unsettled.any() else None
+    return t, e, at_vertex
 
 
-def _corner_edge(cs, hx, hy, dx, dy, med, beyond, near):
-    """For rays at a vertex: the lowest-numbered boundary edge ending there that has the ray's
-    medium `med` on the side the ray comes from and `beyond` on the other.  The vertex is the
-    end of edge `near` closest to the hit.  Returns (edges, fitted); where none fits the edge
-    is `near`."""
+def _corner_edge(cs, hx, hy, dx, dy, med, beyond, near, own):
+    """For rays at a vertex: the boundary edge ending there that has the ray's medium `med` on
+    the side the ray comes from and `beyond` on the other.  The vertex is the end of edge `near`
+    closest to the hit.  own="prefer": `near` itself if it fits, else the lowest-numbered edge
+    that fits; own="skip": the lowest-numbered fitting edge other than `near` (for a child
+    leaving `near`).  Returns (edges, fitted); where none fits the edge is `near`."""
     g_start, g_end, offsets, members = _vertex_groups(cs)
     at_start = (hx - cs.x0[near]) ** 2 + (hy - cs.y0[near]) ** 2 <= (hx - cs.x1[near]) ** 2 + (hy - cs.y1[near]) ** 2
     g = np.where(at_start, g_start[near], g_end[near])
@@ -835,27 +849,44 @@ def _corner_edge(cs, hx, hy, dx, dy, med, beyond, near):
     cur, nxt = med[rows], beyond[rows]
     fits = ((cs.med_plus[cols] == cur) & (cs.med_minus[cols] == nxt) & (cos < 0)) | \
            ((cs.med_minus[cols] == cur) & (cs.med_plus[cols] == nxt) & (cos > 0))
+    own_edge = cols == near[rows]
+    if own == "skip":
+        fits &= ~own_edge
     # the lowest fitting edge per ray: assign the fitting pairs from the highest edge down
     fit = np.flatnonzero(fits)
     order = fit[np.argsort(-cols[fit], kind="stable")]
     out[rows[order]] = cols[order]
     fitted[rows[fit]] = True
+    if own == "prefer":
+        keep = rows[fits & own_edge]
+        out[keep] = near[keep]
     return out, fitted
 
 
-def _settle_vertex_children(cs, out, rows) -> None:
-    """Children born at a vertex take the medium they actually head into.
+def _corner_children(cs, out, rows) -> None:
+    """Children born at a vertex: where a child heads across another edge ending at that vertex,
+    it meets that edge at once.
 
-    Where edges meet (a prism apex, the corner where a guide meets a window, blocks touching at
-    a point) the hit belongs to several edges at once and the physics used the one the
-    nearest-hit search chose; the direction it gives may leave into a region that edge does not
-    border.  A probe a little way along each child settles which medium that is, so the ray
-    never travels through one material while being traced as another."""
+    The medium is probed CORNER_PROBE eps along each child.  The same medium as the child's: it
+    goes on.  Another medium: the edge between the two (other than the one the child leaves)
+    becomes the child's corner edge, met at t = 0 in the next generation, so a ray in an
+    inside corner reflects off both walls (or refracts at both faces) as a ray just off the
+    vertex does.  No such edge: the child takes the medium found, so it never travels through
+    one material while being traced as another."""
     if len(rows) == 0:
         return
-    step = 4.0 * cs.eps
+    step = CORNER_PROBE * cs.eps
     dx, dy = out["dx"][rows], out["dy"][rows]
-    out["med"][rows] = medium_at(cs, out["x"][rows] + step * dx, out["y"][rows] + step * dy, dx, dy)
+    hx, hy = out["x"][rows], out["y"][rows]
+    probe = medium_at(cs, hx + step * dx, hy + step * dy, dx, dy)
+    off = np.flatnonzero(probe != out["med"][rows])
+    if len(off) == 0:
+        return
+    rr = rows[off]
+    edge, fitted = _corner_edge(cs, hx[off], hy[off], dx[off], dy[off], out["med"][rr], probe[off],
+                                out["start"][rr], own="skip")
+    out["corner_edge"][rr[fitted]] = edge[fitted]
+    out["med"][rr[~fitted]] = probe[off][~fitted]
 
 
 def _truncate(r, mask, code, bins, paths, seg_store, record, root_offset, gen, wavelengths):

@@ -370,6 +370,14 @@ def _media_along_segments(scene, result):
     ok = ~esc & (length > 1e-6 * cs.scale)
     mx = (seg["x0"][ok] + seg["x1"][ok]) / 2
     my = (seg["y0"][ok] + seg["y1"][ok]) / 2
+    # a segment that passes straight on through a vertex can have its midpoint exactly there,
+    # where point-in-polygon cannot tell: look at the point 30 % along it instead
+    tol = flatten_tolerance(scene) * 1e-2
+    edges = shapely.MultiLineString([ring.coords for p in scene.parts for poly in [p.to_shapely(tol)]
+                                     for ring in [poly.exterior, *poly.interiors]])
+    on = shapely.distance(edges, shapely.points(mx, my)) < 1e-9 * cs.scale
+    mx[on] = 0.7 * seg["x0"][ok][on] + 0.3 * seg["x1"][ok][on]
+    my[on] = 0.7 * seg["y0"][ok][on] + 0.3 * seg["y1"][ok][on]
     want = _innermost_medium(scene, mx, my)
     got = seg["medium"][ok]
     bad = np.flatnonzero(want != got)
