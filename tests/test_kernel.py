@@ -18,11 +18,14 @@ from pathlib import Path
 import numpy as np
 import pytest
 from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from raytrace import kernel, trace
 from raytrace.errors import RaytraceError
 from raytrace.kernel_step import dielectric
 from raytrace.scene_io import load_scene
+from raytrace.geometry import MIRROR, Treatment
+from test_closed_enclosures import _enclosure, _start, convex_polygon, rays_in, rectilinear_polygon, star_polygon
 from test_reliability_scenes import PROPERTY, scenes
 
 SAMPLES = sorted((Path(__file__).parent.parent / "samples").glob("*.json"))
@@ -159,3 +162,19 @@ def test_cache_goes_to_a_temporary_folder_where_the_package_is_read_only(monkeyp
     monkeypatch.setattr(Path, "mkdir", refuse)
     kernel._prepare_cache_dir()
     assert os.environ["NUMBA_CACHE_DIR"].endswith("raytrace-numba-cache")
+
+
+@settings(PROPERTY, max_examples=min(KERNEL_EXAMPLES, 40))
+@given(data=st.data(), shape=st.sampled_from(("convex", "star", "rectilinear")),
+       treatment=st.sampled_from(("mirror", "glass")))
+def test_corner_rays_same_with_both_kernels(data, shape, treatment):
+    """Rays exactly through, or a hair off, the vertices of closed mirror and glass enclosures
+    (tests/test_closed_enclosures.py): the corner rules run on the compiled path too."""
+    points = {"convex": lambda: data.draw(convex_polygon()), "star": lambda: data.draw(star_polygon()),
+              "rectilinear": lambda: data.draw(rectilinear_polygon())[0]}[shape]()
+    scene = (_enclosure(points, "cavity", Treatment(MIRROR, 0.95), cavity=1.0) if treatment == "mirror"
+             else _enclosure(points, "glass", Treatment(), glass=1.5))
+    rays = data.draw(rays_in(points))
+    for mode in ("branching", "monte_carlo"):
+        a, b = both(scene, start=_start(rays), mode=mode)
+        assert_same(a, b)
