@@ -222,6 +222,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     record = record or Recording()
     hit_fn = hit_fn or hit_function(cs, accel)
     compiled = kernel.compiled()
+    compile_before = sum(kernel.COMPILE_SECONDS.values())
     tune_allocator()
     rng = np.random.default_rng(seed)
     t0 = time.perf_counter()
@@ -431,6 +432,8 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         gen += 1
 
     stats["elapsed_s"] = time.perf_counter() - t0
+    # first calls of the compiled kernel in this process (loading it from the cache, or compiling)
+    stats["kernel_start_s"] = sum(kernel.COMPILE_SECONDS.values()) - compile_before
     stats["events"] = stats["segments"]
     if seg_store is not None and seg_store:
         segments = _segment_table(seg_store, wavelengths)
