@@ -31,7 +31,7 @@ from raytrace.geometry import MIRROR, Loop, Part, Treatment
 from raytrace.materials import ConstantIndex
 from raytrace.scene import Scene, Source, TraceSettings
 from raytrace.sources import StartRays
-from test_reliability_scenes import _finite_everywhere, _ledger_closes, _media_along_segments
+from test_reliability_scenes import _finite_everywhere, _ledger_closes, _media_along_segments, star_points
 
 EXAMPLES = max(1, int(os.environ.get("RAYTRACE_PROPERTY_EXAMPLES", "250")) // 2)
 PROPERTY = settings(max_examples=EXAMPLES, deadline=None, derandomize=True,
@@ -58,17 +58,9 @@ def convex_polygon(draw):
     return [(SIZE * math.cos(a), SIZE * math.sin(a)) for a in angles]
 
 
-@st.composite
-def star_polygon(draw):
+def star_polygon():
     """Vertices at increasing angles about the origin, at radii from 0.35 to 1: non-convex."""
-    n = draw(st.integers(4, 10))
-    base = draw(st.floats(0, 2 * math.pi))
-    pts = []
-    for k in range(n):
-        a = base + 2 * math.pi * (k + draw(st.floats(-0.3, 0.3))) / n
-        r = SIZE * draw(st.floats(0.35, 1.0))
-        pts.append((r * math.cos(a), r * math.sin(a)))
-    return pts
+    return star_points((0.0, 0.0), SIZE, sides=(4, 10), jitter=0.3, least=0.35)
 
 
 @st.composite
