@@ -62,6 +62,8 @@ class CompiledScene:
     scale: float                          # scene size, sets tolerances
     eps: float                            # distance below which a hit is the point just left
     edges: list[Edge] = field(default_factory=list)   # the oriented edges, for drawing
+    # per detector: (accepted direction of travel in degrees, half angle) or None
+    acceptance: list[tuple[float, float] | None] = field(default_factory=list)
 
     @property
     def n_edges(self) -> int:
@@ -565,4 +567,6 @@ def compile_scene(scene: Scene, check: bool = True) -> CompiledScene:
         **arr, **ints, is_arc=is_arc, treatment=treatment,
         face_labels=list(face_index), media=media, medium_names=medium_names,
         medium_part=np.array(medium_part, dtype=np.int64), part_names=[p.name for p in scene.parts],
-        detectors=list(scene.detectors), scale=size, eps=1e-9 * max(size, 1e-3), edges=edges)
+        detectors=list(scene.detectors), scale=size, eps=1e-9 * max(size, 1e-3), edges=edges,
+        acceptance=[(d.acceptance.direction(scene.sources), float(d.acceptance.half_angle_deg))
+                    if d.acceptance is not None else None for d in scene.detectors])

@@ -28,6 +28,7 @@ from .intersect import edge_normal, nearest_hit
 from .ledger import TRUNC_BUDGET, TRUNC_DEPTH, TRUNC_FLUX, BinLayout
 from .pathtrie import PathTrie
 from .sources import StartRays
+from .uncertainty import SUB_BATCHES, batch_sums, sub_batch
 
 BRANCHING, MONTE_CARLO = "branching", "monte_carlo"
 MODES = (BRANCHING, MONTE_CARLO)
@@ -79,15 +80,36 @@ class Limits:
 class Recording:
     """Which source rays get their segments written to the ray table."""
 
-    mode: str = "none"     # "none", "first" (the first `count` source rays) or "all"
-    count: int = 0
+    mode: str = "none"     # "none", "all", "first" (the first `count` source rays) or "spread"
+    count: int = 0         # (`count` source rays spread evenly over all `total` of them)
+    total: int = 0
 
     def wants(self, root: np.ndarray) -> np.ndarray | None:
-        if self.mode == "all":
+        if self.mode == "all" or (self.mode == "spread" and self.count >= self.total):
             return np.ones(len(root), dtype=bool)
         if self.mode == "first":
             return root < self.count
+        if self.mode == "spread":
+            return in_spread(root, self.count, self.total)
         return None
+
+
+def spread_rays(count: int, total: int) -> np.ndarray:
+    """The `count` source rays, of `total`, spread evenly: the middle ray of each of `count`
+    equal runs, so an even fan's recorded rays cover the whole source (not one end of it)."""
+    i = np.arange(min(count, total), dtype=np.int64)
+    return ((2 * i + 1) * total) // (2 * min(count, total))
+
+
+def in_spread(root: np.ndarray, count: int, total: int) -> np.ndarray:
+    """Whether each source ray is one of `spread_rays(count, total)` (without listing them)."""
+    root = np.asarray(root, dtype=np.int64)
+    guess = (root * count) // max(total, 1)
+    out = np.zeros(len(root), dtype=bool)
+    for i in (guess - 1, guess, guess + 1):
+        ok = (i >= 0) & (i < count)
+        out |= ok & (((2 * i + 1) * total) // (2 * count) == root)
+    return out
 
 
 @dataclass
@@ -104,6 +126,9 @@ class RawTrace:
     wavelengths: np.ndarray
     stats: dict = field(default_factory=dict)
     histograms: dict | None = None            # per detector, when hits are binned instead of kept
+    # per sub-batch of source rays (`uncertainty`): ledger bins (SUB_BATCHES, len(bins)) and source flux
+    batch_bins: np.ndarray | None = None
+    batch_flux: np.ndarray | None = None
 
 
 class _SceneArrays:
@@ -265,6 +290,9 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         r.update(rid=np.arange(n, dtype=np.int64) + root_offset, parent=np.full(n, -1, dtype=np.int64),
                  born=np.full(n, B_SOURCE, dtype=np.int64))
     source_flux = float(flux0.sum())
+    batch = sub_batch(np.arange(n, dtype=np.int64) + root_offset)     # of each source ray
+    batch_flux = np.bincount(batch, weights=flux0, minlength=SUB_BATCHES)
+    batch_bins = np.zeros(SUB_BATCHES * layout.size)
     next_id = n + root_offset
     seg_store: dict[str, list[np.ndarray]] | None = {} if recording else None
     hit_store: dict[str, list[np.ndarray]] = {}
@@ -281,14 +309,14 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         # --- limits that end rays before they are traced
         if gen > limits.max_generations:
             _truncate(r, np.ones(m, dtype=bool), layout.trunc0 + TRUNC_DEPTH, bins, paths, seg_store,
-                      record, root_offset, gen, wavelengths)
+                      record, root_offset, gen, wavelengths, batch, batch_bins)
             break
         room = limits.segment_budget - stats["segments"]
         if m > room:
             over = np.zeros(m, dtype=bool)
             over[max(room, 0):] = True
             _truncate(r, over, layout.trunc0 + TRUNC_BUDGET, bins, paths, seg_store, record,
-                      root_offset, gen, wavelengths)
+                      root_offset, gen, wavelengths, batch, batch_bins)
             r = {k: v[~over] for k, v in r.items()}
             m = len(r["x"])
             if m == 0:
@@ -326,12 +354,15 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         codes: list[np.ndarray] = []      # ledger deposits of this generation
         fluxes: list[np.ndarray] = []
         nodes: list[np.ndarray] = []
+        batches: list[np.ndarray] = []
         path = r["path"]
+        ray_batch = batch[r["root"]]
 
-        def deposit(code, flux, node):
+        def deposit(code, flux, rows):
             codes.append(code)
             fluxes.append(flux)
-            nodes.append(node)
+            nodes.append(path[rows])
+            batches.append(ray_batch[rows])
 
         fs_start, fp_start = fs, fp
         if K.absorbing:
@@ -341,7 +372,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
             lost = (fs + fp) * (1.0 - keep)
             ab = np.flatnonzero(lost > 0)
             if len(ab):
-                deposit(layout.bulk0 + med[ab], lost[ab], path[ab])
+                deposit(layout.bulk0 + med[ab], lost[ab], ab)
             fs = fs * keep
             fp = fp * keep
             esc_live = esc & (keep > 0)
@@ -360,7 +391,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         # --- escapes
         ie = np.flatnonzero(esc_live)
         if len(ie):
-            deposit(K.escape_code[r["last"][ie]], fs[ie] + fp[ie], path[ie])
+            deposit(K.escape_code[r["last"][ie]], fs[ie] + fp[ie], ie)
 
         # children: (rows, dx, dy, fs, fp, medium, last, event, born); the arrays run over all m
         # rays of this generation and `rows` picks the parents, so nothing is gathered twice
@@ -378,7 +409,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
                 absorb = treat[idet] == T_DETECT_ABSORB
                 ia = idet[absorb]
                 if len(ia):
-                    deposit(cs.detector[e[ia]], fs[ia] + fp[ia], path[ia])
+                    deposit(cs.detector[e[ia]], fs[ia] + fp[ia], ia)
                     if recording:
                         end[ia] = E_DETECTED
                 ip = idet[~absorb]
@@ -391,7 +422,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         if K.has[T_ABSORBER]:
             ab = np.flatnonzero(treat == T_ABSORBER)
             if len(ab):
-                deposit(layout.face0 + e[ab], fs[ab] + fp[ab], path[ab])
+                deposit(layout.face0 + e[ab], fs[ab] + fp[ab], ab)
                 if recording:
                     end[ab] = E_ABSORBED
 
@@ -404,7 +435,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
                 _unit(rdx, rdy)
                 R = K.reflectance[e]
                 em = e[mi]
-                deposit(layout.face0 + em, (fs[mi] + fp[mi]) * (1 - R[mi]), path[mi])
+                deposit(layout.face0 + em, (fs[mi] + fp[mi]) * (1 - R[mi]), mi)
                 if recording:
                     end[mi] = E_REFLECTED
                 kids.append((mi, rdx, rdy, fs * R, fp * R, med, e, EV_MIRROR, B_MIRROR))
@@ -432,6 +463,8 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
             code = np.concatenate(codes)
             flux = np.concatenate(fluxes)
             bins += np.bincount(code, weights=flux, minlength=len(bins))
+            batch_bins += np.bincount(np.concatenate(batches) * layout.size + code, weights=flux,
+                                      minlength=len(batch_bins))
             if paths.enabled:
                 paths.deposit(code, np.concatenate(nodes), flux)
         gen += 1
@@ -451,7 +484,8 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         hits={k: np.concatenate(v) for k, v in hit_store.items()},
         path_parent=paths.parent.copy(), path_code=paths.code.copy(),
         path_flux=paths.flux_dict() if paths.enabled else {}, wavelengths=wavelengths, stats=stats,
-        histograms=hist.to_dict() if hist is not None else None)
+        histograms=hist.to_dict() if hist is not None else None,
+        batch_bins=batch_bins.reshape(SUB_BATCHES, layout.size), batch_flux=batch_flux)
 
 
 def _share_text(limits: Limits) -> str:
@@ -588,7 +622,7 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
             ok = ok[rows]
         if not ok.all():
             bad = rows[~ok]
-            deposit(np.full(len(bad), layout.trunc0 + TRUNC_FLUX), kfs[bad] + kfp[bad], r["path"][bad])
+            deposit(np.full(len(bad), layout.trunc0 + TRUNC_FLUX), kfs[bad] + kfp[bad], bad)
             rows = rows[ok]
         good.append(rows)
     parts = [(g, k) for g, k in zip(good, kids) if len(g)]
@@ -903,9 +937,11 @@ def _corner_children(cs, out, rows) -> None:
     out["med"][rr[~fitted]] = probe[off][~fitted]
 
 
-def _truncate(r, mask, code, bins, paths, seg_store, record, root_offset, gen, wavelengths):
+def _truncate(r, mask, code, bins, paths, seg_store, record, root_offset, gen, wavelengths, batch, batch_bins):
     f = r["fs"][mask] + r["fp"][mask]
     bins[code] += f.sum()
+    per_batch = np.bincount(batch[r["root"][mask]], weights=f, minlength=SUB_BATCHES)
+    batch_bins[code::len(bins)] += per_batch
     paths.deposit(np.full(len(f), code), r["path"][mask], f)
     if seg_store is not None:
         root = r["root"][mask] + root_offset
@@ -1008,8 +1044,11 @@ class _Histograms:
         self.flux_s = [np.zeros((d.bins, d.angle_bins)) for d in cs.detectors]
         self.flux_p = [np.zeros((d.bins, d.angle_bins)) for d in cs.detectors]
         self.count = np.zeros(len(cs.detectors), dtype=np.int64)
+        self.batch_flux = np.zeros((len(cs.detectors), SUB_BATCHES))   # for the efficiency's error
+        self.acceptance = cs.acceptance or [None] * len(cs.detectors)
+        self.accepted_batch = np.zeros((len(cs.detectors), SUB_BATCHES))  # flux within the acceptance
 
-    def add(self, det, pos, angle, fs, fp):
+    def add(self, det, pos, angle, fs, fp, root, dx, dy):
         for d in np.unique(det).tolist():
             sel = det == d
             spec = self.dets[d]
@@ -1021,6 +1060,10 @@ class _Histograms:
             self.flux_s[d] += np.bincount(k, weights=fs[sel], minlength=size).reshape(spec.bins, spec.angle_bins)
             self.flux_p[d] += np.bincount(k, weights=fp[sel], minlength=size).reshape(spec.bins, spec.angle_bins)
             self.count[d] += int(sel.sum())
+            self.batch_flux[d] += batch_sums(root[sel], fs[sel] + fp[sel])
+            if self.acceptance[d] is not None:
+                inside = within_acceptance(dx[sel], dy[sel], *self.acceptance[d])
+                self.accepted_batch[d] += batch_sums(root[sel][inside], fs[sel][inside] + fp[sel][inside])
 
     def to_dict(self) -> dict:
         out = {}
@@ -1028,8 +1071,17 @@ class _Histograms:
             length = float(np.hypot(spec.end[0] - spec.start[0], spec.end[1] - spec.start[1]))
             out[spec.name] = {"position_edges": np.linspace(0.0, length, spec.bins + 1),
                               "angle_edges": np.linspace(-90.0, 90.0, spec.angle_bins + 1),
-                              "flux_s": self.flux_s[d], "flux_p": self.flux_p[d], "hits": int(self.count[d])}
+                              "flux_s": self.flux_s[d], "flux_p": self.flux_p[d], "hits": int(self.count[d]),
+                              "batch_flux": self.batch_flux[d], "accepted_batch": self.accepted_batch[d]}
         return out
+
+
+def within_acceptance(dx: np.ndarray, dy: np.ndarray, direction_deg: float, half_angle_deg: float) -> np.ndarray:
+    """Whether each direction of travel lies within +-half_angle_deg of direction_deg."""
+    a = np.radians(direction_deg)
+    ca, sa = np.cos(a), np.sin(a)
+    off = np.degrees(np.abs(np.arctan2(dx * sa - dy * ca, dx * ca + dy * sa)))
+    return off <= half_angle_deg
 
 
 def merge_histograms(target: dict | None, other: dict | None) -> dict | None:
@@ -1042,6 +1094,8 @@ def merge_histograms(target: dict | None, other: dict | None) -> dict | None:
         t["flux_s"] = t["flux_s"] + h["flux_s"]
         t["flux_p"] = t["flux_p"] + h["flux_p"]
         t["hits"] += h["hits"]
+        t["batch_flux"] = t["batch_flux"] + h["batch_flux"]
+        t["accepted_batch"] = t["accepted_batch"] + h["accepted_batch"]
     return target
 
 
@@ -1057,7 +1111,7 @@ def _store_hits(store, hist, cs, idx, ed, hx, hy, dx, dy, fs, fp, wl, opl, path,
     sint = dx * (ex / L) + dy * (ey / L)
     angle = np.degrees(np.arctan2(sint, np.abs(cosn)))
     if hist is not None:
-        hist.add(d, s, angle, fs, fp)
+        hist.add(d, s, angle, fs, fp, root, dx, dy)
         return
     front = cosn >= 0
     for k, v in (("detector", d), ("position", s), ("angle_deg", angle), ("front", front),
