@@ -147,10 +147,10 @@ def _put_child(CF, CI, k, f, med, last, start, wli, root, path, parent, event, b
 
 
 @jit(inline="always")
-def _book_faint(tflux, tnode, ttag, nt, f, node, group):
-    """A child below its source ray's flux floor ends: book its flux as truncated."""
+def _book_faint(tflux, tnode, ttag, nt, f, row, group):
+    """A child below its source ray's flux floor ends: book its flux as truncated (by its parent)."""
     tflux[nt] = f
-    tnode[nt] = node
+    tnode[nt] = row
     ttag[nt] = group
     return nt + 1
 
@@ -205,7 +205,8 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
     ex = np.empty(mr)
     ey = np.empty(mr)
     opl_end = np.empty(mr)
-    # deposits: bulk (ray order), face-kind ones (escape / detector / absorber / mirror, tagged)
+    # deposits (code, flux, the ray's row): bulk (ray order), face-kind ones (escape / detector /
+    # absorber / mirror, tagged)
     bcode = np.empty(m, dtype=np.int64)
     bflux = np.empty(m)
     bnode = np.empty(m, dtype=np.int64)
@@ -251,7 +252,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
             if lost > 0:
                 bcode[nb] = bulk0 + mi
                 bflux[nb] = lost
-                bnode[nb] = node
+                bnode[nb] = i
                 nb += 1
             f_s = f_s * keep
             f_p = f_p * keep
@@ -273,7 +274,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
         if esc_live:
             fcode[nf] = esc_code[last[i] if last[i] >= 0 else ne]
             fflux[nf] = f_s + f_p
-            fnode[nf] = node
+            fnode[nf] = i
             ftag[nf] = 0
             nf += 1
         tt = treat_t[ee]
@@ -301,7 +302,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
                 e_code = E_DETECTED
                 fcode[nf] = det_id[ee]
                 fflux[nf] = f_s + f_p
-                fnode[nf] = node
+                fnode[nf] = i
                 ftag[nf] = 1
                 nf += 1
             else:
@@ -314,7 +315,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
             e_code = E_ABSORBED
             fcode[nf] = face0 + ed
             fflux[nf] = f_s + f_p
-            fnode[nf] = node
+            fnode[nf] = i
             ftag[nf] = 2
             nf += 1
         elif tt == T_MIRROR or tt == T_BARE or tt == T_AR:
@@ -324,7 +325,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
                 Rm = refl_t[ee]
                 fcode[nf] = face0 + ed
                 fflux[nf] = (f_s + f_p) * (1 - Rm)
-                fnode[nf] = node
+                fnode[nf] = i
                 ftag[nf] = 3
                 nf += 1
                 e_code = E_REFLECTED
@@ -375,7 +376,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
                                    wli[i], root[i], node, i, EV_THROUGH, B_REFRACTED)
                         nbk += 1
                     else:
-                        nt = _book_faint(tflux, tnode, ttag, nt, f, node, G_TRANSMIT)
+                        nt = _book_faint(tflux, tnode, ttag, nt, f, i, G_TRANSMIT)
         if take_a:
             f = a[4] + a[5]
             if f >= thr_root[root[i]] and f > 0:
@@ -383,7 +384,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
                 ctag[na] = a_grp
                 na += 1
             else:
-                nt = _book_faint(tflux, tnode, ttag, nt, f, node, a_grp)
+                nt = _book_faint(tflux, tnode, ttag, nt, f, i, a_grp)
         if rec:
             end[i] = e_code
 

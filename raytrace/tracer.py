@@ -343,7 +343,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
             step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording)
             r, next_id, seg_rows = _after_compiled_step(
                 cs, K, r, e, step, paths, path_thr, recording, record, root_offset, next_id, seg_store,
-                seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats)
+                seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats, batch, batch_bins)
             if hit_store:
                 hit_rows = sum(len(v) for v in hit_store["root"])
             gen += 1
@@ -726,7 +726,8 @@ _STEP_STATE = ("x", "y", "dx", "dy", "fs", "fp", "opl", "wli", "med", "root", "l
 
 
 def _after_compiled_step(cs, K, r, e, step, paths, path_thr, recording, record, root_offset, next_id,
-                         seg_store, seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats):
+                         seg_store, seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats,
+                         batch, batch_bins):
     """Book what the compiled step produced: stats, detector records, ray table, ledger bins and
     path deposits; returns the next generation."""
     (end, ex, ey, opl), (dcode, dflux, dnode), children, records, counts = step
@@ -736,9 +737,9 @@ def _after_compiled_step(cs, K, r, e, step, paths, path_thr, recording, record, 
     HF, HI, front = records
     if len(front):
         pos, angle, hfs, hfp, hopl = HF
-        det, _row, hwli, hpath, hroot = HI
+        det, row, hwli, hpath, hroot = HI
         if hist is not None:
-            hist.add(det, pos, angle, hfs, hfp)
+            hist.add(det, pos, angle, hfs, hfp, hroot + root_offset, r["dx"][row], r["dy"][row])
         else:
             for k, v in (("detector", det), ("position", pos), ("angle_deg", angle), ("front", front),
                          ("flux_s", hfs), ("flux_p", hfp), ("wavelength_nm", wavelengths[hwli]),
@@ -746,10 +747,12 @@ def _after_compiled_step(cs, K, r, e, step, paths, path_thr, recording, record, 
                 hit_store.setdefault(k, []).append(v)
     if seg_store is not None:
         seg_rows += _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen)
-    if len(dcode):
+    if len(dcode):          # dnode: the row of the ray each deposit comes from
         bins += np.bincount(dcode, weights=dflux, minlength=len(bins))
+        batch_bins += np.bincount(batch[r["root"][dnode]] * len(bins) + dcode, weights=dflux,
+                                  minlength=len(batch_bins))
         if paths.enabled:
-            paths.deposit(dcode, dnode, dflux)
+            paths.deposit(dcode, r["path"][dnode], dflux)
     CF, CI = children
     cx, cy, cdx, cdy, cfs, cfp, copl = CF
     cmed, clast, start, cwli, croot, cpath, pidx, cev, cborn = CI

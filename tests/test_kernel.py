@@ -53,6 +53,7 @@ def _same(x, y, what, atol=0.0):
 
 def assert_same(a, b):
     _same(a.ledger.bins, b.ledger.bins, "ledger")
+    _same(a.raw.batch_bins, b.raw.batch_bins, "ledger per sub-batch")
     assert a.segments.keys() == b.segments.keys()
     for k in a.segments:
         _same(a.segments[k], b.segments[k], k)
@@ -99,7 +100,7 @@ def test_dispersion_and_binned_hits_same_with_both_kernels():
     a, b = both(load_scene(SAMPLES[0]), rays=300, hits="histogram")
     np.testing.assert_array_equal(a.ledger.bins, b.ledger.bins)
     for name, h in a.raw.histograms.items():
-        for k in ("flux_s", "flux_p"):
+        for k in ("flux_s", "flux_p", "batch_flux", "accepted_batch"):
             np.testing.assert_array_equal(h[k], b.raw.histograms[name][k])
 
 
