@@ -1,7 +1,9 @@
 """`raytrace-gui [SCENE] [--screenshot PNG]`: start the desktop application.
 
 With --screenshot the scene is traced, the window rendered to the PNG, and the program exits
-(0 on success, 1 when the scene has problems, 4 when the image cannot be written)."""
+(0 on success, 1 when the scene has problems, 4 when the image cannot be written).  A scene
+whose only problems are in its geometry (overlapping parts, ...) is still drawn, problems
+marked, and the exit code is 1."""
 from __future__ import annotations
 
 import argparse
@@ -88,8 +90,10 @@ def screenshot(app, win, scene_path, png, size) -> int:
     app.processEvents()
     win.canvas.fit()
     out = win.trace_blocking()
-    if out.error:
+    if out.error and not win.problems:       # geometry problems are listed once, below
         print(f"error: not traced: {out.error}", file=sys.stderr)
+    if win.problems:
+        win.result_tabs.setCurrentWidget(win.problems_panel)
     live = win.controls.live         # show the setting a user would have, without retracing
     live.blockSignals(True)
     live.setChecked(True)
@@ -104,7 +108,9 @@ def screenshot(app, win, scene_path, png, size) -> int:
         return 4
     win.worker.shutdown()
     win.autosaver.discard()
-    return 0
+    for p in win.problems:      # opened and drawn with its problems marked, but not traceable
+        print(f"error: {p.text}", file=sys.stderr)
+    return 1 if win.problems else 0
 
 
 if __name__ == "__main__":

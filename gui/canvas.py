@@ -19,8 +19,9 @@ from PySide6.QtWidgets import (QGraphicsPathItem, QHBoxLayout, QLabel, QSizePoli
 from raytrace.scene import EMITTER, POINT, Scene
 
 from . import edits, style
+from .flow_layout import FlowLayout
 from .overlay import Overlay, pass_clicks
-from .raydraw import KINDS, LEVEL_ALPHA, LEVELS, RayDrawing, ray_drawing
+from .raydraw import ESCAPE_REACH, KINDS, LEVEL_ALPHA, LEVELS, RayDrawing, arrow_strokes, ray_drawing
 from .snap import snap_index
 from .spectral import faded_rgb, spectral_rgb
 from .tools import TOOLS, SELECT
@@ -101,51 +102,68 @@ class _View(pg.ViewBox):
         ev.ignore()
 
 
+def _entry(*widgets) -> QWidget:
+    """Swatch and text kept together when the legend wraps."""
+    w = QWidget()
+    lay = QHBoxLayout(w)
+    lay.setContentsMargins(0, 0, 0, 0)
+    lay.setSpacing(4)
+    for x in widgets:
+        lay.addWidget(x)
+    return w
+
+
 class LegendBar(QWidget):
-    """The legend sits under the drawing, never on it."""
+    """The legend sits under the drawing, never on it; in a narrow window it wraps onto more
+    rows.  Why the scene is not traced, if so, has a row of its own in plain text."""
 
     def __init__(self, parent=None):
         super().__init__(parent)
-        lay = QHBoxLayout(self)
-        lay.setContentsMargins(6, 2, 6, 2)
-        lay.setSpacing(8)
+        outer = QVBoxLayout(self)
+        outer.setContentsMargins(6, 2, 6, 2)
+        outer.setSpacing(1)
+        flow = FlowLayout(spacing=12)
+        outer.addLayout(flow)
         self._kind_widgets = []
         items = [(style.RAY, "line", KIND_LABEL["ray"]), (style.TIR, "line", KIND_LABEL["tir"]),
                  (style.ESCAPING, "line", KIND_LABEL["escaping"]), (style.HIT, "dot", "detector hit"),
-                 (style.ESCAPE_MARK, "ring", "escape (size = share)"),
+                 (style.ESCAPE_MARK, "ring", "escape (size = share)"), (style.CUE, "arrow", "direction"),
                  (style.SOURCE, "dot", "source"), (style.DETECTOR, "bar", "detector")]
+        entries = []
         for colour, shape, text in items:
-            lab = QLabel()
+            lab = QLabel("\u2192" if shape == "arrow" else "")
             c = colour.name()
             css = {"line": f"background:{c}; min-height:3px; max-height:3px; min-width:22px;",
                    "dot": f"background:{c}; border-radius:5px; min-width:10px; max-width:10px; "
                           f"min-height:10px; max-height:10px;",
                    "ring": f"border:2px solid {c}; border-radius:6px; min-width:9px; max-width:9px; "
                            f"min-height:9px; max-height:9px;",
+                   "arrow": f"color:{c}; font-weight: bold;",
                    "bar": f"background:{c}; min-height:5px; max-height:5px; min-width:22px;"}[shape]
             lab.setStyleSheet(css)
             text_label = QLabel(text)
-            lay.addWidget(lab)
-            lay.addWidget(text_label)
+            entry = _entry(lab, text_label)
+            entries.append(entry)
             if text in KIND_LABEL.values():
-                self._kind_widgets += [lab, text_label]
+                self._kind_widgets.append(entry)
         # shown instead of the three ray kinds when rays are coloured by wavelength
         self.spectrum_swatch = QLabel()
         self.spectrum_swatch.setStyleSheet(_spectrum_css() + " min-height:5px; max-height:5px; min-width:60px;")
         self.spectrum_text = QLabel("wavelength 380-780 nm")
         self.spectrum_text.setToolTip("Rays are coloured by wavelength; grey outside 380-780 nm")
-        lay.insertWidget(0, self.spectrum_text)
-        lay.insertWidget(0, self.spectrum_swatch)
         self.fade_note = QLabel("(all fade with flux)")
         self.fade_note.setToolTip(FADE_NOTE)
         self.fade_note.setStyleSheet("color: #555")
-        lay.insertWidget(2 + len(self._kind_widgets), self.fade_note)   # right after the ray colours
-        lay.addStretch(1)
+        self._spectrum_entry = _entry(self.spectrum_swatch, self.spectrum_text)
+        for w in [self._spectrum_entry] + entries[:3] + [self.fade_note] + entries[3:]:
+            flow.addWidget(w)
         self.problem = QLabel("")
+        self.problem.setTextFormat(Qt.PlainText)     # "<part 'a' ...>" is text, not a tag
+        self.problem.setWordWrap(True)
         self.problem.setStyleSheet("color: #b00020; font-weight: bold")
-        lay.addWidget(self.problem)
-        # a narrow window clips the legend's end rather than forcing the window wider
-        self.setSizePolicy(QSizePolicy.Ignored, QSizePolicy.Fixed)
+        self.problem.setVisible(False)
+        outer.addWidget(self.problem)
+        self.setSizePolicy(QSizePolicy.Ignored, QSizePolicy.Preferred)
         self.setToolTip("Ray colours: legs that began with total internal reflection and legs "
                         "leaving the scene have their own colours; every leg fades as its flux "
                         "drops, equally in every colour.")
@@ -154,15 +172,19 @@ class LegendBar(QWidget):
     def set_colour_by_wavelength(self, on: bool) -> None:
         for w in self._kind_widgets:
             w.setVisible(not on)
+        self._spectrum_entry.setVisible(on)
         self.spectrum_swatch.setVisible(on)
         self.spectrum_text.setVisible(on)
-
+        self.updateGeometry()
 
     def show_problem(self, text: str) -> None:
-        """Why the rays are missing (the scene cannot be traced as it stands), or nothing."""
-        short = text if len(text) < 90 else text[:87] + "..."
+        """Why the rays are missing (the scene cannot be traced as it stands), or nothing; the
+        whole text, wrapped, at most about three lines (the rest is in the tooltip)."""
+        short = text if len(text) <= 300 else text[:297] + "..."
         self.problem.setText(f"not traced: {short}" if text else "")
         self.problem.setToolTip(text)
+        self.problem.setVisible(bool(text))
+        self.updateGeometry()
 
 
 class Canvas(QWidget):
@@ -188,8 +210,12 @@ class Canvas(QWidget):
 
         self.view = _View(self)
         self.plot = pg.PlotWidget(viewBox=self.view, background=style.BACKGROUND)
+        self.plot.hideButtons()      # no auto-range "A": Ctrl+0 fits, and it must not show in pictures
         self.plot.setLabel("bottom", "x", units="mm")
         self.plot.setLabel("left", "y", units="mm")
+        # a fixed width: an axis that widens for longer tick labels moves the drawing sideways
+        # and changes what a fit shows after a zoom
+        self.plot.getAxis("left").setWidth(56)
         for ax in ("bottom", "left"):
             a = self.plot.getAxis(ax)
             a.enableAutoSIPrefix(False)
@@ -215,14 +241,21 @@ class Canvas(QWidget):
         self._part_paths: list[QPainterPath] = []
         self._edge_polys: list[tuple[int, int, np.ndarray]] = []   # (part, edge, points)
         self._glyph_items: list[QGraphicsPathItem] = []
+        self._problem_items: list[QGraphicsPathItem] = []
+        self.problems = []
         self.colour_by_wavelength = False
         self._ray_items: list[pg.PlotCurveItem] = []    # reused between traces, one per group
         # what each ray item shows: (kind name or wavelength bin in nm, level, pen colour, segments)
         self.ray_groups: list[tuple[object, int, object, int]] = []
-        self._hits = pg.ScatterPlotItem(size=5, pen=None, brush=pg.mkBrush(style.HIT), pxMode=True)
-        self._hits.setZValue(16)
+        # hit marks sit beside the detector line on the side the ray came from, under the line
+        self._hits = pg.ScatterPlotItem(size=style.HIT_PX, pen=None, brush=pg.mkBrush(style.HIT), pxMode=True)
+        self._hits.setZValue(14)
         self._escapes = pg.ScatterPlotItem(pxMode=True, brush=None, pen=_pen(style.ESCAPE_MARK, 2))
         self._escapes.setZValue(11)
+        self.escape_xy: list[tuple[float, float]] = []      # where each escape ring is drawn
+        self._cues = pg.PlotCurveItem(pen=_pen(style.CUE, 1.3), connect="pairs", antialias=False)
+        self._cues.setZValue(10)
+        self.plot.addItem(self._cues)
         self._handles = pg.ScatterPlotItem(size=style.HANDLE_PX, pxMode=True, symbol="s",
                                            pen=pg.mkPen(style.HANDLE_EDGE, width=1.2),
                                            brush=pg.mkBrush(style.HANDLE))
@@ -433,6 +466,9 @@ class Canvas(QWidget):
     def _view_changed(self) -> None:
         self._draw_glyphs()
         self._draw_grid()
+        self._draw_marks()
+        if self.problems:
+            self.set_problems(self.problems)
 
     def _draw_grid(self) -> None:
         """Minor and major lines at the axes' own tick spacings, across the visible range."""
@@ -480,21 +516,37 @@ class Canvas(QWidget):
         self._draw_parts()
         self._draw_glyphs()
 
+    def parts_box(self):
+        """(x0, y0, x1, y1) around the parts, or None without parts."""
+        boxes = [p.outer.bounds() for p in self.scene.parts]
+        if not boxes:
+            return None
+        return (min(b[0] for b in boxes), min(b[1] for b in boxes),
+                max(b[2] for b in boxes), max(b[3] for b in boxes))
+
     def fit(self) -> None:
-        """Frame the scene: parts, sources, detectors and a margin."""
+        """Frame the parts and sources with a margin; detectors only when they are near the parts
+        (a detector far away would shrink a thin film to a sliver)."""
         s = self.scene
         xs, ys = [], []
-        for p in s.parts:
-            x0, y0, x1, y1 = p.outer.bounds()
-            xs += [x0, x1]
-            ys += [y0, y1]
+        box = self.parts_box()
+        if box:
+            xs += [box[0], box[2]]
+            ys += [box[1], box[3]]
         for src in s.sources:
             for q in self.source_span(src):
                 xs.append(q[0])
                 ys.append(q[1])
+        # detectors count as far as they lie within reach of the parts (ends clamped there)
+        reach = 0.5 * math.hypot(box[2] - box[0], box[3] - box[1]) if box else math.inf
         for d in s.detectors:
-            xs += [d.start[0], d.end[0]]
-            ys += [d.start[1], d.end[1]]
+            for q in (d.start, d.end):
+                if box is None:
+                    xs.append(q[0])
+                    ys.append(q[1])
+                else:
+                    xs.append(min(max(q[0], box[0] - reach), box[2] + reach))
+                    ys.append(min(max(q[1], box[1] - reach), box[3] + reach))
         if not xs:
             xs, ys = [-10, 10], [-10, 10]
         w = max(max(xs) - min(xs), max(ys) - min(ys), 1e-3)
@@ -539,6 +591,44 @@ class Canvas(QWidget):
                 handles += part.outer.vertices
         self._vertex_handles = handles
 
+    def set_problems(self, problems) -> None:
+        """Mark geometry problems: the parts concerned get a red dashed outline, the areas where
+        parts overlap a red hatch (see `gui.problems`)."""
+        for it in self._problem_items:
+            self.plot.removeItem(it)
+        self._problem_items = []
+        self.problems = list(problems)
+        concerned = sorted({i for p in self.problems for i in p.parts if i < len(self._part_paths)})
+        for i in concerned:
+            item = QGraphicsPathItem(self._part_paths[i])
+            item.setPen(_pen(style.PROBLEM, 2.0, Qt.DashLine))
+            item.setBrush(QBrush(Qt.NoBrush))
+            item.setZValue(13)
+            self._problem_items.append(item)
+        for p in self.problems:
+            for area in p.areas:
+                path = QPainterPath()
+                path.moveTo(*area[0])
+                for q in area[1:]:
+                    path.lineTo(*q)
+                path.closeSubpath()
+                item = QGraphicsPathItem(path)
+                item.setPen(_pen(style.PROBLEM, 1.5))
+                brush = QBrush(style.PROBLEM, Qt.BDiagPattern)
+                brush.setTransform(self._hatch_transform())
+                item.setBrush(brush)
+                item.setZValue(13)
+                item.setToolTip(p.text)
+                self._problem_items.append(item)
+        for it in self._problem_items:
+            self.plot.addItem(it)
+
+    def _hatch_transform(self):
+        """Hatch lines a few pixels apart whatever the zoom (a brush pattern is in item units)."""
+        from PySide6.QtGui import QTransform
+        s = 1.0 * self.pixel_mm()
+        return QTransform.fromScale(s, s)
+
     def _draw_glyphs(self) -> None:
         for it in self._glyph_items:
             self.plot.removeItem(it)
@@ -557,7 +647,7 @@ class Canvas(QWidget):
             line = QPainterPath()
             line.moveTo(*det.start)
             line.lineTo(*det.end)
-            self._add_path(line, style.SELECTED if selected else style.DETECTOR, None, 4.0,
+            self._add_path(line, style.SELECTED if selected else style.DETECTOR, None, style.DETECTOR_PX,
                            f"detector {det.name}" + ("" if det.absorbing else " (monitor: rays pass)"),
                            False, Qt.SolidLine if det.absorbing else Qt.DashLine)
             handles += [det.start, det.end]
@@ -578,17 +668,49 @@ class Canvas(QWidget):
     def set_result(self, result) -> None:
         """Draw a trace result (None clears the rays)."""
         self.result = result
-        self.drawing = (ray_drawing(result, colour_by_wavelength=self.colour_by_wavelength)
+        box = self.parts_box()
+        reach = ESCAPE_REACH * max(box[2] - box[0], box[3] - box[1], 1e-6) if box else None
+        self.drawing = (ray_drawing(result, colour_by_wavelength=self.colour_by_wavelength, escape_reach=reach)
                         if result is not None else RayDrawing())
         self._draw_rays()
-        self._hits.setData(self.drawing.hits_x, self.drawing.hits_y)
-        esc = self.drawing.escapes
-        if esc:
-            sizes = [max(6.0, 60.0 * math.sqrt(share)) for _, _, share, _ in esc]
-            self._escapes.setData([e[0] for e in esc], [e[1] for e in esc], size=sizes,
-                                  data=[f"{e[3]}: {100 * e[2]:.2f} % escapes" for e in esc])
+        self._draw_marks()
+
+    def escape_ring_px(self, share: float) -> float:
+        """Diameter of an escape ring: grows with the share, capped so it hides nothing."""
+        return min(style.ESCAPE_RING_MAX_PX, max(6.0, 60.0 * math.sqrt(share)))
+
+    def _draw_marks(self) -> None:
+        """Marks sized in screen pixels, redone when the zoom changes: hit marks beside the
+        detector line, escape rings clear of the source glyphs, direction arrows."""
+        d, px = self.drawing, self.pixel_mm()
+        off = (0.5 * style.DETECTOR_PX + 0.5 * style.HIT_PX + 1) * px
+        if len(d.hits_nx) == len(d.hits_x):
+            self._hits.setData(d.hits_x + off * d.hits_nx, d.hits_y + off * d.hits_ny)
+        else:
+            self._hits.setData(d.hits_x, d.hits_y)
+        self.escape_xy = [self._ring_place(edge, self.escape_ring_px(share) * px)
+                          for (_, _, share, _), edge in zip(d.escapes, d.escape_edges)]
+        if self.escape_xy:
+            self._escapes.setData([p[0] for p in self.escape_xy], [p[1] for p in self.escape_xy],
+                                  size=[self.escape_ring_px(e[2]) for e in d.escapes])
         else:
             self._escapes.setData([], [])
+        xs, ys = arrow_strokes(d.cue_x0, d.cue_y0, d.cue_x1, d.cue_y1, style.CUE_PX * px, 8 * style.CUE_PX * px,
+                               d.cue_at if len(d.cue_at) == len(d.cue_x0) else 0.55)
+        self._cues.setData(xs, ys, connect="pairs")
+
+    def _ring_place(self, edge, diameter: float):
+        """Where on its face an escape ring goes: the midpoint, or the point along the face
+        farthest from the source glyphs when the ring would cover one."""
+        clear = 0.5 * diameter + style.GLYPH_PX * self.pixel_mm()
+        spots = [edge.point_at(t) for t in (0.5, 0.3, 0.7, 0.15, 0.85)]
+        sources = [s.position for s in self.scene.sources]
+        if not sources:
+            return spots[0]
+        room = [min(math.dist(p, q) for q in sources) for p in spots]
+        if room[0] >= clear:
+            return spots[0]
+        return spots[int(np.argmax(room))]
 
     def set_colour_by_wavelength(self, on: bool) -> None:
         """Colour rays by their wavelength instead of by kind (a view choice, not saved)."""
@@ -647,7 +769,7 @@ class Canvas(QWidget):
     def hover_text(self, x, y) -> str:
         """What the tooltip says at (x, y): the face name and treatment, or an escape figure."""
         tol = style.PICK_PX * self.pixel_mm()
-        for ex, ey, share, label in self.drawing.escapes:
+        for (ex, ey), (_, _, share, label) in zip(self.escape_xy, self.drawing.escapes):
             if math.dist((ex, ey), (x, y)) <= tol:
                 return f"{label}: {100 * share:.2f} % of the source flux escapes here"
         f = self.face_at(x, y)
@@ -698,7 +820,8 @@ def _source_path(canvas: Canvas, src, g: float) -> QPainterPath:
 
 
 def _detector_ticks(det, g: float) -> QPainterPath:
-    """Short ticks on the back of a detector; the front (the side it counts) is left clear."""
+    """Short ticks on the back of a detector (left of start -> end): they show which way the
+    detector runs; rays are counted from either side."""
     path = QPainterPath()
     (sx, sy), (ex, ey) = det.start, det.end
     L = math.dist(det.start, det.end)

@@ -90,8 +90,11 @@ class Document(QObject):
         self.file_changed.emit()
 
     def open(self, path: str | Path) -> None:
-        """Load a file; raises SceneError (with .problems) and leaves the document unchanged."""
-        scene = load_scene(path)
+        """Load a file; raises SceneError (with .problems) and leaves the document unchanged.
+
+        Geometry problems (overlapping parts, a boundary crossing itself) do not stop the load:
+        the scene opens so it can be fixed, and `gui.problems` lists and marks them."""
+        scene = load_scene(path, check_shapes=False)
         self.replace(scene, Path(path))
 
     def save(self, path: str | Path | None = None) -> None:

@@ -268,3 +268,25 @@ def set_fields(scene: Scene, **changes) -> Scene:
 def treatment(kind: str, reflectance: float = 1.0) -> Treatment:
     return Treatment(kind, reflectance if kind == "mirror" else 1.0)
 
+
+
+def place_clear(scene: Scene, part: Part) -> Part:
+    """`part`, moved as little as needed to lie clear of every part of `scene`: where it is when
+    it overlaps nothing, else beside the existing parts (right, above, left or below, whichever
+    is nearest), a tenth of its size apart.  Overlapping parts could not be traced."""
+    if not scene.parts:
+        return part
+    tol = 1e-4 * max(part.size_hint(), 1e-9)
+    others = [p.to_shapely(1e-4 * max(p.size_hint(), 1e-9)) for p in scene.parts]
+    new = part.to_shapely(tol)
+    if not any(new.intersection(o).area > 1e-9 * max(new.area, 1e-12) for o in others):
+        return part
+    x0 = min(p.outer.bounds()[0] for p in scene.parts)
+    y0 = min(p.outer.bounds()[1] for p in scene.parts)
+    x1 = max(p.outer.bounds()[2] for p in scene.parts)
+    y1 = max(p.outer.bounds()[3] for p in scene.parts)
+    px0, py0, px1, py1 = part.outer.bounds()
+    gap = 0.1 * max(px1 - px0, py1 - py0)
+    moves = [(x1 + gap - px0, 0.0), (0.0, y1 + gap - py0), (x0 - gap - px1, 0.0), (0.0, y0 - gap - py1)]
+    dx, dy = min(moves, key=lambda m: math.hypot(*m))
+    return move_part(part, dx, dy)

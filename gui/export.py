@@ -3,6 +3,7 @@ from __future__ import annotations
 
 
 from raytrace.atomic import atomic_write as _atomic
+from raytrace.atomic import atomic_write_text
 from raytrace.raytable import write_csv
 
 
@@ -14,26 +15,22 @@ def save_widget_png(widget, path) -> None:
     _atomic(path, write)
 
 
-def save_widget_svg(widget, path, title: str = "") -> None:
-    """Vector drawing of a widget (the canvas): rays, parts and axes stay sharp at any size."""
-    from PySide6.QtCore import QPoint, QRect, QSize
-    from PySide6.QtGui import QPainter
-    from PySide6.QtSvg import QSvgGenerator
+def save_figure_svg(canvas, path, title: str = "", subtitle: str = "") -> None:
+    """The drawing as SVG of vector shapes only, at the canvas's size, with a title block."""
+    from .figure import figure_svg
+    size = canvas.plot.size()
+    text = figure_svg(canvas, size.width(), size.height(), title, subtitle)
+    atomic_write_text(path, text)
 
-    def write(tmp):
-        gen = QSvgGenerator()
-        gen.setFileName(tmp)
-        gen.setSize(QSize(widget.width(), widget.height()))
-        gen.setViewBox(QRect(0, 0, widget.width(), widget.height()))
-        gen.setTitle(title or "ray trace drawing")
-        painter = QPainter()
-        if not painter.begin(gen):
-            raise OSError(f"could not start the SVG file for {path}")
-        try:
-            widget.render(painter, QPoint(0, 0))
-        finally:
-            painter.end()
-    _atomic(path, write)
+
+def save_figure_png(canvas, path, width_px: int, height_px: int, dpi: float = 96.0,
+                    title: str = "", subtitle: str = "") -> None:
+    """The drawing as a PNG of width_px x height_px at `dpi`: laid out at 96 dpi units, so text
+    and lines keep their printed size whatever the resolution."""
+    from .figure import figure_svg, render_png
+    scale = 96.0 / dpi
+    text = figure_svg(canvas, width_px * scale, height_px * scale, title, subtitle)
+    render_png(text, path, width_px, height_px, dpi)
 
 
 def save_ray_table_csv(result, path) -> int:

@@ -20,7 +20,7 @@ included.</p>
 SHORTCUTS = """<h3>Keys</h3>
 <table>
 <tr><td>Ctrl+N / Ctrl+O / Ctrl+S / Ctrl+Shift+S</td><td>new, open, save, save as</td></tr>
-<tr><td>Ctrl+Z / Ctrl+Shift+Z (Ctrl+Y)</td><td>undo / redo</td></tr>
+<tr><td>Ctrl+Z / Ctrl+Shift+Z or Ctrl+Y</td><td>undo / redo</td></tr>
 <tr><td>Del, Ctrl+D</td><td>delete, duplicate the selected part, source or detector</td></tr>
 <tr><td>arrow keys (Shift: x10)</td><td>move the selection by one grid step</td></tr>
 <tr><td>V, R</td><td>select and drag / rotate</td></tr>

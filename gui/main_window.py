@@ -5,6 +5,7 @@ methods so tests can answer them without opening modal dialogs.
 """
 from __future__ import annotations
 
+import html
 import time
 from pathlib import Path
 
@@ -22,10 +23,12 @@ from . import edits, help as help_text
 from .autosave import Autosaver, find_recoveries
 from .canvas import Canvas
 from .document import Document
-from .export import save_ray_table_csv, save_widget_png, save_widget_svg
+from .export import save_figure_png, save_figure_svg, save_ray_table_csv
 from .panels.controls import TraceControls
 from .panels.ledger import LedgerPanel
 from .panels.plots import ProfilePanel
+from .panels.problems import ProblemsPanel
+from .problems import scene_problems
 from .panels.properties import PropertiesPanel
 from .recent import add_recent, recent_files
 from .tools import ARC, DETECTOR_TOOL, HOLE, MEASURE, POLYGON, RECTANGLE, ROTATE, SELECT, SOURCE_TOOL, ZOOM_BOX
@@ -43,6 +46,11 @@ def distinct_keys(*keys) -> list[QKeySequence]:
         seqs = QKeySequence.keyBindings(k) if isinstance(k, QKeySequence.StandardKey) else [QKeySequence(k)]
         out += [q for q in seqs if not q.isEmpty() and q not in out]
     return out
+
+
+def redo_keys() -> list[QKeySequence]:
+    """The platform's redo keys, with Ctrl+Shift+Z and Ctrl+Y added where the platform lacks them."""
+    return distinct_keys(QKeySequence.StandardKey.Redo, "Ctrl+Shift+Z", "Ctrl+Y")
 
 
 def _scrolled(widget):
@@ -71,12 +79,15 @@ class MainWindow(QMainWindow):
         self.controls = TraceControls(self.doc)
         self.ledger = LedgerPanel()
         self.profiles = ProfilePanel()
+        self.problems_panel = ProblemsPanel()
+        self.problems = []
         edit_tabs = QTabWidget()
         edit_tabs.addTab(_scrolled(self.properties), "Selection")
         edit_tabs.addTab(_scrolled(self.controls), "Trace")
         result_tabs = QTabWidget()
-        result_tabs.addTab(self.ledger, "Where the flux went")
-        result_tabs.addTab(_scrolled(self.profiles), "Detector profiles")
+        result_tabs.addTab(self.ledger, "Flux ledger")
+        result_tabs.addTab(self.profiles, "Profiles")      # the plots shrink to fit; no scrolling
+        result_tabs.addTab(self.problems_panel, "Problems")
         self.edit_tabs, self.result_tabs = edit_tabs, result_tabs
         docks = []
         for title, w, name in (("Edit", edit_tabs, "edit"), ("Results", result_tabs, "results")):
@@ -86,8 +97,6 @@ class MainWindow(QMainWindow):
             dock.setFeatures(QDockWidget.DockWidgetMovable | QDockWidget.DockWidgetFloatable)
             self.addDockWidget(Qt.RightDockWidgetArea, dock)
             docks.append(dock)
-        self.resizeDocks(docks, [520, 380], Qt.Vertical)
-        self.resizeDocks(docks[:1], [470], Qt.Horizontal)
 
         self.cursor_label = QLabel("x -, y - mm")
         self.cursor_label.setMinimumWidth(190)
@@ -101,6 +110,7 @@ class MainWindow(QMainWindow):
         self.canvas.selection_changed.connect(self._selection_changed)
         self.canvas.cursor_moved.connect(lambda x, y: self.cursor_label.setText(f"x {x:.3f}, y {y:.3f} mm"))
         self.canvas.status_message.connect(self.status_note)
+        self.problems_panel.part_chosen.connect(lambda i: self.canvas.select((edits.PART, i)))
         self.worker.finished.connect(self._show_outcome)
         # a bound slot, so the call is queued to this thread (busy is emitted by the trace thread)
         self.worker.busy.connect(self._trace_busy)
@@ -108,9 +118,27 @@ class MainWindow(QMainWindow):
         self.controls.options_changed.connect(self.request_trace)
         self.controls.trace_now.connect(lambda: self.request_trace(force=True))
         self.controls.stop.connect(self.stop_trace)
+        self.status_text = ""
+        self._docks = docks
+        self._arranged = False
         self.resize(1400, 900)
         self._scene_changed()
         self._update_title()
+
+    def arrange_docks(self) -> None:
+        """Share the window between drawing and panels by its size: at 1024 x 700 the drawing
+        keeps most of the width and the flux ledger its rows; at 1400 x 900 the panels grow."""
+        w, h = self.width(), self.height()
+        self.resizeDocks(self._docks[:1], [int(min(470, max(330, 0.34 * w)))], Qt.Horizontal)
+        avail = h - self.menuBar().sizeHint().height() - self.statusBar().sizeHint().height()
+        results = int(min(max(0.5 * avail, 400), avail - 200))
+        self.resizeDocks(self._docks, [avail - results, results], Qt.Vertical)
+
+    def showEvent(self, ev):
+        super().showEvent(ev)
+        if not self._arranged:       # once: later the user's own dock sizes are kept
+            self._arranged = True
+            self.arrange_docks()
 
     # ------------------------------------------------------------------ actions and menus
     def _act(self, menu, text, slot, shortcut=None, tip="", checkable=False):
@@ -147,7 +175,7 @@ class MainWindow(QMainWindow):
         self.undo_action = self.doc.undo_stack.createUndoAction(self, "&Undo")
         self.undo_action.setShortcut(QKeySequence.Undo)
         self.redo_action = self.doc.undo_stack.createRedoAction(self, "&Redo")
-        self.redo_action.setShortcuts([QKeySequence.Redo, QKeySequence("Ctrl+Y")])
+        self.redo_action.setShortcuts(redo_keys())
         e.addAction(self.undo_action)
         e.addAction(self.redo_action)
         e.addSeparator()
@@ -300,14 +328,29 @@ class MainWindow(QMainWindow):
 
     def show_error(self, title: str, text: str) -> None:
         self.last_error = text
-        self.statusBar().showMessage(text, 15000)
-        QMessageBox.warning(self, title, text)
+        self.status_note(text, 15000)
+        box = QMessageBox(QMessageBox.Warning, title, text, parent=self)
+        box.setTextFormat(Qt.PlainText)       # "<part 'a' ...>" in a problem is text, not a tag
+        box.exec()
 
     def show_info(self, title: str, html: str) -> None:
         QMessageBox.information(self, title, html)
 
-    def status_note(self, text: str) -> None:
-        self.statusBar().showMessage(text, 8000)
+    def status_note(self, text: str, ms: int = 8000) -> None:
+        """A message left of the permanent labels, cut with "..." where it would run into them
+        (the whole text is in the status bar's tooltip)."""
+        bar = self.statusBar()
+        labels = [w for w in (self.trace_label, self.cursor_label) if w.isVisible()]
+        # the labels' place once laid out, or what their current texts will need (just changed)
+        room = bar.width() - sum(max(w.sizeHint().width(), w.minimumWidth()) + 12 for w in labels) - 24
+        if labels and all(w.geometry().left() > 0 for w in labels):
+            room = min(room, min(w.geometry().left() for w in labels) - 24)
+        room = max(80, room)
+        self.status_text = text
+        bar.setToolTip(text)
+        # a window not on screen has no width to fit: keep the whole text
+        shown = bar.isVisible() and bar.width() > 0
+        bar.showMessage(bar.fontMetrics().elidedText(text, Qt.ElideRight, room) if shown else text, ms)
 
     def _dir(self) -> Path:
         return self.doc.path.parent if self.doc.path else Path.cwd()
@@ -347,7 +390,12 @@ class MainWindow(QMainWindow):
         add_recent(path)
         self.canvas.select(None)
         self.canvas.fit()
-        self.status_note(f"Opened {path}")
+        if self.problems:
+            self.result_tabs.setCurrentWidget(self.problems_panel)
+            self.status_note(f"Opened {path}: {len(self.problems)} problem(s) to fix before it can be "
+                             "traced (see Problems)")
+        else:
+            self.status_note(f"Opened {path}")
         return True
 
     def save(self) -> bool:
@@ -374,7 +422,8 @@ class MainWindow(QMainWindow):
             return False
         add_recent(path)
         self.autosaver.discard()
-        self.status_note(f"Saved {path}")
+        self.status_note(f"Saved {path}" + (f" with {len(self.problems)} problem(s) still to fix (see Problems)"
+                                            if self.problems else ""))
         return True
 
     def _export(self, what: str, suffix: str, filt: str, write) -> bool:
@@ -400,12 +449,29 @@ class MainWindow(QMainWindow):
         return self._export("the ray table", ".csv", "CSV (*.csv)",
                             lambda p: save_ray_table_csv(self.canvas.result, p))
 
+    def _figure_titles(self, with_title: bool = True) -> dict:
+        if not with_title:
+            return {}
+        from .figure import figure_subtitle
+        return {"title": self.doc.scene.name or self.doc.title, "subtitle": figure_subtitle(self.canvas.result)}
+
+    def ask_png_options(self) -> dict | None:
+        """Size, resolution and title block of a PNG export, or None when cancelled."""
+        from .dialogs.png_export import PngExportDialog
+        size = self.canvas.plot.size()
+        dlg = PngExportDialog(size.width(), size.height(), self)
+        return dlg.options() if dlg.exec() else None
+
     def export_png(self) -> bool:
-        return self._export("the drawing", ".png", "PNG image (*.png)", lambda p: save_widget_png(self.canvas, p))
+        opts = self.ask_png_options()
+        if opts is None:
+            return False
+        return self._export("the drawing", ".png", "PNG image (*.png)", lambda p: save_figure_png(
+            self.canvas, p, opts["width"], opts["height"], opts["dpi"], **self._figure_titles(opts["title_block"])))
 
     def export_svg(self) -> bool:
         return self._export("the drawing", ".svg", "SVG image (*.svg)",
-                            lambda p: save_widget_svg(self.canvas, p, self.doc.scene.name))
+                            lambda p: save_figure_svg(self.canvas, p, **self._figure_titles()))
 
     def offer_recovery(self) -> bool:
         """After a crash: offer the newest recovery copy; True when one was restored."""
@@ -417,7 +483,7 @@ class MainWindow(QMainWindow):
                 rec.discard()
                 continue
             try:
-                scene = scene_from_text(rec.scene_file.read_text(encoding="utf-8"))
+                scene = scene_from_text(rec.scene_file.read_text(encoding="utf-8"), check_shapes=False)
             except (SceneError, OSError) as exc:
                 self.show_error("Cannot restore", f"The recovery copy {rec.scene_file} cannot be read: {exc}")
                 return False
@@ -485,7 +551,10 @@ class MainWindow(QMainWindow):
         if not dlg.exec():
             return
         part = edits.shape_part(dlg.spec(), dlg.material.currentText(), dlg.name.text().strip())
-        scene = edits.add_part(self.doc.scene, part)
+        placed = edits.place_clear(self.doc.scene, part)
+        if placed is not part:
+            self.status_note(f"{part.name} placed beside the other parts: at the view centre it would overlap one")
+        scene = edits.add_part(self.doc.scene, placed)
         self.doc.apply(scene, f"add {scene.parts[-1].name}")
         self.canvas.select((edits.PART, len(scene.parts) - 1))
 
@@ -504,10 +573,18 @@ class MainWindow(QMainWindow):
     def _scene_changed(self) -> None:
         scene = self.doc.scene
         self.canvas.set_scene(scene)
+        self._show_problems(scene_problems(scene))
         self.properties.show_selection(scene, self.canvas.selection)
         self.controls.show_scene(scene)
         self._update_title()
         self.request_trace()
+
+    def _show_problems(self, problems) -> None:
+        self.problems = problems
+        self.canvas.set_problems(problems)
+        self.problems_panel.show_problems(problems)
+        i = self.result_tabs.indexOf(self.problems_panel)
+        self.result_tabs.setTabText(i, f"Problems ({len(problems)})" if problems else "Problems")
 
     # ------------------------------------------------------------------ tracing
     def request_trace(self, force: bool = False) -> int | None:
@@ -558,9 +635,9 @@ class MainWindow(QMainWindow):
             self.canvas.set_result(None)
             self.ledger.show_result(None)
             self.profiles.show_result(None)
-            self.ledger.summary.setText(f"<b>Not traced:</b> {out.error}")
+            self.ledger.summary.setText(f"<b>Not traced:</b> {html.escape(out.error)}")
             self.canvas.legend.show_problem(out.error)
-            self.trace_label.setText("not traced: see the flux panel")
+            self.trace_label.setText("not traced: see Problems" if self.problems else "not traced: see Flux ledger")
             self.status_note(out.error)
             return
         if out.result is None:

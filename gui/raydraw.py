@@ -21,7 +21,10 @@ INSIDE, ESCAPING, TIR = "ray", "escaping", "tir"
 KINDS = (INSIDE, ESCAPING, TIR)
 # Brightness levels: a segment's flux relative to its source ray's starting flux.
 LEVELS = (0.5, 0.1, 1e-2, 1e-3, 0.0)
-LEVEL_ALPHA = (210, 120, 55, 24, 10)
+LEVEL_ALPHA = (235, 120, 34, 14, 4)
+# Escaping legs are drawn at most this many times the size of the parts: they run to the edge of
+# the scene in the trace and would flood the view around the parts.
+ESCAPE_REACH = 0.25
 
 
 @dataclass
@@ -31,6 +34,16 @@ class RayDrawing:
     hits_x: np.ndarray = field(default_factory=lambda: np.zeros(0))
     hits_y: np.ndarray = field(default_factory=lambda: np.zeros(0))
     escapes: list[tuple[float, float, float, str]] = field(default_factory=list)  # x, y, share, label
+    escape_edges: list = field(default_factory=list)      # the compiled Edge of each escape marker
+    # unit vector from each hit toward the side the ray arrived from (marks sit on that side)
+    hits_nx: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    hits_ny: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    # direction cues: bright legs of a few source rays, as start point, end point and kind index
+    cue_x0: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    cue_y0: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    cue_x1: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    cue_y1: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    cue_at: np.ndarray = field(default_factory=lambda: np.zeros(0))   # where along the leg (0..1)
     n_segments: int = 0
     # with colour by wavelength: (wavelength bin in nm, or nan, level, x, y) per non-empty group,
     # in stacking order within each level
@@ -55,10 +68,27 @@ def _pairs(seg, sel) -> tuple[np.ndarray, np.ndarray]:
     return x, y
 
 
-def ray_drawing(result, min_escape_share: float = 1e-3, colour_by_wavelength: bool = False) -> RayDrawing:
+def clip_escaping(seg: dict, escaping: np.ndarray, reach: float) -> dict:
+    """A copy of the segment columns with escaping legs cut to at most `reach` mm."""
+    x0, y0, x1, y1 = (np.asarray(seg[k], dtype=float) for k in ("x0", "y0", "x1", "y1"))
+    length = np.hypot(x1 - x0, y1 - y0)
+    cut = escaping & (length > reach)
+    if not cut.any():
+        return seg
+    u = np.where(cut, reach / np.where(length > 0, length, 1.0), 1.0)
+    out = dict(seg)
+    out["x1"], out["y1"] = x0 + u * (x1 - x0), y0 + u * (y1 - y0)
+    return out
+
+
+def ray_drawing(result, min_escape_share: float = 1e-3, colour_by_wavelength: bool = False,
+                escape_reach: float | None = None) -> RayDrawing:
+    """`escape_reach` (mm) cuts the drawn escaping legs to that length (None: as traced)."""
     d = RayDrawing(colour_by_wavelength=colour_by_wavelength)
     seg = result.segments
     if seg is not None and len(seg["x0"]):
+        if escape_reach is not None:
+            seg = clip_escaping(seg, seg["end"] == E_ESCAPED, escape_reach)
         flux = seg["flux_s"] + seg["flux_p"]
         root = seg["source_ray"].astype(np.int64)
         start_flux = np.zeros(int(root.max()) + 1)
@@ -71,6 +101,7 @@ def ray_drawing(result, min_escape_share: float = 1e-3, colour_by_wavelength: bo
         kind[seg["end"] == E_ESCAPED] = 1
         kind[seg["born"] == B_TIR] = 2
         d.n_segments = len(flux)
+        _direction_cues(d, seg, root, level)
         for k, name in enumerate(KINDS):
             d.lines[name] = [_pairs(seg, (kind == k) & (level == lv)) for lv in range(len(LEVELS))]
         if colour_by_wavelength:
@@ -94,8 +125,46 @@ def ray_drawing(result, min_escape_share: float = 1e-3, colour_by_wavelength: bo
                         if sel.any():
                             d.by_wavelength.append((float(b), lv, *_pairs(seg, sel)))
     d.hits_x, d.hits_y = hit_points(result)
-    d.escapes = escape_markers(result, min_escape_share)
+    d.hits_nx, d.hits_ny = hit_sides(result)
+    d.escapes, d.escape_edges = escape_markers(result, min_escape_share)
     return d
+
+
+CUE_RAYS = 3          # source rays whose brightest legs carry a direction arrow
+CUE_MAX = 24          # arrows drawn at most
+
+
+def _direction_cues(d: RayDrawing, seg, root: np.ndarray, level: np.ndarray) -> None:
+    """Pick the brightest legs (above half their source ray's flux) of a few source rays spread
+    over the fan: an arrow on each tells an incoming beam from a returning one."""
+    roots = np.unique(root)
+    chosen = roots[np.unique(np.linspace(0, len(roots) - 1, min(CUE_RAYS, len(roots))).round().astype(int))]
+    sel = np.isin(root, chosen) & (level == 0)
+    # each chosen ray has its arrows at its own place along the legs, so the arrows of a
+    # parallel beam are staggered instead of lined up across it like a hatch
+    d.cue_at = np.array([0.3, 0.55, 0.8])[np.searchsorted(chosen, root[sel]) % 3]
+    d.cue_x0, d.cue_y0 = np.asarray(seg["x0"])[sel], np.asarray(seg["y0"])[sel]
+    d.cue_x1, d.cue_y1 = np.asarray(seg["x1"])[sel], np.asarray(seg["y1"])[sel]
+
+
+def arrow_strokes(x0, y0, x1, y1, head: float, min_length: float, at=0.55):
+    """Pairs of points (connect="pairs") drawing an open arrowhead `head` mm long at fraction
+    `at` (one for all, or one per leg) along each leg longer than `min_length` mm."""
+    dx, dy = x1 - x0, y1 - y0
+    length = np.hypot(dx, dy)
+    keep = length > min_length
+    if keep.sum() > CUE_MAX:       # the longest legs, in their drawing order
+        keep[np.flatnonzero(keep)[np.argsort(-length[keep])[CUE_MAX:]]] = False
+    if not keep.any():
+        return np.zeros(0), np.zeros(0)
+    ux, uy = dx[keep] / length[keep], dy[keep] / length[keep]
+    at = np.broadcast_to(np.asarray(at, dtype=float), length.shape)[keep]
+    tx, ty = x0[keep] + at * dx[keep], y0[keep] + at * dy[keep]
+    bx, by = tx - head * ux, ty - head * uy          # back of the head, then +-half width
+    wx, wy = -0.5 * head * uy, 0.5 * head * ux
+    xs = np.stack([tx, bx + wx, tx, bx - wx], axis=1).reshape(-1)
+    ys = np.stack([ty, by + wy, ty, by - wy], axis=1).reshape(-1)
+    return xs, ys
 
 
 def hit_points(result) -> tuple[np.ndarray, np.ndarray]:
@@ -113,21 +182,36 @@ def hit_points(result) -> tuple[np.ndarray, np.ndarray]:
     return sx + u * (ex - sx), sy + u * (ey - sy)
 
 
-def escape_markers(result, min_share: float) -> list[tuple[float, float, float, str]]:
+def hit_sides(result) -> tuple[np.ndarray, np.ndarray]:
+    """Unit normal of the detector at each hit, pointing to the side the ray came from."""
+    h = result.raw.hits
+    if not h or not len(h.get("position", [])) or "front" not in h:
+        return np.zeros(0), np.zeros(0)
+    dets = result.compiled.detectors
+    idx = h["detector"].astype(np.int64)
+    ex = np.array([d.end[0] - d.start[0] for d in dets])[idx]
+    ey = np.array([d.end[1] - d.start[1] for d in dets])[idx]
+    L = np.hypot(ex, ey)
+    sign = np.where(np.asarray(h["front"], dtype=bool), 1.0, -1.0)   # front: right of start->end
+    return sign * ey / L, -sign * ex / L
+
+
+def escape_markers(result, min_share: float):
     """One marker per edge where flux escaped: at the edge's midpoint, with its share of the
-    source flux and a label "part / face"."""
+    source flux and a label "part / face"; and the list of those edges."""
     cs = result.compiled
     layout = BinLayout(cs)
     total = result.ledger.source_flux or 1.0
     esc = result.ledger.bins[layout.escape0:layout.escape0 + layout.E] / total
-    out = []
+    out, edges = [], []
     for e in np.flatnonzero(esc >= min_share):
         if cs.detector[e] >= 0 or e >= len(cs.edges):
             continue
         x, y = cs.edges[e].point_at(0.5)
         part, face = cs.face_labels[cs.face[e]]
         out.append((x, y, float(esc[e]), f"{part} / {face}"))
-    return out
+        edges.append(cs.edges[e])
+    return out, edges
 
 
 

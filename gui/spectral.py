@@ -14,6 +14,9 @@ OUTSIDE_GREY = (128, 128, 128)
 BACKGROUND = (250, 250, 246)
 # Lightest allowed luminance of a full-strength ray colour (that of the orange ray colour).
 MAX_LUMINANCE = 132.0
+# Share of the full contrast that even the faintest leg keeps: faded further, a ghost inside a
+# tinted part is lighter than the tint and reads as a void in the glass instead of a faint ray.
+FADE_FLOOR = 0.25
 
 # (nm, r, g, b) breakpoints of the ramp, each channel linear in between.
 _RAMP = np.array([
@@ -56,9 +59,9 @@ def faded_rgb(rgb, strength: float, reference=(222, 118, 0)) -> tuple[int, int, 
     """An opaque colour between the background and `rgb` whose contrast with the background is
     `strength` (0..1) times the contrast of the full `reference` colour, so that a leg of a given
     flux looks equally heavy whatever its hue (a saturated pink at the same mix as orange reads
-    much darker)."""
+    much darker).  Strength 0 still keeps FADE_FLOOR of the contrast."""
     bg_l = luminance(BACKGROUND)
-    want = strength * (bg_l - luminance(reference))
+    want = (FADE_FLOOR + (1.0 - FADE_FLOOR) * strength) * (bg_l - luminance(reference))
     have = bg_l - luminance(rgb)
     share = 1.0 if have <= 1e-9 else min(1.0, want / have)
     return tuple(int(round(b + share * (c - b))) for b, c in zip(BACKGROUND, rgb))

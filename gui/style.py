@@ -12,7 +12,8 @@ GRID_MINOR = QColor(238, 238, 232)
 
 RAY = QColor(222, 118, 0)          # rays travelling on (refracted, reflected, from the source)
 ESCAPING = QColor(214, 40, 90)     # the last leg of a ray that leaves the scene
-TIR = QColor(20, 110, 230)         # legs that began with total internal reflection
+TIR = QColor(0, 140, 70)           # legs that began with total internal reflection (green: it
+                                   # stands out on the blue PMMA and water tints)
 HIT = QColor(120, 30, 170)          # points where rays reached a detector
 ESCAPE_MARK = QColor(214, 40, 90)  # faces where flux escapes
 SOURCE = QColor(255, 196, 0)
@@ -22,8 +23,14 @@ HANDLE = QColor(255, 255, 255)
 HANDLE_EDGE = QColor(30, 30, 30)
 SELECTED = QColor(255, 60, 0)
 PREVIEW = QColor(90, 90, 90)
+PROBLEM = QColor(200, 0, 30)        # geometry problems: overlap hatch, outline of the parts concerned
 
 GLYPH_PX = 14        # size of source and detector glyphs on screen
+DETECTOR_PX = 4.0    # width of the detector line
+HIT_PX = 3           # detector hit marks
+ESCAPE_RING_MAX_PX = 30
+CUE_PX = 7           # direction arrowheads on a few bright ray legs
+CUE = QColor(50, 50, 50)
 HANDLE_PX = 9
 PICK_PX = 8          # how close the cursor must be to pick a vertex, face or handle
 
@@ -41,6 +48,9 @@ _MATERIAL_TINTS = {
 }
 
 
+TINT_ALPHA = 50      # light enough that the faintest ray leg is still darker than the fill
+
+
 def material_tint(name: str) -> QColor:
     """A fill colour per material: fixed for catalog materials, stable per name otherwise."""
     rgb = _MATERIAL_TINTS.get(name)
@@ -48,7 +58,7 @@ def material_tint(name: str) -> QColor:
         hue = zlib.crc32(name.encode("utf-8")) % 360
         c = QColor.fromHsv(hue, 110, 215)
         rgb = (c.red(), c.green(), c.blue())
-    return QColor(*rgb, 80)
+    return QColor(*rgb, TINT_ALPHA)
 
 
 def material_outline(name: str) -> QColor:

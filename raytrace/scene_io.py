@@ -56,8 +56,11 @@ MAX_MEMORY_MB = 1e9    # 1 PB: any real machine is below it   # histogram bins p
 MAX_SCENE_BYTES = 64 * 2**20   # far above any hand-made or generated scene (a 10,000-edge film is ~1 MB)
 
 
-def load_scene(path: str | os.PathLike) -> Scene:
-    """Read, validate and build a scene.  Raises SceneError listing every problem."""
+def load_scene(path: str | os.PathLike, check_shapes: bool = True) -> Scene:
+    """Read, validate and build a scene.  Raises SceneError listing every problem.
+
+    `check_shapes=False` skips the geometry checks (self-crossing loops, overlapping parts):
+    the editor opens such a scene so the user can fix it, and shows those problems itself."""
     path = Path(path)
     problems = Problems(file=str(path))
     try:
@@ -71,7 +74,7 @@ def load_scene(path: str | os.PathLike) -> Scene:
     except (OSError, UnicodeDecodeError) as exc:
         problems.add("$", f"<unreadable file: {exc}>", "a readable UTF-8 JSON file")
         raise SceneError(problems.items)
-    return scene_from_text(text, problems)
+    return scene_from_text(text, problems, check_shapes)
 
 
 class _NotAScene(OSError):
@@ -95,7 +98,7 @@ def read_scene_text(path: Path) -> str:
     return data.decode("utf-8-sig")   # -sig: accept the BOM some editors write
 
 
-def scene_from_text(text: str, problems: Problems | None = None) -> Scene:
+def scene_from_text(text: str, problems: Problems | None = None, check_shapes: bool = True) -> Scene:
     problems = problems or Problems()
     duplicates = DuplicateKeys()
     try:
@@ -109,7 +112,7 @@ def scene_from_text(text: str, problems: Problems | None = None) -> Scene:
         problems.add("$", "<JSON nested too deeply>", "a scene file of ordinary depth")
         raise SceneError(problems.items)
     duplicates.report(data, problems)
-    return scene_from_dict(data, problems)
+    return scene_from_dict(data, problems, check_shapes)
 
 
 class DuplicateKeys:
@@ -153,7 +156,7 @@ def _objects(value: Any, where: str):
             yield from _objects(v, f"{where}[{k}]")
 
 
-def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
+def scene_from_dict(data: Any, problems: Problems | None = None, check_shapes: bool = True) -> Scene:
     problems = problems or Problems()
     top = F.obj(data, "$", problems)
     if top is None:
@@ -222,7 +225,8 @@ def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
                   name=name or "")
     # scene-level checks run on every part that could be read, so one pass reports all problems
     resolve_materials(scene, problems, part_paths, skip=frozenset(failed_materials))
-    check_geometry(scene, problems, part_paths)
+    if check_shapes:
+        check_geometry(scene, problems, part_paths)
     if linker is not None:
         _file_paths(problems, linker)
     problems.raise_if_errors()

@@ -68,3 +68,19 @@ def type_text(text: str) -> None:
     character may open a box that takes the rest)."""
     for ch in text:
         QTest.keyClicks(QApplication.focusWidget(), ch)
+
+
+def double_click(qtbot, canvas, p):
+    """A double-click at p in Qt's real order: press, release, double-click, release
+    (QTest.mouseDClick sends the double-click event alone, which no mouse does)."""
+    vp = canvas.plot.viewport()
+    w = widget_point(canvas, p)
+    hover(qtbot, canvas, p)
+    QTest.mousePress(vp, Qt.LeftButton, Qt.NoModifier, w)
+    QTest.mouseRelease(vp, Qt.LeftButton, Qt.NoModifier, w)
+    q = QPointF(w)
+    QApplication.sendEvent(vp, QMouseEvent(QEvent.MouseButtonDblClick, q, q, QPointF(vp.mapToGlobal(w)),
+                                           Qt.LeftButton, Qt.LeftButton, Qt.NoModifier))
+    QTest.mouseRelease(vp, Qt.LeftButton, Qt.NoModifier, w)
+    _last_click[0] = w
+    qtbot.wait(10)

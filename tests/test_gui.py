@@ -52,6 +52,7 @@ def make_window(qtbot, autosave_s=3600.0):
     win.show_error = lambda title, text: (win.errors.append(text), setattr(win, "last_error", text))
     win.show_info = lambda title, html: None
     win.ask_unsaved = lambda: "discard"
+    win.ask_png_options = lambda: {"width": 800, "height": 600, "dpi": 96, "title_block": True}
     return win
 
 

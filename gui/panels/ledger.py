@@ -1,8 +1,10 @@
 """Where the flux went: efficiency per detector, loss per face, absorption and truncation."""
 from __future__ import annotations
 
+import html
+
 from PySide6.QtCore import Qt
-from PySide6.QtWidgets import QLabel, QTreeWidget, QTreeWidgetItem, QVBoxLayout, QWidget
+from PySide6.QtWidgets import QHeaderView, QLabel, QTreeWidget, QTreeWidgetItem, QVBoxLayout, QWidget
 
 from raytrace.ledger import ABSORBED, DETECTOR, ESCAPED, TRUNCATED
 
@@ -17,6 +19,16 @@ class LedgerPanel(QWidget):
         self.tree.setColumnCount(4)
         self.tree.setHeaderLabels(["where", "flux", "share", "\u00b1 error"])
         self.tree.setRootIsDecorated(False)
+        self.tree.setIndentation(0)
+        self.tree.setUniformRowHeights(True)
+        head = self.tree.header()           # the figures always show; long names are cut
+        head.setStretchLastSection(False)
+        head.setSectionResizeMode(0, QHeaderView.Stretch)
+        head.setSectionResizeMode(1, QHeaderView.ResizeToContents)
+        head.setSectionResizeMode(2, QHeaderView.ResizeToContents)
+        head.setSectionResizeMode(3, QHeaderView.ResizeToContents)
+        self.tree.setHorizontalScrollBarPolicy(Qt.ScrollBarAlwaysOff)
+        self.tree.setStyleSheet("QTreeWidget::item { padding: 0px; }")   # every row fits at 1024 x 700
         self.tree.setToolTip("Every unit of source flux ends in one of these rows; they add up to "
                              "the source flux.  \u00b1 error: the standard error of the share, in "
                              "points of % (hover the summary for what it means in this trace).")
@@ -62,7 +74,7 @@ class LedgerPanel(QWidget):
         for c in range(4):
             self.tree.resizeColumnToContents(c)
         st = result.stats
-        eff = ", ".join(f"{d.name}: {100 * result.efficiency(d.name):.2f} % \u00b1 "
+        eff = ", ".join(f"{html.escape(d.name)}: {100 * result.efficiency(d.name):.2f} % \u00b1 "
                         f"{_points(result.efficiency_error(d.name))}" for d in result.compiled.detectors)
         self.summary.setText(
             f"<b>Efficiency</b> {eff or '(no detector)'}<br>"

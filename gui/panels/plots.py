@@ -29,7 +29,8 @@ class ProfilePanel(QWidget):
         for w in (self.irr, self.ang):
             for ax in ("bottom", "left"):
                 w.getAxis(ax).enableAutoSIPrefix(False)
-            w.setMinimumHeight(140)
+            w.setMinimumHeight(110)
+            w.getPlotItem().layout.setContentsMargins(2, 2, 6, 2)
         top = QHBoxLayout()
         top.addWidget(QLabel("Detector"))
         top.addWidget(self.choice, 1)

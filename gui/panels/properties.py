@@ -218,6 +218,9 @@ class PartPage(_Page):
         self.shape_widgets = {}
         self.pos_x, self.pos_y = _dspin(), _dspin()
         self.rotation = _dspin(-360, 360, 4, " deg")
+        self.shape_form.addRow("Position x", self.pos_x)      # rows 0-2 stay for every builder
+        self.shape_form.addRow("Position y", self.pos_y)
+        self.shape_form.addRow("Rotation", self.rotation)
         for w in (self.pos_x, self.pos_y, self.rotation):
             w.valueChanged.connect(lambda _v: self._shape_changed())
 
@@ -355,11 +358,10 @@ class PartPage(_Page):
         self.shape_box.setVisible(True)
         spec = p.shape
         if spec.kind != self.shape_kind:
-            while self.shape_form.rowCount():
-                self.shape_form.takeRow(0)
-            self.shape_form.addRow("Position x", self.pos_x)
-            self.shape_form.addRow("Position y", self.pos_y)
-            self.shape_form.addRow("Rotation", self.rotation)
+            # the rows of the old builder are deleted, not only taken out of the form: a taken
+            # widget stays a visible child of the box and is painted under the new rows
+            while self.shape_form.rowCount() > 3:
+                self.shape_form.removeRow(3)
             self.shape_widgets = {}
             for info in PARAMETERS[spec.kind]:
                 w = param_widget(info, spec.params.get(info.name, info.default))
@@ -509,8 +511,8 @@ class DetectorPage(_Page):
         self.angle_bins.setToolTip("Bins of the angular profile (-90..90 deg)")
         self.central = _dspin(0.001, 1.0, 3, "", "Central part of the detector used for uniformity figures")
         form = QFormLayout(self)
-        head = QLabel("<b>Detector</b> (counts rays arriving on its right-hand side, "
-                      "start to end; ticks mark the back)")
+        head = QLabel("<b>Detector</b> (counts rays arriving from either side; ticks on its "
+                      "back mark the start-to-end direction)")
         head.setWordWrap(True)
         form.addRow(head)
         for label, w in (("Name", self.name), ("Start x", self.sx), ("Start y", self.sy), ("End x", self.ex),
