@@ -109,7 +109,7 @@ def screenshot(app, win, scene_path, png, size) -> int:
     win.worker.shutdown()
     win.autosaver.discard()
     for p in win.problems:      # opened and drawn with its problems marked, but not traceable
-        print(f"error: {p.text}", file=sys.stderr)
+        print(f"error: {scene_path}: {p.text}", file=sys.stderr)
     return 1 if win.problems else 0
 
 

@@ -516,6 +516,18 @@ def test_screenshot_of_a_bad_scene_reports_problems(tmp_path, home):
     assert not (tmp_path / "x.png").exists()
 
 
+def test_screenshot_of_an_untraceable_scene_names_the_file_in_each_problem(tmp_path, home):
+    bad = tmp_path / "overlap.json"
+    data = json.loads((SAMPLES / "light-pipe-90.json").read_text())
+    data["numbers"]["gap"] = -1          # pushes the panel window into the guide
+    bad.write_text(json.dumps(data))
+    env = dict(os.environ, QT_QPA_PLATFORM="offscreen", RAYTRACE_GUI_HOME=str(home))
+    run = subprocess.run([sys.executable, "-m", "gui.app", str(bad), "--screenshot", str(tmp_path / "x.png")],
+                         capture_output=True, text=True, timeout=120, env=env, cwd=ROOT)
+    assert run.returncode == 1
+    assert f"error: {bad}: $.parts[1]: found <part 'panel window' overlapping" in run.stderr
+
+
 # ---------------------------------------------------------------------------- real mouse events
 
 def _mouse_drag(qtbot, canvas, a, b, steps=10):
