@@ -1,4 +1,5 @@
-"""Command line: `raytrace check`, `raytrace trace`, `raytrace sweep`, `raytrace materials`.
+"""Command line: `raytrace check`, `raytrace trace`, `raytrace sweep`, `raytrace materials`
+(and, from cli_design, `optimize`, `tolerance`, `import-dxf`, `export-dxf`).
 
 Exit codes (documented in the README):
     0  success
@@ -69,6 +70,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     from .bench import add_arguments as add_bench_arguments
     add_bench_arguments(sub.add_parser("bench", help="run fixed workloads and report speed and memory"))
+    from .cli_design import add_commands as add_design_commands
+    COMMANDS.update(add_design_commands(sub))     # optimize, tolerance, import-dxf, export-dxf
     return p
 
 
@@ -236,18 +239,11 @@ def cmd_sweep(args) -> int:
             return EXIT_USAGE
         executor, client = None, None
         if args.dask:
-            try:
-                from distributed import Client
-            except ImportError:
-                print("error: --dask needs the optional dask extra (pip install 'raytrace2d[dask]')",
-                      file=sys.stderr)
+            from .cli_design import open_dask
+            opened = open_dask(args.dask)
+            if opened is None:
                 return EXIT_USAGE
-            try:
-                client = Client(args.dask, timeout=30)
-            except (OSError, TimeoutError) as exc:
-                print(f"error: --dask: could not reach the scheduler at {args.dask}: {exc}", file=sys.stderr)
-                return EXIT_USAGE
-            executor = client.get_executor()
+            executor, client = opened
         progress = Progress(enabled=not args.quiet)
         try:
             result = sweep(scene_to_dict(scene), variables, trace_kwargs(args), executor=executor,

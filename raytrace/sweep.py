@@ -289,6 +289,13 @@ def _set(data, path: tuple, value) -> None:
     cur[path[-1]] = value
 
 
+def apply_settings(data: dict, settings: list[tuple[tuple, Any]]) -> None:
+    """Set each (paths, value) in the scene dict; a whole spectrum becomes one line."""
+    for paths, value in settings:
+        for path in paths:
+            _set(data, path, {"wavelength_nm": value} if path[-1] == "spectrum" else value)
+
+
 # ----------------------------------------------------------------------------- running
 
 def sweep(scene, variables: list[Variable], trace_options: dict | None = None,
@@ -365,9 +372,7 @@ def run_point(data: dict, settings: list[tuple[tuple, Any]], options: dict) -> d
     from .api import trace
     from .scene_io import scene_from_dict
     data = json.loads(json.dumps(data))
-    for paths, value in settings:
-        for path in paths:
-            _set(data, path, {"wavelength_nm": value} if path[-1] == "spectrum" else value)
+    apply_settings(data, settings)
     try:
         scene = scene_from_dict(data)
         result = trace(scene, track_paths=False, **options)

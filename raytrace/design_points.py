@@ -1,0 +1,121 @@
+"""Trace a scene at a list of design points and read figures of merit: the engine shared by
+`optimize` and `tolerance`.
+
+A design point sets named numbers (named as in `raytrace.sweep`) to values.  Points run in a
+concurrent.futures executor (a Dask client's `get_executor()` works) or a local process pool,
+and come back in the order they were asked for, so the result never depends on which worker
+finished first.
+"""
+from __future__ import annotations
+
+import json
+import math
+import os
+from concurrent.futures import Executor, ProcessPoolExecutor, as_completed
+from typing import Any, Callable
+
+from .errors import Problems, RaytraceError, SceneError
+from .merit import Figure, measure
+from .sweep import TRACE_OPTIONS, SweepError, Target, _get, apply_settings, resolve
+
+
+def scene_data(scene) -> dict:
+    """The scene's JSON form (a private copy when given a dict)."""
+    from .scene import Scene
+    if isinstance(scene, Scene):
+        from .scene_io import scene_to_dict
+        return scene_to_dict(scene)
+    return json.loads(json.dumps(scene))
+
+
+def resolve_continuous(data: dict, name: str, option: str, file: str = "") -> tuple[Target, float]:
+    """Where `name` lands and its value in the scene, for a number that may take any value."""
+    target = resolve(data, name, file)
+
+    def fail(found, expected):
+        problems = Problems(file=file)
+        problems.add(f"{option} {name}", found, expected)
+        raise SweepError(problems.items)
+    if target.whole:
+        fail("a field that counts things", "a number that can take any value (not a count, bins, rays or seed)")
+    if name == "wavelength":
+        fail(name, "SOURCE.wavelength (one source's wavelength), since 'wavelength' replaces whole spectra")
+    try:
+        value = _get(data, target.paths[0])
+    except (KeyError, IndexError, TypeError):
+        fail("<not given in the scene file>", "a number the scene file states (write it there first)")
+    return target, float(value)
+
+
+def problem(path, found, expected, file: str = ""):
+    """One Problem, for errors raised on their own."""
+    p = Problems(file=file)
+    p.add(path, found, expected)
+    return p.items[0]
+
+
+def trace_options(options: dict | None) -> dict:
+    return {k: v for k, v in (options or {}).items() if k in TRACE_OPTIONS and v is not None}
+
+
+def evaluate_point(data: dict, settings: list[tuple[tuple, Any]], options: dict,
+                   figures: list[Figure]) -> dict:
+    """Trace one design point; a plain dict back (it crosses process and cluster lines):
+    {"status": "ok", "figures": {label: [value, standard error]}} or {"status": "invalid: ..."}."""
+    from .api import trace
+    from .scene_io import scene_from_dict
+    from .sources import sample_sources
+    data = json.loads(json.dumps(data))
+    apply_settings(data, settings)
+    try:
+        scene = scene_from_dict(data)
+        s = scene.settings
+        rays = int(options.get("rays", s.rays))
+        seed = int(options.get("seed", s.seed))
+        start = sample_sources(scene.sources, rays, seed=seed, sampling=options.get("sampling"))
+        result = trace(scene, start=start, track_paths=False, hits="keep", **options)
+    except SceneError as exc:
+        return {"status": "invalid: " + "; ".join(str(p) for p in exc.problems)}
+    except RaytraceError as exc:
+        return {"status": f"stopped: {exc}"}
+    return {"status": "ok", "figures": {f.label: list(measure(result, f, start.flux)) for f in figures}}
+
+
+def run_points(data: dict, points: list[list[tuple[tuple, Any]]], options: dict, figures: list[Figure],
+               executor: Executor | None = None, workers: int | None = None,
+               progress: Callable[[int, int], None] | None = None) -> list[dict]:
+    """evaluate_point at every point, in point order.  Without an executor the points run on a
+    local pool of `workers` processes (default: the CPU count), or here when workers == 1."""
+    tasks = [(data, settings, options, figures) for settings in points]
+    results: list[dict | None] = [None] * len(tasks)
+    done = 0
+    if not tasks:
+        return []
+    if executor is None and (workers == 1 or len(tasks) == 1):
+        for i, task in enumerate(tasks):
+            results[i] = evaluate_point(*task)
+            done += 1
+            if progress:
+                progress(done, len(tasks))
+        return results  # type: ignore[return-value]
+    own = executor is None
+    ex = executor or ProcessPoolExecutor(max_workers=min(workers or os.cpu_count() or 1, len(tasks)))
+    try:
+        futures = {ex.submit(evaluate_point, *task): i for i, task in enumerate(tasks)}
+        for fut in as_completed(futures):
+            results[futures[fut]] = fut.result()
+            done += 1
+            if progress:
+                progress(done, len(tasks))
+    finally:
+        if own:
+            ex.shutdown(wait=True, cancel_futures=True)
+    return results  # type: ignore[return-value]
+
+
+def figure_of(point: dict, figure: Figure) -> tuple[float, float]:
+    """(value, standard error) of a point's figure; nan for a point that could not be traced."""
+    if point.get("status") != "ok":
+        return math.nan, math.nan
+    value, se = point["figures"][figure.label]
+    return float(value), float(se)
