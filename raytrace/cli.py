@@ -49,6 +49,7 @@ def build_parser() -> argparse.ArgumentParser:
     t.add_argument("--paths-min-flux", metavar="F", type=fraction, dest="path_min_relative_flux", default=None,
                    help="follow paths down to this share of a source ray's flux (default 1e-3; "
                         "lower it to see faint ghosts)")
+    t.add_argument("--plot", metavar="FILE.png|svg", help="draw the scene with rays and the detector profiles")
 
     w = sub.add_parser("sweep", help="trace a scene over a range of one or two named numbers",
                        description="Trace SCENE at every point of a range and write one CSV row per point: "
@@ -64,6 +65,7 @@ def build_parser() -> argparse.ArgumentParser:
     w.add_argument("--workers", type=int, help="local worker processes (default: CPU count; 1 = in this process)")
     w.add_argument("--dask", metavar="ADDRESS",
                    help="run the points on the Dask scheduler at ADDRESS (needs the dask extra)")
+    w.add_argument("--plot", metavar="FILE.png|svg", help="plot the efficiencies against the varied number")
     add_trace_options(w)
 
     sub.add_parser("materials", help="list the material catalog with its sources")
@@ -177,6 +179,11 @@ def cmd_trace(args) -> int:
     from .scene_io import load_scene
     scene = load_scene(args.scene)
     record = args.record or (("first", 1000) if args.csv else ("none", 0))
+    if args.plot:
+        if not plot_path_ok(args.plot):
+            return EXIT_USAGE
+        from .plots import record_for_plot
+        record = record_for_plot(record)
     progress = Progress(enabled=not args.quiet)
     try:
         result = trace(scene, record=record[0], record_count=record[1], progress=progress.trace,
@@ -221,6 +228,11 @@ def cmd_trace(args) -> int:
         from .detectors import detector_reports, profiles_csv
         if not write_output(args.detectors_csv, profiles_csv(detector_reports(result))):
             return EXIT_OUTPUT
+    if args.plot:
+        from .plots import trace_plot
+        if not write_plot(args.plot, lambda: trace_plot(scene, result, args.plot,
+                                                         title=scene.name or Path(args.scene).stem)):
+            return EXIT_OUTPUT
     return EXIT_OK
 
 
@@ -229,6 +241,8 @@ def cmd_sweep(args) -> int:
     from .scene_io import load_scene, scene_to_dict
     from .sweep import SweepError, parse_vary, sweep
     scene = load_scene(args.scene)
+    if args.plot and not plot_path_ok(args.plot):
+        return EXIT_USAGE
     try:
         variables = [parse_vary(v) for v in args.vary]
         if len(variables) > 2:
@@ -258,6 +272,10 @@ def cmd_sweep(args) -> int:
         return EXIT_USAGE
     if not write_output(args.csv, result.to_csv()):
         return EXIT_OUTPUT
+    if args.plot:
+        from .plots import sweep_plot
+        if not write_plot(args.plot, lambda: sweep_plot(result, args.plot, title=scene.name)):
+            return EXIT_OUTPUT
     if not args.quiet:
         from .report import sweep_text
         print(sweep_text(result))
@@ -278,6 +296,23 @@ def write_output(path: str, text: str) -> bool:
     from .scene_io import atomic_write_text
     try:
         atomic_write_text(path, text)
+        return True
+    except OSError as exc:
+        print(f"error: could not write {path}: {exc.strerror or exc}", file=sys.stderr)
+        return False
+
+
+def plot_path_ok(path: str) -> bool:
+    from .plots import check_plot_path
+    problem = check_plot_path(path)
+    if problem:
+        print(f"error: {problem}", file=sys.stderr)
+    return problem is None
+
+
+def write_plot(path: str, draw) -> bool:
+    try:
+        draw()
         return True
     except OSError as exc:
         print(f"error: could not write {path}: {exc.strerror or exc}", file=sys.stderr)
