@@ -11,6 +11,7 @@ from __future__ import annotations
 import json
 import math
 import os
+from dataclasses import replace
 from concurrent.futures import Executor, ProcessPoolExecutor, as_completed
 from typing import Any, Callable
 
@@ -30,7 +31,10 @@ def scene_data(scene) -> dict:
 
 def resolve_continuous(data: dict, name: str, option: str, file: str = "") -> tuple[Target, float]:
     """Where `name` lands and its value in the scene, for a number that may take any value."""
-    target = resolve(data, name, file)
+    try:
+        target = resolve(data, name, file)
+    except SweepError as exc:     # resolve names the sweep's option; say which option it was
+        raise SweepError([replace(p, path=p.path.replace("--vary", option, 1)) for p in exc.problems]) from None
 
     def fail(found, expected):
         problems = Problems(file=file)

@@ -78,18 +78,10 @@ def import_dxf(path: str | os.PathLike, units: str | None = None, layer_material
 
     setup: a Scene whose sources, detectors, materials and trace settings the new scene takes
     (its parts are replaced by the drawing's)."""
-    import ezdxf
     from .scene import Scene
     path = os.fspath(path)
     problems = Problems(file=path)
-    try:
-        doc = ezdxf.readfile(path)
-    except OSError as exc:
-        problems.add("file", f"<could not read: {exc.strerror or exc}>", "a readable DXF file")
-        raise SceneError(problems.items) from None
-    except ezdxf.DXFError as exc:
-        problems.add("file", f"<not a DXF drawing: {exc}>", "a DXF file (ASCII or binary)")
-        raise SceneError(problems.items) from None
+    doc = _read(path, problems)
     scale = _scale(doc, units, problems)
     pieces = []
     for e in doc.modelspace():
@@ -106,6 +98,26 @@ def import_dxf(path: str | os.PathLike, units: str | None = None, layer_material
     _check_materials(scene, parts, layer_materials or {}, problems)
     problems.raise_if_errors()
     return scene
+
+
+def dxf_layers(path: str | os.PathLike) -> tuple[list[str], bool]:
+    """(layers that hold model-space entities, whether the file states its units), for asking a
+    user what each layer is made of before importing."""
+    path = os.fspath(path)
+    doc = _read(path, Problems(file=path))
+    layers = list(dict.fromkeys(e.dxf.get("layer", "0") for e in doc.modelspace() if e.dxftype() not in SKIPPED))
+    return layers, doc.header.get("$INSUNITS", 0) in INSUNITS_TO_MM
+
+
+def _read(path: str, problems: Problems):
+    import ezdxf
+    try:
+        return ezdxf.readfile(path)
+    except OSError as exc:
+        problems.add("file", f"<could not read: {exc.strerror or exc}>", "a readable DXF file")
+    except ezdxf.DXFError as exc:
+        problems.add("file", f"<not a DXF drawing: {exc}>", "a DXF file (ASCII or binary)")
+    raise SceneError(problems.items)
 
 
 def _scale(doc, units, problems: Problems) -> float:

@@ -73,11 +73,13 @@ class OptimizeResult:
         lines.append(f"  figure at the optimum: {f.format(self.value, self.se)}  (start {f.format(v0, se0)})")
         gain = self.value - v0
         se = math.hypot(self.se, se0)
-        if math.isfinite(gain) and math.isfinite(se) and se > 0:
-            lines.append(f"  change from the start: {f.format(gain)} ({abs(gain) / se:.1f} standard errors)")
+        if math.isfinite(gain) and math.isfinite(se):
+            lines.append(f"  change from the start: {f.format(gain)}" + (
+                f" ({abs(gain) / se:.1f} standard errors)" if se > 1e-9 * max(abs(gain), 1e-300) else
+                " (every source ray gives the same figure: no sampling error)"))
         stages = {s: sum(e.stage == s for e in self.evaluations) for s in ("start", "scan", "refine")}
         failed = sum(e.status != "ok" for e in self.evaluations)
-        lines.append(f"  evaluations: {len(self.evaluations)} ({stages['scan']} scanned in parallel, "
+        lines.append(f"  evaluations: {len(self.evaluations)} (the start, {stages['scan']} in the scan, "
                      f"{stages['refine']} refining)" + (f", {failed} could not be traced" if failed else ""))
         lines.append(f"  convergence: {'converged' if self.converged else 'NOT converged'}: {self.message} "
                      f"({self.iterations} iterations)")

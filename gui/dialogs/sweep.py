@@ -1,4 +1,5 @@
-"""Sweep one number of the scene over a range, in the background, and plot the efficiencies.
+"""Sweep one number of the scene over a range, in the background, and plot the efficiencies;
+the Optimize and Tolerance tabs (dialogs/design.py) tune a number or tolerance it.
 
 The sweep runs `raytrace.sweep.sweep` in a worker thread one point at a time; its progress
 callback moves the bar and stops the run when Cancel is pressed (the point being traced is
@@ -10,10 +11,10 @@ import threading
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QObject, Signal
+from PySide6.QtCore import QObject, Qt, Signal
 from PySide6.QtWidgets import (QComboBox, QDialog, QDoubleSpinBox, QFileDialog, QFormLayout,
                                QHBoxLayout, QLabel, QProgressBar, QPushButton, QSpinBox,
-                               QVBoxLayout)
+                               QTabWidget, QVBoxLayout, QWidget)
 
 from raytrace.errors import RaytraceError, SceneError
 from raytrace.shapes import PARAMETERS
@@ -150,17 +151,31 @@ class SweepDialog(QDialog):
         buttons.addWidget(self.cancel_btn)
         buttons.addWidget(self.save_btn)
         buttons.addStretch(1)
-        buttons.addWidget(close)
-        lay = QVBoxLayout(self)
+        sweep_tab = QWidget()
+        lay = QVBoxLayout(sweep_tab)
         lay.addLayout(form)
         lay.addWidget(self.bar)
         lay.addWidget(self.status)
         lay.addWidget(self.plot, 1)
         lay.addLayout(buttons)
+        self.tabs = QTabWidget()
+        self.tabs.addTab(sweep_tab, "Sweep")
+        self._add_design_tabs(scene)
+        outer = QVBoxLayout(self)
+        outer.addWidget(self.tabs, 1)
+        outer.addWidget(close, 0, Qt.AlignRight)
         self.name.currentTextChanged.connect(self._default_range)
         self._default_range(self.name.currentText())
         self._runner = None
         self._thread = None
+
+    def _add_design_tabs(self, scene):
+        from .design import OptimizePanel, TolerancePanel
+        names = sweep_names(scene)
+        self.optimize_panel = OptimizePanel(scene, self.options, names, current_value)
+        self.tolerance_panel = TolerancePanel(scene, self.options, names)
+        self.tabs.addTab(self.optimize_panel, "Optimize")
+        self.tabs.addTab(self.tolerance_panel, "Tolerance")
 
     def _default_range(self, name):
         v = current_value(self.scene, name)
@@ -247,6 +262,8 @@ class SweepDialog(QDialog):
 
     def reject(self):
         self.cancel()
+        self.optimize_panel.cancel()
+        self.tolerance_panel.cancel()
         super().reject()
 
 
