@@ -477,8 +477,8 @@ class MainWindow(QMainWindow):
     def open_sweep(self) -> None:
         from .dialogs.sweep import SweepDialog
         s = self.doc.scene.settings
-        dlg = SweepDialog(self.doc.scene, {"mode": s.mode, "min_relative_flux": s.min_relative_flux,
-                                           "max_depth": s.max_depth}, self)
+        dlg = SweepDialog(self.doc.scene, {"mode": s.mode, "flux_floor": s.flux_floor,
+                                           "max_generations": s.max_generations}, self)
         dlg.exec()
 
     def _selection_changed(self, sel) -> None:

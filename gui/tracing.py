@@ -26,8 +26,8 @@ class TraceOptions:
 
     rays: int | None = None
     mode: str | None = None
-    min_relative_flux: float | None = None
-    max_depth: int | None = None
+    flux_floor: float | None = None
+    max_generations: int | None = None
     wavelength_nm: float | None = None   # one wavelength for every source instead of its spectrum
     drawn_rays: int = 1000               # source rays whose segments are recorded for drawing
 
@@ -73,5 +73,5 @@ def run_trace(scene: Scene, options: TraceOptions, cancel: threading.Event | Non
 
     record = SampledRecording(stride) if stride else "none"
     return raytrace.trace(traced, rays=options.rays, mode=options.mode,
-                          min_relative_flux=options.min_relative_flux, max_depth=options.max_depth,
+                          flux_floor=options.flux_floor, max_generations=options.max_generations,
                           record=record, progress=progress, track_paths=False)

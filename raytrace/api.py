@@ -22,13 +22,13 @@ BYTES_PER_START_RAY = 200      # the starting-ray arrays and their sampling temp
 
 
 def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: int | None = None,
-          min_relative_flux: float | None = None, max_depth: int | None = None,
-          max_segments: int | None = None, record: str | Recording = "none", record_count: int = 0,
+          flux_floor: float | None = None, max_generations: int | None = None,
+          segment_budget: int | None = None, record: str | Recording = "none", record_count: int = 0,
           sampling: str | None = None, compiled: CompiledScene | None = None,
           start: StartRays | None = None, track_paths: bool = True, progress=None,
           workers: int = 1, chunk_size: int | None = None, max_memory_mb: float | None = None,
           accel: str = "auto", hits: str = "auto",
-          path_min_relative_flux: float | None = None) -> TraceResult:
+          route_flux_floor: float | None = None) -> TraceResult:
     """Trace a scene.  Unset options fall back to the scene's own trace settings.
 
     record: "none", "all", or "first" with `record_count` source rays, for the ray table.
@@ -38,8 +38,8 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
         depends on it through the per-chunk seeds, never on `workers`.
     max_memory_mb: memory limit of one chunk's trace; past it the trace stops with BudgetExceeded.
     accel: nearest-hit method, "auto" (default), "plain", "sweep" or "grid"; all give the same result.
-    path_min_relative_flux: rays fainter than this share of their source ray's flux are lumped
-        into "other paths" in the path analysis (default 1e-3; lower it to see faint ghosts).
+    route_flux_floor: rays fainter than this share of their source ray's flux are lumped
+        into "other routes" in the route listing (default 1e-3; lower it to see faint ghosts).
     hits: "keep" one record per detector hit, "histogram" (binned per detector, for very long
         traces; `result.raw.histograms`), or "auto" (keep up to 2 million source rays).
     """
@@ -48,13 +48,13 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
     mode = s.mode if mode is None else mode
     seed = s.seed if seed is None else int(seed)
     limits = Limits(
-        min_relative_flux=s.min_relative_flux if min_relative_flux is None else float(min_relative_flux),
-        max_depth=s.max_depth if max_depth is None else int(max_depth),
-        max_segments=s.max_segments if max_segments is None else int(max_segments))
+        flux_floor=s.flux_floor if flux_floor is None else float(flux_floor),
+        max_generations=s.max_generations if max_generations is None else int(max_generations),
+        segment_budget=s.segment_budget if segment_budget is None else int(segment_budget))
     if max_memory_mb is not None:
         limits.max_memory_mb = float(max_memory_mb)
-    if path_min_relative_flux is not None:
-        limits.path_min_relative_flux = float(path_min_relative_flux)
+    if route_flux_floor is not None:
+        limits.route_flux_floor = float(route_flux_floor)
     cs = compiled or compile_scene(scene)
     if start is None:
         need = rays * BYTES_PER_START_RAY
@@ -121,8 +121,8 @@ def result_warnings(ledger: Ledger, stats: dict, limits: Limits) -> list[str]:
     if stats.get("source_rays", 0) == 0:
         out.append("no source rays were traced (no sources, or rays = 0): the ledger is empty")
     total = ledger.source_flux or 1.0
-    for reason, option, value in (("segment budget", "--max-segments / max_segments", limits.max_segments),
-                                  ("maximum depth", "--max-depth / max_depth", limits.max_depth)):
+    for reason, option, value in (("segment budget", "--segment-budget / segment_budget", limits.segment_budget),
+                                  ("generation limit", "--max-generations / max_generations", limits.max_generations)):
         cut = ledger.flux("truncated", reason=reason)
         if cut > 1e-6 * total:
             out.append(f"{100 * cut / total:.4g} % of the source flux was cut by the {reason} "

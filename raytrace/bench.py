@@ -143,7 +143,7 @@ MAX_SEGMENTS = 10**10
 def _full_trace(scene, cs, rays, mode, workers, hits="auto", track_paths=False):
     from .api import trace
     return trace(scene, rays=rays, mode=mode, compiled=cs, workers=workers, hits=hits,
-                 track_paths=track_paths, max_segments=MAX_SEGMENTS).stats
+                 track_paths=track_paths, segment_budget=MAX_SEGMENTS).stats
 
 
 def _ratio_traces(scene, cs, rays, mode):
@@ -153,7 +153,7 @@ def _ratio_traces(scene, cs, rays, mode):
     from .tracer import Limits, trace_rays
     s = scene.settings
     start = sample_sources(scene.sources, rays, seed=s.seed)
-    lim = Limits(min_relative_flux=s.min_relative_flux, max_depth=s.max_depth, max_segments=MAX_SEGMENTS)
+    lim = Limits(flux_floor=s.flux_floor, max_generations=s.max_generations, segment_budget=MAX_SEGMENTS)
     out = []
     for hit_fn in (None, nearest_hit):
         t0 = time.process_time()

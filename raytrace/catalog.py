@@ -30,10 +30,12 @@ _MATERIALS = (
               source="N. Sultanova, S. Kasarova, I. Nikolov, Acta Phys. Pol. A 116, 585 (2009)"),
     Sellmeier("polycarbonate", b=(1.4182,), c=(0.021304,),
               source="N. Sultanova, S. Kasarova, I. Nikolov, Acta Phys. Pol. A 116, 585 (2009)"),
-    AbbeGlass("crown glass", 1.5168, 64.17,
-              source="generic borosilicate crown, nd = 1.5168, Vd = 64.17 (two-term Cauchy fit)"),
-    AbbeGlass("flint glass", 1.6200, 36.37,
-              source="generic dense flint, nd = 1.6200, Vd = 36.37 (two-term Cauchy fit)"),
+    # Round values typical of each class (common practice), not any maker's catalogue glass:
+    # for a real design, define the glass you will buy from its data sheet.
+    AbbeGlass("crown glass", 1.52, 64.0,
+              source="generic crown, round class values nd = 1.52, Vd = 64 (two-term Cauchy fit)"),
+    AbbeGlass("flint glass", 1.62, 36.0,
+              source="generic flint, round class values nd = 1.62, Vd = 36 (two-term Cauchy fit)"),
     Sellmeier("water",
               b=(0.5684027565, 0.1726177391, 0.02086189578, 0.1130748688),
               c=(0.005101829712, 0.01821153936, 0.02620722293, 10.69792721),

@@ -44,11 +44,13 @@ def build_parser() -> argparse.ArgumentParser:
                    help="which source rays the ray table holds (default with --csv: first:1000)")
     t.add_argument("--detectors-csv", metavar="FILE", dest="detectors_csv",
                    help="write each detector's irradiance and angular profiles as CSV")
-    t.add_argument("--paths", metavar="N", type=whole(0), nargs="?", const=10, default=None,
-                   help="print the N paths carrying the most flux to each detector and to losses (default 10)")
-    t.add_argument("--paths-min-flux", metavar="F", type=fraction, dest="path_min_relative_flux", default=None,
-                   help="follow paths down to this share of a source ray's flux (default 1e-3; "
+    t.add_argument("--routes", metavar="N", type=whole(0), nargs="?", const=10, default=None,
+                   help="print the N routes (event sequences) carrying the most flux to each detector and to losses (default 10)")
+    t.add_argument("--routes-min-flux", metavar="F", type=fraction, dest="route_flux_floor", default=None,
+                   help="follow routes down to this share of a source ray's flux (default 1e-3; "
                         "lower it to see faint ghosts)")
+    add_earlier_name(t, "--paths", "--routes", "routes", type=whole(0), nargs="?", const=10)
+    add_earlier_name(t, "--paths-min-flux", "--routes-min-flux", "route_flux_floor", type=fraction)
     t.add_argument("--plot", metavar="FILE.png|svg", help="draw the scene with rays and the detector profiles")
 
     w = sub.add_parser("sweep", help="trace a scene over a range of one or two named numbers",
@@ -112,14 +114,42 @@ def fraction(text: str) -> float:
     return value
 
 
+class _EarlierName(argparse.Action):
+    """An option's earlier name: still accepted, with a note naming the new one."""
+
+    def __init__(self, option_strings, dest, new_name="", **kw):
+        self.new_name = new_name
+        super().__init__(option_strings, dest, **kw)
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        print(f"note: {option_string} is now called {self.new_name}; the earlier name still works",
+              file=sys.stderr)
+        setattr(namespace, self.dest, values)
+
+
+def add_earlier_name(parser: argparse.ArgumentParser, old: str, new: str, dest: str, **kw) -> None:
+    parser.add_argument(old, dest=dest, action=_EarlierName, new_name=new, help=argparse.SUPPRESS,
+                        default=argparse.SUPPRESS, **kw)
+
+
+def print_notes(scene) -> None:
+    for note in scene.notes:
+        print(f"note: {note}", file=sys.stderr)
+
+
 def add_trace_options(t: argparse.ArgumentParser) -> None:
     t.add_argument("--rays", type=whole(1), help="source rays (default: the scene's trace.rays)")
     t.add_argument("--mode", choices=("branching", "monte_carlo"), help="full branching tree or Monte Carlo")
     t.add_argument("--seed", type=whole(0), help="random seed for Monte Carlo and random sampling")
-    t.add_argument("--min-flux", type=fraction, dest="min_relative_flux",
+    t.add_argument("--flux-floor", type=fraction, dest="flux_floor",
                    help="end children below this fraction of their source ray's flux")
-    t.add_argument("--max-depth", type=whole(1), help="end rays after this many segments")
-    t.add_argument("--max-segments", type=whole(1), help="segment budget for the whole trace")
+    t.add_argument("--max-generations", type=whole(1),
+                   help="follow each ray for at most this many generations (the source ray is generation 0, "
+                        "each interaction's children one more)")
+    t.add_argument("--segment-budget", type=whole(1), help="most ray segments the whole trace may hold")
+    add_earlier_name(t, "--min-flux", "--flux-floor", "flux_floor", type=fraction)
+    add_earlier_name(t, "--max-depth", "--max-generations", "max_generations", type=whole(1))
+    add_earlier_name(t, "--max-segments", "--segment-budget", "segment_budget", type=whole(1))
     t.add_argument("--sampling", choices=("even", "random"), help="override each source's sampling")
     t.add_argument("--quiet", action="store_true", help="print nothing but errors")
 
@@ -163,14 +193,16 @@ def cmd_check(args) -> int:
                 print(f"error: {p}")
             worst = EXIT_SCENE
             continue
+        for note in scene.notes:
+            print(f"note: {note}")
         print(f"{path}: ok ({len(scene.parts)} parts, {len(scene.sources)} sources, "
               f"{len(scene.detectors)} detectors)")
     return worst
 
 
 def trace_kwargs(args) -> dict:
-    return {k: getattr(args, k) for k in ("rays", "mode", "seed", "min_relative_flux", "max_depth",
-                                         "max_segments", "sampling") if getattr(args, k, None) is not None}
+    return {k: getattr(args, k) for k in ("rays", "mode", "seed", "flux_floor", "max_generations",
+                                         "segment_budget", "sampling") if getattr(args, k, None) is not None}
 
 
 def cmd_trace(args) -> int:
@@ -178,6 +210,7 @@ def cmd_trace(args) -> int:
     from .report import Progress, detectors_text, summary_text
     from .scene_io import load_scene
     scene = load_scene(args.scene)
+    print_notes(scene)
     record = args.record or (("first", 1000) if args.csv else ("none", 0))
     if args.plot:
         if not plot_path_ok(args.plot):
@@ -187,8 +220,8 @@ def cmd_trace(args) -> int:
     progress = Progress(enabled=not args.quiet)
     try:
         result = trace(scene, record=record[0], record_count=record[1], progress=progress.trace,
-                       track_paths=args.paths is not None, workers=getattr(args, "trace_workers", None) or 1,
-                       path_min_relative_flux=args.path_min_relative_flux, **trace_kwargs(args))
+                       track_paths=args.routes is not None, workers=getattr(args, "trace_workers", None) or 1,
+                       route_flux_floor=args.route_flux_floor, **trace_kwargs(args))
     except SceneError as exc:      # found while tracing (a wavelength no material can take)
         raise SceneError([replace(p, file=p.file or args.scene) for p in exc.problems]) from None
     finally:
@@ -199,21 +232,21 @@ def cmd_trace(args) -> int:
         print(summary_text(result, title=scene.name or Path(args.scene).stem, story=scene.story))
         if scene.detectors:
             print(detectors_text(result))
-        if args.paths is not None:
-            from .paths import paths_text
-            print(paths_text(result, args.paths))
+        if args.routes is not None:
+            from .routes import routes_text
+            print(routes_text(result, args.routes))
     if args.json:
         from .detectors import detector_reports
         summary = result.to_summary_dict()
         summary["detectors"] = [r.to_dict() for r in detector_reports(result)]
-        if args.paths is not None:
-            from .paths import path_groups
+        if args.routes is not None:
+            from .routes import route_groups
             kept: dict[str, int] = {}
-            summary["paths"] = []    # the top N paths of every ledger bucket
-            for g in path_groups(result):
+            summary["routes"] = []    # the top N paths of every ledger bucket
+            for g in route_groups(result):
                 kept[g.bucket] = kept.get(g.bucket, 0) + 1
-                if kept[g.bucket] <= args.paths:
-                    summary["paths"].append(g.to_dict())
+                if kept[g.bucket] <= args.routes:
+                    summary["routes"].append(g.to_dict())
         if not write_output(args.json, json.dumps(summary, indent=2) + "\n"):
             return EXIT_OUTPUT
     if args.csv:
@@ -241,6 +274,7 @@ def cmd_sweep(args) -> int:
     from .scene_io import load_scene, scene_to_dict
     from .sweep import SweepError, parse_vary, sweep
     scene = load_scene(args.scene)
+    print_notes(scene)
     if args.plot and not plot_path_ok(args.plot):
         return EXIT_USAGE
     try:

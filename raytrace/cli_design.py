@@ -129,11 +129,12 @@ def _usage_errors(exc) -> int:
 
 
 def cmd_optimize(args) -> int:
-    from .cli import EXIT_OK, EXIT_OUTPUT, trace_kwargs, write_output
+    from .cli import EXIT_OK, EXIT_OUTPUT, print_notes, trace_kwargs, write_output
     from .optimize import optimize, parse_bound
     from .scene_io import load_scene
     from .sweep import SweepError
     scene = load_scene(args.scene)
+    print_notes(scene)
     try:
         bounds = [parse_bound(v) for v in args.vary]
         code, result = _run_parallel(args, lambda ex, workers, progress: optimize(
@@ -154,11 +155,12 @@ def cmd_optimize(args) -> int:
 
 
 def cmd_tolerance(args) -> int:
-    from .cli import EXIT_OK, EXIT_OUTPUT, EXIT_SWEEP_POINTS, trace_kwargs, write_output
+    from .cli import EXIT_OK, EXIT_OUTPUT, EXIT_SWEEP_POINTS, print_notes, trace_kwargs, write_output
     from .scene_io import load_scene
     from .sweep import SweepError
     from .tolerance import parse_tolerance, tolerance
     scene = load_scene(args.scene)
+    print_notes(scene)
     try:
         tols = [parse_tolerance(v) for v in args.tol]
         code, result = _run_parallel(args, lambda ex, workers, progress: tolerance(

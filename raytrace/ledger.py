@@ -18,7 +18,7 @@ import numpy as np
 from .compile import CompiledScene
 from .errors import LedgerError
 
-TRUNCATION_REASONS = ("flux below threshold", "maximum depth", "segment budget")
+TRUNCATION_REASONS = ("below flux floor", "generation limit", "segment budget")
 TRUNC_FLUX, TRUNC_DEPTH, TRUNC_BUDGET = range(3)
 
 DETECTOR, ESCAPED, ABSORBED, TRUNCATED = "detector", "escaped", "absorbed", "truncated"

@@ -4,7 +4,7 @@ Each path node is (parent node, event code).  Roots are the sources (node i = so
 parent -1 - i).  Lookups of (parent, code) pairs go through an open-addressing hash table
 (vectorized linear probing), so extending a generation of rays costs a few array operations
 per ray, never a Python loop per ray.  Past `max_nodes` new paths are lumped into one node,
-"other paths" (parent -1_000_000), and so are all its descendants.
+"other routes" (parent -1_000_000), and so are all its descendants.
 
 Flux deposits are buffered as (bin, node, flux) arrays and summed when the buffer fills.
 """
@@ -37,7 +37,7 @@ class PathTrie:
         self._dep_size = 0
         self._acc_keys = np.zeros(0, dtype=np.int64)
         self._acc_flux = np.zeros(0)
-        self._other_flux = np.zeros(n_bins)     # deposits on the "other paths" node, by bin
+        self._other_flux = np.zeros(n_bins)     # deposits on the "other routes" node, by bin
 
     # ---- nodes
     @property

@@ -96,7 +96,7 @@ class TraceResult:
             node = parent[node]
         else:
             if node >= 0:
-                steps.append("(other paths)")
+                steps.append("(other routes)")
         return steps[::-1]
 
     def to_summary_dict(self) -> dict:

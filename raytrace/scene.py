@@ -97,9 +97,9 @@ class TraceSettings:
 
     rays: int = 1000
     mode: str = "branching"          # "branching" (deterministic tree) or "monte_carlo"
-    min_relative_flux: float = 1e-4  # children below this share of their source ray's flux end
-    max_depth: int = 200             # generations after which a ray ends
-    max_segments: int = 1_000_000_000  # total ray segments in one trace: a guard against runaway
+    flux_floor: float = 1e-4  # children below this share of their source ray's flux end
+    max_generations: int = 200             # generations after which a ray ends
+    segment_budget: int = 1_000_000_000  # total ray segments in one trace: a guard against runaway
                                        # traces (10 million light-pipe rays need about 660 million)
     seed: int = 1
 
@@ -116,6 +116,8 @@ class Scene:
     settings: TraceSettings = field(default_factory=TraceSettings)
     story: str = ""       # one line: what this scene is for
     name: str = ""
+    # notes from loading (earlier key names read, for example); not saved, not compared
+    notes: list[str] = field(default_factory=list, compare=False, repr=False)
 
     def copy(self) -> "Scene":
         return replace(self, parts=list(self.parts), sources=list(self.sources),

@@ -33,7 +33,10 @@ FACE_KEYS = ("treatment", "name")
 SOURCE_KEYS = ("name", "kind", "position", "direction_deg", "width", "half_angle_deg",
                "distribution", "cos_power", "flux", "spectrum", "polarization", "sampling", "note")
 DETECTOR_KEYS = ("name", "start", "end", "absorbing", "bins", "angle_bins", "central_fraction")
-TRACE_KEYS = ("rays", "mode", "min_relative_flux", "max_depth", "max_segments", "seed")
+TRACE_KEYS = ("rays", "mode", "flux_floor", "max_generations", "segment_budget", "seed")
+# Earlier names of trace settings, still read (with a note) so older files keep working.
+OLD_TRACE_KEYS = {"min_relative_flux": "flux_floor", "max_depth": "max_generations",
+                  "max_segments": "segment_budget"}
 MODES = ("branching", "monte_carlo")
 MAX_BINS = 1_000_000   # histogram bins per detector: beyond this a histogram is only memory
 
@@ -128,6 +131,7 @@ def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
     resolve_materials(scene, problems, part_paths, skip=frozenset(failed_materials))
     check_geometry(scene, problems, part_paths)
     problems.raise_if_errors()
+    scene.notes = [str(w) for w in problems.warnings]
     return scene
 
 
@@ -485,15 +489,16 @@ def _settings(value: Any, where: str, problems: Problems) -> TraceSettings | Non
     d = F.obj(value, where, problems)
     if d is None:
         return None
+    d = _renamed_keys(d, OLD_TRACE_KEYS, where, problems)
     F.check_keys(d, TRACE_KEYS, where, problems)
     base = TraceSettings()
     kw = dict(
         rays=F.integer(d, "rays", where, problems, default=base.rays, minimum=0),
         mode=F.string(d, "mode", where, problems, default=base.mode, choices=MODES),
-        min_relative_flux=F.number(d, "min_relative_flux", where, problems, default=base.min_relative_flux,
+        flux_floor=F.number(d, "flux_floor", where, problems, default=base.flux_floor,
                                    minimum=0.0, maximum=1.0, what="a relative flux"),
-        max_depth=F.integer(d, "max_depth", where, problems, default=base.max_depth, minimum=1),
-        max_segments=F.integer(d, "max_segments", where, problems, default=base.max_segments, minimum=1),
+        max_generations=F.integer(d, "max_generations", where, problems, default=base.max_generations, minimum=1),
+        segment_budget=F.integer(d, "segment_budget", where, problems, default=base.segment_budget, minimum=1),
         seed=F.integer(d, "seed", where, problems, default=base.seed, minimum=0),
     )
     if any(v is None for v in kw.values()):
@@ -502,6 +507,24 @@ def _settings(value: Any, where: str, problems: Problems) -> TraceSettings | Non
 
 
 # ----------------------------------------------------------------------------- saving
+
+def _renamed_keys(d: dict, renamed: dict[str, str], where: str, problems: Problems) -> dict:
+    """Read keys under their earlier names: a note for each, an error if both names are given."""
+    if not any(old in d for old in renamed):
+        return d
+    d = dict(d)
+    for old, new in renamed.items():
+        if old not in d:
+            continue
+        if new in d:
+            problems.add(f"{where}.{old}", d[old], f"only {new!r}, its new name (both are given)")
+            del d[old]
+            continue
+        d[new] = d.pop(old)
+        problems.warn(f"{where}.{old}", f"<the earlier name of {new!r}>",
+                      f"{new!r}; the earlier name is still read, and saving writes the new one")
+    return d
+
 
 def scene_to_dict(scene: Scene) -> dict:
     out: dict[str, Any] = {"format": FORMAT_NAME, "version": FORMAT_VERSION, "units": dict(UNITS)}
@@ -516,8 +539,8 @@ def scene_to_dict(scene: Scene) -> dict:
     out["sources"] = [_source_dict(s) for s in scene.sources]
     out["detectors"] = [_detector_dict(d) for d in scene.detectors]
     t = scene.settings
-    out["trace"] = {"rays": int(t.rays), "mode": t.mode, "min_relative_flux": float(t.min_relative_flux),
-                    "max_depth": int(t.max_depth), "max_segments": int(t.max_segments), "seed": int(t.seed)}
+    out["trace"] = {"rays": int(t.rays), "mode": t.mode, "flux_floor": float(t.flux_floor),
+                    "max_generations": int(t.max_generations), "segment_budget": int(t.segment_budget), "seed": int(t.seed)}
     return out
 
 

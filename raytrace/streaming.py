@@ -40,9 +40,9 @@ def plan_chunks(n_rays: int, chunk_size: int, seed: int, limits: Limits) -> list
     jobs = []
     for k, lo in enumerate(range(0, max(n_rays, 1), chunk_size)):
         hi = min(n_rays, lo + chunk_size)
-        share = limits.max_segments if n_rays <= chunk_size else \
-            max(1, int(limits.max_segments * (hi - lo) // max(n_rays, 1)))
-        jobs.append(ChunkJob(k, lo, hi, [int(seed), k], replace(limits, max_segments=share)))
+        share = limits.segment_budget if n_rays <= chunk_size else \
+            max(1, int(limits.segment_budget * (hi - lo) // max(n_rays, 1)))
+        jobs.append(ChunkJob(k, lo, hi, [int(seed), k], replace(limits, segment_budget=share)))
     return jobs
 
 

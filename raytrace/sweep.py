@@ -7,7 +7,7 @@ A name addresses one number in the scene, in one of these forms:
     OBJECT.FIELD             OBJECT is the name of a part, source or detector
     KIND:OBJECT.FIELD        the same, with KIND = part, source or detector, when names clash
     wavelength               every source becomes one line at this wavelength (nm)
-    trace.FIELD              a trace setting: trace.rays, trace.seed, trace.min_relative_flux, ...
+    trace.FIELD              a trace setting: trace.rays, trace.seed, trace.flux_floor, ...
     $.JSON.PATH              any number in the scene file by its JSON path, e.g.
                              $.parts[0].shape.params.width or $.materials.mine.index
 
@@ -53,9 +53,9 @@ from .errors import Problems, RaytraceError, SceneError
 KINDS = {"part": "parts", "source": "sources", "detector": "detectors"}
 SOURCE_FIELDS = ("position", "direction_deg", "width", "half_angle_deg", "cos_power", "flux")
 DETECTOR_FIELDS = ("start", "end", "bins", "angle_bins", "central_fraction")
-TRACE_FIELDS = ("rays", "min_relative_flux", "max_depth", "max_segments", "seed")
-WHOLE_NUMBER_FIELDS = {"rays", "max_depth", "max_segments", "seed", "bins", "angle_bins", "sides", "count"}
-TRACE_OPTIONS = ("rays", "mode", "seed", "min_relative_flux", "max_depth", "max_segments", "sampling")
+TRACE_FIELDS = ("rays", "flux_floor", "max_generations", "segment_budget", "seed")
+WHOLE_NUMBER_FIELDS = {"rays", "max_generations", "segment_budget", "seed", "bins", "angle_bins", "sides", "count"}
+TRACE_OPTIONS = ("rays", "mode", "seed", "flux_floor", "max_generations", "segment_budget", "sampling")
 
 
 class SweepError(SceneError):

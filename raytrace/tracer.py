@@ -55,13 +55,13 @@ BYTES_PER_HIT = 10 * 8             # one detector record
 
 @dataclass
 class Limits:
-    min_relative_flux: float = 1e-4
-    max_depth: int = 200
-    max_segments: int = 1_000_000_000
+    flux_floor: float = 1e-4
+    max_generations: int = 200
+    segment_budget: int = 1_000_000_000
     max_memory_mb: float = 4096.0
     # rays fainter than this share of their source ray's flux have their paths lumped into
     # "other paths": the path table stays small and does not depend on how rays are chunked
-    path_min_relative_flux: float = 1e-3
+    route_flux_floor: float = 1e-3
 
 
 @dataclass
@@ -221,8 +221,8 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
 
     n = len(start)
     flux0 = start.flux_s + start.flux_p
-    thr_root = limits.min_relative_flux * flux0      # children below this end (per source ray)
-    path_thr = max(limits.path_min_relative_flux, limits.min_relative_flux) * flux0
+    thr_root = limits.flux_floor * flux0      # children below this end (per source ray)
+    path_thr = max(limits.route_flux_floor, limits.flux_floor) * flux0
     recording = record.mode != "none"
     x0, y0 = _start_points(cs, start, hit_fn)
     med0 = medium_at(cs, x0, y0, start.dx, start.dy)
@@ -255,11 +255,11 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     while len(r["x"]):
         m = len(r["x"])
         # --- limits that end rays before they are traced
-        if gen > limits.max_depth:
+        if gen > limits.max_generations:
             _truncate(r, np.ones(m, dtype=bool), layout.trunc0 + TRUNC_DEPTH, bins, paths, seg_store,
                       record, root_offset, gen, wavelengths)
             break
-        room = limits.max_segments - stats["segments"]
+        room = limits.segment_budget - stats["segments"]
         if m > room:
             over = np.zeros(m, dtype=bool)
             over[max(room, 0):] = True
@@ -275,7 +275,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
                 f"generation {gen} has {m:,} live rays (about {m * BYTES_PER_LIVE_RAY / 1e6:,.0f} MB) and "
                 f"{seg_rows:,} ray-table rows and {hit_rows:,} detector records are kept (about {kept / 1e6:,.0f} MB), "
                 f"more than the memory limit max_memory_mb={limits.max_memory_mb:g}; raise max_memory_mb, "
-                f"trace fewer rays per chunk (chunk_size), raise min_relative_flux, record fewer rays "
+                f"trace fewer rays per chunk (chunk_size), raise flux_floor, record fewer rays "
                 f"(record=\"first\") or bin detector hits (hits=\"histogram\")")
         stats["generations"] += 1
         stats["segments"] += m

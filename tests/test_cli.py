@@ -31,11 +31,11 @@ def run(args, capsys):
     return code, out, err
 
 
-def test_trace_writes_ray_table_profiles_and_paths(tmp_path, capsys):
+def test_trace_writes_ray_table_profiles_and_routes(tmp_path, capsys):
     rays, prof = tmp_path / "rays.csv", tmp_path / "profiles.csv"
-    code, out, err = run(["trace", WINDOW, "--csv", str(rays), "--detectors-csv", str(prof), "--paths", "2"], capsys)
+    code, out, err = run(["trace", WINDOW, "--csv", str(rays), "--detectors-csv", str(prof), "--routes", "2"], capsys)
     assert code == cli.EXIT_OK, err
-    assert "Top paths to detector inside chamber:" in out
+    assert "Top routes to detector inside chamber:" in out
     assert "enter through viewport / front, leave through viewport / back" in out
     assert "Detector figures:" in out
     # the CSV is the table of the same trace done through the API (200 rays < first:1000)
@@ -149,14 +149,31 @@ def test_console_script_quiet_when_piped(tmp_path):
     assert json.loads((tmp_path / "s.json").read_text())["efficiency"]["viewer side"] > 0
 
 
-def test_json_summary_carries_detector_figures_and_top_paths(tmp_path, capsys):
+def test_json_summary_carries_detector_figures_and_top_routes(tmp_path, capsys):
     out = tmp_path / "s.json"
-    code, _, err = run(["trace", WINDOW, "--json", str(out), "--paths", "1", "--quiet"], capsys)
+    code, _, err = run(["trace", WINDOW, "--json", str(out), "--routes", "1", "--quiet"], capsys)
     assert code == 0, err
     data = json.loads(out.read_text())
     figs = {d["name"]: d for d in data["detectors"]}
     assert figs["inside chamber"]["efficiency"] == pytest.approx(data["efficiency"]["inside chamber"], rel=1e-12)
     assert figs["inside chamber"]["arrival_ps"]["spread"] >= 0
     # one path (the top one) per ledger bucket
-    buckets = [p["bucket"] for p in data["paths"]]
+    buckets = [p["bucket"] for p in data["routes"]]
     assert len(buckets) == len(set(buckets)) == len([b for b in data["buckets"] if b["flux"] > 0])
+
+
+@pytest.mark.parametrize("old, new, value", [("--min-flux", "--flux-floor", "0.001"),
+                                             ("--max-depth", "--max-generations", "5"),
+                                             ("--max-segments", "--segment-budget", "100000"),
+                                             ("--paths", "--routes", "2"),
+                                             ("--paths-min-flux", "--routes-min-flux", "0.01")])
+def test_earlier_option_names_still_work_with_a_note(tmp_path, capsys, old, new, value):
+    """An option's earlier name gives the same summary as its new name, and says the new name."""
+    out_old, out_new = tmp_path / "old.json", tmp_path / "new.json"
+    code, _, err = run(["trace", WINDOW, "--rays", "50", "--quiet", "--json", str(out_old), old, value], capsys)
+    assert code == cli.EXIT_OK, err
+    assert f"{old} is now called {new}" in err
+    code, _, err = run(["trace", WINDOW, "--rays", "50", "--quiet", "--json", str(out_new), new, value], capsys)
+    assert code == cli.EXIT_OK and "now called" not in err
+    a, b = json.loads(out_old.read_text()), json.loads(out_new.read_text())
+    assert a["buckets"] == b["buckets"] and a["settings"] == b["settings"] and a.get("routes") == b.get("routes")

@@ -29,7 +29,7 @@ def rect(x0, y0, x1, y1, treatment=Treatment()):
 def scene_of(*parts, sources=(), ambient="air", **materials):
     mats = {k.replace("_", " "): ConstantIndex(k.replace("_", " "), n=v) for k, v in materials.items()}
     return Scene(parts=list(parts), sources=list(sources), materials=mats, ambient=ambient,
-                 settings=TraceSettings(rays=5, min_relative_flux=1e-6))
+                 settings=TraceSettings(rays=5, flux_floor=1e-6))
 
 
 def edges_at(cs, x, y):

@@ -114,7 +114,7 @@ def test_step_index_guide_multipath_time_spread():
     z = np.zeros(3)
     start = StartRays(z.copy(), z.copy(), np.cos(ang), np.sin(ang), np.full(3, 850.0),
                       np.full(3, 0.5), np.full(3, 0.5), np.zeros(3, dtype=np.int64))
-    r = raytrace.trace(scene, start=start, min_relative_flux=0.0)
+    r = raytrace.trace(scene, start=start, flux_floor=0.0)
     rep = detector_report(r, "end")
     assert rep.efficiency == pytest.approx(1.0, abs=1e-12)     # TIR is lossless
     c = C_MM_PER_PS
@@ -217,7 +217,7 @@ def _by_hand(wl_nm):
     (the sample's 60-degree prisms, side 20, the flint turned 180 degrees); screen x = 60 from
     y = -30 upward.  Returns (position along the screen mm, angle of arrival deg)."""
     h = 10 * math.sqrt(3)
-    air, crown, flint = _air_index(wl_nm), _abbe_index(1.5168, 64.17, wl_nm), _abbe_index(1.62, 36.37, wl_nm)
+    air, crown, flint = _air_index(wl_nm), _abbe_index(1.52, 64.0, wl_nm), _abbe_index(1.62, 36.0, wl_nm)
     p, d = np.array([-20.0, 6.0]), np.array([1.0, 0.0])
     faces = [((-10.0, 0.0), (0.0, h), air, crown), ((10.0, 0.0), (0.0, h), crown, flint),
              ((10.0, 0.0), (20.0, h), flint, air)]
@@ -235,14 +235,14 @@ def test_cemented_pair_separates_the_colours_as_snell_says():
     screen equal those of the beam's central ray traced by hand with Snell's law.  The beam is
     narrowed to 1e-7 mm, so all its rays are the central ray to within 1e-7 mm (with the full
     1 mm beam the three colours take turns across it, and each colour's rays centre up to a
-    ray pitch away from the middle).  min_relative_flux = 0.1 drops the Fresnel ghosts
+    ray pitch away from the middle).  flux_floor = 0.1 drops the Fresnel ghosts
     (R ~ 4 %), which land elsewhere; tolerances 1e-6 mm and 1e-7 deg."""
     from dataclasses import replace as dc_replace
     from raytrace.report import detectors_text
     from raytrace.scene_io import load_scene
     scene = load_scene(Path(__file__).resolve().parent.parent / "samples" / "cemented-prism-pair.json")
     scene.sources[0] = dc_replace(scene.sources[0], width=1e-7)
-    r = raytrace.trace(scene, min_relative_flux=0.1)
+    r = raytrace.trace(scene, flux_floor=0.1)
     rep = detector_report(r, "screen")
     assert [w.wavelength_nm for w in rep.per_wavelength] == [486.13, 587.56, 656.27]
     for w in rep.per_wavelength:

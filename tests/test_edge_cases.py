@@ -37,7 +37,7 @@ def make(parts, sources, detectors=(), **indices):
     mats = {OUT: ConstantIndex(OUT, n=1.0)}
     mats.update({k: ConstantIndex(k, n=v) for k, v in indices.items()})
     return Scene(parts=list(parts), sources=list(sources), detectors=list(detectors), materials=mats,
-                 ambient=OUT, settings=TraceSettings(rays=5, min_relative_flux=1e-13, max_depth=400))
+                 ambient=OUT, settings=TraceSettings(rays=5, flux_floor=1e-13, max_generations=400))
 
 
 def pencil(x, y, angle_deg, name="ray", **kw):
@@ -208,7 +208,7 @@ def test_coincident_edges_of_cemented_parts_form_one_interface():
 def test_ray_hitting_the_corner_where_a_guide_meets_a_window_is_accounted():
     """A ray from inside the window aimed exactly at the split point (5, 3) of the cemented face."""
     s = _window_and_guide(pencil(1.0, 1.0, math.degrees(math.atan2(2.0, 4.0))))
-    r = accounted(s, check_media=False, min_relative_flux=1e-6)
+    r = accounted(s, check_media=False, flux_floor=1e-6)
     assert r.stats["vertex_hits"] >= 1
 
 
@@ -216,7 +216,7 @@ def test_ray_through_the_corner_where_a_guide_meets_a_window_enters_the_guide():
     """At a vertex shared by three edges (window|air, window|guide, guide|air) the edge between
     the ray's medium and the medium beyond the vertex acts: the ray goes on into the guide."""
     s = _window_and_guide(pencil(1.0, 1.0, math.degrees(math.atan2(2.0, 4.0))))
-    r = accounted(s, min_relative_flux=1e-6)
+    r = accounted(s, flux_floor=1e-6)
     assert r.stats["medium_mismatches"] == 0
 
 
@@ -334,7 +334,7 @@ def test_zero_flux_source_is_accounted():
     s = make([Part("slab", "glass", rect(0, 0, 10, 10))],
              [Source("dark", "beam", (-5.0, 5.0), 10.0, width=1.0, flux=0.0),
               Source("lit", "beam", (-5.0, 5.0), 10.0, width=1.0, flux=1.0)], glass=1.5)
-    r = accounted(s, rays=4, max_depth=40)
+    r = accounted(s, rays=4, max_generations=40)
     assert r.source_flux == 1.0
 
 
@@ -342,7 +342,7 @@ def test_zero_flux_only_gives_an_empty_ledger():
     s = make([Part("slab", "glass", rect(0, 0, 10, 10))],
              [Source("dark", "beam", (-5.0, 5.0), 10.0, width=1.0, flux=0.0)],
              [Detector("far", (20, -50), (20, 50))], glass=1.5)
-    r = accounted(s, rays=3, max_depth=40)
+    r = accounted(s, rays=3, max_generations=40)
     assert r.source_flux == 0.0 and r.efficiency("far") == 0.0
     assert all(b.flux == 0.0 for b in r.ledger.buckets)
 
@@ -350,7 +350,7 @@ def test_zero_flux_only_gives_an_empty_ledger():
 def test_zero_flux_rays_end_at_their_first_event():
     s = make([Part("slab", "glass", rect(0, 0, 10, 10))],
              [Source("dark", "beam", (-5.0, 5.0), 10.0, width=1.0, flux=0.0)], glass=1.5)
-    r = trace(s, rays=3, max_depth=200)
+    r = trace(s, rays=3, max_generations=200)
     assert r.stats["segments"] <= 3 * 3
 
 

@@ -579,10 +579,10 @@ def test_mode_and_limits_controls_trace_like_the_engine(qtbot, win):
     c.threshold.setValue(0.01)
     c.threshold.editingFinished.emit()
     s = win.doc.scene.settings
-    assert (s.mode, s.max_depth, s.min_relative_flux) == ("monte_carlo", 2, 0.01)
+    assert (s.mode, s.max_generations, s.flux_floor) == ("monte_carlo", 2, 0.01)
     result = wait_traced(qtbot, win)
     assert ledger_rows(result) == ledger_rows(raytrace.trace(win.doc.scene))
-    assert result.ledger.flux("truncated", reason="maximum depth") > 0, "depth 2 truncates rays inside the prisms"
+    assert result.ledger.flux("truncated", reason="generation limit") > 0, "depth 2 truncates rays inside the prisms"
 
 
 def test_escape_markers_add_up_to_the_ledger(qtbot, win):

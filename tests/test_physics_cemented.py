@@ -86,7 +86,7 @@ def test_reflection_at_cemented_face_is_glass_glass_fresnel(scene):
     # the reflected children (those above the flux threshold were kept)
     refl = np.flatnonzero((seg["born"] == B_REFLECTED) & np.isin(seg["parent_id"], seg["ray_id"][hit]))
     got = {int(seg["parent_id"][i]): seg["flux_s"][i] + seg["flux_p"][i] for i in refl}
-    threshold = result.settings["min_relative_flux"]
+    threshold = result.settings["flux_floor"]
     checked = 0
     for k, idx in enumerate(hit):
         rid = int(seg["ray_id"][idx])

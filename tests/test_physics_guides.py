@@ -45,7 +45,7 @@ def bent_guide_scene(r_over_d: float):
     beam = Source("beam", kind="beam", position=(-1.0, 0.0), direction_deg=0.0, width=WIDTH,
                   sampling="even")
     return make_scene([part], [beam], materials={"core": N_CORE}, rays=RAYS,
-                      min_relative_flux=1e-12), R
+                      flux_floor=1e-12), R
 
 
 def test_threshold_value():
@@ -136,7 +136,7 @@ def test_straight_guide_multipath_optical_path(n_clad):
     part = shaped_part("guide", "core", "light_pipe", width=width, segments=[{"straight": length}])
     k = next(i for i, e in enumerate(part.outer.edges) if e.face == "output")
     part = replace(part, outer=part.outer.with_edge(k, treatment=Treatment(ABSORBER)))
-    scene = make_scene([part], [], materials={"core": n1}, ambient_n=n_clad, min_relative_flux=1e-12)
+    scene = make_scene([part], [], materials={"core": n1}, ambient_n=n_clad, flux_floor=1e-12)
     phi_c = np.pi / 2 - np.arcsin(n_clad / n1)        # ray angle to the axis at the critical angle
     phi = np.array([0.0, phi_c - 1e-9])
     start = StartRays(np.full(2, x0), np.zeros(2), np.cos(phi), np.sin(phi), np.full(2, 550.0),

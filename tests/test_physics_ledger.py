@@ -134,9 +134,9 @@ def scenes(draw):
         x = draw(st.floats(-25.0, span + 25.0))
         detectors.append(Detector("det", (x, -25.0), (x + draw(st.floats(-10, 10)), 25.0),
                                   absorbing=draw(st.booleans())))
-    limits = dict(min_relative_flux=draw(st.sampled_from([1e-6, 1e-4, 1e-2, 0.2])),
-                  max_depth=draw(st.sampled_from([200, 200, 5, 1])),
-                  max_segments=draw(st.sampled_from([50_000_000, 50_000_000, 100, 30])))
+    limits = dict(flux_floor=draw(st.sampled_from([1e-6, 1e-4, 1e-2, 0.2])),
+                  max_generations=draw(st.sampled_from([200, 200, 5, 1])),
+                  segment_budget=draw(st.sampled_from([50_000_000, 50_000_000, 100, 30])))
     sampling = draw(st.sampled_from(["even", "random"]))
     return make_scene(parts, sources, detectors, materials=mats, ambient_n=draw(st.sampled_from([1.0, 1.0, 1.33])),
                       rays=draw(st.integers(1, 60)), **limits), sampling, sum(s.flux for s in sources)
@@ -196,7 +196,7 @@ def test_unnamed_edges_are_numbered_in_the_order_written():
     side ("edge 1"), within 1e-12."""
     tri = Part("tri", "glass", Loop.polygon([(0.0, 0.0), (0.0, 10.0), (10.0, 0.0)]))   # clockwise
     beam = Source("beam", kind="beam", position=(-5.0, 5.0), direction_deg=0.0, width=1.0)
-    led = trace(make_scene([tri], [beam], materials={"glass": 1.5}, rays=3, min_relative_flux=1e-15)).ledger
+    led = trace(make_scene([tri], [beam], materials={"glass": 1.5}, rays=3, flux_floor=1e-15)).ledger
     r = 0.04
     assert led.flux("escaped", part="tri", face="edge 1") == pytest.approx(2 * r / (1 + r), abs=1e-12)
     assert led.flux("escaped", part="tri", face="edge 3") == pytest.approx((1 - r) / (1 + r), abs=1e-12)

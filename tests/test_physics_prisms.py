@@ -33,7 +33,7 @@ def roof_scene(n: float, entry_deg: float, rays: int = 200):
     ux, uy = math.cos(math.radians(direction)), math.sin(math.radians(direction))
     beam = Source("beam", kind="beam", position=(-6.0 * ux, -6.0 * uy), direction_deg=direction,
                   width=0.8 * HALF, sampling="even")
-    return make_scene([part], [beam], materials={"glass": n}, rays=rays, min_relative_flux=1e-9), (ux, uy)
+    return make_scene([part], [beam], materials={"glass": n}, rays=rays, flux_floor=1e-9), (ux, uy)
 
 
 def retro_exits(result):
@@ -94,7 +94,7 @@ def prism_scene(n=1.6):
     """60 deg prism (base on y = 0), a narrow beam from the left hitting the left face."""
     part = shaped_part("prism", "glass", "prism", apex_angle_deg=60.0, side=20.0)
     beam = Source("beam", kind="beam", position=(-15.0, 5.0), direction_deg=10.0, width=2.0, sampling="even")
-    return make_scene([part], [beam], materials={"glass": n}, rays=11, min_relative_flux=1e-9)
+    return make_scene([part], [beam], materials={"glass": n}, rays=11, flux_floor=1e-9)
 
 
 def test_transmitted_ray_traced_backwards_returns_to_start():

@@ -9,15 +9,15 @@ from raytrace.cli import main
 ROOT = Path(__file__).resolve().parent.parent
 KINDS = {"detector": {"detector"}, "escaped": {"part", "face"}, "absorbed": {"part", "face"},
          "truncated": {"reason"}}
-REASONS = {"flux below threshold", "maximum depth", "segment budget"}
+REASONS = {"below flux floor", "generation limit", "segment budget"}
 STATS = {"source_rays", "segments", "events", "generations", "tir_events", "vertex_hits",
          "grazing_hits", "medium_mismatches", "elapsed_s"}
-SETTINGS = {"rays", "mode", "seed", "min_relative_flux", "max_depth", "max_segments", "sampling",
+SETTINGS = {"rays", "mode", "seed", "flux_floor", "max_generations", "segment_budget", "sampling",
             "source_names", "source_positions"}
 
 
 @pytest.mark.parametrize("sample,extra", [("light-pipe-90", []), ("microprism-strip", ["--mode", "monte_carlo"]),
-                                          ("oblique-window", ["--max-depth", "2"])])
+                                          ("oblique-window", ["--max-generations", "2"])])
 def test_json_summary_has_the_documented_fields(tmp_path, sample, extra):
     out = tmp_path / "summary.json"
     assert main(["trace", str(ROOT / "samples" / f"{sample}.json"), "--quiet", "--json", str(out), *extra]) == 0
@@ -45,8 +45,8 @@ def test_json_summary_has_the_documented_fields(tmp_path, sample, extra):
     for name, eff in data["efficiency"].items():
         flux = sum(b["flux"] for b in data["buckets"] if b.get("detector") == name)
         assert eff == pytest.approx(flux / data["source_flux"], rel=1e-12)
-    if "--max-depth" in extra:
-        assert any(b.get("reason") == "maximum depth" for b in data["buckets"])
+    if "--max-generations" in extra:
+        assert any(b.get("reason") == "generation limit" for b in data["buckets"])
 
 
 def _documented(section: str) -> set[str]:
@@ -65,13 +65,13 @@ def _documented(section: str) -> set[str]:
 
 def test_documented_keys_match_the_written_file(tmp_path):
     """Every key the JSON file has at the top level, per detector, per wavelength and per path
-    is documented, and every documented one is written (cemented prism pair, --paths 2)."""
+    is documented, and every documented one is written (cemented prism pair, --routes 2)."""
     out = tmp_path / "summary.json"
     scene = ROOT / "samples" / "cemented-prism-pair.json"
-    assert main(["trace", str(scene), "--quiet", "--json", str(out), "--paths", "2"]) == 0
+    assert main(["trace", str(scene), "--quiet", "--json", str(out), "--routes", "2"]) == 0
     data = json.loads(out.read_text(encoding="utf-8"))
     assert set(data) == _documented("Top-level fields")
-    assert data["detectors"] and data["paths"]
+    assert data["detectors"] and data["routes"]
     for d in data["detectors"]:
         assert set(d) == _documented("`detectors`")
         assert set(d["uniformity"]) == {"central_fraction", "bins", "min_over_mean", "max_over_mean"}
@@ -79,15 +79,15 @@ def test_documented_keys_match_the_written_file(tmp_path):
         assert [w["wavelength_nm"] for w in d["per_wavelength"]] == [486.13, 587.56, 656.27]
         for w in d["per_wavelength"]:
             assert set(w) == {"wavelength_nm", "hits", "flux", "share", "centroid_mm", "mean_angle_deg"}
-    for g in data["paths"]:
-        assert set(g) == _documented("`paths`")
+    for g in data["routes"]:
+        assert set(g) == _documented("`routes`")
     per_bucket: dict[str, int] = {}
-    for g in data["paths"]:
+    for g in data["routes"]:
         per_bucket[g["bucket"]] = per_bucket.get(g["bucket"], 0) + 1
     assert max(per_bucket.values()) == 2      # "the N path groups with the most flux" per bucket
     assert STATS <= _documented("`stats`") and SETTINGS <= _documented("`settings`")
     assert _documented("`stats`") <= set(data["stats"])
-    assert "paths" not in json.loads(_run_json(tmp_path, scene).read_text(encoding="utf-8"))
+    assert "routes" not in json.loads(_run_json(tmp_path, scene).read_text(encoding="utf-8"))
 
 
 def _run_json(tmp_path, scene, *extra):
@@ -97,11 +97,11 @@ def _run_json(tmp_path, scene, *extra):
 
 
 @pytest.mark.parametrize("depth", [1, 2, 5])
-def test_max_depth_counts_generations(tmp_path, depth):
-    """As documented: the source ray is generation 0, rays of generation max_depth + 1 are not
-    traced, so the loop runs max_depth + 1 generations when the depth limit is what stops it
+def test_max_generations_counts_generations(tmp_path, depth):
+    """As documented: the source ray is generation 0, rays of generation max_generations + 1 are not
+    traced, so the loop runs max_generations + 1 generations when the depth limit is what stops it
     (the light pipe's rays TIR many more times than 5)."""
-    out = _run_json(tmp_path, ROOT / "samples" / "light-pipe-90.json", "--max-depth", str(depth))
+    out = _run_json(tmp_path, ROOT / "samples" / "light-pipe-90.json", "--max-generations", str(depth))
     data = json.loads(out.read_text(encoding="utf-8"))
     assert data["stats"]["generations"] == depth + 1
-    assert any(b.get("reason") == "maximum depth" and b["flux"] > 0 for b in data["buckets"])
+    assert any(b.get("reason") == "generation limit" and b["flux"] > 0 for b in data["buckets"])

@@ -44,7 +44,7 @@ def window_scene(angle_deg: float, polarization: str, n: float = N_GLASS, alpha_
     detectors = [Detector("transmitted", (thickness + 20.0, -2000.0), (thickness + 20.0, 2000.0)),
                  Detector("reflected", (-20.0, 2000.0), (-20.0, -2000.0))]
     return make_scene([part], [beam], detectors, materials={"slab": glass},
-                      rays=4, min_relative_flux=THRESHOLD, max_depth=500)
+                      rays=4, flux_floor=THRESHOLD, max_generations=500)
 
 
 def _with_line(src: Source) -> Source:

@@ -55,7 +55,7 @@ def test_columns_have_units_and_labels_are_readable():
 def test_children_start_where_parents_end_and_carry_the_fresnel_split():
     """reference library: tmm.coh_tmm for the reflectance of a single n = 1 -> 1.5 interface
     at 30 degrees (s and p); the first reflected child carries Rs and Rp of its parent's flux."""
-    r = raytrace.trace(window_scene(30.0), record="all", min_relative_flux=0.0, max_depth=6)
+    r = raytrace.trace(window_scene(30.0), record="all", flux_floor=0.0, max_generations=6)
     t = ray_table(r)
     row_of = {rid: i for i, rid in enumerate(t["ray_id"].tolist())}
     kids = np.flatnonzero(t["parent_id"] >= 0)

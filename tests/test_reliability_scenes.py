@@ -276,7 +276,7 @@ def scenes(draw, max_groups=3):
                  Detector("monitor", (-22, draw(st.floats(-5, 5)) + 0.01379),
                           (span + 22, draw(st.floats(-5, 5)) + 0.02917), absorbing=False)]
     trace_settings = TraceSettings(rays=draw(st.integers(1, 30)), mode=draw(st.sampled_from(("branching", "monte_carlo"))),
-                                   min_relative_flux=draw(st.sampled_from((1e-2, 1e-3))), max_depth=40,
+                                   flux_floor=draw(st.sampled_from((1e-2, 1e-3))), max_generations=40,
                                    seed=draw(st.integers(0, 2**31)))
     scene = Scene(parts=list(parts), sources=sources, detectors=detectors, materials=user,
                   ambient=ambient, settings=trace_settings, name="random scene", story="generated")

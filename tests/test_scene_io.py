@@ -10,10 +10,11 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 
 from raytrace.errors import SceneError
-from raytrace.scene_io import load_scene, save_scene, scene_from_text, scene_to_text
+from raytrace.scene_io import load_scene, save_scene, scene_from_text, scene_to_dict, scene_to_text
 from test_reliability_scenes import scenes
 
 SAMPLES = sorted((Path(__file__).parent.parent / "samples").glob("*.json"))
+SAMPLE_DIR = Path(__file__).parent.parent / "samples"
 
 
 @pytest.mark.parametrize("sample", SAMPLES, ids=lambda p: p.stem)
@@ -179,3 +180,33 @@ def test_a_face_name_edited_in_code_saves_under_faces():
     assert face_overrides(scene.parts[1]) == {"base": {"name": "top face"}}
     assert scene_to_dict(scene)["parts"][1]["faces"] == {"base": {"name": "top face"}}
     assert scene_from_text(scene_to_text(scene)) == scene
+
+
+# ------------------------------------------------------------------ earlier key names
+
+def _with_trace(tmp_path, trace: dict) -> Path:
+    data = json.loads((SAMPLE_DIR / "oblique-window.json").read_text(encoding="utf-8"))
+    data["trace"] = trace
+    path = tmp_path / "old.json"
+    path.write_text(json.dumps(data), encoding="utf-8")
+    return path
+
+
+def test_earlier_trace_key_names_are_read_with_a_note_and_saved_under_the_new(tmp_path):
+    path = _with_trace(tmp_path, {"rays": 10, "min_relative_flux": 0.002, "max_depth": 7, "max_segments": 900})
+    scene = load_scene(path)
+    s = scene.settings
+    assert (s.flux_floor, s.max_generations, s.segment_budget) == (0.002, 7, 900)
+    assert len(scene.notes) == 3 and all(str(path) in n for n in scene.notes)
+    assert any("$.trace.max_depth" in n and "'max_generations'" in n for n in scene.notes)
+    saved = scene_to_dict(scene)["trace"]
+    assert {"flux_floor", "max_generations", "segment_budget"} <= set(saved)
+    assert not {"min_relative_flux", "max_depth", "max_segments"} & set(saved)
+
+
+def test_earlier_and_new_name_together_is_an_error(tmp_path):
+    path = _with_trace(tmp_path, {"max_depth": 7, "max_generations": 8})
+    with pytest.raises(SceneError) as err:
+        load_scene(path)
+    (p,) = err.value.problems
+    assert p.path == "$.trace.max_depth" and "max_generations" in p.expected

@@ -82,9 +82,9 @@ def test_histograms_accumulate_across_chunks():
 
 
 def test_segment_budget_is_shared_by_chunk_size():
-    jobs = plan_chunks(1000, 300, seed=4, limits=Limits(max_segments=10_000))
+    jobs = plan_chunks(1000, 300, seed=4, limits=Limits(segment_budget=10_000))
     assert [j.hi - j.lo for j in jobs] == [300, 300, 300, 100]
-    assert [j.limits.max_segments for j in jobs] == [3000, 3000, 3000, 1000]
+    assert [j.limits.segment_budget for j in jobs] == [3000, 3000, 3000, 1000]
     assert [j.seed for j in jobs] == [[4, 0], [4, 1], [4, 2], [4, 3]]
 
 

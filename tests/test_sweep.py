@@ -38,7 +38,7 @@ def plate_dict(polarization: str) -> dict:
                      "polarization": polarization}],
         "detectors": [{"name": "through", "start": [5.0, -200.0], "end": [5.0, 200.0]},
                       {"name": "back", "start": [-3.0, 200.0], "end": [-3.0, -200.0]}],
-        "trace": {"rays": 4, "min_relative_flux": 1e-13, "max_depth": 400},
+        "trace": {"rays": 4, "flux_floor": 1e-13, "max_generations": 400},
     }
 
 

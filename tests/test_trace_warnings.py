@@ -25,10 +25,10 @@ def _with_wavelength(tmp_path, nm):
 
 def test_segment_budget_cut_is_a_warning_naming_the_option():
     scene = load_scene(SAMPLES / "light-pipe-90.json")
-    r = raytrace.trace(scene, rays=200, max_segments=2000)
+    r = raytrace.trace(scene, rays=200, segment_budget=2000)
     cut = r.ledger.flux("truncated", reason="segment budget")
     assert cut > 0
-    assert any("segment budget" in w and "--max-segments" in w for w in r.warnings)
+    assert any("segment budget" in w and "--segment-budget" in w for w in r.warnings)
     assert r.to_summary_dict()["warnings"] == r.warnings
 
 
@@ -59,8 +59,8 @@ def test_wavelength_outside_the_catalog_data_is_a_warning(tmp_path, capsys):
     assert "warning:" in capsys.readouterr().err
 
 
-@pytest.mark.parametrize("option", [["--rays", "-5"], ["--min-flux", "2"], ["--min-flux", "nan"],
-                                    ["--max-segments", "0"], ["--workers", "-3"], ["--max-depth", "0"]])
+@pytest.mark.parametrize("option", [["--rays", "-5"], ["--flux-floor", "2"], ["--flux-floor", "nan"],
+                                    ["--segment-budget", "0"], ["--workers", "-3"], ["--max-generations", "0"]])
 def test_command_line_values_follow_the_scene_file_rules(option, capsys):
     assert main(["trace", str(SAMPLES / "oblique-window.json"), *option]) == 2
     assert "expected" in capsys.readouterr().err
@@ -68,7 +68,7 @@ def test_command_line_values_follow_the_scene_file_rules(option, capsys):
 
 def test_paths_zero_lists_none(tmp_path, capsys):
     out = tmp_path / "s.json"
-    assert main(["trace", str(SAMPLES / "oblique-window.json"), "--paths", "0", "--json", str(out)]) == 0
+    assert main(["trace", str(SAMPLES / "oblique-window.json"), "--routes", "0", "--json", str(out)]) == 0
     assert "none listed" in capsys.readouterr().out
-    assert json.loads(out.read_text())["paths"] == []
-    assert main(["trace", str(SAMPLES / "oblique-window.json"), "--paths", "-1"]) == 2
+    assert json.loads(out.read_text())["routes"] == []
+    assert main(["trace", str(SAMPLES / "oblique-window.json"), "--routes", "-1"]) == 2

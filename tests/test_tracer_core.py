@@ -48,7 +48,7 @@ def test_samples_accelerated_equals_plain(path, mode):
     scene = load_scene(path)
     cs = compile_scene(scene)
     start = sample_sources(scene.sources, 3000, seed=3)
-    lim = Limits(min_relative_flux=scene.settings.min_relative_flux)
+    lim = Limits(flux_floor=scene.settings.flux_floor)
     plain = trace_rays(cs, start, mode=mode, limits=lim, seed=3, record=Recording("first", 50),
                        hit_fn=nearest_hit)
     assert plain.stats["segments"] > 3000
@@ -100,7 +100,7 @@ def test_random_scenes_accelerated_equals_plain(case):
     scene, mode = case
     cs = compile_scene(scene)
     start = sample_sources(scene.sources, 400, seed=1)
-    lim = Limits(min_relative_flux=1e-3)
+    lim = Limits(flux_floor=1e-3)
     plain = trace_rays(cs, start, mode=mode, limits=lim, seed=1, hit_fn=nearest_hit)
     for accel in ("sweep", "grid"):
         assert_same_trace(plain, trace_rays(cs, start, mode=mode, limits=lim, seed=1, accel=accel))
@@ -119,10 +119,10 @@ def test_starting_rays_over_budget_name_the_limit():
 
 
 def test_faint_paths_are_lumped_and_bright_ones_kept():
-    """Path tallies: rays under path_min_relative_flux (1e-3 of the source ray) are "other paths";
+    """Path tallies: rays under route_flux_floor (1e-3 of the source ray) are "other routes";
     the flux of all paths still adds up to the ledger (common practice: conservation)."""
     scene = load_scene([p for p in SAMPLES if "window" in p.stem][0])
-    r = trace(scene, rays=50, min_relative_flux=1e-6)
+    r = trace(scene, rays=50, flux_floor=1e-6)
     total = sum(r.raw.path_flux.values())
     assert math.isclose(total, r.source_flux, rel_tol=1e-9)
     other = [i for i, p in enumerate(r.raw.path_parent) if p == -1_000_000]
@@ -134,9 +134,9 @@ def test_faint_paths_are_lumped_and_bright_ones_kept():
 
 def test_depth_and_segment_limits_truncate():
     scene = load_scene(SAMPLES[0])
-    r = trace(scene, rays=200, max_depth=2)
-    assert r.ledger.flux("truncated", reason="maximum depth") > 0
-    r = trace(scene, rays=200, max_segments=300)
+    r = trace(scene, rays=200, max_generations=2)
+    assert r.ledger.flux("truncated", reason="generation limit") > 0
+    r = trace(scene, rays=200, segment_budget=300)
     assert r.stats["segments"] <= 300
     assert r.ledger.flux("truncated", reason="segment budget") > 0
 

@@ -1,4 +1,4 @@
-"""Trace controls: ray count, depth, flux threshold and mode (kept in the scene's trace
+"""Trace controls: ray count, generation limit, flux floor and mode (kept in the scene's trace
 settings, so they are saved and undoable), plus view-only choices: one wavelength for all
 sources and how many source rays are drawn."""
 from __future__ import annotations
@@ -29,7 +29,8 @@ class TraceControls(QWidget):
         self.rays.setToolTip("Source rays per trace (shared over the sources by flux)")
         self.depth = QSpinBox()
         self.depth.setRange(1, 100_000)
-        self.depth.setToolTip("A ray ends after this many segments (counted in the ledger as truncated)")
+        self.depth.setToolTip("A ray is followed for at most this many generations (the source ray is 0, each "
+                                 "interaction's children one more); the rest is booked as truncated")
         self.threshold = QDoubleSpinBox()
         self.threshold.setDecimals(8)
         self.threshold.setRange(0.0, 1.0)
@@ -71,8 +72,8 @@ class TraceControls(QWidget):
         buttons.addWidget(stop)
         form = QFormLayout(self)
         form.addRow("Rays", self.rays)
-        form.addRow("Max depth", self.depth)
-        form.addRow("Flux threshold", self.threshold)
+        form.addRow("Generations", self.depth)
+        form.addRow("Flux floor", self.threshold)
         form.addRow("Mode", self.mode)
         form.addRow("Wavelength", wl)
         form.addRow("Drawn rays", self.drawn)
@@ -80,8 +81,8 @@ class TraceControls(QWidget):
         form.addRow(buttons)
 
         self.rays.editingFinished.connect(lambda: self._set(rays=self.rays.value()))
-        self.depth.editingFinished.connect(lambda: self._set(max_depth=self.depth.value()))
-        self.threshold.editingFinished.connect(lambda: self._set(min_relative_flux=self.threshold.value()))
+        self.depth.editingFinished.connect(lambda: self._set(max_generations=self.depth.value()))
+        self.threshold.editingFinished.connect(lambda: self._set(flux_floor=self.threshold.value()))
         self.mode.activated.connect(lambda _i: self._set(mode=self.mode.currentData()))
         self.one_wavelength.toggled.connect(self._wl_toggled)
         self.wavelength.editingFinished.connect(self.options_changed)
@@ -104,8 +105,8 @@ class TraceControls(QWidget):
         for w in (self.rays, self.depth, self.threshold, self.mode):
             w.blockSignals(True)
         self.rays.setValue(s.rays)
-        self.depth.setValue(s.max_depth)
-        self.threshold.setValue(s.min_relative_flux)
+        self.depth.setValue(s.max_generations)
+        self.threshold.setValue(s.flux_floor)
         self.mode.setCurrentIndex(max(0, self.mode.findData(s.mode)))
         for w in (self.rays, self.depth, self.threshold, self.mode):
             w.blockSignals(False)

@@ -1,4 +1,4 @@
-"""Path analysis: which sequences of events carry the flux to each detector and to each loss.
+"""Routes: which sequences of events carry the flux to each detector and to each loss.
 
 The tracer keeps a trie of event sequences (one node per distinct sequence of edge events) and
 books every unit of flux that leaves the tree under (ledger bin, path node).  Here each node is
@@ -17,15 +17,15 @@ from .ledger import ABSORBED, DETECTOR, ESCAPED, TRUNCATED, TRUNCATION_REASONS, 
 from .results import TraceResult
 from .tracer import EV_MIRROR, EV_PASS, EV_REFLECT, EV_THROUGH, EV_TIR, N_EVENT_KINDS, medium_at
 
-LUMPED = -1_000_000     # the tracer's parent marker of the "other paths" node (trie full)
+LUMPED = -1_000_000     # the tracer's parent marker of the "other routes" node (trie full)
 LOSS_KINDS = (ESCAPED, ABSORBED, TRUNCATED)
 # The lumped node has no single source; its group reads once, as one plain step.
 ANY_SOURCE = "(any source)"
-OTHER_PATHS = "other paths: too faint to follow one by one, or past the size of the path table"
+OTHER_ROUTES = "other routes: too faint to follow one by one, or past the size of the route table"
 
 
 @dataclass(frozen=True)
-class PathGroup:
+class RouteGroup:
     """The flux that ended in one ledger bucket by one (collapsed) sequence of events."""
 
     kind: str                 # detector, escaped, absorbed, truncated
@@ -38,8 +38,8 @@ class PathGroup:
 
     @property
     def lumped(self) -> bool:
-        """True for the group of the paths the tracer did not tell apart."""
-        return self.steps == (OTHER_PATHS,)
+        """True for the group of the routes the tracer did not tell apart."""
+        return self.steps == (OTHER_ROUTES,)
 
     @property
     def text(self) -> str:
@@ -51,8 +51,8 @@ class PathGroup:
                 "share_of_source": self.share_of_source}
 
 
-def path_groups(result: TraceResult) -> list[PathGroup]:
-    """Every path group, sorted by bucket (detectors first, as in the ledger) then flux."""
+def route_groups(result: TraceResult) -> list[RouteGroup]:
+    """Every route group, sorted by bucket (detectors first, as in the ledger) then flux."""
     raw = result.raw
     if not raw.path_flux:
         return []
@@ -76,7 +76,7 @@ def path_groups(result: TraceResult) -> list[PathGroup]:
         bucket_flux[label] = bucket_flux.get(label, 0.0) + flux
         kinds[label] = kind
     total = result.source_flux or 1.0
-    out = [PathGroup(kinds[label], label, src, steps, f, f / bucket_flux[label] if bucket_flux[label] else 0.0,
+    out = [RouteGroup(kinds[label], label, src, steps, f, f / bucket_flux[label] if bucket_flux[label] else 0.0,
                      f / total) for (label, src, steps), f in groups.items()]
     order = {DETECTOR: 0, ESCAPED: 1, ABSORBED: 2, TRUNCATED: 3}
     rank = {lab: i for i, lab in enumerate(sorted(bucket_flux, key=lambda lab: (order[kinds[lab]], -bucket_flux[lab])))}
@@ -84,13 +84,13 @@ def path_groups(result: TraceResult) -> list[PathGroup]:
     return out
 
 
-def top_paths(result: TraceResult, n: int = 10, kind: str | tuple[str, ...] | None = None,
-              bucket: str | None = None, groups: list[PathGroup] | None = None) -> list[PathGroup]:
-    """The n path groups carrying the most flux, optionally only of some kinds or one bucket
+def top_routes(result: TraceResult, n: int = 10, kind: str | tuple[str, ...] | None = None,
+              bucket: str | None = None, groups: list[RouteGroup] | None = None) -> list[RouteGroup]:
+    """The n route groups carrying the most flux, optionally only of some kinds or one bucket
     (a bucket label such as "detector viewer side" or a detector's bare name).  Pass `groups`
-    (from `path_groups`) to pick several tops without redoing the grouping."""
+    (from `route_groups`) to pick several tops without redoing the grouping."""
     kinds = (kind,) if isinstance(kind, str) else kind
-    groups = path_groups(result) if groups is None else groups
+    groups = route_groups(result) if groups is None else groups
     sel = [g for g in groups
            if (kinds is None or g.kind in kinds)
            and (bucket is None or g.bucket == bucket or g.bucket == f"detector {bucket}")]
@@ -98,30 +98,30 @@ def top_paths(result: TraceResult, n: int = 10, kind: str | tuple[str, ...] | No
     return sel[:n]
 
 
-def paths_text(result: TraceResult, n: int = 10) -> str:
-    """Top n paths to each detector, then the top n loss paths over all losses.  n = 0 lists
+def routes_text(result: TraceResult, n: int = 10) -> str:
+    """Top n routes to each detector, then the top n loss routes over all losses.  n = 0 lists
     none (a negative n is a programming error)."""
     if n < 0:
-        raise ValueError(f"n: expected a count of paths of at least 0, found {n!r}")
+        raise ValueError(f"n: expected a count of routes of at least 0, found {n!r}")
     if n == 0:
         return "Paths: none listed (0 asked for)"
     if not result.raw.path_flux:
         return "Paths: not tracked in this trace"
     lines = []
     multi = len(result.settings.get("source_names", [])) > 1
-    groups = path_groups(result)
+    groups = route_groups(result)
     for det in result.compiled.detectors:
-        rows = top_paths(result, n, bucket=det.name, groups=groups)
-        lines.append(f"Top paths to detector {det.name}:" if rows else f"Top paths to detector {det.name}: none")
+        rows = top_routes(result, n, bucket=det.name, groups=groups)
+        lines.append(f"Top routes to detector {det.name}:" if rows else f"Top routes to detector {det.name}: none")
         lines += [_row(g, multi, with_bucket=False) for g in rows]
-    losses = top_paths(result, n, kind=LOSS_KINDS, groups=groups)
+    losses = top_routes(result, n, kind=LOSS_KINDS, groups=groups)
     if losses:
-        lines.append("Top loss paths:")
+        lines.append("Top loss routes:")
         lines += [_row(g, multi, with_bucket=True) for g in losses]
     return "\n".join(lines)
 
 
-def _row(g: PathGroup, multi: bool, with_bucket: bool) -> str:
+def _row(g: RouteGroup, multi: bool, with_bucket: bool) -> str:
     share = f"{100 * g.share_of_source:7.3f} % of source"
     if not with_bucket:
         share += f" ({100 * g.share_of_bucket:.1f} % of detector)"
@@ -164,7 +164,7 @@ def _node_steps(result: TraceResult):
     runs: list[tuple[int, str, int]] = [(-1, "", 0)]   # (previous run, step, count); 0 = empty
     run_ids: dict[tuple[int, str, int], int] = {}
     node_run = np.zeros(n, dtype=np.int64)
-    lumped_run = _intern(runs, run_ids, (0, OTHER_PATHS, 1))
+    lumped_run = _intern(runs, run_ids, (0, OTHER_ROUTES, 1))
 
     for i in range(n):
         p = int(parent[i])

@@ -13,7 +13,7 @@ import raytrace
 from raytrace import shapes
 from raytrace.geometry import Loop, Part, ShapeSpec
 from raytrace.materials import ConstantIndex
-from raytrace.paths import path_groups, paths_text, top_paths
+from raytrace.routes import route_groups, routes_text, top_routes
 from raytrace.scene import Detector, Scene, Source, TraceSettings
 from raytrace.scene_io import load_scene
 from raytrace.sources import StartRays
@@ -31,11 +31,11 @@ def plate_scene(angle_deg, polarization):
     dets = [Detector("through", (20.0, -200.0), (20.0, 200.0)),
             Detector("back", (-10.0, 200.0), (-10.0, -200.0))]
     return Scene(parts=[Part("plate", "glass", shapes.build(spec), shape=spec)], sources=[src], detectors=dets,
-                 materials=mats, ambient="outside", settings=TraceSettings(rays=10, min_relative_flux=1e-12))
+                 materials=mats, ambient="outside", settings=TraceSettings(rays=10, flux_floor=1e-12))
 
 
 # cases where the first ghost carries more than 1e-3 of its source ray: the tracer may lump
-# fainter paths into "other paths" to keep the path table small
+# fainter paths into "other routes" to keep the path table small
 @pytest.mark.parametrize("pol, angle", [("s", 0.0), ("p", 0.0), ("s", 35.0), ("s", 70.0), ("p", 70.0),
                                         ("s", 80.0), ("p", 80.0)])
 def test_window_direct_and_ghost_paths_match_fresnel(pol, angle):
@@ -45,13 +45,13 @@ def test_window_direct_and_ghost_paths_match_fresnel(pol, angle):
     faces are parallel, so R is the same at both, common practice)."""
     r = raytrace.trace(plate_scene(angle, pol))
     R = tmm.coh_tmm(pol, [1.0, N_GLASS], [np.inf, np.inf], math.radians(angle), 633.0)["R"]
-    to_through = top_paths(r, 3, bucket="through")
+    to_through = top_routes(r, 3, bucket="through")
     assert to_through[0].text == "enter through plate / front, leave through plate / back"
     assert to_through[0].share_of_source == pytest.approx((1 - R) ** 2, rel=1e-12)
     assert to_through[1].text == ("enter through plate / front, reflect off plate / back, "
                                   "reflect off plate / front, leave through plate / back")
     assert to_through[1].share_of_source == pytest.approx((1 - R) ** 2 * R ** 2, rel=1e-9)
-    back = top_paths(r, 2, bucket="back")
+    back = top_routes(r, 2, bucket="back")
     assert back[0].text == "reflect off plate / front"
     assert back[0].share_of_source == pytest.approx(R, rel=1e-12)
     assert back[1].text == "enter through plate / front, reflect off plate / back, leave through plate / front"
@@ -63,7 +63,7 @@ def test_group_flux_adds_up_to_each_ledger_bucket():
     r = raytrace.trace(scene, rays=300)
     sums = defaultdict(float)
     shares = defaultdict(float)
-    for g in path_groups(r):
+    for g in route_groups(r):
         sums[g.bucket] += g.flux
         shares[g.bucket] += g.share_of_bucket
     for b in r.ledger.buckets:
@@ -87,7 +87,7 @@ def test_repeats_on_one_face_are_collapsed_and_counted():
     start = StartRays(np.zeros(1), np.zeros(1), np.array([math.cos(a)]), np.array([math.sin(a)]),
                       np.array([550.0]), np.array([0.5]), np.array([0.5]), np.zeros(1, dtype=np.int64))
     r = raytrace.trace(scene, start=start)
-    (g,) = top_paths(r, 5, bucket="end")
+    (g,) = top_routes(r, 5, bucket="end")
     assert g.steps == ("9 x TIR at guide / wall",)
     assert g.share_of_source == pytest.approx(1.0, rel=1e-12)
 
@@ -95,50 +95,50 @@ def test_repeats_on_one_face_are_collapsed_and_counted():
 def test_cemented_faces_and_monitors_are_named():
     scene = load_scene(SAMPLES / "cemented-prism-pair.json")
     r = raytrace.trace(scene, rays=30)
-    texts = [g.text for g in path_groups(r)]
+    texts = [g.text for g in route_groups(r)]
     assert any(" into flint prism" in t and "cross " in t for t in texts)
     # a monitoring detector shows up as a step
     mats = {"outside": ConstantIndex("outside", n=1.0)}
     s2 = Scene(sources=[Source("b", kind="beam")], materials=mats, ambient="outside",
                detectors=[Detector("monitor", (5.0, -2.0), (5.0, 2.0), absorbing=False),
                           Detector("sensor", (9.0, -2.0), (9.0, 2.0))])
-    (g,) = top_paths(raytrace.trace(s2, rays=5), 3, bucket="sensor")
+    (g,) = top_routes(raytrace.trace(s2, rays=5), 3, bucket="sensor")
     assert g.steps == ("pass detector monitor",)
 
 
-def test_paths_text_lists_detectors_and_losses():
+def test_routes_text_lists_detectors_and_losses():
     scene = load_scene(SAMPLES / "light-pipe-90.json")
     r = raytrace.trace(scene, rays=200)
-    text = paths_text(r, 3)
-    assert "Top paths to detector viewer side:" in text
-    assert "Top loss paths:" in text
+    text = routes_text(r, 3)
+    assert "Top routes to detector viewer side:" in text
+    assert "Top loss routes:" in text
     assert "enter through guide / input" in text
     lines = [ln for ln in text.splitlines() if ln.startswith("  ")]
     assert len(lines) == 6
     # the loss list is sorted by flux
-    loss = top_paths(r, 3, kind=("escaped", "absorbed", "truncated"))
+    loss = top_routes(r, 3, kind=("escaped", "absorbed", "truncated"))
     assert [g.flux for g in loss] == sorted((g.flux for g in loss), reverse=True)
 
 
 def test_no_paths_when_not_tracked():
     scene = load_scene(SAMPLES / "oblique-window.json")
     r = raytrace.trace(scene, rays=10, track_paths=False)
-    assert path_groups(r) == []
-    assert "not tracked" in paths_text(r)
+    assert route_groups(r) == []
+    assert "not tracked" in routes_text(r)
 
 
 def test_faint_ghosts_are_followed_when_the_path_threshold_is_lowered():
     """reference library: tmm.coh_tmm for R.  At normal incidence on n = 1.5 the ghost into
     'through' carries (1 - R)^2 R^2 = 1.5e-3 and the next one (1 - R)^2 R^4 = 2.4e-6 of the
     beam: below the default path threshold (1e-3 of a ray) the second is lumped into "other
-    paths", with path_min_relative_flux=1e-8 it is a path of its own with that share."""
+    paths", with route_flux_floor=1e-8 it is a path of its own with that share."""
     R = tmm.coh_tmm("s", [1.0, N_GLASS], [np.inf, np.inf], 0.0, 633.0)["R"]
     ghost2 = ("enter through plate / front, reflect off plate / back, reflect off plate / front, "
               "reflect off plate / back, reflect off plate / front, leave through plate / back")
     default = raytrace.trace(plate_scene(0.0, "s"))
-    assert ghost2 not in [g.text for g in top_paths(default, 10, bucket="through")]
-    deep = raytrace.trace(plate_scene(0.0, "s"), path_min_relative_flux=1e-8)
-    found = {g.text: g for g in top_paths(deep, 10, bucket="through")}
+    assert ghost2 not in [g.text for g in top_routes(default, 10, bucket="through")]
+    deep = raytrace.trace(plate_scene(0.0, "s"), route_flux_floor=1e-8)
+    found = {g.text: g for g in top_routes(deep, 10, bucket="through")}
     assert found[ghost2].share_of_source == pytest.approx((1 - R) ** 2 * R ** 4, rel=1e-9)
 
 
@@ -154,25 +154,25 @@ def _two_source_window():
 def test_the_lumped_paths_read_once_and_plainly():
     """Ghosts past the first are under the default 1e-3 path threshold (R^2 (1 - R)^2 R^2 ~ 2e-6
     for n = 1.5 at normal incidence, published: Fresnel normal-incidence R = ((n-1)/(n+1))^2),
-    so the 'through' detector has an "other paths" row: it names no source and says
-    "other paths" once."""
+    so the 'through' detector has an "other routes" row: it names no source and says
+    "other routes" once."""
     r = raytrace.trace(_two_source_window())
-    lumped = [g for g in path_groups(r) if g.lumped]
-    assert lumped, "expected faint ghosts lumped into other paths"
-    text = paths_text(r, 10)
-    rows = [line for line in text.splitlines() if "other paths" in line]
+    lumped = [g for g in route_groups(r) if g.lumped]
+    assert lumped, "expected faint ghosts lumped into other routes"
+    text = routes_text(r, 10)
+    rows = [line for line in text.splitlines() if "other routes" in line]
     assert rows
     for line in rows:
-        assert line.count("other paths") == 1, line
-        assert "(" + "other paths" not in line and "probe:" not in line, line
-        assert line.strip().split("  ", 1)[1].lstrip().startswith("other paths: too faint"), line
+        assert line.count("other routes") == 1, line
+        assert "(" + "other routes" not in line and "probe:" not in line, line
+        assert line.strip().split("  ", 1)[1].lstrip().startswith("other routes: too faint"), line
 
 
 def test_zero_paths_lists_none():
     r = raytrace.trace(plate_scene(0.0, "s"))
-    text = paths_text(r, 0)
+    text = routes_text(r, 0)
     assert text == "Paths: none listed (0 asked for)"
     with pytest.raises(ValueError):
-        paths_text(r, -1)
+        routes_text(r, -1)
     # n = 1: two detector headings with one row each, then the loss heading with one row
-    assert len(paths_text(r, 1).splitlines()) == 2 * 2 + 2
+    assert len(routes_text(r, 1).splitlines()) == 2 * 2 + 2
