@@ -11,7 +11,8 @@ mapping gives for the layer, or the layer's own name.  Annotation (TEXT, MTEXT, 
 LEADER, MULTILEADER, POINT, HATCH) is skipped; anything else is an error naming the entity.
 
 Lengths are scaled to mm from the units the file states in $INSUNITS; a file that states none
-needs `units`.  Entities must lie in the drawing's XY plane (extrusion +Z, or -Z, which mirrors x).
+needs `units`.  Entities must lie in the drawing's XY plane: arcs, circles and polylines with
+extrusion +Z, or -Z (their own coordinates then have x mirrored); lines are in world coordinates.
 
 Export
 ------
@@ -158,7 +159,7 @@ def _pieces(e, scale: float, problems: Problems) -> list[Piece]:
                      "LINE, ARC, CIRCLE, LWPOLYLINE or POLYLINE (convert it to these in the CAD program, "
                      "e.g. explode it or turn splines into arcs)")
         return []
-    ez = tuple(e.dxf.get("extrusion", (0.0, 0.0, 1.0)))
+    ez = tuple(e.dxf.get("extrusion", (0.0, 0.0, 1.0))) if kind != "LINE" else (0.0, 0.0, 1.0)
     if abs(ez[0]) > 1e-12 or abs(ez[1]) > 1e-12:
         problems.add(where, f"<an entity in a plane tilted out of the drawing (extrusion {ez})>",
                      "entities in the XY plane (extrusion 0,0,1)")
@@ -171,9 +172,9 @@ def _pieces(e, scale: float, problems: Problems) -> list[Piece]:
 
     def piece(edge):
         return Piece(edge, layer, where, meta)
-    if kind == "LINE":
+    if kind == "LINE":           # world coordinates: its extrusion only gives a thickness direction
         a, b = e.dxf.start, e.dxf.end
-        return [piece(Edge(pt(a[0], a[1]), pt(b[0], b[1])))]
+        return [piece(Edge((a[0] * scale, a[1] * scale), (b[0] * scale, b[1] * scale)))]
     if kind in ("ARC", "CIRCLE"):
         c, r = e.dxf.center, e.dxf.radius
         if not r > 0:
@@ -262,7 +263,9 @@ def _contours(pieces: list[Piece], tol: float, problems: Problems) -> list[tuple
     for first in range(len(pieces)):
         if used[first]:
             continue
-        edges, members, cur, forward = [], [], first, True
+        # a clockwise edge was written as a (counter-clockwise) ARC: walk it backwards so the
+        # loop keeps the direction it had when exported
+        edges, members, cur, forward = [], [], first, not pieces[first].meta.get("reversed", False)
         while not used[cur]:
             used[cur] = True
             members.append(pieces[cur])
@@ -354,6 +357,8 @@ def export_dxf(scene, path: str | os.PathLike) -> list[str]:
                 else:
                     ent = msp.add_line(e.start, e.end, dxfattribs=attribs)
                 meta = {"part": part.name}
+                if e.is_arc and not e.ccw:
+                    meta["reversed"] = True
                 if e.face:
                     meta["face"] = e.face
                 if e.treatment != Treatment():

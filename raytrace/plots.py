@@ -37,9 +37,9 @@ def _save(fig, path: str) -> None:
     atomic_write(path, lambda tmp: fig.savefig(tmp, format=fmt, dpi=130, bbox_inches="tight"))
 
 
-def sweep_plot(result, path: str, title: str = "") -> None:
+def sweep_plot(result, path: str, title: str = ""):
     """Efficiency of every detector against the varied number (one line per value of a second
-    varied number), with error bars where the table has standard errors."""
+    varied number), with error bars where the table has standard errors; returns the figure."""
     fig = _figure(figsize=(7, 4.2))
     ax = fig.add_subplot()
     x_name = result.names[0]
@@ -67,9 +67,10 @@ def sweep_plot(result, path: str, title: str = "") -> None:
     if result.detectors:
         ax.legend(fontsize=8)
     _save(fig, path)
+    return fig
 
 
-def trace_plot(scene, result, path: str, title: str = "") -> None:
+def trace_plot(scene, result, path: str, title: str = ""):
     """Left: parts, sources, detectors and the recorded ray segments (fading with flux, TIR and
     escaping legs in their own colours).  Right: each detector's irradiance and angular profile."""
     from .detectors import detector_reports
@@ -94,6 +95,7 @@ def trace_plot(scene, result, path: str, title: str = "") -> None:
             a.tick_params(labelsize=7)
             a.grid(alpha=0.3)
     _save(fig, path)
+    return fig
 
 
 def _draw_scene(ax, scene, result) -> None:
