@@ -198,7 +198,8 @@ class MainWindow(QMainWindow):
         r = mb.addMenu("T&race")
         self._act(r, "Trace &now", lambda: self.request_trace(force=True), "F5")
         self._act(r, "&Stop trace", self.stop_trace, "Shift+F5")
-        self._act(r, "S&weep...", self.open_sweep, "F6", "Vary one number and plot the efficiencies")
+        self._act(r, "S&weep...", self.open_sweep, "F6",
+                  "Vary one number and plot the efficiencies; optimize or tolerance numbers")
 
         h = mb.addMenu("&Help")
         self._act(h, "&Safety cautions", lambda: self.show_info("Safety cautions", help_text.SAFETY))

@@ -57,6 +57,7 @@ class OptimizeResult:
     converged: bool = False
     message: str = ""
     iterations: int = 0
+    bounds: list[tuple[float, float]] = field(default_factory=list)
 
     @property
     def start_value(self) -> tuple[float, float]:
@@ -67,8 +68,14 @@ class OptimizeResult:
         f = self.figure
         goal = "maximize" if self.maximize else "minimize"
         lines = [f"{goal} {f.label}"]
-        for name, x0, x in zip(self.names, self.start, self.optimum):
-            lines.append(f"  {name}: {x:.6g}  (start {x0:.6g})")
+        for k, (name, x0, x) in enumerate(zip(self.names, self.start, self.optimum)):
+            edge = ""
+            if k < len(self.bounds):
+                lo, hi = self.bounds[k]
+                if abs(x - lo) <= 1e-9 * (hi - lo) or abs(x - hi) <= 1e-9 * (hi - lo):
+                    which = "lower" if abs(x - lo) <= abs(x - hi) else "upper"
+                    edge = f"; on the {which} bound: the best design may lie beyond it"
+            lines.append(f"  {name}: {x:.6g}  (start {x0:.6g}{edge})")
         v0, se0 = self.start_value
         lines.append(f"  figure at the optimum: {f.format(self.value, self.se)}  (start {f.format(v0, se0)})")
         gain = self.value - v0
@@ -83,18 +90,22 @@ class OptimizeResult:
                      f"{stages['refine']} refining)" + (f", {failed} could not be traced" if failed else ""))
         lines.append(f"  convergence: {'converged' if self.converged else 'NOT converged'}: {self.message} "
                      f"({self.iterations} iterations)")
+        scanned = [e.value for e in self.evaluations if e.stage != "refine" and math.isfinite(e.value)]
         refine = [e for e in self.evaluations if e.stage == "refine" and math.isfinite(e.value)]
-        if refine:
-            best, trail = -math.inf if self.maximize else math.inf, []
+        if scanned and refine:
+            best = max(scanned) if self.maximize else min(scanned)
+            trail = [f.format(best)]
             for e in refine:
                 if (e.value > best) if self.maximize else (e.value < best):
                     best = e.value
                     trail.append(f.format(best))
-            lines.append("  best figure as the refinement went: " + " -> ".join(trail[-6:]))
+            lines.append("  best figure, from the scan on: " + " -> ".join(trail[:1] + trail[1:][-5:])
+                         if len(trail) > 1 else "  the refinement found nothing better than the scan's best point")
         return "\n".join(lines)
 
     def to_dict(self) -> dict:
         return {"figure": self.figure.label, "maximize": self.maximize, "names": self.names,
+                "bounds": [list(b) for b in self.bounds],
                 "start": list(self.start), "optimum": list(self.optimum), "value": self.value, "se": self.se,
                 "converged": self.converged, "message": self.message, "iterations": self.iterations,
                 "evaluations": [{"stage": e.stage, "values": list(e.values), "value": e.value, "se": e.se,
@@ -227,7 +238,7 @@ def optimize(scene, bounds: list[Bound], figure: str | Figure, maximize: bool = 
             message = f"stopped at the budget of {max_evaluations} evaluations"
     best = min(evaluations, key=objective_of)
     return OptimizeResult([b.name for b in bounds], fig, maximize, tuple(start), best.values, best.value,
-                          best.se, evaluations, converged, message, iterations)
+                          best.se, evaluations, converged, message, iterations, [(b.low, b.high) for b in bounds])
 
 
 def _seq(u):
