@@ -128,63 +128,61 @@ def _usage_errors(exc) -> int:
     return EXIT_USAGE
 
 
-def cmd_optimize(args) -> int:
-    from .cli import EXIT_OK, EXIT_OUTPUT, print_notes, trace_kwargs, write_output
-    from .optimize import optimize, parse_bound
+def _design_command(args, run, history_csv, failed=lambda result: False) -> int:
+    """Load the scene, run(scene, executor, workers, progress), print the report and write the
+    --csv and --json files: what optimize and tolerance share."""
+    from .cli import EXIT_OK, EXIT_OUTPUT, EXIT_SWEEP_POINTS, print_notes, write_output
     from .scene_io import load_scene
     from .sweep import SweepError
     scene = load_scene(args.scene)
     print_notes(scene)
     try:
-        bounds = [parse_bound(v) for v in args.vary]
-        code, result = _run_parallel(args, lambda ex, workers, progress: optimize(
-            scene, bounds, args.figure, maximize=not args.minimize, options=trace_kwargs(args), executor=ex,
-            workers=workers, scan=args.scan, xtol=args.xtol, max_evaluations=args.max_evaluations,
-            progress=progress, file=args.scene))
+        code, result = _run_parallel(args, lambda ex, workers, progress: run(scene, ex, workers, progress))
     except SweepError as exc:
         return _usage_errors(exc)
     if result is None:
         return code
     if not args.quiet:
         print(result.text())
-    if args.csv and not write_output(args.csv, result.history_csv()):
+    if args.csv and not write_output(args.csv, history_csv(result)):
         return EXIT_OUTPUT
     if args.json and not write_output(args.json, json.dumps(result.to_dict(), indent=2) + "\n"):
         return EXIT_OUTPUT
-    return EXIT_OK
+    return EXIT_SWEEP_POINTS if failed(result) else EXIT_OK
+
+
+def cmd_optimize(args) -> int:
+    from .cli import trace_kwargs
+    from .optimize import optimize, parse_bound
+    from .sweep import SweepError
+    try:
+        bounds = [parse_bound(v) for v in args.vary]
+    except SweepError as exc:
+        return _usage_errors(exc)
+    return _design_command(args, lambda scene, ex, workers, progress: optimize(
+        scene, bounds, args.figure, maximize=not args.minimize, options=trace_kwargs(args), executor=ex,
+        workers=workers, scan=args.scan, xtol=args.xtol, max_evaluations=args.max_evaluations,
+        progress=progress, file=args.scene), lambda result: result.history_csv())
 
 
 def cmd_tolerance(args) -> int:
-    from .cli import EXIT_OK, EXIT_OUTPUT, EXIT_SWEEP_POINTS, print_notes, trace_kwargs, write_output
-    from .scene_io import load_scene
+    from .cli import trace_kwargs
     from .sweep import SweepError
     from .tolerance import parse_tolerance, tolerance
-    scene = load_scene(args.scene)
-    print_notes(scene)
     try:
         tols = [parse_tolerance(v) for v in args.tol]
-        code, result = _run_parallel(args, lambda ex, workers, progress: tolerance(
-            scene, tols, args.figure, samples=args.samples, distribution=args.distribution,
-            sample_seed=args.sample_seed, options=trace_kwargs(args), executor=ex, workers=workers,
-            progress=progress, file=args.scene))
     except SweepError as exc:
         return _usage_errors(exc)
-    if result is None:
-        return code
-    if not args.quiet:
-        print(result.text())
-    if args.csv and not write_output(args.csv, result.samples_csv()):
-        return EXIT_OUTPUT
-    if args.json and not write_output(args.json, json.dumps(result.to_dict(), indent=2) + "\n"):
-        return EXIT_OUTPUT
-    return EXIT_SWEEP_POINTS if result.failed else EXIT_OK
+    return _design_command(args, lambda scene, ex, workers, progress: tolerance(
+        scene, tols, args.figure, samples=args.samples, distribution=args.distribution,
+        sample_seed=args.sample_seed, options=trace_kwargs(args), executor=ex, workers=workers,
+        progress=progress, file=args.scene), lambda result: result.samples_csv(), lambda result: bool(result.failed))
 
 
 def cmd_import_dxf(args) -> int:
     from .cli import EXIT_OK, EXIT_OUTPUT, EXIT_USAGE
     from .dxf_io import import_dxf, layer_materials
     from .scene_io import load_scene, save_scene
-    from .errors import SceneError
     try:
         mapping = layer_materials(args.layer_material, args.materials_file)
     except ValueError as exc:
@@ -197,8 +195,6 @@ def cmd_import_dxf(args) -> int:
     except OSError as exc:
         print(f"error: could not write {args.output}: {exc.strerror or exc}", file=sys.stderr)
         return EXIT_OUTPUT
-    except SceneError:
-        raise
     print(f"{args.output}: {len(scene.parts)} parts from {args.dxf} "
           f"({', '.join(sorted({p.material for p in scene.parts}))})")
     return EXIT_OK

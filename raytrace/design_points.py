@@ -10,14 +10,13 @@ from __future__ import annotations
 
 import json
 import math
-import os
+from concurrent.futures import Executor
 from dataclasses import replace
-from concurrent.futures import Executor, ProcessPoolExecutor, as_completed
 from typing import Any, Callable
 
 from .errors import Problems, RaytraceError, SceneError
 from .merit import Figure, measure
-from .sweep import TRACE_OPTIONS, SweepError, Target, _get, apply_settings, resolve
+from .sweep import TRACE_OPTIONS, SweepError, Target, _get, apply_settings, resolve, run_tasks
 
 
 def scene_data(scene) -> dict:
@@ -88,33 +87,9 @@ def evaluate_point(data: dict, settings: list[tuple[tuple, Any]], options: dict,
 def run_points(data: dict, points: list[list[tuple[tuple, Any]]], options: dict, figures: list[Figure],
                executor: Executor | None = None, workers: int | None = None,
                progress: Callable[[int, int], None] | None = None) -> list[dict]:
-    """evaluate_point at every point, in point order.  Without an executor the points run on a
-    local pool of `workers` processes (default: the CPU count), or here when workers == 1."""
-    tasks = [(data, settings, options, figures) for settings in points]
-    results: list[dict | None] = [None] * len(tasks)
-    done = 0
-    if not tasks:
-        return []
-    if executor is None and (workers == 1 or len(tasks) == 1):
-        for i, task in enumerate(tasks):
-            results[i] = evaluate_point(*task)
-            done += 1
-            if progress:
-                progress(done, len(tasks))
-        return results  # type: ignore[return-value]
-    own = executor is None
-    ex = executor or ProcessPoolExecutor(max_workers=min(workers or os.cpu_count() or 1, len(tasks)))
-    try:
-        futures = {ex.submit(evaluate_point, *task): i for i, task in enumerate(tasks)}
-        for fut in as_completed(futures):
-            results[futures[fut]] = fut.result()
-            done += 1
-            if progress:
-                progress(done, len(tasks))
-    finally:
-        if own:
-            ex.shutdown(wait=True, cancel_futures=True)
-    return results  # type: ignore[return-value]
+    """evaluate_point at every point, in point order (see sweep.run_tasks for where they run)."""
+    return run_tasks(evaluate_point, [(data, settings, options, figures) for settings in points],
+                     executor, workers, progress)
 
 
 def figure_of(point: dict, figure: Figure) -> tuple[float, float]:

@@ -327,28 +327,37 @@ def sweep(scene, variables: list[Variable], trace_options: dict | None = None,
     options = {k: v for k, v in (trace_options or {}).items() if k in TRACE_OPTIONS and v is not None}
     tasks = [(data, [(t.paths, val) for t, val in zip(targets, vals)], options) for vals in points]
 
-    results: list[dict | None] = [None] * len(tasks)
+    results = run_tasks(run_point, tasks, executor, workers, progress)
+    return _table(variables, points, results, [d.get("name", "") for d in data.get("detectors", [])])
+
+
+def run_tasks(fn: Callable, tasks: list[tuple], executor: Executor | None = None, workers: int | None = None,
+              progress: Callable[[int, int], None] | None = None) -> list:
+    """fn(*task) for every task, results in task order whatever order they finish in: on
+    `executor`, else on a local pool of `workers` processes (default: the CPU count), or in this
+    process when workers == 1 or there is one task.  progress(done, total) as tasks finish."""
+    results: list = [None] * len(tasks)
     done = 0
-    if executor is None and (workers == 1 or len(tasks) == 1):
+    if executor is None and (workers == 1 or len(tasks) <= 1):
         for i, task in enumerate(tasks):
-            results[i] = run_point(*task)
+            results[i] = fn(*task)
             done += 1
             if progress:
                 progress(done, len(tasks))
-    else:
-        own = executor is None
-        ex = executor or ProcessPoolExecutor(max_workers=min(workers or os.cpu_count() or 1, len(tasks)))
-        try:
-            futures = {ex.submit(run_point, *task): i for i, task in enumerate(tasks)}
-            for fut in as_completed(futures):
-                results[futures[fut]] = fut.result()
-                done += 1
-                if progress:
-                    progress(done, len(tasks))
-        finally:
-            if own:
-                ex.shutdown(wait=True, cancel_futures=True)
-    return _table(variables, points, results, [d.get("name", "") for d in data.get("detectors", [])])
+        return results
+    own = executor is None
+    ex = executor or ProcessPoolExecutor(max_workers=min(workers or os.cpu_count() or 1, len(tasks)))
+    try:
+        futures = {ex.submit(fn, *task): i for i, task in enumerate(tasks)}
+        for fut in as_completed(futures):
+            results[futures[fut]] = fut.result()
+            done += 1
+            if progress:
+                progress(done, len(tasks))
+    finally:
+        if own:
+            ex.shutdown(wait=True, cancel_futures=True)
+    return results
 
 
 def _problem(path, found, expected):

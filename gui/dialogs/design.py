@@ -7,48 +7,14 @@ the trace in progress.
 """
 from __future__ import annotations
 
-import threading
-
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QObject, Signal
 from PySide6.QtWidgets import (QComboBox, QFormLayout, QHBoxLayout, QPlainTextEdit,
                                QProgressBar, QPushButton, QSpinBox, QVBoxLayout, QWidget)
 
-from raytrace.errors import RaytraceError, SceneError
-
 from .. import style
+from .background import BackgroundRun
 from .sweep import _spin
-
-
-class Cancelled(Exception):
-    pass
-
-
-class _Runner(QObject):
-    progress = Signal(int, int)
-    done = Signal(object, str)     # result or None, message
-
-    def __init__(self):
-        super().__init__()
-        self.cancel = threading.Event()
-
-    def tick(self, done, total):
-        self.progress.emit(done, total)
-        if self.cancel.is_set():
-            raise Cancelled()
-
-    def run(self, job):
-        try:
-            result = job(self.tick)
-        except Cancelled:
-            self.done.emit(None, "cancelled")
-        except SceneError as exc:
-            self.done.emit(None, "; ".join(str(p) for p in exc.problems))
-        except RaytraceError as exc:
-            self.done.emit(None, str(exc))
-        else:
-            self.done.emit(result, "")
 
 
 def figure_names(scene) -> list[str]:
@@ -112,14 +78,13 @@ class _DesignPanel(QWidget):
         if self._thread is not None:
             return
         job = self.job()
-        self._runner = _Runner()
+        self._runner = BackgroundRun()
         self._runner.progress.connect(lambda done, total: (self.bar.setRange(0, total), self.bar.setValue(done)))
         self._runner.done.connect(self._done)
         self.report.setPlainText("running...")
         self.run_btn.setEnabled(False)
         self.cancel_btn.setEnabled(True)
-        self._thread = threading.Thread(target=self._runner.run, args=(job,), name="design", daemon=True)
-        self._thread.start()
+        self._thread = self._runner.start(job, "design")
 
     def cancel(self):
         if self._runner is not None:

@@ -7,24 +7,18 @@ finished first, the rest are skipped).
 """
 from __future__ import annotations
 
-import threading
-
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QObject, Qt, Signal
+from PySide6.QtCore import Qt
 from PySide6.QtWidgets import (QComboBox, QDialog, QDoubleSpinBox, QFileDialog, QFormLayout,
                                QHBoxLayout, QLabel, QProgressBar, QPushButton, QSpinBox,
                                QTabWidget, QVBoxLayout, QWidget)
 
-from raytrace.errors import RaytraceError, SceneError
 from raytrace.shapes import PARAMETERS
 from raytrace.sweep import Variable, sweep
 
 from .. import style
-
-
-class SweepCancelled(Exception):
-    pass
+from .background import BackgroundRun
 
 
 def sweep_names(scene) -> list[str]:
@@ -67,31 +61,6 @@ def current_value(scene, name: str) -> float | None:
     if name == "wavelength" and scene.sources:
         return float(scene.sources[0].spectrum.mean_nm)
     return None
-
-
-class _Runner(QObject):
-    progress = Signal(int, int)
-    done = Signal(object, str)     # SweepResult or None, message
-
-    def __init__(self):
-        super().__init__()
-        self.cancel = threading.Event()
-
-    def run(self, scene, variable, options):
-        def progress(done, total):
-            self.progress.emit(done, total)
-            if self.cancel.is_set():
-                raise SweepCancelled()
-        try:
-            result = sweep(scene, [variable], options, workers=1, progress=progress)
-        except SweepCancelled:
-            self.done.emit(None, "cancelled")
-        except SceneError as exc:
-            self.done.emit(None, "; ".join(str(p) for p in exc.problems))
-        except RaytraceError as exc:
-            self.done.emit(None, str(exc))
-        else:
-            self.done.emit(result, "")
 
 
 class SweepDialog(QDialog):
@@ -193,7 +162,7 @@ class SweepDialog(QDialog):
         values = tuple(a + (b - a) * k / (n - 1) for k in range(n)) if n > 1 else (a,)
         variable = Variable(self.name.currentText().strip(), values)
         options = dict(self.options, rays=self.rays.value())
-        self._runner = _Runner()
+        self._runner = BackgroundRun()
         self._runner.progress.connect(self._progress)
         self._runner.done.connect(self._done)
         self.bar.setRange(0, n)
@@ -201,9 +170,9 @@ class SweepDialog(QDialog):
         self.status.setText("running...")
         self.run_btn.setEnabled(False)
         self.cancel_btn.setEnabled(True)
-        self._thread = threading.Thread(target=self._runner.run, args=(self.scene, variable, options),
-                                        name="sweep", daemon=True)
-        self._thread.start()
+        scene = self.scene
+        self._thread = self._runner.start(
+            lambda progress: sweep(scene, [variable], options, workers=1, progress=progress), "sweep")
 
     def cancel(self):
         if self._runner is not None:
