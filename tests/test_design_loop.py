@@ -191,3 +191,28 @@ def test_roof_angle_error_splits_the_return_into_two_beams():
     flux = np.bincount(where, weights=hits.flux)
     two = sorted(angles[np.argsort(-flux)[:2]])
     assert two == pytest.approx(expected, abs=1e-5)
+
+
+def test_dask_cluster_gives_the_same_tolerance_and_optimum(tmp_path, capsys):
+    """Tolerance samples and the optimizer's scan on a two-worker Dask LocalCluster (processes)
+    equal the run in this process, sample for sample; the command line reaches it by --dask."""
+    distributed = pytest.importorskip("distributed")
+    data = p_window()
+    tols = [Tolerance("probe beam.direction_deg", 2.0, 2.0)]
+    here = tolerance(data, tols, ["inside chamber"], samples=8, options={"rays": 4}, workers=1)
+    best_here = optimize(data, [Bound("probe beam.direction_deg", 40.0, 70.0)], "inside chamber",
+                         options={"rays": 4}, workers=1, max_evaluations=20)
+    scene = tmp_path / "p.json"
+    scene.write_text(json.dumps(data))
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                  dashboard_address=None) as cluster, distributed.Client(cluster) as client:
+        there = tolerance(data, tols, ["inside chamber"], samples=8, options={"rays": 4},
+                          executor=client.get_executor())
+        best_there = optimize(data, [Bound("probe beam.direction_deg", 40.0, 70.0)], "inside chamber",
+                              options={"rays": 4}, executor=client.get_executor(), max_evaluations=20)
+        code = cli.main(["optimize", str(scene), "--vary", "probe beam.direction_deg=40:70", "--figure",
+                         "inside chamber", "--rays", "4", "--max-evaluations", "20", "--dask",
+                         cluster.scheduler_address, "--quiet", "--json", str(tmp_path / "o.json")])
+    assert np.array_equal(there.spreads[0].values, here.spreads[0].values)
+    assert best_there.optimum == best_here.optimum and best_there.value == best_here.value
+    assert code == 0 and json.loads((tmp_path / "o.json").read_text())["optimum"] == list(best_here.optimum)
