@@ -13,7 +13,9 @@ FORMATS = (".png", ".svg")
 # Where a sweep row keeps the standard error of a column (once figures carry them): a column
 # named like this beside it.  The one place to change if the table names them otherwise.
 SE_COLUMN = "{} se"
-RAY_COLOURS = {"ray": "#1f77b4", "tir": "#d95f02", "escaping": "#7f7f7f"}
+# the app's colours (gui/style.py), so a report's plot reads like the screen
+RAY_COLOURS = {"ray": "#de7600", "tir": "#146ee6", "escaping": "#d6285a"}
+DETECTOR_COLOUR = "#008078"
 
 
 def check_plot_path(path: str) -> str | None:
@@ -129,14 +131,15 @@ def _draw_scene(ax, scene, result) -> None:
                               np.column_stack([seg["x1"][sel], seg["y1"][sel]])], axis=1)
             rgba = np.zeros((int(sel.sum()), 4))
             rgba[:, :3] = _rgb(RAY_COLOURS[name])
-            rgba[:, 3] = alpha[sel]
-            ax.add_collection(LineCollection(lines, colors=rgba, linewidths=0.5,
-                                             label={"ray": "rays", "tir": "after TIR", "escaping": "escaping"}[name]))
+            # thousands of overlapping legs would paint a solid block: thin them out by their count
+            rgba[:, 3] = alpha[sel] * float(np.clip(3000.0 / sel.sum(), 0.1, 1.0))
+            ax.add_collection(LineCollection(lines, colors=rgba, linewidths=0.5))
     for det in scene.detectors:
-        ax.plot([det.start[0], det.end[0]], [det.start[1], det.end[1]], color="#2ca02c", lw=3, solid_capstyle="butt")
-        ax.annotate(det.name, det.end, fontsize=7, color="#1d6b1d", xytext=(3, 3), textcoords="offset points")
+        ax.plot([det.start[0], det.end[0]], [det.start[1], det.end[1]], color=DETECTOR_COLOUR, lw=3,
+                solid_capstyle="butt")
+        ax.annotate(det.name, det.end, fontsize=7, color=DETECTOR_COLOUR, xytext=(3, 3), textcoords="offset points")
     for src in scene.sources:
-        ax.plot(*src.position, marker="*", ms=10, color="#e6a100", mec="#7a5600")
+        ax.plot(*src.position, marker="*", ms=10, color="#ffc400", mec="#785000")
         ax.annotate(src.name, src.position, fontsize=7, xytext=(4, -10), textcoords="offset points")
     ax.set_aspect("equal")
     # frame the scene itself: escaping rays run on to the edge of the frame
@@ -146,7 +149,9 @@ def _draw_scene(ax, scene, result) -> None:
     ax.set_xlabel("x (mm)")
     ax.set_ylabel("y (mm)")
     if seg is not None and len(seg["x0"]):
-        ax.legend(fontsize=7, loc="best")
+        from matplotlib.lines import Line2D
+        ax.legend([Line2D([], [], color=RAY_COLOURS[k], lw=1.5) for k in ("ray", "tir", "escaping")],
+                  ["rays", "after TIR", "escaping"], fontsize=7, loc="best")
 
 
 def _extent(scene) -> tuple[float, float, float, float]:
