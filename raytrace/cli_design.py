@@ -180,7 +180,7 @@ def cmd_tolerance(args) -> int:
 
 
 def cmd_import_dxf(args) -> int:
-    from .cli import EXIT_OK, EXIT_OUTPUT, EXIT_USAGE
+    from .cli import EXIT_OK, EXIT_OUTPUT, EXIT_SCENE, EXIT_USAGE
     from .dxf_io import import_dxf, layer_materials
     from .scene_io import load_scene, save_scene
     try:
@@ -197,6 +197,15 @@ def cmd_import_dxf(args) -> int:
         return EXIT_OUTPUT
     print(f"{args.output}: {len(scene.parts)} parts from {args.dxf} "
           f"({', '.join(sorted({p.material for p in scene.parts}))})")
+    from .compile import compile_scene
+    from .errors import SceneError
+    try:
+        compile_scene(scene)          # overlapping parts and the like: say so now, not at the first trace
+    except SceneError as exc:
+        for p in exc.problems:
+            print(f"error: {args.output}: {p}", file=sys.stderr)
+        print(f"note: {args.output} was written; fix the drawing, or the parts in the scene file", file=sys.stderr)
+        return EXIT_SCENE
     return EXIT_OK
 
 

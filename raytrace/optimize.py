@@ -174,12 +174,14 @@ def optimize(scene, bounds: list[Bound], figure: str | Figure, maximize: bool = 
     scan = scan if scan is not None else (9 if n == 1 else 5 if n == 2 else 3)
     if scan < 2:
         raise SweepError([_problem("--scan", scan, "at least 2 points per number")])
+    if not (xtol > 0 and math.isfinite(xtol)):
+        raise SweepError([_problem("--xtol", xtol, "a number greater than 0, e.g. 1e-3")])
     lows = [b.low for b in bounds]
     spans = [b.high - b.low for b in bounds]
     axes = [[b.low + (b.high - b.low) * k / (scan - 1) for k in range(scan)] for b in bounds]
     for ax, b in zip(axes, bounds):
         ax[-1] = b.high
-    grid = [tuple(p) for p in itertools.product(*axes)]
+    grid = [tuple(p) for p in itertools.product(*axes) if tuple(p) != tuple(start)]   # the start is traced once
     if 1 + len(grid) > max_evaluations:
         raise SweepError([_problem("--max-evaluations", max_evaluations,
                                    f"more than the {1 + len(grid)} traces of the start and the scan")])

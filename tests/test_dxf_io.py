@@ -190,3 +190,15 @@ def test_cli_import_and_export_round_trip(tmp_path, capsys):
     assert cli.main(["import-dxf", str(PIPE_DXF), "-o", str(tmp_path / "x.json"), "--layer-material", "guide"]) == cli.EXIT_USAGE
     assert "LAYER=MATERIAL" in capsys.readouterr().err
     save_scene(loaded, tmp_path / "saved.json")
+
+
+def test_cli_import_of_overlapping_contours_writes_the_file_and_says_why(tmp_path, capsys):
+    def draw(msp):
+        msp.add_lwpolyline([(0, 0), (10, 0), (10, 10), (0, 10)], close=True, dxfattribs={"layer": "PMMA"})
+        msp.add_lwpolyline([(5, 5), (15, 5), (15, 15), (5, 15)], close=True, dxfattribs={"layer": "water"})
+    out = tmp_path / "o.json"
+    assert cli.main(["import-dxf", str(drawing(tmp_path, draw)), "-o", str(out)]) == cli.EXIT_SCENE
+    err = capsys.readouterr().err
+    assert "overlapping" in err and "25 mm^2" in err and "was written" in err
+    import json
+    assert len(json.loads(out.read_text())["parts"]) == 2
