@@ -216,3 +216,17 @@ def test_dask_cluster_gives_the_same_tolerance_and_optimum(tmp_path, capsys):
     assert np.array_equal(there.spreads[0].values, here.spreads[0].values)
     assert best_there.optimum == best_here.optimum and best_there.value == best_here.value
     assert code == 0 and json.loads((tmp_path / "o.json").read_text())["optimum"] == list(best_here.optimum)
+
+
+def test_readme_tolerance_example_reproduces(capsys):
+    """The README's roof-angle example, run as written there: its figures are these."""
+    readme = (ROOT / "README.md").read_text()
+    command = 'raytrace tolerance samples/roof-prism-retroreflector.json --tol "roof prism.roof_angle_deg=0.5" --figure return'
+    assert command in readme
+    assert cli.main(["tolerance", str(ROOF), "--tol", "roof prism.roof_angle_deg=0.5", "--figure", "return",
+                     "--workers", "2"]) == 0
+    out = capsys.readouterr().out
+    for line, figure in (("nominal", "100.000 %"), ("mean", "96.054 %"), ("standard deviation", "5.972 %"),
+                         ("worst case", "80.974 %")):
+        assert f"{line} {figure}" in out
+        assert figure in readme
