@@ -202,3 +202,23 @@ def test_cli_import_of_overlapping_contours_writes_the_file_and_says_why(tmp_pat
     assert "overlapping" in err and "25 mm^2" in err and "was written" in err
     import json
     assert len(json.loads(out.read_text())["parts"]) == 2
+
+
+def test_the_sample_drawing_is_what_its_script_draws(tmp_path):
+    import subprocess
+    import sys
+    out = tmp_path / "pipe.dxf"
+    subprocess.run([sys.executable, str(SAMPLES / "make-light-pipe-dxf.py"), str(out)], check=True)
+
+    def entities(path):
+        return [(e.dxftype(), e.dxf.layer, tuple(round(float(v), 12) for v in _numbers(e)))
+                for e in ezdxf.readfile(path).modelspace()]
+    assert entities(out) == entities(PIPE_DXF)
+
+
+def _numbers(e):
+    if e.dxftype() == "LINE":
+        return (*e.dxf.start, *e.dxf.end)
+    if e.dxftype() == "ARC":
+        return (*e.dxf.center, e.dxf.radius, e.dxf.start_angle, e.dxf.end_angle)
+    return tuple(v for p in e.get_points("xyb") for v in p) + (float(e.closed),)
