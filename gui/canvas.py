@@ -19,7 +19,9 @@ from PySide6.QtWidgets import (QGraphicsPathItem, QHBoxLayout, QLabel, QSizePoli
 from raytrace.scene import EMITTER, POINT, Scene
 
 from . import edits, style
+from .overlay import Overlay, pass_clicks
 from .raydraw import KINDS, LEVEL_ALPHA, LEVELS, RayDrawing, ray_drawing
+from .snap import snap_index
 from .spectral import faded_rgb, spectral_rgb
 from .tools import TOOLS, SELECT
 
@@ -93,6 +95,11 @@ class _View(pg.ViewBox):
                 return
         super().mouseDragEvent(ev, axis)
 
+    def keyPressEvent(self, ev):
+        # the view box takes focus on a click and would keep "-", "+" and Backspace for its own
+        # zoom history; the canvas handles keys (tools, typed points, nudges)
+        ev.ignore()
+
 
 class LegendBar(QWidget):
     """The legend sits under the drawing, never on it."""
@@ -162,6 +169,7 @@ class Canvas(QWidget):
     selection_changed = Signal(object)     # (kind, index) or None
     cursor_moved = Signal(float, float)
     status_message = Signal(str)
+    tool_changed = Signal(str)
 
     def __init__(self, doc, parent=None):
         super().__init__(parent)
@@ -172,6 +180,8 @@ class Canvas(QWidget):
         self.painted_segments = 0
         self.selection = None
         self.snapping = False
+        self.object_snapping = False       # to vertices, edge midpoints, arc centres and edges
+        self.cursor = None                 # the mouse in scene mm, once it has moved
         self.grid_step = 1.0
         self.default_material = "PMMA"
         self._preview = None
@@ -224,6 +234,12 @@ class Canvas(QWidget):
 
         self.tools = {name: cls(self) for name, cls in TOOLS.items()}
         self.tool = self.tools[SELECT]
+        self._previous_tool = SELECT
+        self.overlay = Overlay(self)
+        # dots, rings and handles are looked at, not clicked: a scatter item keeps a click on
+        # one of its symbols (a 60 px escape ring over a vertex) and the tool never sees it
+        for markers in (self._hits, self._escapes, self._handles):
+            pass_clicks(markers)
         self.view.sigRangeChanged.connect(lambda *_: self._view_changed())
         self.plot.scene().sigMouseMoved.connect(self._mouse_moved)
         self.setMouseTracking(True)
@@ -231,8 +247,17 @@ class Canvas(QWidget):
     # ------------------------------------------------------------------ tool API
     def set_tool(self, name: str) -> None:
         self.tool.cancel()
+        self.overlay.close()
+        self.overlay.show_snap(None)
+        if self.tool.name != name:
+            self._previous_tool = self.tool.name
         self.tool = self.tools[name]
         self.status_message.emit(self.tool.hint)
+        self.tool_changed.emit(name)
+
+    def restore_tool(self) -> None:
+        """Back to the tool used before this one (after a one-off like the zoom box)."""
+        self.set_tool(self._previous_tool)
 
     def drag(self, start, end, steps: int = 5, tool: str | None = None) -> None:
         """Drive the current (or named) tool through a drag, as the mouse would."""
@@ -255,6 +280,8 @@ class Canvas(QWidget):
             dx, dy = _NUDGE[ev.key()]
             step = self.grid_step * (10 if ev.modifiers() & Qt.ShiftModifier else 1)
             self.nudge(dx * step, dy * step)
+        elif self.overlay.start_typing(ev):
+            pass
         else:
             super().keyPressEvent(ev)
 
@@ -274,6 +301,18 @@ class Canvas(QWidget):
             new, name = edits.replace_detector(s, index, edits.move_detector(d, dx, dy)), d.name
         self.doc.apply(new, f"nudge {name}")
 
+    # ------------------------------------------------------------------ zoom
+    def zoom(self, factor: float) -> None:
+        """Zoom in (factor > 1) or out about the middle of the view."""
+        self.view.scaleBy((1.0 / factor, 1.0 / factor))
+
+    def zoom_to_box(self, a, b) -> None:
+        """Show the box with corners a and b (the aspect stays 1:1, so one side may show more)."""
+        (x0, y0), (x1, y1) = a, b
+        if abs(x1 - x0) < 2 * self.pixel_mm() and abs(y1 - y0) < 2 * self.pixel_mm():
+            return        # a slip of the mouse, not a box
+        self.view.setRange(xRange=sorted((x0, x1)), yRange=sorted((y0, y1)), padding=0)
+
     # ------------------------------------------------------------------ geometry helpers
     def pixel_mm(self) -> float:
         """Millimetres per screen pixel (the view keeps x and y scales equal)."""
@@ -283,7 +322,22 @@ class Canvas(QWidget):
             v = max(self.scene.size_hint(), 1.0) / 600
         return v
 
-    def snap(self, p):
+    def pick_mm(self) -> float:
+        """How close the cursor must be to pick or snap, in mm at the current zoom."""
+        return style.PICK_PX * self.pixel_mm()
+
+    def snap(self, p, ignore=None, geometry=None):
+        """Where a drawn point lands: on a vertex, midpoint, arc centre or edge of a part near it
+        (when snapping to geometry: `geometry`, by default the View menu's choice; `ignore` is a
+        vertex being dragged), else on the grid when snapping to the grid, else where it is."""
+        to_geometry = self.object_snapping if geometry is None else geometry
+        if to_geometry:
+            hit = snap_index(self.scene).find(p, self.pick_mm(), ignore)
+            self.overlay.show_snap(hit)
+            if hit is not None:
+                return hit.point
+        else:
+            self.overlay.show_snap(None)
         if not self.snapping or self.grid_step <= 0:
             return (float(p[0]), float(p[1]))
         g = self.grid_step
@@ -581,6 +635,7 @@ class Canvas(QWidget):
             return
         p = self.view.mapSceneToView(scene_pos)
         x, y = p.x(), p.y()
+        self.cursor = (x, y)
         self.cursor_moved.emit(x, y)
         self.tool.hover(x, y)
         tip = self.hover_text(x, y)

@@ -10,7 +10,7 @@ from __future__ import annotations
 import math
 from dataclasses import replace
 
-from raytrace.geometry import Loop, Part, Point, ShapeSpec, Treatment, rotate_translate
+from raytrace.geometry import Edge, Loop, Part, Point, ShapeSpec, Treatment, rotate_translate
 from raytrace.scene import Detector, Scene, Source
 from raytrace.shapes import build
 
@@ -72,6 +72,48 @@ def polygon_part(points: list[Point], material: str, name: str = "part") -> Part
     return Part(name, material, loop)
 
 
+def polygon_hole(points: list[Point], face: str) -> Loop:
+    """A hole through clicked points, made clockwise (the usual sense for holes); its edges
+    are faces "<face> side 1".. in order."""
+    loop = Loop.polygon(points)
+    if loop.signed_area() > 0:
+        loop = Loop.polygon(points[::-1])
+    return Loop(tuple(replace(e, face=f"{face} side {i + 1}") for i, e in enumerate(loop.edges)))
+
+
+def round_hole(centre: Point, radius: float, face: str) -> Loop:
+    """A round hole: two half-circle arcs, clockwise, one face."""
+    cx, cy = centre
+    a, b = (cx + radius, cy), (cx - radius, cy)
+    return Loop((Edge(a, b, arc_center=centre, ccw=False, face=face),
+                 Edge(b, a, arc_center=centre, ccw=False, face=face)))
+
+
+def part_for_hole(scene: Scene, hole: Loop) -> int | None:
+    """The part a new hole cuts: the smallest whose material holds the whole hole (clear of its
+    boundary and its other holes), or None."""
+    import shapely
+    tol = 2e-4 * max(scene.size_hint(), 1e-6)
+    ring = shapely.Polygon(hole.coords(tol))
+    fits = [i for i, p in enumerate(scene.parts) if p.to_shapely(tol).contains(ring)]
+    return min(fits, key=lambda i: scene.parts[i].area(), default=None)
+
+
+def add_hole(part: Part, hole: Loop) -> Part:
+    """The part with one more hole; a builder part stays a builder part (holes are kept beside
+    the builder in the file)."""
+    return replace(part, holes=(*part.holes, hole))
+
+
+def free_hole_name(part: Part) -> str:
+    taken = {e.face for h in part.holes for e in h.edges}
+    taken |= {f.rsplit(" side ", 1)[0] for f in taken if f}
+    k = len(part.holes) + 1
+    while f"hole {k}" in taken:
+        k += 1
+    return f"hole {k}"
+
+
 def shape_part(spec: ShapeSpec, material: str, name: str) -> Part:
     return Part(name, material, build(spec), shape=spec)
 
@@ -89,7 +131,18 @@ def rebuild(part: Part, spec: ShapeSpec) -> Part:
     new = build(spec)
     overrides = face_overrides(part)
     outer = apply_face_overrides(new, overrides) if overrides is not None else _keep_treatments(new, part.outer)
-    return replace(part, outer=outer, shape=spec)
+    return replace(part, outer=outer, shape=spec, holes=_carried_holes(part, spec))
+
+
+def _carried_holes(part: Part, spec: ShapeSpec) -> tuple[Loop, ...]:
+    """The part's holes moved and turned as the builder's placement changes (a parameter
+    change leaves them where they are)."""
+    old = part.shape
+    if not part.holes or old is None or (old.position == spec.position and old.rotation_deg == spec.rotation_deg):
+        return part.holes
+    dx, dy = spec.position[0] - old.position[0], spec.position[1] - old.position[1]
+    turn = spec.rotation_deg - old.rotation_deg
+    return tuple(h.transformed(dx, dy, turn, old.position) for h in part.holes)
 
 
 def part_pivot(part: Part) -> Point:

@@ -26,11 +26,17 @@ SHORTCUTS = """<h3>Keys</h3>
 <tr><td>V, R</td><td>select and drag / rotate</td></tr>
 <tr><td>P, B</td><td>draw a part by its vertices / by a rectangle</td></tr>
 <tr><td>L, D</td><td>place a light source / a detector</td></tr>
+<tr><td>A, H</td><td>bend an edge into an arc (drag it, or click it and type a radius) / cut a hole</td></tr>
+<tr><td>M, Z</td><td>measure a distance and an angle / zoom to a dragged box</td></tr>
+<tr><td>digits while drawing</td><td>type the next point: x, y or @dx, dy or length&lt;angle</td></tr>
 <tr><td>Enter, Backspace, Esc</td><td>close, take back a vertex, cancel (while drawing)</td></tr>
 <tr><td>F5 / Shift+F5</td><td>trace now / stop the trace</td></tr>
 <tr><td>F6</td><td>sweep a number of the scene</td></tr>
 <tr><td>Ctrl+0</td><td>fit the scene in the view</td></tr>
+<tr><td>Ctrl+= (Ctrl++), Ctrl+-</td><td>zoom in, zoom out</td></tr>
 <tr><td>G, Shift+G</td><td>grid on/off, snapping to the grid on/off</td></tr>
+<tr><td>Shift+V</td><td>snapping to vertices, midpoints, arc centres and edges on/off</td></tr>
+<tr><td>Ctrl+Q</td><td>quit (asks first about unsaved changes)</td></tr>
 <tr><td>mouse wheel, drag on empty space</td><td>zoom, pan</td></tr>
 </table>
 """

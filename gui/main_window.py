@@ -27,11 +27,21 @@ from .panels.ledger import LedgerPanel
 from .panels.plots import ProfilePanel
 from .panels.properties import PropertiesPanel
 from .recent import add_recent, recent_files
-from .tools import DETECTOR_TOOL, POLYGON, RECTANGLE, ROTATE, SELECT, SOURCE_TOOL
+from .tools import ARC, DETECTOR_TOOL, HOLE, MEASURE, POLYGON, RECTANGLE, ROTATE, SELECT, SOURCE_TOOL, ZOOM_BOX
 from .tracing import TraceCancelled, run_trace
 from .worker import TraceOutcome, TraceRequest, TraceWorker
 
 SCENE_FILTER = "Scene files (*.json);;All files (*)"
+
+
+def distinct_keys(*keys) -> list[QKeySequence]:
+    """Shortcuts from standard keys and key strings, each once: a key bound twice to one
+    action is ambiguous to Qt and does nothing."""
+    out = []
+    for k in keys:
+        seqs = QKeySequence.keyBindings(k) if isinstance(k, QKeySequence.StandardKey) else [QKeySequence(k)]
+        out += [q for q in seqs if not q.isEmpty() and q not in out]
+    return out
 
 
 def _scrolled(widget):
@@ -131,7 +141,8 @@ class MainWindow(QMainWindow):
         self._act(f, "Export drawing (PNG)...", lambda: self.export_png(), None, "The drawing with its legend")
         self._act(f, "Export drawing (SVG)...", lambda: self.export_svg(), None, "The drawing as vector graphics")
         f.addSeparator()
-        self._act(f, "&Quit", self.close, QKeySequence.Quit)
+        quit_action = self._act(f, "&Quit", self.close, None, "Quit (asks first when there are unsaved changes)")
+        quit_action.setShortcuts(distinct_keys(QKeySequence.Quit, "Ctrl+Q"))   # Quit is empty on some platforms
 
         e = mb.addMenu("&Edit")
         self.undo_action = self.doc.undo_stack.createUndoAction(self, "&Undo")
@@ -174,10 +185,8 @@ class MainWindow(QMainWindow):
                 (RECTANGLE, "Rectangle", "B", "Add a rectangular part by dragging"),
                 (SOURCE_TOOL, "Source", "L", "Place a light source; drag to aim it"),
                 (DETECTOR_TOOL, "Detector", "D", "Drag to place a detector")):
-            a = self._act(t, text, lambda _c=False, n=name: self.set_tool(n), key, tip, True)
-            group.addAction(a)
-            tb.addAction(a)
-            self.tool_actions[name] = a
+            self._add_tool(t, tb, group, name, text, key, tip)
+        self._add_drawing_aids(v, t, tb, group)
         self.tool_actions[SELECT].setChecked(True)
         tb.addSeparator()
         shape = QAction("Shape...", self)
@@ -205,6 +214,38 @@ class MainWindow(QMainWindow):
         self._act(h, "&Safety cautions", lambda: self.show_info("Safety cautions", help_text.SAFETY))
         self._act(h, "&Keys and mouse", lambda: self.show_info("Keys and mouse", help_text.SHORTCUTS), QKeySequence.HelpContents)
         self._act(h, "&About", lambda: self.show_info("About", help_text.ABOUT))
+
+    def _add_tool(self, menu, toolbar, group, name, text, key, tip) -> None:
+        """A checkable action choosing one tool, in the Tools menu and the tool bar."""
+        a = self._act(menu, text, lambda _c=False, n=name: self.set_tool(n), key, tip, True)
+        group.addAction(a)
+        toolbar.addAction(a)
+        self.tool_actions[name] = a
+
+    def _add_drawing_aids(self, view_menu, tools_menu, toolbar, group) -> None:
+        """Arc, hole, measure and zoom-box tools; zoom keys; snapping to the parts' geometry."""
+        tools_menu.addSeparator()
+        toolbar.addSeparator()
+        for name, text, key, tip in (
+                (ARC, "Arc", "A", "Bend an edge into an arc: drag it through a point, or click it and type a radius"),
+                (HOLE, "Hole", "H", "Cut a hole in a part: click its vertices, or drag centre to rim for a round one"),
+                (MEASURE, "Measure", "M", "Distance between two points, angle at a corner"),
+                (ZOOM_BOX, "Zoom box", "Z", "Drag a box to zoom into it")):
+            self._add_tool(tools_menu, toolbar, group, name, text, key, tip)
+        self.canvas.tool_changed.connect(lambda n: self.tool_actions[n].setChecked(True))
+        view_menu.addSeparator()
+        zoom_in = self._act(view_menu, "Zoom &in", lambda: self.canvas.zoom(1.25), None, "Zoom in (Ctrl+= or Ctrl++)")
+        zoom_in.setShortcuts(distinct_keys("Ctrl+=", QKeySequence.ZoomIn, "Ctrl++"))
+        zoom_out = self._act(view_menu, "Zoom &out", lambda: self.canvas.zoom(1 / 1.25), None, "Zoom out (Ctrl+-)")
+        zoom_out.setShortcuts(distinct_keys(QKeySequence.ZoomOut, "Ctrl+-"))
+        self._act(view_menu, "Zoom to &box", lambda: self.set_tool(ZOOM_BOX), None, "Drag a box to zoom into it (Z)")
+        self.geometry_snap_action = self._act(
+            view_menu, "Snap to &vertices and edges", self._set_geometry_snap, "Shift+V",
+            "Drawn points and dragged vertices land on vertices, edge midpoints, arc centres and edges "
+            "of the parts (before the grid)", True)
+
+    def _set_geometry_snap(self, on: bool) -> None:
+        self.canvas.object_snapping = on
 
     def set_tool(self, name: str) -> None:
         self.canvas.set_tool(name)
@@ -557,6 +598,5 @@ class MainWindow(QMainWindow):
         self.profiles.show_result(out.result)
         self.traces_shown += 1
         self.redraw_times.append(time.perf_counter() - out.request.submitted)
-        st = out.result.stats
-        self.trace_label.setText(f"{st['source_rays']:,} rays, {st['segments']:,} segments, "
-                                 f"{out.elapsed_s * 1000:.0f} ms")
+        # the one time figure of a trace (the flux panel gives rays and segments)
+        self.trace_label.setText(f"traced in {out.elapsed_s * 1000:.0f} ms")

@@ -27,6 +27,8 @@ GLYPH_PX = 14        # size of source and detector glyphs on screen
 HANDLE_PX = 9
 PICK_PX = 8          # how close the cursor must be to pick a vertex, face or handle
 
+SNAP_MARK = QColor(0, 150, 60)     # where a drawn point snaps to a vertex or an edge
+
 _MATERIAL_TINTS = {
     "PMMA": (110, 170, 230),
     "polycarbonate": (160, 130, 220),

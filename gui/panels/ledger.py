@@ -62,7 +62,7 @@ class LedgerPanel(QWidget):
         eff = ", ".join(f"{d.name}: {100 * result.efficiency(d.name):.2f} %" for d in result.compiled.detectors)
         self.summary.setText(
             f"<b>Efficiency</b> {eff or '(no detector)'}<br>"
-            f"{st['source_rays']:,} source rays, {st['segments']:,} segments, {st['elapsed_s'] * 1000:.0f} ms; "
+            f"{st['source_rays']:,} source rays, {st['segments']:,} segments; "
             f"ledger closes to {L.total - L.source_flux:.1e}")
 
     def efficiencies(self) -> dict[str, float]:
