@@ -230,3 +230,20 @@ def test_readme_tolerance_example_reproduces(capsys):
                          ("worst case", "80.974 %")):
         assert f"{line} {figure}" in out
         assert figure.replace(" +- 0.000", "") in readme
+
+
+def test_figure_standard_error_matches_the_spread_over_seeds():
+    """In a Monte Carlo trace each source ray either reaches the chamber or not, so the efficiency's
+    standard error is the binomial sqrt(p (1 - p) / N) (common practice), and over many trace seeds
+    the efficiencies scatter by that much.  40 seeds, N = 400: the scatter's own relative error is
+    1/sqrt(78) = 11 %, tolerance 30 %."""
+    from raytrace.design_points import evaluate_point
+    from raytrace.merit import Figure
+    data = scene_to_dict(load_scene(WINDOW))
+    fig = Figure("efficiency", "inside chamber")
+    runs = [evaluate_point(data, [], {"rays": 400, "mode": "monte_carlo", "seed": s}, [fig])["figures"][fig.label]
+            for s in range(1, 41)]
+    values, errors = np.array(runs).T
+    p = values.mean()
+    assert errors.mean() == pytest.approx(math.sqrt(p * (1 - p) / 400), rel=0.05)
+    assert values.std(ddof=1) == pytest.approx(errors.mean(), rel=0.30)
