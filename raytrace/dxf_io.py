@@ -181,7 +181,6 @@ def _pieces(e, scale: float, problems: Problems) -> list[Piece]:
             problems.add(where, f"<radius {r}>", "a radius greater than 0")
             return []
         if kind == "CIRCLE":       # two half arcs: a loop needs distinct vertices
-            a0, a1, a2 = 0.0, math.pi, 2 * math.pi
             p0, p1 = (c[0] + r, c[1]), (c[0] - r, c[1])
             cc = pt(c[0], c[1])
             return [piece(Edge(pt(*p0), pt(*p1), cc, not mirror)), piece(Edge(pt(*p1), pt(*p0), cc, not mirror))]

@@ -222,3 +222,25 @@ def _numbers(e):
     if e.dxftype() == "ARC":
         return (*e.dxf.center, e.dxf.radius, e.dxf.start_angle, e.dxf.end_angle)
     return tuple(v for p in e.get_points("xyb") for v in p) + (float(e.closed),)
+
+
+def test_entities_seen_from_below_are_mirrored_into_the_plane(tmp_path):
+    """Arcs and polylines with extrusion (0, 0, -1) keep their coordinates in an object frame
+    whose x points along -x; reference library: ezdxf's own OCS conversion gives the world points."""
+    from ezdxf.math import OCS
+    ocs = OCS((0, 0, -1))
+    below = {"layer": "PMMA", "extrusion": (0, 0, -1)}
+
+    def draw(msp):       # a D shape: an arc from 270 to 90 deg closed by a line, all seen from below
+        msp.add_arc((5, 0), 2, 270, 90, dxfattribs=below)
+        a, b = ocs.to_wcs((5, -2, 0)), ocs.to_wcs((5, 2, 0))
+        msp.add_line(b, a, dxfattribs={"layer": "PMMA"})
+    part = import_dxf(drawing(tmp_path, draw)).parts[0]
+    arc = next(e for e in part.outer.edges if e.is_arc)
+    assert math.dist(arc.arc_center, tuple(ocs.to_wcs((5, 0, 0)))[:2]) < 1e-12
+    for e in part.outer.edges:           # every end lies where ezdxf puts it in the world
+        assert min(math.dist(e.start, tuple(ocs.to_wcs(p))[:2]) for p in ((5, -2, 0), (5, 2, 0))) < 1e-12
+    assert part.area() == pytest.approx(math.pi * 2 ** 2 / 2, rel=1e-12)
+    # the half disc bulges toward world -x, away from its chord at x = -5
+    x0, _, x1, _ = part.outer.bounds()
+    assert (x0, x1) == pytest.approx((-7.0, -5.0))
