@@ -56,7 +56,8 @@ def build_parser() -> argparse.ArgumentParser:
     w = sub.add_parser("sweep", help="trace a scene over a range of one or two named numbers",
                        description="Trace SCENE at every point of a range and write one CSV row per point: "
                                    "efficiency per detector and the share of every ledger bucket.",
-                       epilog="NAME forms: PART.PARAM (guide.segments[1].bend.radius), SOURCE.FIELD "
+                       epilog="NAME forms: a named number of the scene file (bend_radius), "
+                              "PART.PARAM (guide.segments[1].bend.radius), SOURCE.FIELD "
                               "(LED.direction_deg), DETECTOR.FIELD (return.start[0]), wavelength, "
                               "trace.FIELD, $.JSON.PATH; KIND:NAME (part:, source:, detector:) when "
                               "names clash.  Values: START:STOP:COUNT or v1,v2,...")

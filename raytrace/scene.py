@@ -6,6 +6,7 @@ tracer consumes; `scene_io` reads and writes the JSON form.
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from typing import Any
 
 from .geometry import Part, Point
 from .materials import Material
@@ -116,6 +117,9 @@ class Scene:
     settings: TraceSettings = field(default_factory=TraceSettings)
     story: str = ""       # one line: what this scene is for
     name: str = ""
+    # the file's linked numbers (linked.Links), so saving writes them back; values above are
+    # always the evaluated ones
+    links: Any = field(default=None, compare=False, repr=False)
     # notes from loading (earlier key names read, for example); not saved, not compared
     notes: list[str] = field(default_factory=list, compare=False, repr=False)
 

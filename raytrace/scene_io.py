@@ -14,6 +14,7 @@ from pathlib import Path
 from typing import Any
 
 from . import fields as F
+from . import linked
 from .atomic import atomic_write_text  # noqa: F401  (re-exported: callers import it from here)
 from .compile import check_geometry, resolve_materials
 from .errors import Problems, SceneError
@@ -25,13 +26,15 @@ from .scene import (DISTRIBUTIONS, POLARIZATIONS, SAMPLINGS, SOURCE_KINDS, Detec
 FORMAT_NAME = "raytrace2d-scene"
 FORMAT_VERSION = 1
 UNITS = {"length": "mm", "wavelength": "nm"}
-TOP_KEYS = ("format", "version", "units", "name", "story", "ambient", "materials", "parts",
-            "sources", "detectors", "trace")
-PART_KEYS = ("name", "material", "boundary", "holes", "shape", "faces")
+# "numbers", "repeat", "aim_at", "pivot" and "turn_deg" are read by linked.resolve, before these
+TOP_KEYS = ("format", "version", "units", "name", "story", "ambient", "numbers", "materials",
+            "parts", "sources", "detectors", "trace")
+PART_KEYS = ("name", "material", "boundary", "holes", "shape", "faces", "repeat")
 EDGE_KEYS = ("from", "face", "treatment", "arc")
 FACE_KEYS = ("treatment", "name")
-SOURCE_KEYS = ("name", "kind", "position", "direction_deg", "width", "half_angle_deg",
-               "distribution", "cos_power", "flux", "spectrum", "polarization", "sampling", "note")
+SOURCE_KEYS = ("name", "kind", "position", "direction_deg", "aim_at", "pivot", "turn_deg", "width",
+               "half_angle_deg", "distribution", "cos_power", "flux", "spectrum", "polarization",
+               "sampling", "note")
 DETECTOR_KEYS = ("name", "start", "end", "absorbing", "bins", "angle_bins", "central_fraction")
 TRACE_KEYS = ("rays", "mode", "flux_floor", "max_generations", "segment_budget", "seed")
 # Earlier names of trace settings, still read (with a note) so older files keep working.
@@ -77,6 +80,8 @@ def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
     top = F.obj(data, "$", problems)
     if top is None:
         raise SceneError(problems.items)
+    # named numbers, expressions, aimed sources and repeated parts become plain numbers first
+    top, linker = linked.resolve(top, problems)
     F.check_keys(top, TOP_KEYS, "$", problems)
     fmt = top.get("format", F.MISSING)
     if fmt != FORMAT_NAME:
@@ -130,9 +135,20 @@ def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
     # scene-level checks run on every part that could be read, so one pass reports all problems
     resolve_materials(scene, problems, part_paths, skip=frozenset(failed_materials))
     check_geometry(scene, problems, part_paths)
+    if linker is not None:
+        _file_paths(problems, linker)
     problems.raise_if_errors()
     scene.notes = [str(w) for w in problems.warnings]
+    if linker is not None:
+        scene.links = linker.links(_plain_dict(scene))
     return scene
+
+
+def _file_paths(problems: Problems, linker) -> None:
+    """Loader problems as the file reads: paths of copies of a repeated part name the part
+    written in the file, and a field whose link already has a problem is not reported twice."""
+    problems.items = [replace(p, path=linker.file_path(p.path)) for p in problems.items
+                      if linked.UNRESOLVED not in p.found]
 
 
 def _key(name: str) -> str:
@@ -527,6 +543,12 @@ def _renamed_keys(d: dict, renamed: dict[str, str], where: str, problems: Proble
 
 
 def scene_to_dict(scene: Scene) -> dict:
+    """The file form of a scene, with its linked numbers (scene.links) written back where the
+    scene still holds the values they gave; a value edited since is written as a plain number."""
+    return linked.restore(_plain_dict(scene), scene.links)
+
+
+def _plain_dict(scene: Scene) -> dict:
     out: dict[str, Any] = {"format": FORMAT_NAME, "version": FORMAT_VERSION, "units": dict(UNITS)}
     if scene.name:
         out["name"] = scene.name

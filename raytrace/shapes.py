@@ -23,7 +23,7 @@ __all__ = [
     "ParamInfo", "ShapeParameterError", "PARAMETERS", "BUILDERS", "build", "check_params",
     "rectangle", "prism", "roof_prism", "regular_polygon", "light_pipe", "light_pipe_ends",
     "light_pipe_centerline_length", "microprism_strip", "window", "lens", "place_point",
-    "place_direction",
+    "place_direction", "derived_values", "FACE_POINTS",
 ]
 
 
@@ -565,6 +565,76 @@ def _describe(info: ParamInfo) -> str:
     if info.type == "segments":
         return "a non-empty list of segments"
     return _expected_range(info.min, info.min_inclusive, info.max, info.max_inclusive, "a number")
+
+
+def _local_points(kind: str, params: dict) -> dict[str, Point]:
+    """Named points of a builder's local frame, for linked numbers (see derived_values)."""
+    if kind == "prism":
+        a, side = math.radians(params["apex_angle_deg"]) / 2, params["side"]
+        return {"apex": (0.0, side * math.cos(a))}
+    if kind == "roof_prism":
+        return {"apex": (0.0, params["leg"] / math.sqrt(2.0))}
+    if kind in ("window", "lens"):
+        t = params["thickness" if kind == "window" else "center_thickness"]
+        return {"back": (float(t), 0.0)}
+    if kind == "microprism_strip":
+        a = math.radians(params["prism_angle_deg"]) / 2
+        return {"peak": (0.0, params["slab_thickness"] + (params["pitch"] / 2) / math.tan(a))}
+    return {}
+
+
+def derived_values(spec: ShapeSpec) -> dict[str, float]:
+    """The numbers a built part offers to linked expressions (`guide.output_x`), in scene
+    coordinates, mm and degrees: its placement `x`, `y`, `rotation_deg`; every number among its
+    parameters (`width`, `leg`, ...); and, by builder, points as NAME_x / NAME_y:
+      prism: apex_x, apex_y;  roof_prism: apex_x, apex_y and hypotenuse (its length);
+      window and lens: back_x, back_y (the back face's centre, the back vertex);
+      microprism_strip: peak_x, peak_y (the middle prism's apex line), length (count * pitch);
+      light_pipe: input_x, input_y, output_x, output_y (end-face centres), output_deg (the
+      direction of travel out of the output face) and length (of the centreline).
+    Raises ShapeParameterError as `build` does."""
+    build(spec)   # every parameter checked, and the shape known to be buildable
+    x, y = float(spec.position[0]), float(spec.position[1])
+    out = {"x": x, "y": y, "rotation_deg": float(spec.rotation_deg)}
+    for key, value in spec.params.items():
+        if isinstance(value, numbers.Real) and not isinstance(value, bool):
+            out[key] = float(value)
+    points = _local_points(spec.kind, spec.params)
+    if spec.kind == "light_pipe":
+        ends = light_pipe_ends(spec.params["width"], spec.params["segments"], (x, y), spec.rotation_deg)
+        for end in ("input", "output"):
+            (px, py), _ = ends[end]
+            out[f"{end}_x"], out[f"{end}_y"] = px, py
+        dx, dy = ends["output"][1]
+        out["output_deg"] = math.degrees(math.atan2(dy, dx))
+        out["length"] = light_pipe_centerline_length(spec.params["width"], spec.params["segments"])
+    elif spec.kind == "roof_prism":
+        out["hypotenuse"] = spec.params["leg"] * math.sqrt(2.0)
+    elif spec.kind == "microprism_strip":
+        out["length"] = spec.params["count"] * spec.params["pitch"]
+    for name, local in points.items():
+        out[f"{name}_x"], out[f"{name}_y"] = place_point(local, (x, y), spec.rotation_deg)
+    return out
+
+
+FACE_POINTS = ("start_x", "start_y", "end_x", "end_y", "mid_x", "mid_y")
+
+
+def face_values(spec: ShapeSpec) -> dict[str, float]:
+    """The end points and middle of each face that is one edge, keyed FACE.start_x, ...,
+    FACE.mid_y by the builder's face name, in scene coordinates (the loop runs
+    counter-clockwise, so start -> end keeps the part on the left)."""
+    edges: dict[str, list] = {}
+    for e in build(spec).edges:
+        if e.face:
+            edges.setdefault(e.face, []).append(e)
+    out = {}
+    for face, es in edges.items():
+        if len(es) == 1:
+            e = es[0]
+            for key, (x, y) in (("start", e.start), ("end", e.end), ("mid", e.point_at(0.5))):
+                out[f"{face}.{key}_x"], out[f"{face}.{key}_y"] = float(x), float(y)
+    return out
 
 
 def build(spec: ShapeSpec) -> Loop:

@@ -4,6 +4,8 @@ Naming a number of a scene
 --------------------------
 A name addresses one number in the scene, in one of these forms:
 
+    NAME                     a named number of the scene file ("numbers"): whatever is linked
+                             to it follows
     OBJECT.FIELD             OBJECT is the name of a part, source or detector
     KIND:OBJECT.FIELD        the same, with KIND = part, source or detector, when names clash
     wavelength               every source becomes one line at this wavelength (nm)
@@ -15,8 +17,10 @@ FIELD is a key path with dots and [index]es:
 - for a part built from a shape: the shape's parameters (guide.width,
   guide.segments[1].bend.radius, roof prism.leg) or its placement (guide.position[0],
   guide.rotation_deg);
+  or its repeat (sheet.repeat.pitch, sheet.repeat.count);
 - for a source: its fields as in the scene file (LED.direction_deg, LED.position[1],
-  LED.width, LED.half_angle_deg, LED.cos_power, LED.flux), and LED.wavelength: the wavelength
+  LED.width, LED.half_angle_deg, LED.cos_power, LED.flux, LED.aim_at[0], LED.pivot[1],
+  LED.turn_deg), and LED.wavelength: the wavelength
   in nm of a one-line spectrum, or the centre of a band (a weighted list of lines is addressed
   by JSON path);
 - for a detector: its fields (return.start[0], return.end[1], ...).
@@ -51,7 +55,8 @@ from typing import Any, Callable
 from .errors import Problems, RaytraceError, SceneError
 
 KINDS = {"part": "parts", "source": "sources", "detector": "detectors"}
-SOURCE_FIELDS = ("position", "direction_deg", "width", "half_angle_deg", "cos_power", "flux")
+SOURCE_FIELDS = ("position", "direction_deg", "width", "half_angle_deg", "cos_power", "flux",
+                 "aim_at", "pivot", "turn_deg")
 DETECTOR_FIELDS = ("start", "end", "bins", "angle_bins", "central_fraction")
 TRACE_FIELDS = ("rays", "flux_floor", "max_generations", "segment_budget", "seed")
 WHOLE_NUMBER_FIELDS = {"rays", "max_generations", "segment_budget", "seed", "bins", "angle_bins", "sides", "count"}
@@ -149,6 +154,9 @@ def resolve(data: dict, name: str, file: str = "") -> Target:
         path = _parse_path(name[1:], label, problems)
         _check_number(data, path, label, problems)
         return Target(name, (path,), _whole(path))
+    numbers = data.get("numbers")
+    if isinstance(numbers, dict) and name in numbers:
+        return Target(name, (("numbers", name),), False)
     if name == "wavelength":
         sources = data.get("sources", [])
         if not sources:
@@ -179,7 +187,9 @@ def resolve(data: dict, name: str, file: str = "") -> Target:
         return Target(name, (("trace", fld),), fld in WHOLE_NUMBER_FIELDS)
     if not candidates:
         names = [f"{k} {o.get('name')!r}" for k, key in KINDS.items() for o in data.get(key, []) if isinstance(o, dict)]
-        fail(name, "OBJECT.FIELD naming one of: " + ", ".join(names) + "; or wavelength, trace.FIELD, $.JSON.PATH")
+        numbers = ", ".join(data.get("numbers") or {}) if isinstance(data.get("numbers"), dict) else ""
+        fail(name, (f"a named number ({numbers}), or " if numbers else "")
+             + "OBJECT.FIELD naming one of: " + ", ".join(names) + "; or wavelength, trace.FIELD, $.JSON.PATH")
     best = max(c[0] for c in candidates)
     top = [c for c in candidates if c[0] == best]
     if len(top) > 1:
@@ -191,6 +201,10 @@ def resolve(data: dict, name: str, file: str = "") -> Target:
     if k == "part":
         part = data["parts"][i]
         shape = part.get("shape")
+        if sub[0] == "repeat" and isinstance(part.get("repeat"), dict):
+            path = (key, i) + sub
+            _check_number(data, path, label, problems)
+            return Target(name, (path,), _whole(path))
         if not isinstance(shape, dict):
             fail(name, f"a part built from a shape (part {part.get('name')!r} is given by its boundary; "
                        f"address its numbers by JSON path, e.g. $.parts[{i}].boundary[0].from[0])")
@@ -270,6 +284,8 @@ def _check_number(data: dict, path: tuple, label: str, problems: Problems) -> No
         problems.add(label, "<nothing there>", "a name that addresses an existing number ("
                      + "$." + _render_path(path) + " does not exist)")
         raise SweepError(problems.items)
+    if isinstance(value, str) and value.lstrip().startswith("="):
+        return    # a linked field: the sweep's values replace its expression
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         problems.add(label, value, "a name that addresses a number")
         raise SweepError(problems.items)

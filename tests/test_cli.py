@@ -79,7 +79,7 @@ def test_sweep_exit_codes(tmp_path, capsys):
     assert code == cli.EXIT_USAGE and "--vary guide.bend" in err and "expected" in err
     code, out, err = run(["sweep", PIPE, "--vary", "guide.width=1:2", "--csv", str(out_csv)], capsys)
     assert code == cli.EXIT_USAGE and "START:STOP:COUNT" in err
-    code, out, err = run(["sweep", PIPE, "--vary", "guide.segments[1].bend.radius=6,14", "--csv", str(out_csv),
+    code, out, err = run(["sweep", PIPE, "--vary", "gap=0.5,-1", "--csv", str(out_csv),
                           "--rays", "50", "--workers", "1"], capsys)
     assert code == cli.EXIT_SWEEP_POINTS and "overlapping" in err
     assert list(pd.read_csv(out_csv)["status"].str.startswith("ok")) == [True, False]

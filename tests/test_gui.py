@@ -414,18 +414,23 @@ def test_long_trace_can_be_stopped(qtbot, win):
     assert win.worker.dropped >= 1
 
 
+def run_sweep_dialog(qtbot, dlg, name: str, start: float, stop: float, count: int, rays: int):
+    """Fill in the sweep dialog as a user does, run it and wait for the table."""
+    dlg.name.setCurrentText(name)
+    dlg.start.setValue(start)
+    dlg.stop.setValue(stop)
+    dlg.count.setValue(count)
+    dlg.rays.setValue(rays)
+    dlg.run()
+    qtbot.waitUntil(lambda: not dlg.running(), timeout=TIMEOUT_MS)
+
+
 def test_sweep_dialog_runs_plots_and_cancels(qtbot, win, tmp_path):
     from gui.dialogs.sweep import SweepDialog
     open_sample(qtbot, win, WINDOW)
     dlg = SweepDialog(win.doc.scene, {}, win)
     qtbot.addWidget(dlg)
-    dlg.name.setCurrentText("probe beam.direction_deg")
-    dlg.start.setValue(30.0)
-    dlg.stop.setValue(50.0)
-    dlg.count.setValue(3)
-    dlg.rays.setValue(20)
-    dlg.run()
-    qtbot.waitUntil(lambda: not dlg.running(), timeout=TIMEOUT_MS)
+    run_sweep_dialog(qtbot, dlg, "probe beam.direction_deg", 30.0, 50.0, 3, 20)
     assert dlg.message == "" and len(dlg.result.rows) == 3
     assert [r["probe beam.direction_deg"] for r in dlg.result.rows] == [30.0, 40.0, 50.0]
     assert dlg.bar.value() == 3

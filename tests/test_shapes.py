@@ -436,3 +436,27 @@ def test_build_reports_bad_kind_params_and_placement():
         build(ShapeSpec("rectangle", {"width": 2, "height": 1}, (0.0, 0.0), "up"))  # type: ignore[arg-type]
     with pytest.raises(ValueError, match=r"^position: expected a point"):
         build(ShapeSpec("rectangle", {"width": 2, "height": 1}, (0.0,), 0.0))  # type: ignore[arg-type]
+
+
+def test_derived_values_are_the_placed_builder_points():
+    """The values linked numbers read (shapes.derived_values / face_values) are points of the
+    built loop, placed: from memory, an isosceles prism with faces L about apex angle a has its
+    apex L cos(a/2) above the base centre, and turning by t about the origin maps (0, h) to
+    (-h sin t, h cos t)."""
+    from raytrace.shapes import derived_values, face_values
+    spec = ShapeSpec("prism", {"apex_angle_deg": 60.0, "side": 10.0}, (3.0, -2.0), 30.0)
+    v = derived_values(spec)
+    h = 10.0 * math.cos(math.radians(30.0))
+    assert (v["apex_x"], v["apex_y"]) == pytest.approx((3.0 - h * 0.5, -2.0 + h * math.cos(math.radians(30))), abs=1e-12)
+    apex = next(e.end for e in build(spec).edges if e.face == "right face")
+    assert (v["apex_x"], v["apex_y"]) == pytest.approx(apex, abs=1e-12)
+    faces = face_values(spec)
+    assert (faces["base.mid_x"], faces["base.mid_y"]) == pytest.approx((3.0, -2.0), abs=1e-12)
+    pipe = ShapeSpec("light_pipe", {"width": 2.0, "segments": [{"straight": 5.0}, {"bend": {"radius": 3.0, "angle": -90.0}}]},
+                     (1.0, 1.0), 90.0)
+    v = derived_values(pipe)
+    # heading +y after the 90 deg turn of the frame: the right turn leaves heading +x, with the
+    # output centre 5 + 4 up and 4 to the right of the input
+    assert (v["output_x"], v["output_y"], v["output_deg"]) == pytest.approx((5.0, 10.0, 0.0), abs=1e-12)
+    assert v["length"] == pytest.approx(5.0 + 4.0 * math.pi / 2, abs=1e-12)
+    assert (face_values(pipe)["output.mid_x"], face_values(pipe)["output.mid_y"]) == pytest.approx((5.0, 10.0), abs=1e-12)

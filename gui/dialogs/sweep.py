@@ -7,6 +7,8 @@ finished first, the rest are skipped).
 """
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt
@@ -23,15 +25,27 @@ from .background import BackgroundRun
 
 def sweep_names(scene) -> list[str]:
     """Numbers of the scene a user is likely to sweep, named as `raytrace.sweep` reads them."""
-    names = []
+    links = getattr(scene, "links", None)
+    names = list(links.named_numbers()) if links else []
+    copies = {c: part for part, cs in (links.repeated() if links else {}).items() for c in cs}
+    done: set[str] = set()
     for p in scene.parts:
+        if p.name in copies:    # a copy of a repeated part: the file names the part once
+            if copies[p.name] in done:
+                continue
+            done.add(copies[p.name])
+            p = replace(p, name=copies[p.name])
+            names += [f"{p.name}.repeat.pitch", f"{p.name}.repeat.count"]
         if p.shape is not None:
             for info in PARAMETERS[p.shape.kind]:
                 if info.type in ("number", "integer"):
                     names.append(f"{p.name}.{info.name}")
             names += [f"{p.name}.rotation_deg", f"{p.name}.position[0]", f"{p.name}.position[1]"]
+    placed = links.placed() if links else set()
     for s in scene.sources:
-        names += [f"{s.name}.direction_deg", f"{s.name}.position[0]", f"{s.name}.position[1]"]
+        # an aimed or turned source is swept by its turn: its direction follows from the file
+        turn = "turn_deg" if s.name in placed else "direction_deg"
+        names += [f"{s.name}.{turn}", f"{s.name}.position[0]", f"{s.name}.position[1]"]
         if s.kind != "point":
             names.append(f"{s.name}.width")
         if s.kind != "beam":
@@ -44,7 +58,12 @@ def sweep_names(scene) -> list[str]:
 
 def current_value(scene, name: str) -> float | None:
     """The value `name` has now (for the dialog's default range), when it can be read simply."""
+    links = getattr(scene, "links", None)
+    if links and name in links.named_numbers():
+        return links.named_numbers()[name]
     obj, _, field = name.rpartition(".")
+    if links and obj in links.repeated():
+        obj = links.repeated()[obj][0]    # a repeated part's numbers, as its first copy has them
     idx = None
     if field.endswith("]"):
         field, _, i = field[:-1].partition("[")
