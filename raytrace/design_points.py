@@ -43,11 +43,33 @@ def resolve_continuous(data: dict, name: str, option: str, file: str = "") -> tu
         fail("a field that counts things", "a number that can take any value (not a count, bins, rays or seed)")
     if name == "wavelength":
         fail(name, "SOURCE.wavelength (one source's wavelength), since 'wavelength' replaces whole spectra")
+    path = target.paths[0]
     try:
-        value = _get(data, target.paths[0])
+        value = _get(data, path)
     except (KeyError, IndexError, TypeError):
         fail("<not given in the scene file>", "a number the scene file states (write it there first)")
+    if isinstance(value, str):          # a named number or a field linked by "= ..."
+        value = _linked_value(data, path)
+        if value is None:
+            fail(f"<a linked field, {_get(data, path)!r}>",
+                 "a plain number, or the named number it is linked to")
     return target, float(value)
+
+
+def _linked_value(data: dict, path: tuple) -> float | None:
+    """The value a linked field or named number evaluates to, None when it cannot be read off
+    (a field of a repeated part or of a placed source, whose numbers move with the copies)."""
+    from .linked import resolve as resolve_links
+    problems = Problems()
+    plain, linker = resolve_links(data, problems)
+    if problems.items or linker is None:
+        return None
+    if path[0] == "numbers":
+        return dict(linker.values).get(path[1])
+    collection, index, sub = path[0], path[1], path[2:]
+    name = data[collection][index].get("name") if isinstance(index, int) else None
+    where = (collection, name, sub) if isinstance(index, int) else (collection, None, path[1:])
+    return next((float(v) for w, _, v in linker.leaves if w == where and v is not None), None)
 
 
 def problem(path, found, expected, file: str = ""):

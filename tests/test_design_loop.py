@@ -247,3 +247,21 @@ def test_figure_standard_error_matches_the_spread_over_seeds():
     p = values.mean()
     assert errors.mean() == pytest.approx(math.sqrt(p * (1 - p) / 400), rel=0.05)
     assert values.std(ddof=1) == pytest.approx(errors.mean(), rel=0.30)
+
+
+def test_named_and_linked_numbers_start_from_their_evaluated_values(capsys):
+    """The light-pipe sample names its bend radius (bend_radius = 8) and links the bend to it; the
+    window follows the guide's output.  Both names start from 8 and trace the sample as it is."""
+    pipe = ROOT / "samples" / "light-pipe-90.json"
+    plain = raytrace.trace(load_scene(pipe), rays=60).efficiency("viewer side")
+    for name in ("bend_radius", "guide.segments[1].bend.radius"):
+        res = optimize(load_scene(pipe) if name == "bend_radius" else json.loads(pipe.read_text()),
+                       [Bound(name, 4.0, 14.0)], "viewer side", options={"rays": 60}, workers=1,
+                       scan=2, max_evaluations=4)
+        assert res.start == (8.0,)
+        assert res.evaluations[0].value == pytest.approx(plain, abs=1e-12)
+    # a source placed by aim_at / turn_deg moves as a whole: its linked turn is varied by its name
+    sheet = ROOT / "samples" / "retroreflective-sheet.json"
+    code = cli.main(["tolerance", str(sheet), "--tol", "emitter beam.turn_deg=0.5", "--figure", "return"])
+    err = capsys.readouterr().err
+    assert code == cli.EXIT_USAGE and "'= entry_deg'" in err and "named number" in err
