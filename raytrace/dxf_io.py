@@ -93,7 +93,9 @@ def import_dxf(path: str | os.PathLike, units: str | None = None, layer_material
     problems.raise_if_errors()
     parts = _parts(loops, layer_materials or {})
     base = setup or Scene()
-    scene = replace(base.copy(), parts=[p for p, _ in parts],
+    # links=None: the setup's links (numbers, fields that follow a builder part's output) refer
+    # to parts the drawing replaces, so the new scene keeps their values as plain numbers
+    scene = replace(base.copy(), parts=[p for p, _ in parts], links=None,
                     name=base.name or os.path.splitext(os.path.basename(path))[0],
                     story=base.story or f"Parts imported from {os.path.basename(path)}")
     _check_materials(scene, parts, layer_materials or {}, problems)

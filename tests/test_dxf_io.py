@@ -244,3 +244,16 @@ def test_entities_seen_from_below_are_mirrored_into_the_plane(tmp_path):
     # the half disc bulges toward world -x, away from its chord at x = -5
     x0, _, x1, _ = part.outer.bounds()
     assert (x0, x1) == pytest.approx((-7.0, -5.0))
+
+
+def test_setup_links_do_not_follow_into_the_imported_scene(tmp_path):
+    """The JSON pipe links its window and detector to the guide's output and names bend_radius;
+    the drawing's guide has no builder output, so the imported scene holds plain numbers: saved,
+    reopened and traced like the JSON pipe."""
+    out = tmp_path / "pipe.json"
+    save_scene(import_dxf(PIPE_DXF, layer_materials=MAPPING, setup=load_scene(PIPE_JSON)), out)
+    text = out.read_text()
+    assert '"numbers"' not in text and '"= ' not in text
+    again = load_scene(out)
+    assert raytrace.trace(again, rays=100).efficiency("viewer side") == pytest.approx(
+        raytrace.trace(load_scene(PIPE_JSON), rays=100).efficiency("viewer side"), abs=1e-9)
