@@ -1,15 +1,23 @@
 """No lost work: a periodic recovery copy of the open scene, and finding it after a crash.
 
 While the document has unsaved changes, its scene is written every `interval_s` seconds to
-`<home>/recovery/recovery-<pid>.json` (atomically), with a small sidecar saying which file it
+`<home>/recovery/recovery-<session>.json` (atomically), with a small sidecar saying which file it
 belongs to.  A clean exit deletes both.  On the next start, recovery files left by a process
 that is no longer running are offered for restoring.
+
+The session id is random, not the process id: process ids repeat (every container's first
+process is pid 1), and a copy named by pid would be overwritten by the next session with that
+pid before it was offered.  A session counts as running while a process with its pid and its
+start time exists.  The recovery copy's name is always derived from the sidecar's own name,
+never read from inside it, so a crafted sidecar cannot make Discard delete another file.
 """
 from __future__ import annotations
 
 import json
 import os
+import re
 import time
+import uuid
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -38,6 +46,7 @@ class Recovery:
     original: str              # the file it belongs to ("" for an untitled scene)
     saved_at: float
     pid: int
+    session: str = ""
 
     def describe(self) -> str:
         when = time.strftime("%Y-%m-%d %H:%M:%S", time.localtime(self.saved_at))
@@ -56,9 +65,22 @@ def _remove(*files: Path) -> None:
             pass
 
 
-def _alive(pid: int) -> bool:
+def _process_started(pid: int) -> str:
+    """When process `pid` started (clock ticks since boot), "" where that cannot be read."""
+    try:
+        with open(f"/proc/{pid}/stat", encoding="ascii", errors="replace") as fh:
+            return fh.read().rsplit(")", 1)[1].split()[19]
+    except (OSError, IndexError):
+        return ""
+
+
+def _alive(pid: int, started: str = "", session: str = "") -> bool:
+    """Whether the session that wrote a sidecar still runs: its pid exists and, where the
+    start time is known, is the same process (not a later one given the same pid)."""
     if pid == os.getpid():
-        return True
+        return bool(session) and session.startswith(SESSION_ID)   # this pid, another run: gone
+    if started and _process_started(pid) not in ("", started):
+        return False
     try:
         os.kill(pid, 0)
     except ProcessLookupError:
@@ -77,16 +99,27 @@ def find_recoveries() -> list[Recovery]:
     if not d.is_dir():
         return out
     for meta in d.glob("recovery-*.meta.json"):
+        m = _META_NAME.fullmatch(meta.name)
+        if m is None or not meta.is_file():
+            continue
+        scene_file = d / f"recovery-{m.group(1)}.json"   # never the sidecar's own say
         try:
             info = json.loads(meta.read_text(encoding="utf-8"))
             pid = int(info["pid"])
-            scene_file = d / info["scene_file"]
-        except (OSError, ValueError, KeyError, TypeError):
+            session = str(info.get("session", ""))
+            started = str(info.get("started", ""))
+            original = str(info.get("original", ""))
+            saved_at = float(info.get("saved_at", 0))
+        except (OSError, ValueError, KeyError, TypeError, AttributeError):
             continue
-        if _alive(pid) or not scene_file.exists():
+        if _alive(pid, started, session) or not scene_file.is_file():
             continue
-        out.append(Recovery(scene_file, meta, str(info.get("original", "")), float(info.get("saved_at", 0)), pid))
+        out.append(Recovery(scene_file, meta, original, saved_at, pid, session))
     return sorted(out, key=lambda r: -r.saved_at)
+
+
+SESSION_ID = uuid.uuid4().hex      # this run of the app
+_META_NAME = re.compile(r"recovery-([0-9A-Za-z_-]+)\.meta\.json")
 
 
 class Autosaver(QObject):
@@ -96,8 +129,9 @@ class Autosaver(QObject):
         super().__init__(parent)
         self.doc = doc
         self.pid = os.getpid()
-        self.scene_file = recovery_dir() / f"recovery-{self.pid}.json"
-        self.meta_file = recovery_dir() / f"recovery-{self.pid}.meta.json"
+        self.session = f"{SESSION_ID}-{id(self):x}"     # two windows in one run keep two copies
+        self.scene_file = recovery_dir() / f"recovery-{self.session}.json"
+        self.meta_file = recovery_dir() / f"recovery-{self.session}.meta.json"
         self.last_error = ""
         self._written_for = None
         self.timer = QTimer(self)
@@ -107,18 +141,21 @@ class Autosaver(QObject):
         doc.file_changed.connect(self._file_changed)
 
     def save_now(self) -> bool:
-        """Write the recovery copy if there is unsaved work; True when written."""
+        """Write the recovery copy if there is unsaved work; True when written.  Never raises:
+        it runs on a timer, and a failure is kept in `last_error` for the status bar."""
         if not self.doc.modified:
             return False
         if self._written_for is self.doc.scene and self.scene_file.exists():
             return False
         try:
+            text = self.doc.text()
             self.scene_file.parent.mkdir(parents=True, exist_ok=True)
-            atomic_write_text(self.scene_file, self.doc.text())
+            atomic_write_text(self.scene_file, text)
             atomic_write_text(self.meta_file, json.dumps({
-                "pid": self.pid, "scene_file": self.scene_file.name,
+                "pid": self.pid, "session": self.session, "started": _process_started(self.pid),
+                "scene_file": self.scene_file.name,      # for a reader; never used for deletion
                 "original": str(self.doc.path) if self.doc.path else "", "saved_at": time.time()}) + "\n")
-        except (OSError, ValueError) as exc:
+        except Exception as exc:    # noqa: BLE001  (a timer slot must not raise into Qt)
             self.last_error = f"could not write the recovery copy {self.scene_file}: {exc}"
             return False
         self._written_for = self.doc.scene

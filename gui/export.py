@@ -3,7 +3,7 @@ from __future__ import annotations
 
 
 from raytrace.atomic import atomic_write as _atomic
-from raytrace.raytable import ray_table
+from raytrace.raytable import write_csv
 
 
 def save_widget_png(widget, path) -> None:
@@ -38,8 +38,7 @@ def save_widget_svg(widget, path, title: str = "") -> None:
 
 def save_ray_table_csv(result, path) -> int:
     """Write the recorded ray segments as CSV; returns the number of rows."""
-    table = ray_table(result)
-    if table is None:
+    n = write_csv(result, path)      # streamed, atomic
+    if n is None:
         raise ValueError("this trace recorded no ray segments (set Drawn rays above 0)")
-    table.to_csv(path)      # atomic inside raytable
-    return len(table)
+    return n

@@ -13,6 +13,7 @@ from PySide6.QtGui import QAction, QActionGroup, QKeySequence
 from PySide6.QtWidgets import (QDockWidget, QDoubleSpinBox, QFileDialog, QLabel, QMainWindow,
                                QMessageBox, QScrollArea, QTabWidget, QToolBar)
 
+from raytrace.atomic import clashing_outputs
 from raytrace.errors import SceneError
 from raytrace.scene import Scene
 from raytrace.scene_io import scene_from_text
@@ -366,8 +367,10 @@ class MainWindow(QMainWindow):
     def _save_to(self, path: Path) -> bool:
         try:
             self.doc.save(path)
-        except OSError as exc:
-            reason = exc.strerror or str(exc)
+        except (OSError, SceneError) as exc:
+            # a SceneError: a value no scene file can hold (NaN from code): say which
+            reason = "; ".join(str(p) for p in exc.problems) if isinstance(exc, SceneError) \
+                else exc.strerror or str(exc)
             self.show_error("Not saved", f"Could not save {path}: {reason}. "
                                          "The scene is still open with its changes unsaved.")
             self._update_title()
@@ -380,6 +383,10 @@ class MainWindow(QMainWindow):
     def _export(self, what: str, suffix: str, filt: str, write) -> bool:
         path = self.ask_save_path(f"Export {what}", filt, suffix)
         if not path:
+            return False
+        if self.doc.path is not None and clashing_outputs({"scene": str(self.doc.path)}, {"the export": path}):
+            self.show_error("Not exported", f"{path} is the open scene's own file; exporting there would "
+                                            "destroy it. Choose another name.")
             return False
         try:
             n = write(path)

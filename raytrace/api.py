@@ -7,11 +7,11 @@ import numpy as np
 
 from .compile import CompiledScene, compile_scene
 from .catalog import valid_range_nm
-from .errors import BudgetExceeded, Problems
+from .errors import BudgetExceeded, Problems, memory_limit_text
 from .ledger import Ledger
 from .results import TraceResult
 from .scene import Scene
-from .sources import StartRays, sample_sources
+from .sources import StartRays, band_span_nm, band_warnings, sample_sources
 from .streaming import DEFAULT_CHUNK, trace_chunked
 from .tracer import Limits, Recording
 
@@ -36,7 +36,8 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
     workers: processes to trace on (chunks spread over a pool); the result does not depend on it.
     chunk_size: source rays traced together (default 50,000); the ledger of a Monte Carlo trace
         depends on it through the per-chunk seeds, never on `workers`.
-    max_memory_mb: memory limit of one chunk's trace; past it the trace stops with BudgetExceeded.
+    max_memory_mb: memory the trace's arrays may use (default: the scene's trace.max_memory_mb,
+        4096); the trace stops with BudgetExceeded before it would go past it.
     accel: nearest-hit method, "auto" (default), "plain", "sweep" or "grid"; all give the same result.
     route_flux_floor: rays fainter than this share of their source ray's flux are lumped
         into "other routes" in the route listing (default 1e-3; lower it to see faint ghosts).
@@ -51,19 +52,24 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
         flux_floor=s.flux_floor if flux_floor is None else float(flux_floor),
         max_generations=s.max_generations if max_generations is None else int(max_generations),
         segment_budget=s.segment_budget if segment_budget is None else int(segment_budget))
-    if max_memory_mb is not None:
-        limits.max_memory_mb = float(max_memory_mb)
+    limits.max_memory_mb = float(s.max_memory_mb if max_memory_mb is None else max_memory_mb)
     if route_flux_floor is not None:
         limits.route_flux_floor = float(route_flux_floor)
     cs = compiled or compile_scene(scene)
+    check_profile_memory(scene, limits.max_memory_mb, workers)
     if start is None:
         need = rays * BYTES_PER_START_RAY
         if need > limits.max_memory_mb * 1e6:
-            raise BudgetExceeded(f"{rays:,} starting rays need about {need / 1e6:,.0f} MB, more than the "
-                                 f"memory limit max_memory_mb={limits.max_memory_mb:g}; raise max_memory_mb "
-                                 f"or trace fewer rays")
-        start = sample_sources(scene.sources, rays, seed=seed, sampling=sampling)
-    warnings = check_wavelengths(scene, cs, start)
+            raise BudgetExceeded(f"{rays:,} starting rays need about {need / 1e6:,.0f} MB, more than "
+                                 f"{memory_limit_text(limits.max_memory_mb)}; or trace fewer rays")
+        span = band_span_nm(cs.media)
+        problems = Problems()
+        warnings = band_warnings(scene.sources, span, problems)
+        problems.raise_if_errors()
+        start = sample_sources(scene.sources, rays, seed=seed, sampling=sampling, span_nm=span)
+    else:
+        warnings = []
+    warnings += check_wavelengths(scene, cs, start)
     recording = record if isinstance(record, Recording) else Recording(record, record_count)
     if hits not in ("auto", "keep", "histogram"):
         raise ValueError(f"hits: expected one of auto, keep, histogram, found {hits!r}")
@@ -72,7 +78,9 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
                         chunk_size=chunk_size or DEFAULT_CHUNK, workers=max(1, int(workers)),
                         keep_hits=keep_hits, accel=accel, progress=progress)
     ledger = Ledger(cs, raw.bins, raw.source_flux)
-    settings = {"rays": rays, "mode": mode, "seed": seed, **asdict(limits),
+    limit_settings = asdict(limits)
+    limit_settings.pop("memory_share_mb")      # internal: how the limit was split
+    settings = {"rays": rays, "mode": mode, "seed": seed, **limit_settings,
                 "sampling": sampling or "per source", "source_names": [src.name for src in scene.sources],
                 "source_positions": [list(src.position) for src in scene.sources],
                 "workers": max(1, int(workers)), "chunk_size": chunk_size or DEFAULT_CHUNK,
@@ -84,6 +92,19 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
         settings["source_ray_counts"] = np.bincount(start.source, minlength=len(scene.sources)).tolist()
     warnings += result_warnings(ledger, raw.stats, limits)
     return TraceResult(cs, raw, ledger, mode, settings, warnings)
+
+
+BYTES_PER_PROFILE_BIN = 8 * 4      # a bin's flux, its edges, and the density of the report
+
+
+def check_profile_memory(scene: Scene, limit_mb: float, workers: int) -> None:
+    """Detector profiles are allocated per detector, per process (binned hits) and again for
+    the reports: refuse before allocating when their bins alone would pass the limit."""
+    bins = sum(d.bins + d.angle_bins for d in scene.detectors)
+    need = bins * BYTES_PER_PROFILE_BIN * (max(1, int(workers)) + 1)
+    if need > limit_mb * 1e6:
+        raise BudgetExceeded(f"the detectors' {bins:,} profile bins need about {need / 1e6:,.0f} MB, more than "
+                             f"{memory_limit_text(limit_mb)}; or give the detectors fewer bins")
 
 
 def check_wavelengths(scene: Scene, cs: CompiledScene, start: StartRays) -> list[str]:

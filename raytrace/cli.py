@@ -18,10 +18,12 @@ from __future__ import annotations
 import argparse
 from dataclasses import replace
 import json
+import math
 import sys
 from pathlib import Path
 
 from .errors import BudgetExceeded, RaytraceError, SceneError
+from .scene import MAX_GENERATIONS
 
 EXIT_OK, EXIT_SCENE, EXIT_USAGE, EXIT_LIMIT, EXIT_OUTPUT, EXIT_SWEEP_POINTS = 0, 1, 2, 3, 4, 5
 
@@ -37,9 +39,10 @@ def build_parser() -> argparse.ArgumentParser:
     t.add_argument("scene", metavar="SCENE")
     add_trace_options(t)
     t.add_argument("--workers", type=whole(1), dest="trace_workers", metavar="N",
-                   help="processes to trace on (default 1); the result does not depend on it")
-    t.add_argument("--json", metavar="FILE", help="write the summary (ledger, efficiencies, stats) as JSON")
-    t.add_argument("--csv", metavar="FILE", help="write the ray table (one row per segment) as CSV")
+                   help="processes to trace on (default and most: the CPUs this process may use); "
+                        "the result does not depend on it")
+    t.add_argument("--json", metavar="FILE", help="write the summary (ledger, efficiencies, stats) as JSON (- for standard output)")
+    t.add_argument("--csv", metavar="FILE", help="write the ray table (one row per segment) as CSV (- for standard output)")
     t.add_argument("--record", metavar="first:N|all|none", type=parse_record, default=None,
                    help="which source rays the ray table holds (default with --csv: first:1000)")
     t.add_argument("--detectors-csv", metavar="FILE", dest="detectors_csv",
@@ -65,7 +68,8 @@ def build_parser() -> argparse.ArgumentParser:
     w.add_argument("--vary", metavar="NAME=START:STOP:COUNT", action="append", required=True,
                    help="a number to vary (once or twice; two make a grid)")
     w.add_argument("--csv", metavar="OUT", required=True, help="the table to write")
-    w.add_argument("--workers", type=int, help="local worker processes (default: CPU count; 1 = in this process)")
+    w.add_argument("--workers", type=int, help="local worker processes (default and most: the CPUs this process may use; "
+                        "1 = in this process)")
     w.add_argument("--dask", metavar="ADDRESS",
                    help="run the points on the Dask scheduler at ADDRESS (needs the dask extra)")
     w.add_argument("--plot", metavar="FILE.png|svg", help="plot the efficiencies against the varied number")
@@ -91,17 +95,29 @@ def parse_record(text: str) -> tuple[str, int]:
     raise argparse.ArgumentTypeError(f"found {text!r}; expected none, all, or first:N with N a whole number > 0")
 
 
-def whole(minimum: int):
+def whole(minimum: int, maximum: int | None = None):
     """argparse type: a whole number of at least `minimum` (the scene file's own rule)."""
     def parse(text: str) -> int:
         try:
             value = int(text)
         except ValueError:
             raise argparse.ArgumentTypeError(f"expected a whole number, found {text!r}") from None
-        if value < minimum:
-            raise argparse.ArgumentTypeError(f"expected a whole number of at least {minimum}, found {value}")
+        if value < minimum or (maximum is not None and value > maximum):
+            most = f" and at most {maximum:,}" if maximum is not None else ""
+            raise argparse.ArgumentTypeError(f"expected a whole number of at least {minimum}{most}, found {value}")
         return value
     return parse
+
+
+def positive(text: str) -> float:
+    """argparse type: a finite number above 0."""
+    try:
+        value = float(text)
+    except ValueError:
+        value = float("nan")
+    if not 0.0 < value < float("inf"):     # also refuses nan
+        raise argparse.ArgumentTypeError(f"expected a number above 0, found {text!r}")
+    return value
 
 
 def fraction(text: str) -> float:
@@ -144,18 +160,26 @@ def add_trace_options(t: argparse.ArgumentParser) -> None:
     t.add_argument("--seed", type=whole(0), help="random seed for Monte Carlo and random sampling")
     t.add_argument("--flux-floor", type=fraction, dest="flux_floor",
                    help="end children below this fraction of their source ray's flux")
-    t.add_argument("--max-generations", type=whole(1),
+    t.add_argument("--max-generations", type=whole(1, MAX_GENERATIONS),
                    help="follow each ray for at most this many generations (the source ray is generation 0, "
                         "each interaction's children one more)")
     t.add_argument("--segment-budget", type=whole(1), help="most ray segments the whole trace may hold")
     add_earlier_name(t, "--min-flux", "--flux-floor", "flux_floor", type=fraction)
     add_earlier_name(t, "--max-depth", "--max-generations", "max_generations", type=whole(1))
     add_earlier_name(t, "--max-segments", "--segment-budget", "segment_budget", type=whole(1))
+    t.add_argument("--max-memory-mb", type=positive, dest="max_memory_mb", metavar="MB",
+                   help="memory the trace may use (default: the scene's trace.max_memory_mb, 4096); "
+                        "past it the trace stops with exit code 3")
     t.add_argument("--sampling", choices=("even", "random"), help="override each source's sampling")
     t.add_argument("--quiet", action="store_true", help="print nothing but errors")
 
 
 def main(argv: list[str] | None = None) -> int:
+    for stream in (sys.stdout, sys.stderr):
+        try:    # a file name with bytes that are not UTF-8 prints escaped, never crashes a message
+            stream.reconfigure(errors="backslashreplace")
+        except (AttributeError, ValueError):
+            pass
     parser = build_parser()
     try:
         args = parser.parse_args(argv)
@@ -169,6 +193,14 @@ def main(argv: list[str] | None = None) -> int:
         return EXIT_SCENE
     except BudgetExceeded as exc:
         print(f"stopped: {exc}", file=sys.stderr)
+        return EXIT_LIMIT
+    except MemoryError:
+        # the machine ran out before the limit did (other programs, or a limit above the RAM)
+        from .errors import memory_limit_text
+        limit = getattr(args, "max_memory_mb", None) or 4096.0
+        print(f"stopped: the machine ran out of memory; lower the work (fewer rays, --record first:N) or "
+              f"set {memory_limit_text(limit)} below the free memory so the trace stops before it runs out",
+              file=sys.stderr)
         return EXIT_LIMIT
     except RaytraceError as exc:
         print(f"error: {exc}", file=sys.stderr)
@@ -203,13 +235,18 @@ def cmd_check(args) -> int:
 
 def trace_kwargs(args) -> dict:
     return {k: getattr(args, k) for k in ("rays", "mode", "seed", "flux_floor", "max_generations",
-                                         "segment_budget", "sampling") if getattr(args, k, None) is not None}
+                                         "segment_budget", "sampling", "max_memory_mb")
+            if getattr(args, k, None) is not None}
 
 
 def cmd_trace(args) -> int:
     from .api import trace
+    from .parallel import capped_workers
     from .report import Progress, detectors_text, summary_text
     from .scene_io import load_scene
+    if refuse_clashing_outputs({"scene": args.scene}, {"--json": args.json, "--csv": args.csv,
+                                                        "--detectors-csv": args.detectors_csv}):
+        return EXIT_USAGE
     scene = load_scene(args.scene)
     print_notes(scene)
     record = args.record or (("first", 1000) if args.csv else ("none", 0))
@@ -221,7 +258,7 @@ def cmd_trace(args) -> int:
     progress = Progress(enabled=not args.quiet)
     try:
         result = trace(scene, record=record[0], record_count=record[1], progress=progress.trace,
-                       track_paths=args.routes is not None, workers=getattr(args, "trace_workers", None) or 1,
+                       track_paths=args.routes is not None, workers=capped_workers(args.trace_workers),
                        route_flux_floor=args.route_flux_floor, **trace_kwargs(args))
     except SceneError as exc:      # found while tracing (a wavelength no material can take)
         raise SceneError([replace(p, file=p.file or args.scene) for p in exc.problems]) from None
@@ -248,19 +285,20 @@ def cmd_trace(args) -> int:
                 kept[g.bucket] = kept.get(g.bucket, 0) + 1
                 if kept[g.bucket] <= args.routes:
                     summary["routes"].append(g.to_dict())
-        if not write_output(args.json, json.dumps(summary, indent=2) + "\n"):
+        if not write_output(args.json, standard_json(summary)):
             return EXIT_OUTPUT
     if args.csv:
-        from .raytable import ray_table
-        table = ray_table(result)
-        if table is None or not write_output(args.csv, table.to_csv()):
+        from .raytable import write_rows
+        rows: list[int] = []
+        if result.segments is None or not write_stream(args.csv, lambda fh: rows.append(write_rows(result, fh))):
             return EXIT_OUTPUT
         if not args.quiet and record[0] == "first" and record[1] < result.stats["source_rays"]:
             print(f"note: the ray table holds the first {record[1]:,} of {result.stats['source_rays']:,} "
-                  f"source rays ({len(table):,} segments); use --record all for every ray", file=sys.stderr)
+                  f"source rays ({rows[0]:,} segments); use --record all for every ray", file=sys.stderr)
     if args.detectors_csv:
-        from .detectors import detector_reports, profiles_csv
-        if not write_output(args.detectors_csv, profiles_csv(detector_reports(result))):
+        from .detectors import detector_reports, write_profiles
+        reports = detector_reports(result)
+        if not write_stream(args.detectors_csv, lambda fh: write_profiles(reports, fh)):
             return EXIT_OUTPUT
     if args.plot:
         from .plots import trace_plot
@@ -274,6 +312,8 @@ def cmd_sweep(args) -> int:
     from .report import Progress
     from .scene_io import load_scene, scene_to_dict
     from .sweep import SweepError, parse_vary, sweep
+    if refuse_clashing_outputs({"scene": args.scene}, {"--csv": args.csv}):
+        return EXIT_USAGE
     scene = load_scene(args.scene)
     print_notes(scene)
     if args.plot and not plot_path_ok(args.plot):
@@ -327,10 +367,57 @@ def cmd_materials(args) -> int:
     return EXIT_OK
 
 
+def standard_json(data) -> str:
+    """JSON text without the non-standard NaN/Infinity tokens other readers refuse: a value
+    that is not finite is written as null, with a warning naming where."""
+    bad: list[str] = []
+
+    def clean(v, where):
+        if isinstance(v, float) and not math.isfinite(v):
+            bad.append(where)
+            return None
+        if isinstance(v, dict):
+            return {k: clean(x, f"{where}.{k}") for k, x in v.items()}
+        if isinstance(v, (list, tuple)):
+            return [clean(x, f"{where}[{i}]") for i, x in enumerate(v)]
+        return v
+    data = clean(data, "$")
+    if bad:
+        print(f"warning: {len(bad)} value(s) in the JSON summary are not finite and are written as null "
+              f"(first: {bad[0]})", file=sys.stderr)
+    return json.dumps(data, indent=2, allow_nan=False) + "\n"
+
+
+def refuse_clashing_outputs(inputs: dict, outputs: dict) -> bool:
+    """Print an error for each output that would overwrite an input or another output
+    (also through symlinks and hard links); True when any does."""
+    from .atomic import clashing_outputs
+    clashes = clashing_outputs(inputs, {k: v for k, v in outputs.items() if v})
+    for text in clashes:
+        print(f"error: {text}", file=sys.stderr)
+    return bool(clashes)
+
+
 def write_output(path: str, text: str) -> bool:
-    from .scene_io import atomic_write_text
+    """Write an output file atomically; "-" writes to standard output."""
+    return write_stream(path, lambda fh: fh.write(text))
+
+
+def write_stream(path: str, fill) -> bool:
+    """fill(text file) writes an output: into standard output for "-", else into a temporary
+    file put in place atomically (see atomic.py for devices, symlinks and hard links).  Prints
+    the error and returns False when the file cannot be written."""
+    from .atomic import atomic_write
+    if path == "-":
+        fill(sys.stdout)
+        sys.stdout.flush()
+        return True
+
+    def write(target: str) -> None:
+        with open(target, "w", encoding="utf-8", errors="backslashreplace", newline="") as fh:
+            fill(fh)
     try:
-        atomic_write_text(path, text)
+        atomic_write(path, write)
         return True
     except OSError as exc:
         print(f"error: could not write {path}: {exc.strerror or exc}", file=sys.stderr)

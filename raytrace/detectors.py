@@ -260,21 +260,29 @@ PROFILE_HEADER = ("detector", "profile", "bin", "low", "high", "center", "axis_u
                   "density", "density_unit")
 
 
-def profiles_rows(reports: list[DetectorReport]) -> list[list]:
-    """Long-format rows: one per bin of each detector's irradiance and angular profile."""
-    rows: list[list] = []
+def profiles_rows(reports: list[DetectorReport], block: int = 50_000):
+    """Long-format rows: one per bin of each detector's irradiance and angular profile.
+    Yielded a block of bins at a time, so a million-bin detector never sits in memory as
+    Python lists."""
     for r in reports:
         for kind, prof in (("irradiance", r.irradiance), ("angular", r.angular)):
-            for i, (lo, hi, c, fl, de) in enumerate(zip(prof.edges[:-1].tolist(), prof.edges[1:].tolist(),
-                                                        prof.centers.tolist(), prof.flux.tolist(),
-                                                        prof.density.tolist())):
-                rows.append([r.name, kind, i, lo, hi, c, prof.axis_unit, fl, de, prof.density_unit])
-    return rows
+            lows, highs, centers, density = prof.edges[:-1], prof.edges[1:], prof.centers, prof.density
+            for lo in range(0, len(prof.flux), block):
+                sl = slice(lo, lo + block)
+                for i, (a, b, c, fl, de) in enumerate(zip(lows[sl].tolist(), highs[sl].tolist(),
+                                                          centers[sl].tolist(), prof.flux[sl].tolist(),
+                                                          density[sl].tolist()), start=lo):
+                    yield [r.name, kind, i, a, b, c, prof.axis_unit, fl, de, prof.density_unit]
+
+
+def write_profiles(reports: list[DetectorReport], fh) -> None:
+    """The profiles CSV written into the open text file `fh` (streamed)."""
+    w = csv.writer(fh, lineterminator="\n")
+    w.writerow(PROFILE_HEADER)
+    w.writerows(profiles_rows(reports))
 
 
 def profiles_csv(reports: list[DetectorReport]) -> str:
     buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(PROFILE_HEADER)
-    w.writerows(profiles_rows(reports))
+    write_profiles(reports, buf)
     return buf.getvalue()

@@ -88,3 +88,9 @@ class LedgerError(RaytraceError):
 
 class BudgetExceeded(RaytraceError):
     """A trace would exceed its memory budget; the message says which limit to raise."""
+
+
+def memory_limit_text(limit_mb: float) -> str:
+    """How a memory message names the limit and every place it is set."""
+    return (f"the memory limit max_memory_mb = {limit_mb:g} MB (raise it with --max-memory-mb, "
+            f"\"max_memory_mb\" under \"trace\" in the scene file, or max_memory_mb= in Python)")

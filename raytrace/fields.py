@@ -6,6 +6,7 @@ file finds every problem."""
 from __future__ import annotations
 
 import math
+import re
 from typing import Any
 
 from .errors import Problems
@@ -152,7 +153,26 @@ def string(obj: dict, key: str, path: str, problems: Problems, default: Any = MI
     if choices is not None and v not in choices:
         problems.add(f"{path}.{key}", v, f"one of {', '.join(choices)}")
         return None
+    bad = bad_text(v)
+    if bad:
+        problems.add(f"{path}.{key}", v, f"a text without {bad}")
+        return None
     return v
+
+
+def bad_text(text: str) -> str:
+    """What makes a text unfit for names and reports, or "".  Control characters would reach
+    a terminal raw (escape sequences, bells, carriage returns); a lone surrogate (a \\udXXX
+    escape without its pair) is not a character and cannot be written as UTF-8."""
+    if _SURROGATE.search(text):
+        return "lone surrogate escapes (\\udXXX without its pair)"
+    if _CONTROL.search(text):
+        return "control characters (line breaks, tabs, escape codes)"
+    return ""
+
+
+_SURROGATE = re.compile("[\ud800-\udfff]")
+_CONTROL = re.compile("[\x00-\x1f\x7f-\x9f]")
 
 
 def boolean(obj: dict, key: str, path: str, problems: Problems, default: Any = MISSING) -> bool | None:

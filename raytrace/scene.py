@@ -103,6 +103,12 @@ class TraceSettings:
     segment_budget: int = 1_000_000_000  # total ray segments in one trace: a guard against runaway
                                        # traces (10 million light-pipe rays need about 660 million)
     seed: int = 1
+    max_memory_mb: float = 4096.0    # memory a trace may use; past it, it stops and says so
+
+
+# Largest max_generations a file or flag may ask for: a ray's flux after a million events is
+# zero in double precision, so a larger bound only promises work that never ends.
+MAX_GENERATIONS = 1_000_000
 
 
 @dataclass

@@ -9,6 +9,7 @@ from __future__ import annotations
 import json
 import math
 import os
+import stat
 from dataclasses import replace
 from pathlib import Path
 from typing import Any
@@ -20,7 +21,7 @@ from .compile import check_geometry, resolve_materials
 from .errors import Problems, SceneError
 from .geometry import (MIRROR, TREATMENT_KINDS, Edge, Loop, Part, ShapeSpec, Treatment)
 from .materials import material_from_dict
-from .scene import (DISTRIBUTIONS, POLARIZATIONS, SAMPLINGS, SOURCE_KINDS, Detector, Scene,
+from .scene import (MAX_GENERATIONS, DISTRIBUTIONS, POLARIZATIONS, SAMPLINGS, SOURCE_KINDS, Detector, Scene,
                     Source, Spectrum, TraceSettings)
 
 FORMAT_NAME = "raytrace2d-scene"
@@ -36,24 +37,34 @@ SOURCE_KEYS = ("name", "kind", "position", "direction_deg", "aim_at", "pivot", "
                "half_angle_deg", "distribution", "cos_power", "flux", "spectrum", "polarization",
                "sampling", "note")
 DETECTOR_KEYS = ("name", "start", "end", "absorbing", "bins", "angle_bins", "central_fraction")
-TRACE_KEYS = ("rays", "mode", "flux_floor", "max_generations", "segment_budget", "seed")
+TRACE_KEYS = ("rays", "mode", "flux_floor", "max_generations", "segment_budget", "seed", "max_memory_mb")
 # Earlier names of trace settings, still read (with a note) so older files keep working.
 OLD_TRACE_KEYS = {"min_relative_flux": "flux_floor", "max_depth": "max_generations",
                   "max_segments": "segment_budget"}
 MODES = ("branching", "monte_carlo")
-MAX_BINS = 1_000_000   # histogram bins per detector: beyond this a histogram is only memory
+# Largest source flux: sums and squares of fluxes must stay finite (1e308 overflowed to a
+# non-standard Infinity in the JSON summary); the Sun gives about 3.8e26 W.
+MAX_FLUX = 1e30
+MAX_BINS = 1_000_000
+MAX_MEMORY_MB = 1e9    # 1 PB: any real machine is below it   # histogram bins per detector: beyond this a histogram is only memory
 
 
 # ----------------------------------------------------------------------------- loading
+
+MAX_SCENE_BYTES = 64 * 2**20   # far above any hand-made or generated scene (a 10,000-edge film is ~1 MB)
+
 
 def load_scene(path: str | os.PathLike) -> Scene:
     """Read, validate and build a scene.  Raises SceneError listing every problem."""
     path = Path(path)
     problems = Problems(file=str(path))
     try:
-        text = path.read_text(encoding="utf-8-sig")   # -sig: accept the BOM some editors write
+        text = read_scene_text(path)
     except FileNotFoundError:
         problems.add("$", "<no such file>", "an existing scene file")
+        raise SceneError(problems.items)
+    except _NotAScene as exc:
+        problems.add("$", f"<{exc}>", exc.expected)
         raise SceneError(problems.items)
     except (OSError, UnicodeDecodeError) as exc:
         problems.add("$", f"<unreadable file: {exc}>", "a readable UTF-8 JSON file")
@@ -61,10 +72,33 @@ def load_scene(path: str | os.PathLike) -> Scene:
     return scene_from_text(text, problems)
 
 
+class _NotAScene(OSError):
+    def __init__(self, found: str, expected: str):
+        super().__init__(found)
+        self.expected = expected
+
+
+def read_scene_text(path: Path) -> str:
+    """The file's text, read only from a regular file and at most MAX_SCENE_BYTES: a FIFO
+    would wait for a writer and /dev/zero would be read forever."""
+    from .atomic import describe_kind
+    st = os.stat(path)
+    if not stat.S_ISREG(st.st_mode):
+        raise _NotAScene(describe_kind(st.st_mode), "a regular scene file")
+    with open(path, "rb") as fh:
+        data = fh.read(MAX_SCENE_BYTES + 1)
+    if len(data) > MAX_SCENE_BYTES:
+        size = f"{MAX_SCENE_BYTES / 2**20:.3g} MB"
+        raise _NotAScene(f"a file of more than {size}", f"a scene file of at most {size}")
+    return data.decode("utf-8-sig")   # -sig: accept the BOM some editors write
+
+
 def scene_from_text(text: str, problems: Problems | None = None) -> Scene:
     problems = problems or Problems()
+    duplicates = DuplicateKeys()
     try:
-        data = json.loads(text, parse_constant=F.NonFinite, parse_int=F.parse_int)
+        data = json.loads(text, parse_constant=F.NonFinite, parse_int=F.parse_int,
+                          object_pairs_hook=duplicates.hook)
     except json.JSONDecodeError as exc:
         problems.add("$", f"<malformed JSON at line {exc.lineno} column {exc.colno}: {exc.msg}>",
                      "valid JSON")
@@ -72,7 +106,49 @@ def scene_from_text(text: str, problems: Problems | None = None) -> Scene:
     except RecursionError:
         problems.add("$", "<JSON nested too deeply>", "a scene file of ordinary depth")
         raise SceneError(problems.items)
+    duplicates.report(data, problems)
     return scene_from_dict(data, problems)
+
+
+class DuplicateKeys:
+    """JSON object hook that notes keys given twice in one object (Python's parser keeps the
+    last silently: a second "parts": [] would drop every part), to report them by JSON path."""
+
+    def __init__(self):
+        self.found: dict[int, tuple[dict, list[str]]] = {}
+
+    def hook(self, pairs: list[tuple[str, Any]]) -> dict:
+        out: dict = {}
+        twice = []
+        for k, v in pairs:
+            if k in out and k not in twice:
+                twice.append(k)
+            out[k] = v
+        if twice:
+            self.found[id(out)] = (out, twice)
+        return out
+
+    def report(self, data: Any, problems: Problems) -> None:
+        if not self.found:
+            return
+        for where, obj in _objects(data, "$"):
+            hit = self.found.get(id(obj))
+            if hit is not None and hit[0] is obj:
+                for k in hit[1]:
+                    problems.add(f"{where}.{_key(k)}", f"<the key {k!r} given more than once>",
+                                 "each key once in an object (only the last would count)")
+        problems.raise_if_errors()
+
+
+def _objects(value: Any, where: str):
+    """Every JSON object in `value` with its path."""
+    if isinstance(value, dict):
+        yield where, value
+        for k, v in value.items():
+            yield from _objects(v, f"{where}.{_key(str(k))}")
+    elif isinstance(value, list):
+        for k, v in enumerate(value):
+            yield from _objects(v, f"{where}[{k}]")
 
 
 def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
@@ -103,6 +179,10 @@ def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
     mats = top.get("materials", {})
     if F.obj(mats, "$.materials", problems) is not None:
         for mname, mdata in mats.items():
+            if F.bad_text(mname):
+                problems.add(f"$.materials.{_key(mname)}", mname, f"a material name without {F.bad_text(mname)}")
+                failed_materials.add(mname)
+                continue
             m = material_from_dict(mname, mdata, f"$.materials.{_key(mname)}", problems)
             if m is not None:
                 materials[mname] = m
@@ -463,7 +543,7 @@ def _source(value: Any, where: str, problems: Problems) -> Source | None:
         distribution=F.string(d, "distribution", where, problems, default="uniform", choices=DISTRIBUTIONS),
         cos_power=F.number(d, "cos_power", where, problems, default=1.0, minimum=0.0, exclusive=True,
                            what="an exponent m of cos^m"),
-        flux=F.number(d, "flux", where, problems, default=1.0, minimum=0.0, what="a flux"),
+        flux=F.number(d, "flux", where, problems, default=1.0, minimum=0.0, maximum=MAX_FLUX, what="a flux"),
         polarization=F.string(d, "polarization", where, problems, default="unpolarized", choices=POLARIZATIONS),
         sampling=F.string(d, "sampling", where, problems, default="even", choices=SAMPLINGS),
         note=F.string(d, "note", where, problems, default=""),
@@ -513,9 +593,12 @@ def _settings(value: Any, where: str, problems: Problems) -> TraceSettings | Non
         mode=F.string(d, "mode", where, problems, default=base.mode, choices=MODES),
         flux_floor=F.number(d, "flux_floor", where, problems, default=base.flux_floor,
                                    minimum=0.0, maximum=1.0, what="a relative flux"),
-        max_generations=F.integer(d, "max_generations", where, problems, default=base.max_generations, minimum=1),
+        max_generations=F.integer(d, "max_generations", where, problems, default=base.max_generations, minimum=1,
+                                  maximum=MAX_GENERATIONS),
         segment_budget=F.integer(d, "segment_budget", where, problems, default=base.segment_budget, minimum=1),
         seed=F.integer(d, "seed", where, problems, default=base.seed, minimum=0),
+        max_memory_mb=F.number(d, "max_memory_mb", where, problems, default=base.max_memory_mb, minimum=0.0,
+                               exclusive=True, maximum=MAX_MEMORY_MB, what="a memory limit in MB"),
     )
     if any(v is None for v in kw.values()):
         return None
@@ -563,6 +646,8 @@ def _plain_dict(scene: Scene) -> dict:
     t = scene.settings
     out["trace"] = {"rays": int(t.rays), "mode": t.mode, "flux_floor": float(t.flux_floor),
                     "max_generations": int(t.max_generations), "segment_budget": int(t.segment_budget), "seed": int(t.seed)}
+    if t.max_memory_mb != TraceSettings().max_memory_mb:    # written only when set: files stay as they were
+        out["trace"]["max_memory_mb"] = float(t.max_memory_mb)
     return out
 
 

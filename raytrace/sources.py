@@ -63,21 +63,29 @@ def allocate_rays(sources: list[Source], n_rays: int) -> list[int]:
     return [int(c) for c in counts]
 
 
+# Wavelengths a scene may hold (nm): the scene file's own rule for any wavelength.
+WAVELENGTH_SPAN_NM = (100.0, 20000.0)
+# A band whose Gaussian has less than this share outside the span is sampled untruncated.
+TRUNCATED_SHARE = 2e-9
+
+
 def sample_sources(sources: list[Source], n_rays: int, seed: int = 1,
-                   sampling: str | None = None) -> StartRays:
-    """Starting rays for all sources.  `sampling` overrides each source's own style."""
+                   sampling: str | None = None, span_nm: tuple[float, float] = WAVELENGTH_SPAN_NM) -> StartRays:
+    """Starting rays for all sources.  `sampling` overrides each source's own style; band
+    spectra are truncated to `span_nm` (see band_span_nm)."""
     rng = np.random.default_rng(seed)
     out = []
     for index, (src, count) in enumerate(zip(sources, allocate_rays(sources, n_rays))):
         if count == 0:
             continue
-        rays = sample_source(src, count, rng, sampling or src.sampling)
+        rays = sample_source(src, count, rng, sampling or src.sampling, span_nm)
         rays.source[:] = index
         out.append(rays)
     return StartRays.concat(out)
 
 
-def sample_source(src: Source, n: int, rng: np.random.Generator, sampling: str) -> StartRays:
+def sample_source(src: Source, n: int, rng: np.random.Generator, sampling: str,
+                  span_nm: tuple[float, float] | None = None) -> StartRays:
     even = sampling == EVEN
     base = math.radians(src.direction_deg)
     if src.kind == BEAM:
@@ -103,7 +111,7 @@ def sample_source(src: Source, n: int, rng: np.random.Generator, sampling: str) 
     x = src.position[0] + offsets * px
     y = src.position[1] + offsets * py
     flux = src.flux * weights / weights.sum()
-    wl = sample_spectrum(src.spectrum, n, rng, even)
+    wl = sample_spectrum(src.spectrum, n, rng, even, span_nm or WAVELENGTH_SPAN_NM)
     if src.polarization == S_POL:
         fs, fp = flux, np.zeros(n)
     elif src.polarization == P_POL:
@@ -178,7 +186,8 @@ def _angles(src: Source, n: int, rng, even: bool) -> tuple[np.ndarray, np.ndarra
     return (2 * u - 1) * h, np.ones(n)
 
 
-def sample_spectrum(spec: Spectrum, n: int, rng, even: bool) -> np.ndarray:
+def sample_spectrum(spec: Spectrum, n: int, rng, even: bool,
+                    span_nm: tuple[float, float] | None = None) -> np.ndarray:
     """Wavelengths for n rays.
 
     even: the wavelengths sit at the centres of n equal-weight strata of the spectrum (so the
@@ -186,18 +195,10 @@ def sample_spectrum(spec: Spectrum, n: int, rng, even: bool) -> np.ndarray:
     that wavelength is not tied to a ray's place in the fan (a two-line beam would otherwise be
     red on one side and blue on the other).
     random: drawn from the spectrum (lines: stratified, then shuffled; band: Gaussian draws).
+    A band is a Gaussian truncated to `span_nm` (it never reaches 0 nm or below).
     """
     if spec.is_band:
-        sigma = spec.band_fwhm_nm / (2 * math.sqrt(2 * math.log(2)))
-        if not even:
-            return rng.normal(spec.band_center_nm, sigma, n)
-        # a fixed set of at most 64 Gaussian quantiles: few distinct wavelengths keep the
-        # per-wavelength index table small
-        from statistics import NormalDist
-        k = min(n, 64)
-        dist = NormalDist(spec.band_center_nm, sigma)
-        q = np.array([dist.inv_cdf((i + 0.5) / k) for i in range(k)])
-        return _golden_deal(q[np.minimum((_strata(n, rng, True) * k).astype(int), k - 1)])
+        return _sample_band(spec, n, rng, even, span_nm or WAVELENGTH_SPAN_NM)
     wls = np.asarray(spec.wavelengths_nm, dtype=float)
     if len(wls) == 1:
         return np.full(n, wls[0])
@@ -207,6 +208,74 @@ def sample_spectrum(spec: Spectrum, n: int, rng, even: bool) -> np.ndarray:
     if even:
         return _golden_deal(wls[np.searchsorted(edges, _strata(n, rng, True))])
     return rng.permutation(wls[np.searchsorted(edges, _strata(n, rng, False))])
+
+
+def band_span_nm(materials) -> tuple[float, float]:
+    """Where band spectra are sampled: the wavelengths a scene file may hold, narrowed to where
+    the data of every catalog material in use lie (when those ranges overlap)."""
+    from .catalog import valid_range_nm
+    lo, hi = WAVELENGTH_SPAN_NM
+    for m in materials:
+        r = valid_range_nm(m)
+        if r is not None:
+            lo, hi = max(lo, r[0]), min(hi, r[1])
+    return (lo, hi) if lo < hi else WAVELENGTH_SPAN_NM
+
+
+def band_share_outside(spec: Spectrum, span_nm: tuple[float, float]) -> float:
+    """The share of a band's Gaussian that lies outside `span_nm` (and is not traced)."""
+    from statistics import NormalDist
+    dist = NormalDist(spec.band_center_nm, _sigma(spec))
+    return 1.0 - (dist.cdf(span_nm[1]) - dist.cdf(span_nm[0]))
+
+
+def band_warnings(sources, span_nm: tuple[float, float], problems) -> list[str]:
+    """Warn for bands cut by the span; a Problem for a band with nothing inside it."""
+    out = []
+    for k, src in enumerate(sources):
+        sp = src.spectrum
+        if not sp.is_band:
+            continue
+        cut = band_share_outside(sp, span_nm)
+        where = f"{span_nm[0]:g}-{span_nm[1]:g} nm"
+        if cut > 1.0 - 1e-9:
+            problems.add(f"$.sources[{k}].spectrum.band",
+                         f"<centre {sp.band_center_nm:g} nm, FWHM {sp.band_fwhm_nm:g} nm: nothing within {where}>",
+                         f"a band that overlaps {where}, the range of the materials' data")
+        elif cut > TRUNCATED_SHARE:
+            out.append(f"source {src.name!r}: {100 * cut:.3g} % of its band (centre {sp.band_center_nm:g} nm, "
+                       f"FWHM {sp.band_fwhm_nm:g} nm) lies outside {where}, the range of the materials' data; "
+                       "the band is truncated there and its flux carried by the rest")
+    return out
+
+
+def _sigma(spec: Spectrum) -> float:
+    return spec.band_fwhm_nm / (2 * math.sqrt(2 * math.log(2)))
+
+
+def _sample_band(spec: Spectrum, n: int, rng, even: bool, span_nm: tuple[float, float]) -> np.ndarray:
+    from statistics import NormalDist
+    sigma = _sigma(spec)
+    dist = NormalDist(spec.band_center_nm, sigma)
+    lo, hi = span_nm
+    whole = band_share_outside(spec, span_nm) <= TRUNCATED_SHARE
+    if whole and not even:
+        # the span holds the whole band for any practical purpose: plain Gaussian draws
+        return np.clip(rng.normal(spec.band_center_nm, sigma, n), lo, hi)
+    c_lo, c_hi = (0.0, 1.0) if whole else (dist.cdf(lo), dist.cdf(hi))
+
+    def quantiles(u: np.ndarray) -> np.ndarray:
+        """Wavelengths at cumulative shares u of the band's part inside the span."""
+        p = np.clip(c_lo + u * (c_hi - c_lo), 1e-300, 1 - 1e-16)
+        return np.clip(np.array([dist.inv_cdf(float(x)) for x in p]), lo, hi)
+    if not even:
+        grid = np.linspace(0.0, 1.0, 4097)     # inverse CDF tabulated once, then interpolated
+        return np.interp(rng.random(n), grid, quantiles(grid))
+    # a fixed set of at most 64 quantiles: few distinct wavelengths keep the per-wavelength
+    # index table small
+    k = min(n, 64)
+    q = quantiles((np.arange(k) + 0.5) / k)
+    return _golden_deal(q[np.minimum((_strata(n, rng, True) * k).astype(int), k - 1)])
 
 
 _GOLDEN = (math.sqrt(5.0) - 1.0) / 2.0

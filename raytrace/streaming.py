@@ -65,9 +65,11 @@ def run_chunk(cs: CompiledScene, start: StartRays, job: ChunkJob, mode: str, rec
 class Merger:
     """Adds chunk results in chunk order."""
 
-    def __init__(self, cs: CompiledScene, n_sources: int, track_paths: bool, max_memory_mb: float = 4096.0):
+    def __init__(self, cs: CompiledScene, n_sources: int, track_paths: bool, max_memory_mb: float = 4096.0,
+                 kept_mb: float | None = None):
         self.cs = cs
         self.max_memory_mb = max_memory_mb
+        self.kept_mb = max_memory_mb if kept_mb is None else kept_mb   # what merged results may use
         self.kept_bytes = 0
         self.n_codes = cs.n_edges * N_EVENT_KINDS
         self.trie = PathTrie(n_sources, track_paths, MAX_PATH_NODES, n_bins=0)
@@ -83,17 +85,18 @@ class Merger:
         self.t0 = time.perf_counter()
 
     def add(self, raw: RawTrace, n_source_rays: int, lo: int) -> None:
-        from .errors import BudgetExceeded
-        from .tracer import BYTES_PER_HIT, BYTES_PER_SEGMENT_ROW
+        from .errors import BudgetExceeded, memory_limit_text
+        from .tracer import BYTES_PER_HIT, BYTES_PER_SEGMENT_ROW, KEPT_COPIES
         self.chunks += 1
         self.kept_bytes += BYTES_PER_HIT * len(raw.hits.get("root", ())) + \
             BYTES_PER_SEGMENT_ROW * (len(raw.segments["ray_id"]) if raw.segments is not None else 0)
-        if self.kept_bytes > self.max_memory_mb * 1e6:
+        need = KEPT_COPIES * self.kept_bytes      # the pieces and, at the end, their joined copy
+        if need > self.kept_mb * 1e6:
             raise BudgetExceeded(
                 f"after {self.chunks} chunks the kept detector records and ray-table rows need about "
-                f"{self.kept_bytes / 1e6:,.0f} MB, more than the memory limit max_memory_mb={self.max_memory_mb:g}; "
-                f"raise max_memory_mb, record fewer rays (record=\"first\") or bin detector hits "
-                f"(hits=\"histogram\")")
+                f"{need / 1e6:,.0f} MB, more than the {self.kept_mb:,.0f} MB left for them by "
+                f"{memory_limit_text(self.max_memory_mb)}; or record fewer rays (--record first:N, "
+                f"record=\"first\" in Python) or bin detector hits (hits=\"histogram\" in Python)")
         self.bins = raw.bins.copy() if self.bins is None else self.bins + raw.bins
         self.source_flux += raw.source_flux
         remap = None
@@ -143,6 +146,11 @@ class Merger:
             histograms=self.histograms)
 
 
+def start_bytes(start: StartRays) -> int:
+    """Memory held by the starting rays' arrays."""
+    return sum(v.nbytes for v in vars(start).values() if isinstance(v, np.ndarray))
+
+
 def _flux_arrays(path_flux) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     if hasattr(path_flux, "arrays"):
         return path_flux.arrays()
@@ -164,13 +172,21 @@ def trace_chunked(cs: CompiledScene, start: StartRays, mode: str, limits: Limits
                   workers: int = 1, keep_hits: bool = True, accel: str = "auto", progress=None) -> RawTrace:
     """Trace in chunks, on `workers` processes when more than one, and merge in chunk order."""
     jobs = plan_chunks(len(start), chunk_size, seed, limits)
-    if len(jobs) == 1 and workers <= 1:
-        job = jobs[0]
-        # one chunk: the plain single trace (seed as given, so small traces are unchanged)
-        return trace_rays(cs, start, mode=mode, limits=limits, seed=seed, record=record,
-                          track_paths=track_paths, n_sources=n_sources, accel=accel,
-                          keep_hits=keep_hits, progress=progress)
-    merger = Merger(cs, n_sources, track_paths, limits.max_memory_mb)
+    # the memory limit covers the starting rays, the chunks being traced and the merged
+    # results together: each gets a fixed share, so their sum never passes it
+    free_mb = limits.max_memory_mb - start_bytes(start) / 1e6
+    if len(jobs) == 1:
+        # one chunk: the plain single trace (seed as given, so small traces are unchanged, and
+        # the same whatever the number of workers)
+        return trace_rays(cs, start, mode=mode, limits=replace(limits, memory_share_mb=max(free_mb, 0.0)),
+                          seed=seed, record=record, track_paths=track_paths, n_sources=n_sources,
+                          accel=accel, keep_hits=keep_hits, progress=progress)
+    from .parallel import capped_workers
+    running = min(capped_workers(workers), len(jobs)) if workers > 1 else 1
+    share = max(free_mb, 0.0) / (2 * running)     # half for the chunks in flight, half for the merged
+    for job in jobs:
+        job.limits = replace(job.limits, memory_share_mb=share)
+    merger = Merger(cs, n_sources, track_paths, limits.max_memory_mb, kept_mb=max(free_mb, 0.0) / 2)
     if workers > 1 and len(jobs) > 1:
         from .parallel import run_parallel
         results = run_parallel(cs, start, jobs, mode, record, track_paths, n_sources, keep_hits, accel, workers)

@@ -58,9 +58,13 @@ KINDS = {"part": "parts", "source": "sources", "detector": "detectors"}
 SOURCE_FIELDS = ("position", "direction_deg", "width", "half_angle_deg", "cos_power", "flux",
                  "aim_at", "pivot", "turn_deg")
 DETECTOR_FIELDS = ("start", "end", "bins", "angle_bins", "central_fraction")
-TRACE_FIELDS = ("rays", "flux_floor", "max_generations", "segment_budget", "seed")
+TRACE_FIELDS = ("rays", "flux_floor", "max_generations", "segment_budget", "seed", "max_memory_mb")
 WHOLE_NUMBER_FIELDS = {"rays", "max_generations", "segment_budget", "seed", "bins", "angle_bins", "sides", "count"}
-TRACE_OPTIONS = ("rays", "mode", "seed", "flux_floor", "max_generations", "segment_budget", "sampling")
+# Points in one sweep: a table of this many rows is a long night of tracing already; the
+# limit keeps a mistyped COUNT (1e9) from filling memory with values before anything runs.
+MAX_POINTS = 100_000
+TRACE_OPTIONS = ("rays", "mode", "seed", "flux_floor", "max_generations", "segment_budget", "sampling",
+                 "max_memory_mb")
 
 
 class SweepError(SceneError):
@@ -125,20 +129,37 @@ def parse_vary(text: str, where: str = "--vary") -> Variable:
                 raise ValueError
             start, stop = float(parts[0]), float(parts[1])
             count = int(parts[2])
+            if count > MAX_POINTS:
+                raise _TooMany(count)
             if count < 1 or not (math.isfinite(start) and math.isfinite(stop)):
                 raise ValueError
             values = tuple(start + (stop - start) * k / (count - 1) for k in range(count)) if count > 1 else (start,)
             if count > 1:
                 values = values[:-1] + (stop,)   # the stop value exactly, not start + sum of steps
         else:
+            if spec.count(",") >= MAX_POINTS:
+                raise _TooMany(spec.count(",") + 1)
             values = tuple(float(v) for v in spec.split(","))
             if not values or not all(math.isfinite(v) for v in values):
                 raise ValueError
+    except _TooMany as exc:
+        problems.add(f"{where} {name}", f"<{exc.count:,} values>", _too_many_text())
+        raise SweepError(problems.items)
     except ValueError:
         problems.add(f"{where} {name}", spec,
                      "START:STOP:COUNT with finite numbers and a whole COUNT >= 1, or a list v1,v2,...")
         raise SweepError(problems.items)
     return Variable(name, values)
+
+
+class _TooMany(ValueError):
+    def __init__(self, count: int):
+        super().__init__(count)
+        self.count = count
+
+
+def _too_many_text() -> str:
+    return f"at most {MAX_POINTS:,} points in one sweep (split it into several runs)"
 
 
 def resolve(data: dict, name: str, file: str = "") -> Target:
@@ -321,7 +342,7 @@ def sweep(scene, variables: list[Variable], trace_options: dict | None = None,
 
     executor: any concurrent.futures executor (not shut down here), e.g. a Dask client's
     `client.get_executor()`.  Without one, points run in a local process pool of `workers`
-    processes (default: the CPU count), or in this process when workers == 1.
+    processes (default and most: the CPUs this process may use), or in this process when workers == 1.
     progress(done, total) is called as points finish."""
     from .scene import Scene
     if isinstance(scene, Scene):
@@ -334,11 +355,15 @@ def sweep(scene, variables: list[Variable], trace_options: dict | None = None,
     if len({v.name for v in variables}) != len(variables):
         raise SweepError([_problem("--vary", [v.name for v in variables], "two different names")])
     targets = [resolve(data, v.name, file) for v in variables]
+    _refuse_shared_number(targets)
     for v, t in zip(variables, targets):
         if t.whole:
             bad = [x for x in v.values if x != round(x)]
             if bad:
                 raise SweepError([_problem(f"--vary {v.name}", bad[0], "whole numbers (this field counts things)")])
+    n_points = math.prod(len(v.values) for v in variables)
+    if n_points > MAX_POINTS:
+        raise SweepError([_problem("--vary", f"<a grid of {n_points:,} points>", _too_many_text())])
     points = _grid(variables, targets)
     options = {k: v for k, v in (trace_options or {}).items() if k in TRACE_OPTIONS and v is not None}
     tasks = [(data, [(t.paths, val) for t, val in zip(targets, vals)], options) for vals in points]
@@ -350,11 +375,13 @@ def sweep(scene, variables: list[Variable], trace_options: dict | None = None,
 def run_tasks(fn: Callable, tasks: list[tuple], executor: Executor | None = None, workers: int | None = None,
               progress: Callable[[int, int], None] | None = None) -> list:
     """fn(*task) for every task, results in task order whatever order they finish in: on
-    `executor`, else on a local pool of `workers` processes (default: the CPU count), or in this
-    process when workers == 1 or there is one task.  progress(done, total) as tasks finish."""
+    `executor`, else on a local pool of `workers` processes (default and most: the CPUs this
+    process may use), or in this process when that is one, or there is one task.
+    progress(done, total) as tasks finish."""
+    from .parallel import capped_workers
     results: list = [None] * len(tasks)
     done = 0
-    if executor is None and (workers == 1 or len(tasks) <= 1):
+    if executor is None and (workers == 1 or len(tasks) <= 1 or capped_workers(workers) == 1):
         for i, task in enumerate(tasks):
             results[i] = fn(*task)
             done += 1
@@ -362,7 +389,9 @@ def run_tasks(fn: Callable, tasks: list[tuple], executor: Executor | None = None
                 progress(done, len(tasks))
         return results
     own = executor is None
-    ex = executor or ProcessPoolExecutor(max_workers=min(workers or os.cpu_count() or 1, len(tasks)))
+    from .parallel import die_with_parent
+    ex = executor or ProcessPoolExecutor(max_workers=min(capped_workers(workers), len(tasks)),
+                                         initializer=die_with_parent)
     try:
         futures = {ex.submit(fn, *task): i for i, task in enumerate(tasks)}
         for fut in as_completed(futures):
@@ -374,6 +403,20 @@ def run_tasks(fn: Callable, tasks: list[tuple], executor: Executor | None = None
         if own:
             ex.shutdown(wait=True, cancel_futures=True)
     return results
+
+
+def _refuse_shared_number(targets: list[Target]) -> None:
+    """Two names for one number (guide.width and $.parts[0].shape.params.width, or wavelength
+    and LED.wavelength): the second would silently overwrite the first at every point."""
+    if len(targets) < 2:
+        return
+    a, b = targets
+    for pa in a.paths:
+        for pb in b.paths:
+            n = min(len(pa), len(pb))
+            if pa[:n] == pb[:n]:
+                raise SweepError([_problem(f"--vary {b.name}", f"<the number {a.name} sets too ($.{_render_path(pb)})>",
+                                           "two names for two different numbers")])
 
 
 def _problem(path, found, expected):
@@ -405,6 +448,8 @@ def run_point(data: dict, settings: list[tuple[tuple, Any]], options: dict) -> d
         return {"status": "invalid: " + "; ".join(str(p) for p in exc.problems)}
     except RaytraceError as exc:
         return {"status": f"stopped: {exc}"}
+    except MemoryError:
+        return {"status": "stopped: out of memory (set trace.max_memory_mb below the free memory)"}
     return {
         "status": "ok",
         "source_flux": result.source_flux,

@@ -21,7 +21,7 @@ from . import fresnel
 from .accel import edge_table, hit_function
 from .compile import (T_ABSORBER, T_AR, T_BARE, T_DETECT_ABSORB, T_DETECT_MONITOR, T_MIRROR,
                       CompiledScene)
-from .errors import BudgetExceeded
+from .errors import BudgetExceeded, memory_limit_text
 from .intersect import edge_normal, nearest_hit
 from .ledger import TRUNC_BUDGET, TRUNC_DEPTH, TRUNC_FLUX, BinLayout
 from .pathtrie import PathTrie
@@ -51,6 +51,7 @@ GRAZING_COS = 1e-9           # |cos| below which a hit counts as grazing
 BYTES_PER_LIVE_RAY = 1200
 BYTES_PER_SEGMENT_ROW = 18 * 8     # one ray-table row
 BYTES_PER_HIT = 10 * 8             # one detector record
+KEPT_COPIES = 2                    # kept rows exist twice while their pieces are concatenated
 
 
 @dataclass
@@ -59,6 +60,9 @@ class Limits:
     max_generations: int = 200
     segment_budget: int = 1_000_000_000
     max_memory_mb: float = 4096.0
+    # the part of max_memory_mb this one trace_rays call may use (the rest holds the starting
+    # rays, the merged results and the other workers' chunks); None: all of it
+    memory_share_mb: float | None = None
     # rays fainter than this share of their source ray's flux have their paths lumped into
     # "other paths": the path table stays small and does not depend on how rays are chunked
     route_flux_floor: float = 1e-3
@@ -247,7 +251,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     hist = _Histograms(cs) if not keep_hits else None
     stats = {"segments": 0, "generations": 0, "vertex_hits": 0, "grazing_hits": 0,
              "medium_mismatches": 0, "tir_events": 0, "source_rays": n}
-    budget = limits.max_memory_mb * 1e6
+    budget = (limits.max_memory_mb if limits.memory_share_mb is None else limits.memory_share_mb) * 1e6
     vertex_tol2 = (1e3 * cs.eps) ** 2
     gen = 0
     seg_rows = hit_rows = 0
@@ -269,14 +273,15 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
             m = len(r["x"])
             if m == 0:
                 break
-        kept = seg_rows * BYTES_PER_SEGMENT_ROW + hit_rows * BYTES_PER_HIT
+        # kept rows are held twice at the end: the per-generation pieces and their concatenation
+        kept = KEPT_COPIES * (seg_rows * BYTES_PER_SEGMENT_ROW + hit_rows * BYTES_PER_HIT)
         if m * BYTES_PER_LIVE_RAY + kept > budget:
             raise BudgetExceeded(
                 f"generation {gen} has {m:,} live rays (about {m * BYTES_PER_LIVE_RAY / 1e6:,.0f} MB) and "
                 f"{seg_rows:,} ray-table rows and {hit_rows:,} detector records are kept (about {kept / 1e6:,.0f} MB), "
-                f"more than the memory limit max_memory_mb={limits.max_memory_mb:g}; raise max_memory_mb, "
-                f"trace fewer rays per chunk (chunk_size), raise flux_floor, record fewer rays "
-                f"(record=\"first\") or bin detector hits (hits=\"histogram\")")
+                f"more than {_share_text(limits)}{memory_limit_text(limits.max_memory_mb)}; or trace "
+                f"fewer rays, raise the flux floor (--flux-floor), record fewer rays (--record first:N, "
+                f"record=\"first\" in Python) or bin detector hits (hits=\"histogram\" in Python)")
         stats["generations"] += 1
         stats["segments"] += m
         if progress is not None:
@@ -449,6 +454,12 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         path_parent=paths.parent.copy(), path_code=paths.code.copy(),
         path_flux=paths.flux_dict() if paths.enabled else {}, wavelengths=wavelengths, stats=stats,
         histograms=hist.to_dict() if hist is not None else None)
+
+
+def _share_text(limits: Limits) -> str:
+    if limits.memory_share_mb is None:
+        return ""
+    return f"this chunk's share ({limits.memory_share_mb:,.0f} MB) of "
 
 
 def _normals(cs, K, e, hx, hy):

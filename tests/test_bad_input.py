@@ -338,7 +338,8 @@ def test_a_byte_order_mark_is_accepted(tmp_path):
 def test_a_directory_is_a_scene_error(tmp_path):
     with pytest.raises(SceneError) as info:
         load_scene(tmp_path)
-    assert "unreadable file" in info.value.problems[0].found
+    assert info.value.problems[0].found == "<a directory>"
+    assert info.value.problems[0].expected == "a regular scene file"
 
 
 def _holed(holes):

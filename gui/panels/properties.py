@@ -6,6 +6,7 @@ scene through `edits` and hands it to the document, so every change is one undo 
 """
 from __future__ import annotations
 
+import math
 from dataclasses import replace
 
 from PySide6.QtCore import Qt, Signal
@@ -15,6 +16,7 @@ from PySide6.QtWidgets import (QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout
                                QWidget)
 
 from raytrace.catalog import CATALOG
+from raytrace.fields import MAX_COORD, bad_text
 from raytrace.geometry import TREATMENT_KINDS
 from raytrace.scene import DISTRIBUTIONS, POLARIZATIONS, SAMPLINGS, SOURCE_KINDS, Spectrum
 from raytrace.shapes import PARAMETERS, ShapeParameterError
@@ -31,6 +33,32 @@ def _dspin(lo=-1e6, hi=1e6, decimals=4, suffix=" mm", tip=""):
     w.setKeyboardTracking(False)
     w.setToolTip(tip)
     return w
+
+
+def typed_number(text: str, what: str, lo: float, hi: float, exclusive_lo: bool = False) -> float:
+    """A number typed into a text field, within [lo, hi]; ValueError("expected ...") for text,
+    NaN, infinities and values out of range (a scene file could not hold them)."""
+    try:
+        v = float(text)
+    except ValueError:
+        v = math.nan
+    low_ok = v > lo if exclusive_lo else v >= lo
+    if not (low_ok and v <= hi):      # also refuses nan
+        raise ValueError(f"expected {what} from {_plain(lo)} to {_plain(hi)}, found {text!r}")
+    return v
+
+
+def _plain(v: float) -> str:
+    """A bound as people write it: 1,000,000 rather than 1e+06."""
+    return f"{int(v):,}" if v == int(v) and abs(v) < 1e15 else f"{v:g}"
+
+
+def clean_text(text: str, what: str) -> str:
+    """A name or note typed by the user; ValueError when a scene file would refuse it."""
+    bad = bad_text(text)
+    if bad:
+        raise ValueError(f"expected {what} without {bad}")
+    return text
 
 
 def _set(widget, value):
@@ -142,6 +170,11 @@ class ScenePage(_Page):
         s = self.doc.scene
         if all(getattr(s, k) == v for k, v in changes.items()):
             return
+        for k, v in changes.items():
+            if isinstance(v, str) and bad_text(v):
+                self.error(f"scene {k}: expected text without {bad_text(v)}")
+                self.show(s, 0)
+                return
         self.apply(edits.set_fields(s, **changes), "change scene " + ", ".join(changes))
 
     def show(self, scene, index):
@@ -212,6 +245,10 @@ class PartPage(_Page):
         p = self.part()
         if not name or name == p.name:
             return
+        if bad_text(name):
+            self.error(f"part name: expected a name without {bad_text(name)}")
+            _set(self.name, p.name)
+            return
         if name in {q.name for q in self.doc.scene.parts}:
             self.error(f"a part called {name!r} already exists")
             _set(self.name, p.name)
@@ -249,22 +286,20 @@ class PartPage(_Page):
         text = item.text().strip()
         try:
             if col in (0, 1):
-                v = float(text)
+                v = typed_number(text, "a coordinate in mm", -MAX_COORD, MAX_COORD)
                 new = edits.set_vertex_xy(p, row, **({"x": v} if col == 0 else {"y": v}))
                 what = f"move vertex {row + 1} of {p.name}"
             elif col == 2:
-                new = edits.set_edge(p, row, face=text or None)
+                new = edits.set_edge(p, row, face=clean_text(text, "a face name") or None)
                 what = f"rename face of {p.name}"
             elif col == 4:
-                R = float(text)
-                if not 0.0 <= R <= 1.0:
-                    raise ValueError("a mirror reflectance from 0 to 1")
+                R = typed_number(text, "a mirror reflectance", 0.0, 1.0)
                 new = edits.set_edge(p, row, treatment=edits.treatment("mirror", R))
                 what = f"set mirror reflectance on {p.name}"
             else:
                 return
         except ValueError as exc:
-            self.error(f"row {row + 1}: expected {exc}" if "expected" not in str(exc) else str(exc))
+            self.error(f"row {row + 1}: {exc}" if "expected" in str(exc) else f"row {row + 1}: expected {exc}")
             self.show(self.doc.scene, self.index)
             return
         self._replace(new, what)
@@ -402,8 +437,8 @@ class SourcePage(_Page):
         for item in self.lines.text().split(","):
             if item.strip():
                 wl, _, w = item.partition(":")
-                wls.append(float(wl))
-                ws.append(float(w or 1.0))
+                wls.append(typed_number(wl.strip(), "a wavelength in nm", 100.0, 20000.0))
+                ws.append(typed_number(w.strip() or "1", "a weight", 0.0, 1e30, exclusive_lo=True))
         if not wls:
             raise ValueError("at least one line 'nm:weight'")
         return Spectrum(tuple(wls), tuple(ws))
@@ -414,9 +449,14 @@ class SourcePage(_Page):
         try:
             spectrum = self._spectrum()
         except ValueError as exc:
-            self.error(f"spectrum lines: expected 'nm:weight, ...' ({exc})")
+            self.error(f"spectrum lines 'nm:weight, ...': {exc}")
             return
         name = self.name.text().strip() or src.name
+        for text, what in ((name, "a source name"), (self.note.text(), "a note")):
+            if bad_text(text):
+                self.error(f"{what}: expected text without {bad_text(text)}")
+                self.show(scene, self.index)
+                return
         if name != src.name and name in {s.name for s in scene.sources}:
             self.error(f"a source called {name!r} already exists")
             name = src.name
@@ -492,6 +532,9 @@ class DetectorPage(_Page):
             self.error("a detector needs two different end points")
             return
         name = self.name.text().strip() or d.name
+        if bad_text(name):
+            self.error(f"detector name: expected a name without {bad_text(name)}")
+            name = d.name
         if name != d.name and name in {x.name for x in scene.detectors}:
             self.error(f"a detector called {name!r} already exists")
             name = d.name
