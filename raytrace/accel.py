@@ -33,7 +33,7 @@ import math
 import numpy as np
 
 from .compile import CompiledScene
-from .intersect import arc_constants, arc_t, line_t, nearest_hit
+from .intersect import arc_constants, arc_t, line_reach, line_t, nearest_hit
 
 GRID_MIN_EDGES = 160        # above this many edges the grid beats the sweep (measured on films)
 SMALL_MATRIX = 50_000       # rays x edges up to which one plain matrix beats the sweep
@@ -101,14 +101,15 @@ class EdgeTable:
         self.arcs = ids[cs.is_arc[ids]]
         ex = cs.x1 - cs.x0
         ey = cs.y1 - cs.y0
-        self.line_rows = [(int(i), float(cs.x0[i]), float(cs.y0[i]), float(ex[i]), float(ey[i]))
-                          for i in self.lines]
+        reach = line_reach(cs, self.lines)
+        self.line_rows = [(int(i), float(cs.x0[i]), float(cs.y0[i]), float(ex[i]), float(ey[i]), float(reach[j]))
+                          for j, i in enumerate(self.lines)]
         k = arc_constants(cs, self.arcs)
         self.arc_rows = [(int(i),) + tuple(float(k[f][j]) for f in ("cx", "cy", "r2", "sx", "sy", "qx", "qy"))
                          + (bool(k["major"][j]), float(k["tol"][j])) for j, i in enumerate(self.arcs)]
         # the same constants as (edges, 1) columns for the one-matrix search of small batches
         self.col_lines = self.lines[:, None]
-        self.col_line = tuple(np.array([r[j] for r in self.line_rows], dtype=float)[:, None] for j in (1, 2, 3, 4))
+        self.col_line = tuple(np.array([r[j] for r in self.line_rows], dtype=float)[:, None] for j in (1, 2, 3, 4, 5))
         self.col_arc = {f: v[:, None] for f, v in k.items()}
         # unit normals of straight edges (right of travel), for the interface physics
         L = np.hypot(ex, ey)
@@ -128,8 +129,8 @@ class EdgeTable:
         X, Y, DX, DY = x[None, :], y[None, :], dx[None, :], dy[None, :]
         cols = np.arange(n)
         if len(self.lines):
-            ax, ay, ex, ey = self.col_line
-            t = line_t(X, Y, DX, DY, ax, ay, ex, ey, self.eps)
+            ax, ay, ex, ey, reach = self.col_line
+            t = line_t(X, Y, DX, DY, ax, ay, ex, ey, reach, self.eps)
             t[self.col_lines == start_edge[None, :]] = np.inf
             k = np.argmin(t, axis=0)
             t_best = t[k, cols]
@@ -181,7 +182,7 @@ class EdgeTable:
         ok = np.empty(m, dtype=bool)
         ok2 = np.empty(m, dtype=bool)
         with np.errstate(divide="ignore", invalid="ignore"):
-            for i, ax, ay, ex, ey in self.line_rows:
+            for i, ax, ay, ex, ey, reach in self.line_rows:
                 # denom = dx*ey - dy*ex; t = (wx*ey - wy*ex)/denom; u = (wx*dy - wy*dx)/denom
                 np.multiply(dx, ey, out=denom)
                 np.multiply(dy, ex, out=tmp)
@@ -197,8 +198,8 @@ class EdgeTable:
                 np.multiply(wy, dx, out=tmp)
                 np.subtract(u, tmp, out=u)
                 np.multiply(u, inv, out=u)
-                np.greater_equal(u, 0.0, out=ok)
-                np.less_equal(u, 1.0, out=ok2)
+                np.greater_equal(u, -reach, out=ok)
+                np.less_equal(u, 1.0 + reach, out=ok2)
                 ok &= ok2
                 np.greater(t, eps, out=ok2)
                 ok &= ok2
@@ -374,6 +375,7 @@ class EdgeGrid:
         self.ay = np.append(cs.y0, 0.0)
         self.ex = np.append(cs.x1 - cs.x0, 0.0)
         self.ey = np.append(cs.y1 - cs.y0, 0.0)
+        self.reach = np.append(line_reach(cs, np.arange(ne)), 0.0)
         k = arc_constants(cs, np.arange(ne))
         self.arc_k = {f: np.append(v, False if f == "major" else 0.0) for f, v in k.items()}
         self.arc_k["r2"][ne] = -1.0       # the dummy circle has no real points
@@ -472,7 +474,7 @@ class EdgeGrid:
         cand_t, cand_e = [], []
         if self.line_width:
             E = self.line_cells[c, : self.line_width]
-            t = line_t(X, Y, DX, DY, self.ax[E], self.ay[E], self.ex[E], self.ey[E], eps)
+            t = line_t(X, Y, DX, DY, self.ax[E], self.ay[E], self.ex[E], self.ey[E], self.reach[E], eps)
             t[E == G[3, j][:, None]] = np.inf
             cand_t.append(t)
             cand_e.append(E)

@@ -31,7 +31,9 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
           route_flux_floor: float | None = None) -> TraceResult:
     """Trace a scene.  Unset options fall back to the scene's own trace settings.
 
-    record: "none", "all", or "first" with `record_count` source rays, for the ray table.
+    record: which source rays the ray table holds: "none", "all", "spread" (`record_count` rays
+        spread evenly over all of them; see tracer.spread_rays) or "first" (the first
+        `record_count`; with even sampling that is one end of a fan).
     sampling: "even" or "random" overrides each source's own sampling style.
     workers: processes to trace on (chunks spread over a pool); the result does not depend on it.
     chunk_size: source rays traced together (default 50,000); the ledger of a Monte Carlo trace
@@ -70,21 +72,25 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
     else:
         warnings = []
     warnings += check_wavelengths(scene, cs, start)
-    recording = record if isinstance(record, Recording) else Recording(record, record_count)
+    recording = record if isinstance(record, Recording) else Recording(record, record_count, len(start))
+    if recording.mode not in ("none", "all", "first", "spread"):
+        raise ValueError(f"record: expected one of none, all, first, spread, found {recording.mode!r}")
     if hits not in ("auto", "keep", "histogram"):
         raise ValueError(f"hits: expected one of auto, keep, histogram, found {hits!r}")
     keep_hits = hits == "keep" or (hits == "auto" and len(start) <= KEEP_HITS_MAX_RAYS)
     raw = trace_chunked(cs, start, mode, limits, seed, recording, track_paths, len(scene.sources),
                         chunk_size=chunk_size or DEFAULT_CHUNK, workers=max(1, int(workers)),
                         keep_hits=keep_hits, accel=accel, progress=progress)
-    ledger = Ledger(cs, raw.bins, raw.source_flux)
+    ledger = Ledger(cs, raw.bins, raw.source_flux, batch_bins=raw.batch_bins, batch_flux=raw.batch_flux)
     limit_settings = asdict(limits)
     limit_settings.pop("memory_share_mb")      # internal: how the limit was split
     settings = {"rays": rays, "mode": mode, "seed": seed, **limit_settings,
                 "sampling": sampling or "per source", "source_names": [src.name for src in scene.sources],
+                "source_samplings": [sampling or src.sampling for src in scene.sources],
                 "source_positions": [list(src.position) for src in scene.sources],
                 "workers": max(1, int(workers)), "chunk_size": chunk_size or DEFAULT_CHUNK,
                 "hits": "keep" if keep_hits else "histogram",
+                "record": {"mode": recording.mode, "count": recording.count},
                 # detectors give per-wavelength figures only for line spectra
                 "band_spectrum": any(src.spectrum.is_band for src in scene.sources)}
     if len(start) and bool((start.source[1:] >= start.source[:-1]).all()):

@@ -23,6 +23,7 @@ import sys
 from pathlib import Path
 
 from .errors import BudgetExceeded, RaytraceError, SceneError
+from .figures import DETECTOR_FIGURES
 from .scene import MAX_GENERATIONS
 
 EXIT_OK, EXIT_SCENE, EXIT_USAGE, EXIT_LIMIT, EXIT_OUTPUT, EXIT_SWEEP_POINTS = 0, 1, 2, 3, 4, 5
@@ -38,13 +39,18 @@ def build_parser() -> argparse.ArgumentParser:
     t = sub.add_parser("trace", help="trace a scene and print the energy ledger")
     t.add_argument("scene", metavar="SCENE")
     add_trace_options(t)
+    add_error_options(t)
+    t.add_argument("--set", metavar="NAME=VALUE", action="append", default=[], dest="set",
+                   help="change one number of the scene for this trace, named as for sweep --vary "
+                        "(e.g. guide.width=3.5; repeatable); the file is not changed")
     t.add_argument("--workers", type=whole(1), dest="trace_workers", metavar="N",
                    help="processes to trace on (default and most: the CPUs this process may use); "
                         "the result does not depend on it")
     t.add_argument("--json", metavar="FILE", help="write the summary (ledger, efficiencies, stats) as JSON (- for standard output)")
     t.add_argument("--csv", metavar="FILE", help="write the ray table (one row per segment) as CSV (- for standard output)")
-    t.add_argument("--record", metavar="first:N|all|none", type=parse_record, default=None,
-                   help="which source rays the ray table holds (default with --csv: first:1000)")
+    t.add_argument("--record", metavar="spread:N|first:N|all|none", type=parse_record, default=None,
+                   help="which source rays the ray table holds: N spread evenly over the source, the "
+                        "first N, all or none (default with --csv: spread:1000)")
     t.add_argument("--detectors-csv", metavar="FILE", dest="detectors_csv",
                    help="write each detector's irradiance and angular profiles as CSV")
     t.add_argument("--routes", metavar="N", type=whole(0), nargs="?", const=10, default=None,
@@ -58,7 +64,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     w = sub.add_parser("sweep", help="trace a scene over a range of one or two named numbers",
                        description="Trace SCENE at every point of a range and write one CSV row per point: "
-                                   "efficiency per detector and the share of every ledger bucket.",
+                                   "efficiency per detector and the share of every ledger bucket, each with its standard "
+                                   "error, the point's warnings, and any --figure or --route asked for.",
                        epilog="NAME forms: a named number of the scene file (bend_radius), "
                               "PART.PARAM (guide.segments[1].bend.radius), SOURCE.FIELD "
                               "(LED.direction_deg), DETECTOR.FIELD (return.start[0]), wavelength, "
@@ -73,7 +80,15 @@ def build_parser() -> argparse.ArgumentParser:
     w.add_argument("--dask", metavar="ADDRESS",
                    help="run the points on the Dask scheduler at ADDRESS (needs the dask extra)")
     w.add_argument("--plot", metavar="FILE.png|svg", help="plot the efficiencies against the varied number")
+    w.add_argument("--figure", metavar="DETECTOR.FIELD", action="append", default=[],
+                   help="add a column with a detector figure, e.g. \"return.accepted\" or "
+                        "\"viewer side.centroid_mm\" (repeatable); FIELD is one of "
+                        + ", ".join(DETECTOR_FIGURES))
+    w.add_argument("--route", metavar="BUCKET=STEPS", action="append", default=[],
+                   help="add a column with the share of one route, e.g. "
+                        "\"return=reflect off roof prism / hypotenuse\" (the steps as trace --routes lists them)")
     add_trace_options(w)
+    add_error_options(w)
 
     sub.add_parser("materials", help="list the material catalog with its sources")
 
@@ -85,14 +100,15 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def parse_record(text: str) -> tuple[str, int]:
-    """--record value: none, all, or first:N."""
+    """--record value: none, all, spread:N or first:N."""
     text = text.strip()
     if text in ("none", "all"):
         return text, 0
     kind, _, count = text.partition(":")
-    if kind == "first" and count.isdigit() and int(count) > 0:
-        return "first", int(count)
-    raise argparse.ArgumentTypeError(f"found {text!r}; expected none, all, or first:N with N a whole number > 0")
+    if kind in ("spread", "first") and count.isdigit() and int(count) > 0:
+        return kind, int(count)
+    raise argparse.ArgumentTypeError(f"found {text!r}; expected none, all, spread:N or first:N with N a "
+                                     "whole number > 0")
 
 
 def whole(minimum: int, maximum: int | None = None):
@@ -174,6 +190,45 @@ def add_trace_options(t: argparse.ArgumentParser) -> None:
     t.add_argument("--quiet", action="store_true", help="print nothing but errors")
 
 
+def add_error_options(t: argparse.ArgumentParser) -> None:
+    t.add_argument("--target-error", metavar="E", type=target_error, dest="target_error",
+                   help="trace more rays until every figure's standard error (or --target-figure's) is at "
+                        "most E: a share such as 0.001, or points of %% such as 0.1%%")
+    t.add_argument("--target-figure", metavar="NAME", dest="target_figure",
+                   help="with --target-error: the one figure to judge, a detector's name, DETECTOR.accepted "
+                        "or a ledger bucket label such as \"escaped via guide / input\"")
+    t.add_argument("--ray-cap", metavar="N", type=whole(1), dest="ray_cap",
+                   help="with --target-error: trace at most N rays (default 2,000,000)")
+
+
+def target_error(text: str) -> float:
+    """argparse type: a share (0.001) or points of % (0.1%), more than 0 and less than 1/2."""
+    points = text.strip().endswith("%")
+    try:
+        value = float(text.strip().rstrip("%")) / (100.0 if points else 1.0)
+    except ValueError:
+        value = float("nan")
+    if not 0.0 < value < 0.5:
+        raise argparse.ArgumentTypeError(f"found {text!r}; expected a standard error above 0 and below 0.5, as a "
+                                         "share (0.001) or in points of % (0.1%)")
+    return value
+
+
+def error_kwargs(args) -> dict:
+    """--target-error, --target-figure, --ray-cap as keywords (empty without --target-error);
+    SweepError when the other two come without it (they would do nothing)."""
+    if getattr(args, "target_error", None) is None:
+        alone = [flag for flag, key in (("--target-figure", "target_figure"), ("--ray-cap", "ray_cap"))
+                 if getattr(args, key, None) is not None]
+        if alone:
+            from .sweep import SweepError, _problem
+            raise SweepError([_problem(alone[0], f"{alone[0]} without --target-error",
+                                       "--target-error E as well (it sets the error to reach)")])
+        return {}
+    return {k: getattr(args, k) for k in ("target_error", "target_figure", "ray_cap")
+            if getattr(args, k, None) is not None}
+
+
 def main(argv: list[str] | None = None) -> int:
     for stream in (sys.stdout, sys.stderr):
         try:    # a file name with bytes that are not UTF-8 prints escaped, never crashes a message
@@ -244,12 +299,17 @@ def cmd_trace(args) -> int:
     from .parallel import capped_workers
     from .report import Progress, detectors_text, summary_text
     from .scene_io import load_scene
+    from .sweep import SweepError
     if refuse_clashing_outputs({"scene": args.scene}, {"--json": args.json, "--csv": args.csv,
                                                         "--detectors-csv": args.detectors_csv}):
         return EXIT_USAGE
     scene = load_scene(args.scene)
     print_notes(scene)
-    record = args.record or (("first", 1000) if args.csv else ("none", 0))
+    if args.set:
+        scene = scene_with_settings(scene, args)
+        if scene is None:
+            return EXIT_USAGE
+    record = args.record or (("spread", 1000) if args.csv else ("none", 0))
     if args.plot:
         if not plot_path_ok(args.plot):
             return EXIT_USAGE
@@ -257,9 +317,22 @@ def cmd_trace(args) -> int:
         record = record_for_plot(record)
     progress = Progress(enabled=not args.quiet)
     try:
-        result = trace(scene, record=record[0], record_count=record[1], progress=progress.trace,
+        errors = error_kwargs(args)
+        options = dict(record=record[0], record_count=record[1], progress=progress.trace,
                        track_paths=args.routes is not None, workers=capped_workers(args.trace_workers),
                        route_flux_floor=args.route_flux_floor, **trace_kwargs(args))
+        if errors:
+            from .converge import DEFAULT_RAY_CAP, trace_to_error
+            result = trace_to_error(scene, errors["target_error"], errors.get("target_figure"),
+                                    errors.get("ray_cap") or DEFAULT_RAY_CAP, **options)
+            if not args.quiet:
+                print(f"note: {target_note(result.settings['target_error'])}", file=sys.stderr)
+        else:
+            result = trace(scene, **options)
+    except SweepError as exc:      # a --target-figure that names nothing, or one without --target-error
+        for p in exc.problems:
+            print(f"error: {p}", file=sys.stderr)
+        return EXIT_USAGE
     except SceneError as exc:      # found while tracing (a wavelength no material can take)
         raise SceneError([replace(p, file=p.file or args.scene) for p in exc.problems]) from None
     finally:
@@ -292,9 +365,10 @@ def cmd_trace(args) -> int:
         rows: list[int] = []
         if result.segments is None or not write_stream(args.csv, lambda fh: rows.append(write_rows(result, fh))):
             return EXIT_OUTPUT
-        if not args.quiet and record[0] == "first" and record[1] < result.stats["source_rays"]:
-            print(f"note: the ray table holds the first {record[1]:,} of {result.stats['source_rays']:,} "
-                  f"source rays ({rows[0]:,} segments); use --record all for every ray", file=sys.stderr)
+        if not args.quiet:
+            note = record_note(record, result.stats["source_rays"], rows[0])
+            if note:
+                print(f"note: {note}", file=sys.stderr)
     if args.detectors_csv:
         from .detectors import detector_reports, write_profiles
         reports = detector_reports(result)
@@ -308,7 +382,65 @@ def cmd_trace(args) -> int:
     return EXIT_OK
 
 
+def option_flags() -> dict[str, str]:
+    """The command-line flag of each trace option, by its keyword (rays -> --rays)."""
+    p = argparse.ArgumentParser(add_help=False)
+    add_trace_options(p)
+    flags: dict[str, str] = {}
+    for a in p._actions:          # the first flag of a keyword is its current name
+        if a.option_strings:
+            flags.setdefault(a.dest, a.option_strings[0])
+    return flags
+
+
+def scene_with_settings(scene, args):
+    """The scene with each --set NAME=VALUE applied, or None after printing why not."""
+    from .errors import Problems
+    from .scene_io import scene_from_dict, scene_to_dict
+    from .sweep import SweepError, apply_settings, parse_set
+    try:
+        pairs = [parse_set(text) for text in args.set]
+        data = apply_settings(scene_to_dict(scene), pairs, args.scene, trace_kwargs(args), option_flags())
+    except SweepError as exc:
+        for p in exc.problems:
+            print(f"error: {p}", file=sys.stderr)
+        return None
+    try:
+        return scene_from_dict(data, Problems(file=args.scene))
+    except SceneError as exc:     # the value makes the scene invalid (a part pushed into another)
+        changed = ", ".join(args.set)
+        raise SceneError([replace(p, expected=f"{p.expected} (after --set {changed})") for p in exc.problems]) from None
+
+
+def target_note(t: dict) -> str:
+    """How many rays a --target-error trace took, round by round."""
+    rounds = " -> ".join(f"{r['rays']:,}" for r in t["rounds"])
+    last = t["rounds"][-1]
+    err = "unknown" if last["largest_error"] is None else f"{100 * last['largest_error']:.3g}"
+    verdict = "reached" if t["reached"] else "NOT reached"
+    moved = "" if last.get("largest_change") is None else \
+        f", largest change from the round before {100 * last['largest_change']:.3g} points"
+    return (f"target error {100 * t['target']:.3g} points of % {verdict}: traced {rounds} rays; "
+            f"largest error {err} points ({last['figure']}){moved}")
+
+
+def record_note(record: tuple[str, int], total: int, segments: int) -> str:
+    """Which source rays a partial ray table holds ("" when it holds them all)."""
+    kind, count = record
+    if kind not in ("first", "spread") or count >= total:
+        return ""
+    if kind == "first":
+        return (f"the ray table holds the first {count:,} of {total:,} source rays ({segments:,} segments); "
+                "with even sampling that is one end of each source; --record spread:N spreads them")
+    from .tracer import spread_rays
+    ids = spread_rays(count, total)
+    shown = ", ".join(f"{i:,}" for i in ids[:3].tolist()) + (f", ..., {int(ids[-1]):,}" if count > 3 else "")
+    return (f"the ray table holds {count:,} of {total:,} source rays, spread evenly (one in every "
+            f"{total / count:.4g}: source rays {shown}; {segments:,} segments); use --record all for every ray")
+
+
 def cmd_sweep(args) -> int:
+    from .figures import parse_figure, parse_route
     from .report import Progress
     from .scene_io import load_scene, scene_to_dict
     from .sweep import SweepError, parse_vary, sweep
@@ -319,6 +451,8 @@ def cmd_sweep(args) -> int:
     if args.plot and not plot_path_ok(args.plot):
         return EXIT_USAGE
     try:
+        detectors = [d.name for d in scene.detectors]
+        figures = [parse_figure(f, detectors) for f in args.figure] + [parse_route(r, detectors) for r in args.route]
         variables = [parse_vary(v) for v in args.vary]
         if len(variables) > 2:
             print("error: --vary: found more than two names; expected one or two", file=sys.stderr)
@@ -335,13 +469,15 @@ def cmd_sweep(args) -> int:
             executor, client = opened
         progress = Progress(enabled=not args.quiet)
         try:
-            result = sweep(scene_to_dict(scene), variables, trace_kwargs(args), executor=executor,
-                           workers=args.workers, progress=progress.points, file=args.scene)
+            result = sweep(scene_to_dict(scene), variables, {**trace_kwargs(args), **error_kwargs(args)},
+                           executor=executor,
+                           workers=args.workers, progress=progress.points, file=args.scene,
+                           figures=figures, option_names=option_flags())
         finally:
             progress.close()
             if client is not None:
                 client.close()
-    except SweepError as exc:
+    except SceneError as exc:       # a --vary, --figure or --route that cannot be used
         for p in exc.problems:
             print(f"error: {p}", file=sys.stderr)
         return EXIT_USAGE
@@ -354,6 +490,9 @@ def cmd_sweep(args) -> int:
     if not args.quiet:
         from .report import sweep_text
         print(sweep_text(result))
+    from .report import sweep_warnings
+    for line in sweep_warnings(result):
+        print(f"warning: {line}", file=sys.stderr)
     for row in result.failed:
         print(f"point {row['point']} ({', '.join(f'{n} = {row[n]:g}' for n in result.names)}): {row['status']}",
               file=sys.stderr)

@@ -62,6 +62,8 @@ class CompiledScene:
     scale: float                          # scene size, sets tolerances
     eps: float                            # distance below which a hit is the point just left
     edges: list[Edge] = field(default_factory=list)   # the oriented edges, for drawing
+    # per detector: (accepted direction of travel in degrees, half angle) or None
+    acceptance: list[tuple[float, float] | None] = field(default_factory=list)
 
     @property
     def n_edges(self) -> int:
@@ -263,6 +265,8 @@ def _at_point(geom) -> str:
 
 def _check_overlaps(scene: Scene, polys: list, paths: list[str], problems: Problems) -> None:
     """Partial overlaps are errors; nesting (one inside the other) and touching are fine.
+    Coincident parts (the same region, to within the flattening slack) are errors too: which
+    of the two materials fills the region would depend on the order of the parts.
 
     Only pairs whose shapes intersect are measured; an R-tree finds them in one bulk query."""
     import shapely
@@ -279,7 +283,15 @@ def _check_overlaps(scene: Scene, polys: list, paths: list[str], problems: Probl
         area_tol = _area_slack(a, b, part_tolerance(scene.parts[i], size), part_tolerance(scene.parts[j], size), size)
         if inter <= area_tol:
             continue
-        if b.difference(a).area <= area_tol or a.difference(b).area <= area_tol:
+        a_in_b, b_in_a = a.difference(b).area <= area_tol, b.difference(a).area <= area_tol
+        if a_in_b and b_in_a:
+            pa, pb = scene.parts[i], scene.parts[j]
+            problems.add(paths[j], f"<part {pb.name!r} ({pb.material}) covering the same region as part "
+                                   f"{pa.name!r} ({pa.material}, {paths[i]})>",
+                         "parts that do not coincide: remove one of the two, or make one smaller so it "
+                         "lies inside the other")
+            continue
+        if a_in_b or b_in_a:
             continue   # nested
         problems.add(paths[j], f"<part {scene.parts[j].name!r} overlapping part {scene.parts[i].name!r} "
                                    f"({paths[i]}) by {inter:.6g} mm^2>",
@@ -555,4 +567,6 @@ def compile_scene(scene: Scene, check: bool = True) -> CompiledScene:
         **arr, **ints, is_arc=is_arc, treatment=treatment,
         face_labels=list(face_index), media=media, medium_names=medium_names,
         medium_part=np.array(medium_part, dtype=np.int64), part_names=[p.name for p in scene.parts],
-        detectors=list(scene.detectors), scale=size, eps=1e-9 * max(size, 1e-3), edges=edges)
+        detectors=list(scene.detectors), scale=size, eps=1e-9 * max(size, 1e-3), edges=edges,
+        acceptance=[(d.acceptance.direction(scene.sources), float(d.acceptance.half_angle_deg))
+                    if d.acceptance is not None else None for d in scene.detectors])

@@ -11,12 +11,11 @@ from __future__ import annotations
 import json
 import math
 from concurrent.futures import Executor
-from dataclasses import replace
 from typing import Any, Callable
 
 from .errors import Problems, RaytraceError, SceneError
 from .merit import Figure, measure
-from .sweep import TRACE_OPTIONS, SweepError, Target, _get, apply_settings, resolve, run_tasks
+from .sweep import TRACE_OPTIONS, SweepError, Target, _applied, _get, resolve, run_tasks
 
 
 def scene_data(scene) -> dict:
@@ -30,10 +29,7 @@ def scene_data(scene) -> dict:
 
 def resolve_continuous(data: dict, name: str, option: str, file: str = "") -> tuple[Target, float]:
     """Where `name` lands and its value in the scene, for a number that may take any value."""
-    try:
-        target = resolve(data, name, file)
-    except SweepError as exc:     # resolve names the sweep's option; say which option it was
-        raise SweepError([replace(p, path=p.path.replace("--vary", option, 1)) for p in exc.problems]) from None
+    target = resolve(data, name, file, how=option)
 
     def fail(found, expected):
         problems = Problems(file=file)
@@ -90,8 +86,7 @@ def evaluate_point(data: dict, settings: list[tuple[tuple, Any]], options: dict,
     from .api import trace
     from .scene_io import scene_from_dict
     from .sources import sample_sources
-    data = json.loads(json.dumps(data))
-    apply_settings(data, settings)
+    data = _applied(data, settings)
     try:
         scene = scene_from_dict(data)
         s = scene.settings

@@ -23,6 +23,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .results import DetectorHits, TraceResult
+from .uncertainty import format_error
 
 C_MM_PER_PS = 0.299792458   # speed of light in vacuum, mm per picosecond (exact by definition)
 MAX_WAVELENGTHS = 12        # more distinct wavelengths than this: a band, or too many to list
@@ -108,6 +109,10 @@ class DetectorReport:
     uniformity: Uniformity
     times: ArrivalTimes
     per_wavelength: list[WavelengthFigures] = field(default_factory=list)   # empty: not applicable
+    efficiency_error: float = float("nan")   # standard error of `efficiency` (see raytrace.uncertainty)
+    acceptance: tuple[float, float] | None = None   # (direction of travel, half angle), degrees
+    accepted: float = float("nan")           # share of source flux arriving within the acceptance
+    accepted_error: float = float("nan")
 
     @property
     def centroid_spread_mm(self) -> float:
@@ -124,17 +129,24 @@ class DetectorReport:
         u, t = self.uniformity, self.times
         return {"name": self.name, "length_mm": self.length_mm, "absorbing": self.absorbing, "hits": self.hits,
                 "total_flux": self.total_flux, "flux_s": self.flux_s, "flux_p": self.flux_p,
-                "efficiency": self.efficiency, "centroid_mm": num(self.centroid_mm),
+                "efficiency": self.efficiency, "efficiency_error": num(self.efficiency_error),
+                "centroid_mm": num(self.centroid_mm),
                 "mean_angle_deg": num(self.mean_angle_deg),
                 "uniformity": {"central_fraction": u.fraction, "bins": u.bins,
                                "min_over_mean": num(u.min_over_mean), "max_over_mean": num(u.max_over_mean)},
                 "arrival_ps": {"first": num(t.first_ps), "last": num(t.last_ps), "spread": num(t.spread_ps),
                                "mean": num(t.mean_ps), "rms": num(t.rms_ps)},
-                "per_wavelength": [w.to_dict() for w in self.per_wavelength]}
+                "per_wavelength": [w.to_dict() for w in self.per_wavelength],
+                **({"acceptance": {"direction_deg": self.acceptance[0], "half_angle_deg": self.acceptance[1]},
+                    "accepted": self.accepted, "accepted_error": num(self.accepted_error)}
+                   if self.acceptance is not None else {})}
 
     def summary_line(self) -> str:
         u, t = self.uniformity, self.times
-        parts = [f"{self.name}: {self.total_flux:.6g} ({100 * self.efficiency:.3f} %)"]
+        parts = [f"{self.name}: {self.total_flux:.6g} ({format_error(self.efficiency, self.efficiency_error).strip()})"]
+        if self.acceptance is not None:
+            parts.append(f"within +-{self.acceptance[1]:g} deg of {self.acceptance[0]:g} deg: "
+                         f"{format_error(self.accepted, self.accepted_error).strip()} of source")
         if self.hits:
             parts.append(f"centroid {self.centroid_mm:.3f} mm, mean angle {self.mean_angle_deg:+.3f} deg")
             parts.append(f"uniformity (central {100 * u.fraction:.0f} %) min/mean {u.min_over_mean:.3f} "
@@ -166,7 +178,8 @@ def detector_report(result: TraceResult, name: str) -> DetectorReport:
         centroid_mm=_weighted_mean(hits.position, f), mean_angle_deg=_weighted_mean(hits.angle_deg, f),
         irradiance=irr, angular=ang, uniformity=uniformity(hits, det.bins, det.central_fraction),
         times=arrival_times(hits),
-        per_wavelength=[] if result.settings.get("band_spectrum") else per_wavelength(hits))
+        per_wavelength=[] if result.settings.get("band_spectrum") else per_wavelength(hits),
+        **_error_fields(result, name))
 
 
 def _report_from_histogram(result: TraceResult, det, hist: dict) -> DetectorReport:
@@ -189,7 +202,16 @@ def _report_from_histogram(result: TraceResult, det, hist: dict) -> DetectorRepo
         total_flux=total, flux_s=float(fs.sum()), flux_p=float(fp.sum()),
         efficiency=total / result.source_flux if result.source_flux else 0.0,
         centroid_mm=_weighted_mean(c, irr.flux), mean_angle_deg=_weighted_mean(ang.centers, ang.flux),
-        irradiance=irr, angular=ang, uniformity=uni, times=ArrivalTimes(nan, nan, nan, nan))
+        irradiance=irr, angular=ang, uniformity=uni, times=ArrivalTimes(nan, nan, nan, nan),
+        **_error_fields(result, det.name))
+
+
+def _error_fields(result: TraceResult, name: str) -> dict:
+    """The efficiency's error and the acceptance figures of one detector."""
+    index = next(i for i, d in enumerate(result.compiled.detectors) if d.name == name)
+    acc = result.compiled.acceptance[index] if result.compiled.acceptance else None
+    return {"efficiency_error": result.efficiency_error(name), "acceptance": acc,
+            "accepted": result.accepted(name), "accepted_error": result.accepted_error(name)}
 
 
 def detector_reports(result: TraceResult) -> list[DetectorReport]:

@@ -79,6 +79,14 @@ def check_keys(obj: dict, accepted: tuple[str, ...], path: str, problems: Proble
             problems.add(f"{path}.{key}", f"<unknown key {key!r}>", f"one of the keys {', '.join(accepted)}")
 
 
+def object_with_keys(value: Any, accepted: tuple[str, ...], where: str, problems: Problems) -> dict | None:
+    """An object whose keys are all among `accepted` (unknown keys are reported), or None."""
+    d = obj(value, where, problems)
+    if d is not None:
+        check_keys(d, accepted, where, problems)
+    return d
+
+
 def number(obj: dict, key: str, path: str, problems: Problems, default: Any = MISSING,
            minimum: float | None = None, exclusive: bool = False, maximum: float | None = None,
            what: str = "a number") -> float | None:

@@ -19,18 +19,32 @@ BLOCK_ENTRIES = 2_000_000
 ARC_SLACK = 1e-12
 
 
-def line_t(x, y, dx, dy, ax, ay, ex, ey, eps):
-    """Distance along each ray to the segment a -> a + e, inf where it misses (or t <= eps).
+def line_reach(cs: CompiledScene, lines) -> np.ndarray:
+    """How far past its ends a straight edge counts as hit, as a fraction of its length: eps.
+
+    Where two edges meet, a ray exactly through the shared vertex finds it at u = 1 on one edge
+    and u = 0 on the other only up to rounding, and could slip between them (a leak through a
+    sealed corner).  Reaching eps past both ends closes that gap; the corner rules in the
+    tracer then decide which edge acts.  sqrt, not hypot: exactly rounded, the same bits in
+    every method."""
+    ex = cs.x1[lines] - cs.x0[lines]
+    ey = cs.y1[lines] - cs.y0[lines]
+    return cs.eps / np.sqrt(ex * ex + ey * ey)
+
+
+def line_t(x, y, dx, dy, ax, ay, ex, ey, reach, eps):
+    """Distance along each ray to the segment a -> a + e, reaching `reach` (a fraction of its
+    length, `line_reach`) past both ends; inf where it misses (or t <= eps).
 
     A parallel pair has denom 0, so u is inf or nan and fails the range test."""
     denom = dx * ey - dy * ex
     wx = ax - x
     wy = ay - y
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):   # a near-parallel pair
         inv = 1.0 / denom
         t = (wx * ey - wy * ex) * inv
         u = (wx * dy - wy * dx) * inv
-    ok = (u >= 0.0) & (u <= 1.0) & (t > eps)
+    ok = (u >= -reach) & (u <= 1.0 + reach) & (t > eps)
     return np.where(ok, t, np.inf)
 
 
@@ -132,7 +146,8 @@ def line_hits(cs, lines, x, y, dx, dy, last_edge, eps):
     ay = cs.y0[lines][None, :]
     ex = (cs.x1[lines] - cs.x0[lines])[None, :]
     ey = (cs.y1[lines] - cs.y0[lines])[None, :]
-    t = line_t(x[:, None], y[:, None], dx[:, None], dy[:, None], ax, ay, ex, ey, eps)
+    reach = line_reach(cs, lines)[None, :]
+    t = line_t(x[:, None], y[:, None], dx[:, None], dy[:, None], ax, ay, ex, ey, reach, eps)
     t[lines[None, :] == last_edge[:, None]] = np.inf
     k = np.argmin(t, axis=1)
     return t[np.arange(len(x)), k], k

@@ -17,6 +17,7 @@ import numpy as np
 
 from .compile import CompiledScene
 from .errors import LedgerError
+from .uncertainty import ratio_error
 
 TRUNCATION_REASONS = ("below flux floor", "generation limit", "segment budget")
 TRUNC_FLUX, TRUNC_DEPTH, TRUNC_BUDGET = range(3)
@@ -68,27 +69,35 @@ class Bucket:
 class Ledger:
     """Named buckets built from the bins; checks that they add up to the source flux."""
 
-    def __init__(self, cs: CompiledScene, bins: np.ndarray, source_flux: float, check: bool = True):
+    def __init__(self, cs: CompiledScene, bins: np.ndarray, source_flux: float, check: bool = True,
+                 batch_bins: np.ndarray | None = None, batch_flux: np.ndarray | None = None):
+        """batch_bins, batch_flux: the same bins and the source flux per sub-batch of source rays
+        (see `uncertainty`); with them every bucket share gets a standard error."""
         self.source_flux = float(source_flux)
         self.bins = bins
+        self.batch_flux = batch_flux
         layout = BinLayout(cs)
         merged: dict[tuple, float] = {}
+        merged_batch: dict[tuple, np.ndarray] = {}
 
-        def add(key, flux):
+        def add(key, b):
+            flux = bins[b]
             if flux != 0.0:
                 merged[key] = merged.get(key, 0.0) + float(flux)
+                if batch_bins is not None:
+                    merged_batch[key] = merged_batch.get(key, 0.0) + batch_bins[:, b]
 
         for d, det in enumerate(cs.detectors):
-            add((DETECTOR, "", "", det.name, ""), bins[d])
+            add((DETECTOR, "", "", det.name, ""), d)
         for e in range(layout.E):
             part, face = _edge_label(cs, e)
-            add((ESCAPED, part, face, "", ""), bins[layout.escape0 + e])
-            add((ABSORBED, part, face, "", ""), bins[layout.face0 + e])
-        add((ESCAPED, "", "", "", ""), bins[layout.escape_none])
+            add((ESCAPED, part, face, "", ""), layout.escape0 + e)
+            add((ABSORBED, part, face, "", ""), layout.face0 + e)
+        add((ESCAPED, "", "", "", ""), layout.escape_none)
         for m in range(layout.M):
-            add((ABSORBED, cs.medium_names[m], "bulk", "", ""), bins[layout.bulk0 + m])
+            add((ABSORBED, cs.medium_names[m], "bulk", "", ""), layout.bulk0 + m)
         for r, reason in enumerate(TRUNCATION_REASONS):
-            add((TRUNCATED, "", "", "", reason), bins[layout.trunc0 + r])
+            add((TRUNCATED, "", "", "", reason), layout.trunc0 + r)
         # keep every absorbing detector listed, even when it received nothing; a monitoring
         # detector lets rays pass, so flux never ends there and it has no bucket
         for det in cs.detectors:
@@ -97,6 +106,12 @@ class Ledger:
         self.buckets = [Bucket(k[0], f, k[1], k[2], k[3], k[4]) for k, f in merged.items()]
         order = {DETECTOR: 0, ESCAPED: 1, ABSORBED: 2, TRUNCATED: 3}
         self.buckets.sort(key=lambda b: (order[b.kind], -b.flux))
+        # standard error of each bucket's share of the source flux (nan without sub-batch tallies)
+        self.errors: dict[str, float] = {}
+        for b in self.buckets:
+            key = (b.kind, b.part, b.face, b.detector, b.reason)
+            self.errors[b.label] = float("nan") if batch_bins is None or batch_flux is None else \
+                ratio_error(merged_batch.get(key, np.zeros(len(batch_flux))), batch_flux)
         if check:
             self.check()
 
@@ -116,6 +131,15 @@ class Ledger:
 
     def efficiency(self, detector: str) -> float:
         return self.flux(DETECTOR, detector=detector) / self.source_flux if self.source_flux else 0.0
+
+    def share(self, label: str) -> float:
+        """A bucket's flux over the source flux, by its label (0 for a bucket that got nothing)."""
+        flux = sum(b.flux for b in self.buckets if b.label == label)
+        return flux / self.source_flux if self.source_flux else 0.0
+
+    def share_error(self, label: str) -> float:
+        """Standard error of `share(label)` (see `uncertainty`); nan when it cannot be estimated."""
+        return self.errors.get(label, float("nan"))
 
 
 def _edge_label(cs: CompiledScene, e: int) -> tuple[str, str]:

@@ -10,9 +10,13 @@ import os
 import numpy as np
 
 FORMATS = (".png", ".svg")
-# Where a sweep row keeps the standard error of a column (once figures carry them): a column
-# named like this beside it.  The one place to change if the table names them otherwise.
-SE_COLUMN = "{} se"
+def standard_error_column(column: str) -> str:
+    """The sweep table's column holding the standard error of `column` ("efficiency: D" ->
+    "efficiency error: D")."""
+    kind, sep, rest = column.partition(": ")
+    return f"{kind} error: {rest}" if sep else f"{column} error"
+
+
 # the app's colours (gui/style.py), so a report's plot reads like the screen
 RAY_COLOURS = {"ray": "#de7600", "tir": "#146ee6", "escaping": "#d6285a"}
 DETECTOR_COLOUR = "#008078"
@@ -56,8 +60,9 @@ def sweep_plot(result, path: str, title: str = ""):
         for suffix, rows in groups:
             x = np.array([r[x_name] for r in rows], float)
             y = np.array([100 * r[col] for r in rows], float)
-            se_col = SE_COLUMN.format(col)
-            err = (np.array([100 * float(r[se_col]) for r in rows]) if rows and all(se_col in r for r in rows)
+            se_col = standard_error_column(col)
+            err = (np.array([100 * float(r[se_col]) for r in rows])
+                   if rows and all(isinstance(r.get(se_col), (int, float)) for r in rows)
                    else None)
             ax.errorbar(x, y, yerr=err, marker="o", ms=4, capsize=3 if err is not None else 0,
                         label=f"{det}{suffix}")

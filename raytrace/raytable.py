@@ -1,8 +1,11 @@
 """The ray table: one row per recorded ray segment, with readable columns, and its CSV form.
 
-Recording is chosen when tracing (`raytrace.trace(..., record="first", record_count=N)` or
-`record="all"`); the ledger and detectors always see every ray, the table only the recorded
-source rays and all their descendants.
+Recording is chosen when tracing (`raytrace.trace(..., record="spread", record_count=N)`, N
+source rays spread evenly over the sources, `record="first"` or `record="all"`); the ledger and
+detectors always see every ray, the table only the recorded source rays and all their
+descendants, with their real flux (a partial table is not rescaled to the source).  Only the
+flux of rows that end the tree (escaped, absorbed, detected, truncated) adds up, over all rays,
+to the ledger; docs/python-api.md, "The ray table", says how.
 
 Columns (units in the names; "-" where a column does not apply, so that pandas and the csv
 module read every text column back as text):

@@ -3,6 +3,7 @@ from __future__ import annotations
 
 from .ledger import ABSORBED, DETECTOR, ESCAPED, TRUNCATED
 from .results import TraceResult
+from .uncertainty import format_error
 
 
 def summary_text(result: TraceResult, title: str = "", story: str = "") -> str:
@@ -28,9 +29,10 @@ def summary_text(result: TraceResult, title: str = "", story: str = "") -> str:
             for prefix in ("detector ", "escaped via ", "absorbed ", "truncated: "):
                 if label.startswith(prefix) and kind != ABSORBED:
                     label = label[len(prefix):]
-            lines.append(f"  {label:<46} {b.flux:>12.6g}  {100 * b.flux / total:7.3f} %")
+            lines.append(f"  {label:<46} {b.flux:>12.6g}  {format_error(b.flux / total, L.share_error(b.label))}")
     closure = L.total - L.source_flux
     lines.append(f"Ledger: buckets sum to {L.total:.12g} (difference {closure:.2e})")
+    lines.append(f"Errors (+-, in points of %): {result.error_meaning}")
     if st.get("vertex_hits") or st.get("grazing_hits") or st.get("medium_mismatches"):
         lines.append(f"Edge cases: {st['vertex_hits']} hits at a vertex, {st['grazing_hits']} grazing hits, "
                      f"{st['medium_mismatches']} medium mismatches (traced deterministically)")
@@ -116,16 +118,34 @@ class Progress:
 
 
 def sweep_text(result) -> str:
-    """The swept values and each detector's efficiency, one line per point."""
+    """The swept values and each detector's efficiency with its error, one line per point."""
     head = result.names + [f"eff. {d}" for d in result.detectors]
-    widths = [max(12, len(h)) for h in head]
+    widths = [max(12, len(h)) for h in result.names] + [max(20, len(h)) for h in head[len(result.names):]]
     lines = ["  ".join(f"{h:>{w}}" for h, w in zip(head, widths))]
     for row in result.rows:
         cells = [f"{row[n]:>{w}.6g}" for n, w in zip(result.names, widths)]
         if row["status"] == "ok":
-            cells += [f"{100 * row[f'efficiency: {d}']:>{w - 2}.3f} %"
+            cells += [f"{format_error(row[f'efficiency: {d}'], _number(row[f'efficiency error: {d}'])).strip():>{w}}"
                       for d, w in zip(result.detectors, widths[len(result.names):])]
         else:
             cells.append("  (not traced: see below)")
         lines.append("  ".join(cells))
     return "\n".join(lines)
+
+
+def _number(cell) -> float:
+    return float("nan") if cell == "" or cell is None else float(cell)
+
+
+def sweep_warnings(result) -> list[str]:
+    """Each distinct warning of a sweep once, with the points that gave it."""
+    seen: dict[str, list[int]] = {}
+    for row in result.rows:
+        for w in filter(None, row.get("warnings", "").split(" | ")):
+            seen.setdefault(w, []).append(row["point"])
+    out = []
+    for w, points in seen.items():
+        which = "every point" if len(points) == len(result.rows) > 1 else \
+            ("point " if len(points) == 1 else "points ") + ", ".join(map(str, points))
+        out.append(f"{which}: {w}")
+    return out

@@ -7,7 +7,8 @@ import numpy as np
 
 from .compile import CompiledScene
 from .ledger import Ledger
-from .tracer import EVENT_KINDS, N_EVENT_KINDS, RawTrace
+from .tracer import EVENT_KINDS, N_EVENT_KINDS, RawTrace, within_acceptance
+from .uncertainty import SUB_BATCHES, batch_sums, error_meaning, ratio_error
 
 
 @dataclass
@@ -76,6 +77,75 @@ class TraceResult:
             return crossed / self.source_flux if self.source_flux else 0.0
         return self.ledger.efficiency(detector)
 
+    def efficiency_error(self, detector: str) -> float:
+        """Standard error of `efficiency(detector)`, from sub-batches of source rays (see
+        `raytrace.uncertainty` for what it means with even sampling); nan when unknown."""
+        det = next(d for d in self.compiled.detectors if d.name == detector)
+        if det.absorbing:
+            return self.ledger.share_error(f"detector {detector}")
+        if self.raw.batch_flux is None:
+            return float("nan")
+        hist = (getattr(self.raw, "histograms", None) or {}).get(detector)
+        if hist is not None:
+            per_batch = hist["batch_flux"]
+        else:
+            hits = self.detector(detector)
+            per_batch = batch_sums(hits.source_ray, hits.flux)
+        return ratio_error(per_batch, self.raw.batch_flux)
+
+    def accepted(self, detector: str) -> float:
+        """Share of the source flux that reached the detector travelling within its angular
+        acceptance (nan for a detector without one)."""
+        return self._accepted(detector)[0]
+
+    def accepted_error(self, detector: str) -> float:
+        """Standard error of `accepted(detector)`."""
+        return self._accepted(detector)[1]
+
+    def _accepted(self, detector: str) -> tuple[float, float]:
+        cs = self.compiled
+        index = next(i for i, d in enumerate(cs.detectors) if d.name == detector)
+        acc = cs.acceptance[index] if cs.acceptance else None
+        nan = float("nan")
+        if acc is None or not self.source_flux:
+            return nan, nan
+        hist = (getattr(self.raw, "histograms", None) or {}).get(detector)
+        if hist is not None:
+            per_batch = hist["accepted_batch"]
+        else:
+            h = self.raw.hits
+            if not h:
+                return 0.0, 0.0
+            sel = h["detector"] == index
+            det = cs.detectors[index]
+            tx, ty = det.end[0] - det.start[0], det.end[1] - det.start[1]
+            length = float(np.hypot(tx, ty))
+            tx, ty = tx / length, ty / length
+            # rebuild each arrival's direction of travel from its angle to the normal (ty, -tx)
+            # and the side it came from (front: travelling against the normal)
+            ang = np.radians(h["angle_deg"][sel])
+            along_n = np.where(h["front"][sel], -1.0, 1.0) * np.cos(ang)
+            dx = along_n * ty + np.sin(ang) * tx
+            dy = -along_n * tx + np.sin(ang) * ty
+            inside = within_acceptance(dx, dy, *acc)
+            flux = (h["flux_s"][sel] + h["flux_p"][sel])[inside]
+            per_batch = batch_sums(h["root"][sel][inside], flux)
+        err = ratio_error(per_batch, self.raw.batch_flux) if self.raw.batch_flux is not None else nan
+        return float(np.sum(per_batch)) / self.source_flux, err
+
+    def share(self, label: str) -> float:
+        """A ledger bucket's share of the source flux, by its label (e.g. "escaped via guide / input")."""
+        return self.ledger.share(label)
+
+    def share_error(self, label: str) -> float:
+        """Standard error of a ledger bucket's share of the source flux, by its label."""
+        return self.ledger.share_error(label)
+
+    @property
+    def error_meaning(self) -> str:
+        """What the standard errors of this trace stand for (sampling or statistical)."""
+        return error_meaning(self.mode, self.settings.get("source_samplings", []))
+
     @property
     def segments(self) -> dict[str, np.ndarray] | None:
         """Recorded ray segments as columns, or None when recording was off."""
@@ -100,11 +170,17 @@ class TraceResult:
         return steps[::-1]
 
     def to_summary_dict(self) -> dict:
+        def num(x):
+            return None if x != x else x
+        total = self.source_flux
         return {
             "source_flux": self.source_flux,
             "mode": self.mode,
-            "buckets": [b.to_dict() for b in self.ledger.buckets],
+            "buckets": [{**b.to_dict(), "share": b.flux / total if total else 0.0,
+                         "share_error": num(self.share_error(b.label))} for b in self.ledger.buckets],
             "efficiency": {d.name: self.efficiency(d.name) for d in self.compiled.detectors},
+            "efficiency_error": {d.name: num(self.efficiency_error(d.name)) for d in self.compiled.detectors},
+            "errors": {"sub_batches": SUB_BATCHES, "meaning": self.error_meaning},
             "stats": {k: v for k, v in self.stats.items()},
             "settings": self.settings,
             "warnings": list(self.warnings),

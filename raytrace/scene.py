@@ -77,10 +77,29 @@ class Source:
 
 
 @dataclass(frozen=True)
+class Acceptance:
+    """An angular acceptance: a detector also reports the flux arriving within +-half_angle_deg
+    of one direction of travel, given as `direction_deg` or as `back_to_source` (the reverse of
+    that source's direction, for true retroreflection: light going back the way it came)."""
+
+    half_angle_deg: float
+    direction_deg: float | None = None
+    back_to_source: str = ""
+
+    def direction(self, sources: list["Source"]) -> float:
+        """The accepted direction of travel in degrees."""
+        if self.back_to_source:
+            src = next(s for s in sources if s.name == self.back_to_source)
+            return (src.direction_deg + 180.0) % 360.0
+        return float(self.direction_deg)
+
+
+@dataclass(frozen=True)
 class Detector:
     """A segment that records the rays crossing it.
 
     absorbing: rays end there (a sensor); monitoring: rays are recorded and pass on unchanged.
+    acceptance: optional; the detector then also reports the share arriving within it.
     """
 
     name: str
@@ -90,6 +109,7 @@ class Detector:
     bins: int = 50
     angle_bins: int = 36
     central_fraction: float = 0.8    # part of the detector used for the uniformity figures
+    acceptance: Acceptance | None = None
 
 
 @dataclass(frozen=True)

@@ -21,7 +21,8 @@ from .compile import check_geometry, resolve_materials
 from .errors import Problems, SceneError
 from .geometry import (MIRROR, TREATMENT_KINDS, Edge, Loop, Part, ShapeSpec, Treatment)
 from .materials import material_from_dict
-from .scene import (MAX_GENERATIONS, DISTRIBUTIONS, POLARIZATIONS, SAMPLINGS, SOURCE_KINDS, Detector, Scene,
+from .scene import (MAX_GENERATIONS, DISTRIBUTIONS, POLARIZATIONS, SAMPLINGS, SOURCE_KINDS, Acceptance, Detector,
+                    Scene,
                     Source, Spectrum, TraceSettings)
 
 FORMAT_NAME = "raytrace2d-scene"
@@ -36,7 +37,8 @@ FACE_KEYS = ("treatment", "name")
 SOURCE_KEYS = ("name", "kind", "position", "direction_deg", "aim_at", "pivot", "turn_deg", "width",
                "half_angle_deg", "distribution", "cos_power", "flux", "spectrum", "polarization",
                "sampling", "note")
-DETECTOR_KEYS = ("name", "start", "end", "absorbing", "bins", "angle_bins", "central_fraction")
+DETECTOR_KEYS = ("name", "start", "end", "absorbing", "bins", "angle_bins", "central_fraction", "acceptance")
+ACCEPTANCE_KEYS = ("half_angle_deg", "direction_deg", "back_to_source")
 TRACE_KEYS = ("rays", "mode", "flux_floor", "max_generations", "segment_budget", "seed", "max_memory_mb")
 # Earlier names of trace settings, still read (with a note) so older files keep working.
 OLD_TRACE_KEYS = {"min_relative_flux": "flux_floor", "max_depth": "max_generations",
@@ -207,6 +209,12 @@ def scene_from_dict(data: Any, problems: Problems | None = None) -> Scene:
             detectors.append(det)
     _unique_names(sources, "$.sources", problems)
     _unique_names(detectors, "$.detectors", problems)
+    names = {s.name for s in sources}
+    for i, det in enumerate(detectors):
+        back = det.acceptance.back_to_source if det.acceptance is not None else ""
+        if back and back not in names:
+            problems.add(f"$.detectors[{i}].acceptance.back_to_source", back,
+                         "the name of a source: " + ", ".join(repr(n) for n in sorted(names)))
     settings = _settings(top.get("trace", {}), "$.trace", problems)
 
     scene = Scene(parts=parts, sources=sources, detectors=detectors, materials=materials,
@@ -578,7 +586,31 @@ def _detector(value: Any, where: str, problems: Problems) -> Detector | None:
     if math.dist(kw["start"], kw["end"]) <= 0:
         problems.add(f"{where}.end", list(kw["end"]), "a point different from start (a detector has length)")
         return None
+    if "acceptance" in d:
+        kw["acceptance"] = _acceptance(d["acceptance"], f"{where}.acceptance", problems)
+        if kw["acceptance"] is None:
+            return None
     return Detector(**kw)
+
+
+def _acceptance(value: Any, where: str, problems: Problems) -> Acceptance | None:
+    """{"half_angle_deg": a, "direction_deg": d} or {"half_angle_deg": a, "back_to_source": NAME}."""
+    before = len(problems.errors)
+    d = F.object_with_keys(value, ACCEPTANCE_KEYS, where, problems)
+    if d is None:
+        return None
+    half = F.number(d, "half_angle_deg", where, problems, minimum=0.0, exclusive=True, maximum=180.0,
+                    what="an angle in degrees")
+    if ("direction_deg" in d) == ("back_to_source" in d):
+        problems.add(where, sorted(k for k in d if k in ("direction_deg", "back_to_source")) or "<neither>",
+                     "exactly one of direction_deg (the accepted direction of travel, degrees) or "
+                     "back_to_source (a source's name: accept light going back along it)")
+        return None
+    direction = F.number(d, "direction_deg", where, problems, default=None) if "direction_deg" in d else None
+    back = F.string(d, "back_to_source", where, problems, nonempty=True) if "back_to_source" in d else ""
+    if len(problems.errors) > before:
+        return None
+    return Acceptance(half, direction, back)
 
 
 def _settings(value: Any, where: str, problems: Problems) -> TraceSettings | None:
@@ -741,7 +773,17 @@ def _source_dict(s: Source) -> dict:
 
 def _detector_dict(det: Detector) -> dict:
     return {"name": det.name, "start": _xy(det.start), "end": _xy(det.end), "absorbing": det.absorbing,
-            "bins": det.bins, "angle_bins": det.angle_bins, "central_fraction": float(det.central_fraction)}
+            "bins": det.bins, "angle_bins": det.angle_bins, "central_fraction": float(det.central_fraction),
+            **({"acceptance": _acceptance_dict(det.acceptance)} if det.acceptance is not None else {})}
+
+
+def _acceptance_dict(a: Acceptance) -> dict:
+    out: dict = {"half_angle_deg": float(a.half_angle_deg)}
+    if a.back_to_source:
+        out["back_to_source"] = a.back_to_source
+    else:
+        out["direction_deg"] = float(a.direction_deg)
+    return out
 
 
 def scene_to_text(scene: Scene) -> str:

@@ -74,6 +74,8 @@ class Merger:
         self.n_codes = cs.n_edges * N_EVENT_KINDS
         self.trie = PathTrie(n_sources, track_paths, MAX_PATH_NODES, n_bins=0)
         self.bins = None
+        self.batch_bins = None       # per sub-batch of source rays (uncertainty)
+        self.batch_flux = None
         self.source_flux = 0.0
         self.hits: dict[str, list[np.ndarray]] = {}
         self.segments: dict[str, list[np.ndarray]] | None = None
@@ -98,6 +100,8 @@ class Merger:
                 f"{memory_limit_text(self.max_memory_mb)}; or record fewer rays (--record first:N, "
                 f"record=\"first\" in Python) or bin detector hits (hits=\"histogram\" in Python)")
         self.bins = raw.bins.copy() if self.bins is None else self.bins + raw.bins
+        self.batch_bins = raw.batch_bins.copy() if self.batch_bins is None else self.batch_bins + raw.batch_bins
+        self.batch_flux = raw.batch_flux.copy() if self.batch_flux is None else self.batch_flux + raw.batch_flux
         self.source_flux += raw.source_flux
         remap = None
         if self.trie.enabled:
@@ -143,7 +147,7 @@ class Merger:
             hits={k: np.concatenate(v) for k, v in self.hits.items()},
             path_parent=self.trie.parent.copy(), path_code=self.trie.code.copy(),
             path_flux=self.trie.flux_dict() if self.trie.enabled else {}, wavelengths=wl, stats=stats,
-            histograms=self.histograms)
+            histograms=self.histograms, batch_bins=self.batch_bins, batch_flux=self.batch_flux)
 
 
 def start_bytes(start: StartRays) -> int:

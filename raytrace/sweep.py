@@ -32,10 +32,14 @@ Values: START:STOP:COUNT (COUNT evenly spaced values, both ends included) or a c
 v1,v2,...  With two names the points form a grid, the first name varying slowest.
 
 The table (one row per point, in point order whatever order the points finish in):
-    point, <each name>, status ("ok", or the problem that stopped this point), source_flux,
-    "efficiency: <detector>" for every detector (flux reaching it / source flux),
-    "share: <bucket>" for every other ledger bucket met at any point (flux / source flux;
-    0 where a point has none).
+    point, <each name>, status ("ok", or the problem that stopped this point), warnings (what
+    `raytrace trace` would have warned about at that point, joined by " | "; empty when none),
+    rays (source rays traced; with a target error, those of the last round), source_flux,
+    "efficiency: <detector>" for every detector (flux reaching it / source flux) and
+    "efficiency error: <detector>" (its standard error, see raytrace.uncertainty),
+    each figure asked for with `figures` (see raytrace.figures), then
+    "share: <bucket>" and "share error: <bucket>" for every other ledger bucket met at any
+    point (flux / source flux; 0 where a point has none).
 
 Points run in parallel through a concurrent.futures executor: local processes by default;
 any executor with submit() works, such as a Dask distributed client's `client.get_executor()`.
@@ -162,10 +166,11 @@ def _too_many_text() -> str:
     return f"at most {MAX_POINTS:,} points in one sweep (split it into several runs)"
 
 
-def resolve(data: dict, name: str, file: str = "") -> Target:
-    """Find where `name` lands in the scene dict `data`; SweepError if it addresses nothing."""
+def resolve(data: dict, name: str, file: str = "", how: str = "--vary") -> Target:
+    """Find where `name` lands in the scene dict `data`; SweepError if it addresses nothing.
+    `how` is the option the name came from, for the messages (--vary or --set)."""
     problems = Problems(file=file)
-    label = f"--vary {name}"
+    label = f"{how} {name}"
 
     def fail(found, expected):
         problems.add(label, found, expected)
@@ -326,24 +331,21 @@ def _set(data, path: tuple, value) -> None:
     cur[path[-1]] = value
 
 
-def apply_settings(data: dict, settings: list[tuple[tuple, Any]]) -> None:
-    """Set each (paths, value) in the scene dict; a whole spectrum becomes one line."""
-    for paths, value in settings:
-        for path in paths:
-            _set(data, path, {"wavelength_nm": value} if path[-1] == "spectrum" else value)
-
-
 # ----------------------------------------------------------------------------- running
 
 def sweep(scene, variables: list[Variable], trace_options: dict | None = None,
           executor: Executor | None = None, workers: int | None = None,
-          progress: Callable[[int, int], None] | None = None, file: str = "") -> SweepResult:
+          progress: Callable[[int, int], None] | None = None, file: str = "",
+          figures: list | None = None, option_names: dict[str, str] | None = None) -> SweepResult:
     """Trace `scene` (a Scene or its JSON dict) at every point of the grid of `variables`.
 
     executor: any concurrent.futures executor (not shut down here), e.g. a Dask client's
     `client.get_executor()`.  Without one, points run in a local process pool of `workers`
     processes (default and most: the CPUs this process may use), or in this process when workers == 1.
-    progress(done, total) is called as points finish."""
+    progress(done, total) is called as points finish.  figures: `raytrace.figures.Figure`s to
+    add as columns.  A trace option that a varied name also sets (trace_options rays=500 with
+    trace.rays varied) is refused: it would make every point the same.  option_names: how to
+    call each option in that message (the CLI passes its flags)."""
     from .scene import Scene
     if isinstance(scene, Scene):
         from .scene_io import scene_to_dict
@@ -365,11 +367,15 @@ def sweep(scene, variables: list[Variable], trace_options: dict | None = None,
     if n_points > MAX_POINTS:
         raise SweepError([_problem("--vary", f"<a grid of {n_points:,} points>", _too_many_text())])
     points = _grid(variables, targets)
-    options = {k: v for k, v in (trace_options or {}).items() if k in TRACE_OPTIONS and v is not None}
-    tasks = [(data, [(t.paths, val) for t, val in zip(targets, vals)], options) for vals in points]
+    options = {k: v for k, v in (trace_options or {}).items()
+               if k in TRACE_OPTIONS + ("target_error", "target_figure", "ray_cap") and v is not None}
+    refuse_overrides(targets, options, option_names, "--vary")
+    figures = list(figures or [])
+    tasks = [(data, [(t.paths, val) for t, val in zip(targets, vals)], options, figures) for vals in points]
 
     results = run_tasks(run_point, tasks, executor, workers, progress)
-    return _table(variables, points, results, [d.get("name", "") for d in data.get("detectors", [])])
+    return _table(variables, points, results, [d.get("name", "") for d in data.get("detectors", [])],
+                  [f.column for f in figures])
 
 
 def run_tasks(fn: Callable, tasks: list[tuple], executor: Executor | None = None, workers: int | None = None,
@@ -405,6 +411,22 @@ def run_tasks(fn: Callable, tasks: list[tuple], executor: Executor | None = None
     return results
 
 
+def refuse_overrides(targets: list[Target], options: dict, option_names: dict[str, str] | None = None,
+                     how: str = "--vary") -> None:
+    """SweepError when a trace option given outright also sets a number that is varied or set
+    by name: the option would silently win over it."""
+    problems = Problems()
+    for t in targets:
+        for path in t.paths:
+            if len(path) == 2 and path[0] == "trace" and path[1] in options:
+                flag = (option_names or {}).get(path[1], path[1])
+                problems.add(flag, f"{flag} together with {how} {t.name}",
+                             f"one or the other: {flag} would set {t.name} to {options[path[1]]!r}"
+                             + (" at every point" if how == "--vary" else ", overriding " + how))
+    if problems.items:
+        raise SweepError(problems.items)
+
+
 def _refuse_shared_number(targets: list[Target]) -> None:
     """Two names for one number (guide.width and $.parts[0].shape.params.width, or wavelength
     and LED.wavelength): the second would silently overwrite the first at every point."""
@@ -433,33 +455,80 @@ def _grid(variables: list[Variable], targets: list[Target]) -> list[tuple]:
     return [(cast(targets[0], a), cast(targets[1], b)) for a in variables[0].values for b in variables[1].values]
 
 
-def run_point(data: dict, settings: list[tuple[tuple, Any]], options: dict) -> dict:
+def run_point(data: dict, settings: list[tuple[tuple, Any]], options: dict, figures: list | None = None) -> dict:
     """Trace one point; a plain dict back (picklable, so it crosses process and cluster lines).
 
     Runs in a worker: everything it needs comes in its arguments."""
     from .api import trace
     from .scene_io import scene_from_dict
-    data = json.loads(json.dumps(data))
-    apply_settings(data, settings)
+    data = _applied(data, settings)
+    options = dict(options)
+    target = {k: options.pop(k) for k in ("target_error", "target_figure", "ray_cap") if k in options}
     try:
         scene = scene_from_dict(data)
-        result = trace(scene, track_paths=False, **options)
+        routes = any(f.kind == "route" for f in figures or [])     # route shares need path tallies
+        if target.get("target_error"):
+            from .converge import DEFAULT_RAY_CAP, trace_to_error
+            result = trace_to_error(scene, target["target_error"], target.get("target_figure"),
+                                    target.get("ray_cap") or DEFAULT_RAY_CAP, track_paths=routes, **options)
+        else:
+            result = trace(scene, track_paths=routes, **options)
     except SceneError as exc:
         return {"status": "invalid: " + "; ".join(str(p) for p in exc.problems)}
     except RaytraceError as exc:
         return {"status": f"stopped: {exc}"}
     except MemoryError:
         return {"status": "stopped: out of memory (set trace.max_memory_mb below the free memory)"}
+    from .figures import figure_values
     return {
         "status": "ok",
+        "warnings": list(result.warnings),
+        "rays": int(result.stats["source_rays"]),
         "source_flux": result.source_flux,
         "efficiency": {d.name: result.efficiency(d.name) for d in result.compiled.detectors},
+        "efficiency_error": {d.name: result.efficiency_error(d.name) for d in result.compiled.detectors},
+        "figures": figure_values(result, figures or []),
         "shares": {b.label: b.flux / result.source_flux if result.source_flux else 0.0
                    for b in result.ledger.buckets if b.kind != "detector"},
+        "share_errors": {b.label: result.share_error(b.label) for b in result.ledger.buckets if b.kind != "detector"},
     }
 
 
-def _table(variables, points, results, detectors) -> SweepResult:
+def _applied(data: dict, settings: list[tuple[tuple, Any]]) -> dict:
+    """A copy of the scene dict with each (key paths, value) set (a wavelength replaces the spectrum)."""
+    data = json.loads(json.dumps(data))
+    for paths, value in settings:
+        for path in paths:
+            _set(data, path, {"wavelength_nm": value} if path[-1] == "spectrum" else value)
+    return data
+
+
+def parse_set(text: str) -> tuple[str, float]:
+    """--set NAME=VALUE -> (name, value): one finite number, named as for --vary."""
+    name, sep, value = text.rpartition("=")
+    try:
+        number = float(value)
+        if not sep or not name.strip() or not math.isfinite(number):
+            raise ValueError
+    except ValueError:
+        raise SweepError([_problem("--set", text, "NAME=VALUE with one finite number, named as for --vary "
+                                                  "(e.g. guide.width=3.5 or trace.rays=5000)")]) from None
+    return name.strip(), number
+
+
+def apply_settings(data: dict, pairs: list[tuple[str, float]], file: str = "", options: dict | None = None,
+                   option_names: dict[str, str] | None = None) -> dict:
+    """The scene dict with each named number set (`raytrace trace --set`); SweepError for a name
+    that addresses nothing, a fraction in a whole-number field, or a trace option also given."""
+    targets = [resolve(data, name, file, how="--set") for name, _ in pairs]
+    for (name, value), t in zip(pairs, targets):
+        if t.whole and value != round(value):
+            raise SweepError([_problem(f"--set {name}", value, "a whole number (this field counts things)")])
+    refuse_overrides(targets, {k: v for k, v in (options or {}).items() if v is not None}, option_names, "--set")
+    return _applied(data, [(t.paths, int(round(v)) if t.whole else v) for t, (_, v) in zip(targets, pairs)])
+
+
+def _table(variables, points, results, detectors, figure_columns=()) -> SweepResult:
     names = [v.name for v in variables]
     labels: list[str] = []
     for r in results:
@@ -469,16 +538,30 @@ def _table(variables, points, results, detectors) -> SweepResult:
     # order loss columns by their largest share over the sweep: the big losses come first
     peak = {lab: max((r or {}).get("shares", {}).get(lab, 0.0) for r in results) for lab in labels}
     labels.sort(key=lambda lab: -peak[lab])
-    columns = (["point"] + names + ["status", "source_flux"] + [f"efficiency: {d}" for d in detectors]
-               + [f"share: {lab}" for lab in labels])
+    columns = (["point"] + names + ["status", "warnings", "rays", "source_flux"]
+               + [c for d in detectors for c in (f"efficiency: {d}", f"efficiency error: {d}")]
+               + list(figure_columns)
+               + [c for lab in labels for c in (f"share: {lab}", f"share error: {lab}")])
     rows = []
     for i, (vals, r) in enumerate(zip(points, results)):
-        row: dict[str, Any] = {"point": i, **dict(zip(names, vals)), "status": r["status"]}
+        row: dict[str, Any] = {"point": i, **dict(zip(names, vals)), "status": r["status"],
+                               "warnings": " | ".join(r.get("warnings", []))}
         if r["status"] == "ok":
+            row["rays"] = r["rays"]
             row["source_flux"] = r["source_flux"]
             for d in detectors:
                 row[f"efficiency: {d}"] = r["efficiency"].get(d, 0.0)
+                row[f"efficiency error: {d}"] = _cell(r["efficiency_error"].get(d))
+            for c in figure_columns:
+                row[c] = _cell(r["figures"].get(c))
             for lab in labels:
                 row[f"share: {lab}"] = r["shares"].get(lab, 0.0)
+                # a bucket a point never met has share 0 and, like any empty tally, error 0
+                row[f"share error: {lab}"] = _cell(r["share_errors"].get(lab, 0.0))
         rows.append(row)
     return SweepResult(names, detectors, columns, rows)
+
+
+def _cell(value) -> Any:
+    """A figure for the table: empty where it does not exist (None or nan)."""
+    return "" if value is None or value != value else value

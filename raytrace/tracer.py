@@ -26,6 +26,7 @@ from .intersect import edge_normal, nearest_hit
 from .ledger import TRUNC_BUDGET, TRUNC_DEPTH, TRUNC_FLUX, BinLayout
 from .pathtrie import PathTrie
 from .sources import StartRays
+from .uncertainty import SUB_BATCHES, batch_sums, sub_batch
 
 BRANCHING, MONTE_CARLO = "branching", "monte_carlo"
 MODES = (BRANCHING, MONTE_CARLO)
@@ -44,6 +45,11 @@ N_EVENT_KINDS = len(EVENT_KINDS)
 MAX_PATH_NODES = 500_000     # past this, new paths are lumped as "other paths"
 T_ESCAPE = 6                 # treatment code of "no edge": index -1 of the extended tables
 GRAZING_COS = 1e-9           # |cos| below which a hit counts as grazing
+VERTEX_TOL = 1e3             # eps from an edge's end within which a hit is on the vertex
+# directions (rad) of the casts that find the medium at a point when no direction is given
+PROBE_ANGLES = (0.7390851332151607, 2.2903914791364015, 4.4076789862512483)
+CORNER_PROBE = 4.0           # eps past a vertex hit where the medium beyond is probed
+CORNER_ROUNDS = 8            # corners a ray may pass straight on through within one segment
 
 # Bytes a live ray costs during one generation: its state plus the temporaries of the hit
 # search and the interface physics.  tracemalloc on the light pipe (200,000 rays in one chunk)
@@ -72,15 +78,36 @@ class Limits:
 class Recording:
     """Which source rays get their segments written to the ray table."""
 
-    mode: str = "none"     # "none", "first" (the first `count` source rays) or "all"
-    count: int = 0
+    mode: str = "none"     # "none", "all", "first" (the first `count` source rays) or "spread"
+    count: int = 0         # (`count` source rays spread evenly over all `total` of them)
+    total: int = 0
 
     def wants(self, root: np.ndarray) -> np.ndarray | None:
-        if self.mode == "all":
+        if self.mode == "all" or (self.mode == "spread" and self.count >= self.total):
             return np.ones(len(root), dtype=bool)
         if self.mode == "first":
             return root < self.count
+        if self.mode == "spread":
+            return in_spread(root, self.count, self.total)
         return None
+
+
+def spread_rays(count: int, total: int) -> np.ndarray:
+    """The `count` source rays, of `total`, spread evenly: the middle ray of each of `count`
+    equal runs, so an even fan's recorded rays cover the whole source (not one end of it)."""
+    i = np.arange(min(count, total), dtype=np.int64)
+    return ((2 * i + 1) * total) // (2 * min(count, total))
+
+
+def in_spread(root: np.ndarray, count: int, total: int) -> np.ndarray:
+    """Whether each source ray is one of `spread_rays(count, total)` (without listing them)."""
+    root = np.asarray(root, dtype=np.int64)
+    guess = (root * count) // max(total, 1)
+    out = np.zeros(len(root), dtype=bool)
+    for i in (guess - 1, guess, guess + 1):
+        ok = (i >= 0) & (i < count)
+        out |= ok & (((2 * i + 1) * total) // (2 * count) == root)
+    return out
 
 
 @dataclass
@@ -97,6 +124,9 @@ class RawTrace:
     wavelengths: np.ndarray
     stats: dict = field(default_factory=dict)
     histograms: dict | None = None            # per detector, when hits are binned instead of kept
+    # per sub-batch of source rays (`uncertainty`): ledger bins (SUB_BATCHES, len(bins)) and source flux
+    batch_bins: np.ndarray | None = None
+    batch_flux: np.ndarray | None = None
 
 
 class _SceneArrays:
@@ -240,11 +270,15 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         "wli": wli.astype(np.int64), "med": med0,
         "root": np.arange(n, dtype=np.int64), "start": np.full(n, -1, dtype=np.int64),
         "last": np.full(n, -1, dtype=np.int64), "path": start.source.astype(np.int64),
+        "corner_edge": np.full(n, -1, dtype=np.int64),
     }
     if recording:
         r.update(rid=np.arange(n, dtype=np.int64) + root_offset, parent=np.full(n, -1, dtype=np.int64),
                  born=np.full(n, B_SOURCE, dtype=np.int64))
     source_flux = float(flux0.sum())
+    batch = sub_batch(np.arange(n, dtype=np.int64) + root_offset)     # of each source ray
+    batch_flux = np.bincount(batch, weights=flux0, minlength=SUB_BATCHES)
+    batch_bins = np.zeros(SUB_BATCHES * layout.size)
     next_id = n + root_offset
     seg_store: dict[str, list[np.ndarray]] | None = {} if recording else None
     hit_store: dict[str, list[np.ndarray]] = {}
@@ -252,7 +286,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     stats = {"segments": 0, "generations": 0, "vertex_hits": 0, "grazing_hits": 0,
              "medium_mismatches": 0, "tir_events": 0, "source_rays": n}
     budget = (limits.max_memory_mb if limits.memory_share_mb is None else limits.memory_share_mb) * 1e6
-    vertex_tol2 = (1e3 * cs.eps) ** 2
+    vertex_tol2 = (VERTEX_TOL * cs.eps) ** 2
     gen = 0
     seg_rows = hit_rows = 0
 
@@ -261,14 +295,14 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         # --- limits that end rays before they are traced
         if gen > limits.max_generations:
             _truncate(r, np.ones(m, dtype=bool), layout.trunc0 + TRUNC_DEPTH, bins, paths, seg_store,
-                      record, root_offset, gen, wavelengths)
+                      record, root_offset, gen, wavelengths, batch, batch_bins)
             break
         room = limits.segment_budget - stats["segments"]
         if m > room:
             over = np.zeros(m, dtype=bool)
             over[max(room, 0):] = True
             _truncate(r, over, layout.trunc0 + TRUNC_BUDGET, bins, paths, seg_store, record,
-                      root_offset, gen, wavelengths)
+                      root_offset, gen, wavelengths, batch, batch_bins)
             r = {k: v[~over] for k, v in r.items()}
             m = len(r["x"])
             if m == 0:
@@ -289,40 +323,22 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
 
         x, y, dx, dy = r["x"], r["y"], r["dx"], r["dy"]
         fs, fp, med = r["fs"], r["fp"], r["med"]
-        # --- nearest hit, then travel to it
-        t, e = hit_fn(cs, x, y, dx, dy, r["start"])
-        if K.detectors_touch_boundary:
-            # a detector drawn on a face is met first: it records the ray, then the face acts
-            td, ed = nearest_hit(cs, x, y, dx, dy, r["start"], edge_ids=K.detector_ids)
-            first = (ed >= 0) & (ed != e) & (td <= t + cs.eps)
-            if first.any():
-                t = np.where(first, td, t)
-                e = np.where(first, ed, e)
-        # a hit on a vertex belongs to every edge meeting there: let the one between the
-        # ray's medium and the medium beyond the vertex act (see _vertex_edges)
-        hit = e >= 0
-        ev = np.where(hit, e, -1)
-        vx, vy = x + np.where(hit, t, 0.0) * dx, y + np.where(hit, t, 0.0) * dy
-        vnear = np.minimum((vx - K.x0[ev]) ** 2 + (vy - K.y0[ev]) ** 2, (vx - K.x1[ev]) ** 2 + (vy - K.y1[ev]) ** 2)
-        iv = np.flatnonzero(hit & (vnear < vertex_tol2) & (K.treat[ev] < T_DETECT_ABSORB))
-        unsettled = None            # vertex hits no edge fitted: their children are probed
-        if len(iv):
-            e = e.copy()
-            e[iv], fitted = _vertex_edges(cs, K, vx[iv], vy[iv], dx[iv], dy[iv], med[iv], e[iv])
-            if not fitted.all():
-                unsettled = np.zeros(len(x), dtype=bool)
-                unsettled[iv[~fitted]] = True
+        # --- nearest hit (with the corner rules, see _corner_hits), then travel to it
+        t, e, at_vertex = _corner_hits(cs, K, r, hit_fn, vertex_tol2, stats)
         esc = e < 0
         L = np.where(esc, 0.0, t)
         codes: list[np.ndarray] = []      # ledger deposits of this generation
         fluxes: list[np.ndarray] = []
         nodes: list[np.ndarray] = []
+        batches: list[np.ndarray] = []
         path = r["path"]
+        ray_batch = batch[r["root"]]
 
-        def deposit(code, flux, node):
+        def deposit(code, flux, rows):
             codes.append(code)
             fluxes.append(flux)
-            nodes.append(node)
+            nodes.append(path[rows])
+            batches.append(ray_batch[rows])
 
         fs_start, fp_start = fs, fp
         if K.absorbing:
@@ -332,7 +348,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
             lost = (fs + fp) * (1.0 - keep)
             ab = np.flatnonzero(lost > 0)
             if len(ab):
-                deposit(layout.bulk0 + med[ab], lost[ab], path[ab])
+                deposit(layout.bulk0 + med[ab], lost[ab], ab)
             fs = fs * keep
             fp = fp * keep
             esc_live = esc & (keep > 0)
@@ -351,7 +367,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         # --- escapes
         ie = np.flatnonzero(esc_live)
         if len(ie):
-            deposit(K.escape_code[r["last"][ie]], fs[ie] + fp[ie], path[ie])
+            deposit(K.escape_code[r["last"][ie]], fs[ie] + fp[ie], ie)
 
         # children: (rows, dx, dy, fs, fp, medium, last, event, born); the arrays run over all m
         # rays of this generation and `rows` picks the parents, so nothing is gathered twice
@@ -369,7 +385,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
                 absorb = treat[idet] == T_DETECT_ABSORB
                 ia = idet[absorb]
                 if len(ia):
-                    deposit(cs.detector[e[ia]], fs[ia] + fp[ia], path[ia])
+                    deposit(cs.detector[e[ia]], fs[ia] + fp[ia], ia)
                     if recording:
                         end[ia] = E_DETECTED
                 ip = idet[~absorb]
@@ -382,7 +398,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         if K.has[T_ABSORBER]:
             ab = np.flatnonzero(treat == T_ABSORBER)
             if len(ab):
-                deposit(layout.face0 + e[ab], fs[ab] + fp[ab], path[ab])
+                deposit(layout.face0 + e[ab], fs[ab] + fp[ab], ab)
                 if recording:
                     end[ab] = E_ABSORBED
 
@@ -395,7 +411,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
                 _unit(rdx, rdy)
                 R = K.reflectance[e]
                 em = e[mi]
-                deposit(layout.face0 + em, (fs[mi] + fp[mi]) * (1 - R[mi]), path[mi])
+                deposit(layout.face0 + em, (fs[mi] + fp[mi]) * (1 - R[mi]), mi)
                 if recording:
                     end[mi] = E_REFLECTED
                 kids.append((mi, rdx, rdy, fs * R, fp * R, med, e, EV_MIRROR, B_MIRROR))
@@ -406,8 +422,6 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
                 np.flatnonzero((treat == T_BARE) | (treat == T_AR))
             if len(di):
                 _interfaces(cs, K, r, di, e, hx, hy, fs, fp, treat, n_flat, W, mode, rng, stats, end, kids)
-
-        stats["vertex_hits"] += len(iv)     # segments that ended on a vertex
 
         if seg_store is not None:
             want = record.wants(r["root"] + root_offset)
@@ -430,12 +444,14 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         # --- the next generation: children that carry enough flux
         r, next_id = _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording,
                                       next_id, hx, hy, e, opl, deposit, n_here,
-                                      unsettled, cs)
+                                      at_vertex, cs)
 
         if codes:
             code = np.concatenate(codes)
             flux = np.concatenate(fluxes)
             bins += np.bincount(code, weights=flux, minlength=len(bins))
+            batch_bins += np.bincount(np.concatenate(batches) * layout.size + code, weights=flux,
+                                      minlength=len(batch_bins))
             if paths.enabled:
                 paths.deposit(code, np.concatenate(nodes), flux)
         gen += 1
@@ -453,7 +469,8 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         hits={k: np.concatenate(v) for k, v in hit_store.items()},
         path_parent=paths.parent.copy(), path_code=paths.code.copy(),
         path_flux=paths.flux_dict() if paths.enabled else {}, wavelengths=wavelengths, stats=stats,
-        histograms=hist.to_dict() if hist is not None else None)
+        histograms=hist.to_dict() if hist is not None else None,
+        batch_bins=batch_bins.reshape(SUB_BATCHES, layout.size), batch_flux=batch_flux)
 
 
 def _share_text(limits: Limits) -> str:
@@ -590,7 +607,7 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
             ok = ok[rows]
         if not ok.all():
             bad = rows[~ok]
-            deposit(np.full(len(bad), layout.trunc0 + TRUNC_FLUX), kfs[bad] + kfp[bad], r["path"][bad])
+            deposit(np.full(len(bad), layout.trunc0 + TRUNC_FLUX), kfs[bad] + kfp[bad], bad)
             rows = rows[ok]
         good.append(rows)
     parts = [(g, k) for g, k in zip(good, kids) if len(g)]
@@ -618,9 +635,9 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
         oopl = np.where(passed, oopl - back * n_here[pidx], oopl)   # the 2 eps are travelled again
     out = {"x": ox, "y": oy, "dx": col(1), "dy": col(2), "fs": col(3), "fp": col(4),
            "med": col(5), "start": start, "last": start if same_last else col(6), "opl": oopl,
-           "wli": r["wli"][pidx], "root": root[pidx]}
+           "wli": r["wli"][pidx], "root": root[pidx], "corner_edge": np.full(len(pidx), -1, dtype=np.int64)}
     if at_vertex is not None:
-        _settle_vertex_children(cs, out, np.flatnonzero(at_vertex[pidx]))
+        _corner_children(cs, out, np.flatnonzero(at_vertex[pidx]))
     parent_path = r["path"][pidx]
     if paths.enabled:
         ev = col(7)
@@ -645,11 +662,11 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
 
 def _vertex_groups(cs: CompiledScene):
     """Boundary edges grouped by the vertices they end at: (group of each edge's start, group of
-    each edge's end, CSR offsets, edges of each group).  Vertices closer than 1e3 eps are one."""
+    each edge's end, CSR offsets, edges of each group).  Vertices closer than VERTEX_TOL eps are one."""
     cache = cs.__dict__.setdefault("_accel_cache", {})
     if "vertex_groups" in cache:
         return cache["vertex_groups"]
-    q = 1.0 / (1e3 * cs.eps)
+    q = 1.0 / (VERTEX_TOL * cs.eps)
     keys: dict[tuple[int, int], int] = {}
     n = cs.n_edges
     group = np.empty(2 * n, dtype=np.int64)
@@ -672,55 +689,149 @@ def _vertex_groups(cs: CompiledScene):
     return cache["vertex_groups"]
 
 
-def _vertex_edges(cs, K, hx, hy, dx, dy, med, chosen):
-    """For rays hitting a vertex: among the boundary edges that end there, the one that has the
-    ray's medium on the side it comes from and, on the other side, the medium just beyond the
-    vertex along the ray.  Where none has (a ray grazing a corner), the search's choice stays.
-    Returns the edges and whether one fitted."""
-    step = 4.0 * cs.eps
-    beyond = medium_at(cs, hx + step * dx, hy + step * dy, dx, dy)
+def _first_hit(cs, K, x, y, dx, dy, start, hit_fn):
+    """Nearest hit; a detector drawn on a face is met first: it records the ray, then the face acts."""
+    t, e = hit_fn(cs, x, y, dx, dy, start)
+    if K.detectors_touch_boundary:
+        td, ed = nearest_hit(cs, x, y, dx, dy, start, edge_ids=K.detector_ids)
+        first = (ed >= 0) & (ed != e) & (td <= t + cs.eps)
+        if first.any():
+            t = np.where(first, td, t)
+            e = np.where(first, ed, e)
+    return t, e
+
+
+def _near_vertex(cs, K, e, hx, hy, tol2):
+    """Hits on a boundary edge within sqrt(tol2) of one of its end points."""
+    ev = np.where(e >= 0, e, -1)
+    d2 = np.minimum((hx - K.x0[ev]) ** 2 + (hy - K.y0[ev]) ** 2, (hx - K.x1[ev]) ** 2 + (hy - K.y1[ev]) ** 2)
+    return (e >= 0) & (d2 < tol2) & (K.treat[ev] < T_DETECT_ABSORB)
+
+
+def _corner_hits(cs, K, r, hit_fn, tol2, stats):
+    """Nearest hit of every ray, with the corner rules.  Returns (t, e, at_vertex).
+
+    A hit on a vertex belongs to every edge meeting there.  The medium is probed CORNER_PROBE
+    eps past the hit along the ray:
+    - the same medium as the ray's: the ray passes straight on, with no event, and its segment
+      runs on to the next hit beyond (searched from the probe point, so it agrees with the probe);
+    - another medium: the edge between the two acts.  The edge the search met, if it is such an
+      edge (it is the one a ray just off the vertex really meets); else the lowest-numbered one
+      among the edges ending at the vertex; else (no edge fits) the search's edge.
+    A ray with a corner edge (`corner_edge`, set by _corner_children) meets it where it starts,
+    at t = 0.  `at_vertex` marks the rows whose hit is at a vertex: their children are checked
+    by _corner_children."""
+    x, y, dx, dy, med = r["x"], r["y"], r["dx"], r["dy"], r["med"]
+    t, e = _first_hit(cs, K, x, y, dx, dy, r["start"], hit_fn)
+    hit = e >= 0
+    at_vertex = _near_vertex(cs, K, e, x + np.where(hit, t, 0.0) * dx, y + np.where(hit, t, 0.0) * dy, tol2)
+    forced = np.flatnonzero(r["corner_edge"] >= 0)
+    idx = np.flatnonzero(at_vertex)
+    events = len(forced)
+    if len(forced) == 0 and len(idx) == 0:
+        return t, e, at_vertex
+    t, e = t.copy(), e.copy()
+    if len(forced):
+        t[forced] = 0.0
+        e[forced] = r["corner_edge"][forced]
+        at_vertex[forced] = True
+        idx = np.setdiff1d(idx, forced, assume_unique=True)
+    step = CORNER_PROBE * cs.eps
+    for _ in range(CORNER_ROUNDS):
+        if len(idx) == 0:
+            break
+        events += len(idx)
+        hx, hy = x[idx] + t[idx] * dx[idx], y[idx] + t[idx] * dy[idx]
+        px, py = hx + step * dx[idx], hy + step * dy[idx]
+        beyond = medium_at(cs, px, py, dx[idx], dy[idx])
+        act = np.flatnonzero(beyond != med[idx])
+        if len(act):
+            ia = idx[act]
+            e[ia], _ = _corner_edge(cs, hx[act], hy[act], dx[ia], dy[ia], med[ia], beyond[act], e[ia], own="prefer")
+        on = beyond == med[idx]
+        idx, px, py = idx[on], px[on], py[on]
+        if len(idx) == 0:
+            break
+        # pass straight on: the segment goes on from the probe point to the next hit
+        t2, e2 = _first_hit(cs, K, px, py, dx[idx], dy[idx], np.full(len(idx), -1, dtype=np.int64), hit_fn)
+        t[idx] = t[idx] + step + t2
+        e[idx] = e2
+        h = e2 >= 0
+        tt = np.where(h, t[idx], 0.0)
+        again = _near_vertex(cs, K, e2, x[idx] + tt * dx[idx], y[idx] + tt * dy[idx], tol2)
+        at_vertex[idx] = again
+        idx = idx[again]
+    stats["vertex_hits"] += events
+    return t, e, at_vertex
+
+
+def _corner_edge(cs, hx, hy, dx, dy, med, beyond, near, own):
+    """For rays at a vertex: the boundary edge ending there that has the ray's medium `med` on
+    the side the ray comes from and `beyond` on the other.  The vertex is the end of edge `near`
+    closest to the hit.  own="prefer": `near` itself if it fits, else the lowest-numbered edge
+    that fits; own="skip": the lowest-numbered fitting edge other than `near` (for a child
+    leaving `near`).  Returns (edges, fitted); where none fits the edge is `near`."""
     g_start, g_end, offsets, members = _vertex_groups(cs)
-    at_start = (hx - cs.x0[chosen]) ** 2 + (hy - cs.y0[chosen]) ** 2 <= (hx - cs.x1[chosen]) ** 2 + (hy - cs.y1[chosen]) ** 2
-    g = np.where(at_start, g_start[chosen], g_end[chosen])
+    at_start = (hx - cs.x0[near]) ** 2 + (hy - cs.y0[near]) ** 2 <= (hx - cs.x1[near]) ** 2 + (hy - cs.y1[near]) ** 2
+    g = np.where(at_start, g_start[near], g_end[near])
     sizes = offsets[g + 1] - offsets[g]
     rows = np.repeat(np.arange(len(g)), sizes)
     local = np.arange(len(rows)) - np.repeat(np.cumsum(sizes) - sizes, sizes)
     cols = members[offsets[g][rows] + local]
+    out = near.copy()
+    fitted = np.zeros(len(near), dtype=bool)
     if len(rows) == 0:
-        return chosen, np.zeros(len(chosen), dtype=bool)
+        return out, fitted
     nx, ny = edge_normal(cs, cols, hx[rows], hy[rows])
     cos = dx[rows] * nx + dy[rows] * ny
     cur, nxt = med[rows], beyond[rows]
     fits = ((cs.med_plus[cols] == cur) & (cs.med_minus[cols] == nxt) & (cos < 0)) | \
            ((cs.med_minus[cols] == cur) & (cs.med_plus[cols] == nxt) & (cos > 0))
-    out = chosen.copy()
+    own_edge = cols == near[rows]
+    if own == "skip":
+        fits &= ~own_edge
     # the lowest fitting edge per ray: assign the fitting pairs from the highest edge down
     fit = np.flatnonzero(fits)
     order = fit[np.argsort(-cols[fit], kind="stable")]
     out[rows[order]] = cols[order]
-    fitted = np.zeros(len(chosen), dtype=bool)
     fitted[rows[fit]] = True
+    if own == "prefer":
+        keep = rows[fits & own_edge]
+        out[keep] = near[keep]
     return out, fitted
 
 
-def _settle_vertex_children(cs, out, rows) -> None:
-    """Children born at a vertex take the medium they actually head into.
+def _corner_children(cs, out, rows) -> None:
+    """Children born at a vertex: where a child heads across another edge ending at that vertex,
+    it meets that edge at once.
 
-    Where edges meet (a prism apex, the corner where a guide meets a window, blocks touching at
-    a point) the hit belongs to several edges at once and the physics used the one the
-    nearest-hit search chose; the direction it gives may leave into a region that edge does not
-    border.  A probe a little way along each child settles which medium that is, so the ray
-    never travels through one material while being traced as another."""
+    The medium is probed CORNER_PROBE eps along each child.  The same medium as the child's: it
+    goes on.  Another medium: the edge between the two (other than the one the child leaves)
+    becomes the child's corner edge, met at t = 0 in the next generation, so a ray in an
+    inside corner reflects off both walls (or refracts at both faces) as a ray just off the
+    vertex does.  No such edge: the child takes the medium found, so it never travels through
+    one material while being traced as another."""
     if len(rows) == 0:
         return
-    step = 4.0 * cs.eps
+    step = CORNER_PROBE * cs.eps
     dx, dy = out["dx"][rows], out["dy"][rows]
-    out["med"][rows] = medium_at(cs, out["x"][rows] + step * dx, out["y"][rows] + step * dy, dx, dy)
+    hx, hy = out["x"][rows], out["y"][rows]
+    probe = medium_at(cs, hx + step * dx, hy + step * dy, dx, dy)
+    off = np.flatnonzero(probe != out["med"][rows])
+    if len(off) == 0:
+        return
+    rr = rows[off]
+    edge, fitted = _corner_edge(cs, hx[off], hy[off], dx[off], dy[off], out["med"][rr], probe[off],
+                                out["start"][rr], own="skip")
+    out["corner_edge"][rr[fitted]] = edge[fitted]
+    out["med"][rr[~fitted]] = probe[off][~fitted]
 
 
-def _truncate(r, mask, code, bins, paths, seg_store, record, root_offset, gen, wavelengths):
+def _truncate(r, mask, code, bins, paths, seg_store, record, root_offset, gen, wavelengths, batch, batch_bins):
     f = r["fs"][mask] + r["fp"][mask]
     bins[code] += f.sum()
+    per_batch = np.bincount(batch[r["root"][mask]], weights=f, minlength=SUB_BATCHES)
+    batch_bins[code::len(bins)] += per_batch
     paths.deposit(np.full(len(f), code), r["path"][mask], f)
     if seg_store is not None:
         root = r["root"][mask] + root_offset
@@ -758,20 +869,22 @@ def _segment_table(store, wavelengths):
     return out
 
 
-def medium_at(cs: CompiledScene, x, y, dx=None, dy=None) -> np.ndarray:
+def medium_at(cs: CompiledScene, x, y, dx=None, dy=None, _probe: int = 0) -> np.ndarray:
     """Medium each ray starts in: cast it and read the medium on the near side of the first
     boundary it meets (ambient when it meets none).
 
     With directions given (a source's rays) each ray is cast along its own direction, so a ray
     that starts exactly on a face is in the medium it is heading into, and its medium always
-    agrees with its first interface.  Without, an irrational-ish fixed direction is used (it
-    avoids passing exactly through vertices of axis-aligned parts)."""
+    agrees with its first interface.  Without, fixed irrational-ish directions are used (they
+    avoid passing exactly through vertices of axis-aligned parts).  A cast whose first boundary
+    hit grazes the edge or lands on a vertex cannot tell the side: those points are cast again
+    in the next fixed direction (PROBE_ANGLES)."""
     n = len(x)
     if n == 0:
         return np.zeros(0, dtype=np.int64)
     fixed = dx is None or dy is None
     if fixed:
-        ang = 0.7390851332151607
+        ang = PROBE_ANGLES[_probe]
         dx = np.full(n, np.cos(ang))
         dy = np.full(n, np.sin(ang))
     else:
@@ -801,14 +914,15 @@ def medium_at(cs: CompiledScene, x, y, dx=None, dy=None) -> np.ndarray:
         nx, ny = edge_normal(cs, eh, hx, hy)
         cos = dx[hit] * nx + dy[hit] * ny
         med[hit] = np.where(cos < 0, cs.med_plus[eh], cs.med_minus[eh])
-        if not fixed:
-            # a probe that grazes its first edge cannot tell the side: probe those points again
-            # in the fixed direction
-            again = np.flatnonzero(hit)[np.abs(cos) < GRAZING_COS]
+        nxt = _probe + 1 if fixed else 0
+        if nxt < len(PROBE_ANGLES):
+            tol2 = (VERTEX_TOL * cs.eps) ** 2
+            at_vertex = np.minimum((hx - cs.x0[eh]) ** 2 + (hy - cs.y0[eh]) ** 2,
+                                   (hx - cs.x1[eh]) ** 2 + (hy - cs.y1[eh]) ** 2) < tol2
+            again = np.flatnonzero(hit)[(np.abs(cos) < GRAZING_COS) | at_vertex]
             if len(again):
-                med[again] = medium_at(cs, x[again], y[again])
+                med[again] = medium_at(cs, x[again], y[again], _probe=nxt)
     return med
-
 
 
 class _Histograms:
@@ -820,8 +934,11 @@ class _Histograms:
         self.flux_s = [np.zeros((d.bins, d.angle_bins)) for d in cs.detectors]
         self.flux_p = [np.zeros((d.bins, d.angle_bins)) for d in cs.detectors]
         self.count = np.zeros(len(cs.detectors), dtype=np.int64)
+        self.batch_flux = np.zeros((len(cs.detectors), SUB_BATCHES))   # for the efficiency's error
+        self.acceptance = cs.acceptance or [None] * len(cs.detectors)
+        self.accepted_batch = np.zeros((len(cs.detectors), SUB_BATCHES))  # flux within the acceptance
 
-    def add(self, det, pos, angle, fs, fp):
+    def add(self, det, pos, angle, fs, fp, root, dx, dy):
         for d in np.unique(det).tolist():
             sel = det == d
             spec = self.dets[d]
@@ -833,6 +950,10 @@ class _Histograms:
             self.flux_s[d] += np.bincount(k, weights=fs[sel], minlength=size).reshape(spec.bins, spec.angle_bins)
             self.flux_p[d] += np.bincount(k, weights=fp[sel], minlength=size).reshape(spec.bins, spec.angle_bins)
             self.count[d] += int(sel.sum())
+            self.batch_flux[d] += batch_sums(root[sel], fs[sel] + fp[sel])
+            if self.acceptance[d] is not None:
+                inside = within_acceptance(dx[sel], dy[sel], *self.acceptance[d])
+                self.accepted_batch[d] += batch_sums(root[sel][inside], fs[sel][inside] + fp[sel][inside])
 
     def to_dict(self) -> dict:
         out = {}
@@ -840,8 +961,17 @@ class _Histograms:
             length = float(np.hypot(spec.end[0] - spec.start[0], spec.end[1] - spec.start[1]))
             out[spec.name] = {"position_edges": np.linspace(0.0, length, spec.bins + 1),
                               "angle_edges": np.linspace(-90.0, 90.0, spec.angle_bins + 1),
-                              "flux_s": self.flux_s[d], "flux_p": self.flux_p[d], "hits": int(self.count[d])}
+                              "flux_s": self.flux_s[d], "flux_p": self.flux_p[d], "hits": int(self.count[d]),
+                              "batch_flux": self.batch_flux[d], "accepted_batch": self.accepted_batch[d]}
         return out
+
+
+def within_acceptance(dx: np.ndarray, dy: np.ndarray, direction_deg: float, half_angle_deg: float) -> np.ndarray:
+    """Whether each direction of travel lies within +-half_angle_deg of direction_deg."""
+    a = np.radians(direction_deg)
+    ca, sa = np.cos(a), np.sin(a)
+    off = np.degrees(np.abs(np.arctan2(dx * sa - dy * ca, dx * ca + dy * sa)))
+    return off <= half_angle_deg
 
 
 def merge_histograms(target: dict | None, other: dict | None) -> dict | None:
@@ -854,6 +984,8 @@ def merge_histograms(target: dict | None, other: dict | None) -> dict | None:
         t["flux_s"] = t["flux_s"] + h["flux_s"]
         t["flux_p"] = t["flux_p"] + h["flux_p"]
         t["hits"] += h["hits"]
+        t["batch_flux"] = t["batch_flux"] + h["batch_flux"]
+        t["accepted_batch"] = t["accepted_batch"] + h["accepted_batch"]
     return target
 
 
@@ -869,7 +1001,7 @@ def _store_hits(store, hist, cs, idx, ed, hx, hy, dx, dy, fs, fp, wl, opl, path,
     sint = dx * (ex / L) + dy * (ey / L)
     angle = np.degrees(np.arctan2(sint, np.abs(cosn)))
     if hist is not None:
-        hist.add(d, s, angle, fs, fp)
+        hist.add(d, s, angle, fs, fp, root, dx, dy)
         return
     front = cosn >= 0
     for k, v in (("detector", d), ("position", s), ("angle_deg", angle), ("front", front),

@@ -162,6 +162,35 @@ def test_overlapping_parts_name_both_and_the_overlap_area(tmp_path):
     assert "by 12 mm^2" in p.found
 
 
+@pytest.mark.parametrize("second", ["polycarbonate", "PMMA"], ids=["other material", "same material"])
+def test_coincident_parts_are_refused_naming_both(tmp_path, second):
+    """Two parts over the same 10 mm square (a part pasted twice, or a window drawn over a
+    guide): which material fills the square would depend on the order of the parts, so the
+    file is refused, naming both parts, their materials and the first part's path."""
+    d = _scene(parts=[_square("guide", 0, 0, 10), _square("copy", 0, 0, 10, material=second)])
+    p = _one(_problems(_write(tmp_path, d)), "$.parts[1]")
+    assert "'copy' (" + second + ")" in p.found and "'guide' (PMMA, $.parts[0])" in p.found
+    assert "same region" in p.found and "do not coincide" in p.expected
+    # listed the other way round, the same refusal names the parts the other way round
+    d = _scene(parts=[_square("copy", 0, 0, 10, material=second), _square("guide", 0, 0, 10)])
+    p = _one(_problems(_write(tmp_path, d, name="swapped.json")), "$.parts[1]")
+    assert "'guide' (PMMA)" in p.found and "'copy' (" + second + ", $.parts[0])" in p.found
+
+
+def test_coincident_parts_within_the_flattening_slack_are_refused(tmp_path):
+    """A second square 1e-9 mm off the first still covers the same region to within the
+    tolerance the overlap check measures with."""
+    d = _scene(parts=[_square("guide", 0, 0, 10), _square("copy", 1e-9, 0, 10, material="polycarbonate")])
+    p = _one(_problems(_write(tmp_path, d)), "$.parts[1]")
+    assert "same region" in p.found
+
+
+def test_a_part_nested_inside_a_larger_one_is_not_coincident(tmp_path):
+    d = _scene(parts=[_square("cladding", 0, 0, 10), _square("core", 2, 2, 6, material="polycarbonate")])
+    scene = load_scene(_write(tmp_path, d))
+    assert [p.name for p in scene.parts] == ["cladding", "core"]
+
+
 def test_index_below_one_needs_to_be_asked_for(tmp_path):
     d = _scene(materials={"plasma": {"model": "constant", "n": 0.9}})
     d["parts"][0]["material"] = "plasma"

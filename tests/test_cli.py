@@ -177,3 +177,22 @@ def test_earlier_option_names_still_work_with_a_note(tmp_path, capsys, old, new,
     assert code == cli.EXIT_OK and "now called" not in err
     a, b = json.loads(out_old.read_text()), json.loads(out_new.read_text())
     assert a["buckets"] == b["buckets"] and a["settings"] == b["settings"] and a.get("routes") == b.get("routes")
+
+
+def test_record_spread_covers_the_whole_even_fan(tmp_path, capsys):
+    """--record spread:N (the default with --csv) keeps N source rays spread evenly over the
+    source: the middle ray of each of N equal runs, so the recorded beam of the window spans its
+    full 2 mm width (the first N would span one tenth of it), and the note says which."""
+    rays = tmp_path / "rays.csv"
+    code, out, err = run(["trace", WINDOW, "--rays", "200", "--csv", str(rays), "--record", "spread:20"], capsys)
+    assert code == 0
+    df = pd.read_csv(rays)
+    assert sorted(set(df["source_ray"])) == list(range(5, 200, 10))
+    assert "20 of 200 source rays, spread evenly" in err and "source rays 5, 15, 25, ..., 195" in err
+    starts = df[df["generation"] == 0]
+    # the beam's rays cross a 2 mm wide beam at 45 degrees: the recorded ones span 19/20 of it
+    span = np.hypot(np.ptp(starts["x0_mm"]), np.ptp(starts["y0_mm"]))
+    assert span == pytest.approx(2.0 * 19 / 20, rel=1e-9)
+    for kind, count in (("spread", 7), ("spread", 200), ("spread", 500)):
+        got = raytrace.trace(load_scene(WINDOW), rays=200, record=kind, record_count=count)
+        assert len(set(ray_table(got)["source_ray"].tolist())) == min(count, 200)

@@ -221,6 +221,17 @@ def test_partial_overlap_is_rejected_with_both_names_and_the_area():
     assert "by 10 mm^2" in p.found                    # [8, 10] x [5, 10]
 
 
+def test_coincident_parts_of_different_materials_are_refused_at_compile():
+    """Built in Python, not read from a file: compile_scene refuses them too."""
+    s = scene_of(Part("crown block", "crown", rect(0, 0, 10, 10)),
+                 Part("flint block", "flint", rect(0, 0, 10, 10)), crown=1.52, flint=1.62)
+    with pytest.raises(SceneError) as info:
+        compile_scene(s)
+    (p,) = info.value.problems
+    assert p.path == "$.parts[1]"
+    assert "'flint block' (flint)" in p.found and "'crown block' (crown, $.parts[0])" in p.found
+
+
 def test_media_resolution_user_material_wins_over_catalog():
     mine = ConstantIndex("PMMA", n=1.7)
     s = Scene(parts=[Part("slab", "PMMA", rect(0, 0, 1, 1))], materials={"PMMA": mine}, ambient="water")

@@ -370,8 +370,9 @@ def test_gui_trace_equals_cli(qtbot, win, tmp_path, sample):
     out = tmp_path / "summary.json"
     assert cli.main(["trace", str(path), "--json", str(out), "--quiet"]) == 0
     summary = json.loads(out.read_text())
-    assert [b.to_dict() for b in result.ledger.buckets] == summary["buckets"]
+    assert result.to_summary_dict()["buckets"] == summary["buckets"]      # fluxes, shares and their errors
     assert {d.name: result.efficiency(d.name) for d in result.compiled.detectors} == summary["efficiency"]
+    assert result.to_summary_dict()["efficiency_error"] == summary["efficiency_error"]
     assert result.stats["segments"] == summary["stats"]["segments"]
 
 
@@ -435,6 +436,11 @@ def test_sweep_dialog_runs_plots_and_cancels(qtbot, win, tmp_path):
     assert [r["probe beam.direction_deg"] for r in dlg.result.rows] == [30.0, 40.0, 50.0]
     assert dlg.bar.value() == 3
     assert len(dlg.plot.listDataItems()) == len(win.doc.scene.detectors)
+    import pyqtgraph as pg
+    bars = [i for i in dlg.plot.getPlotItem().items if isinstance(i, pg.ErrorBarItem)]
+    assert len(bars) == len(win.doc.scene.detectors)        # one +-1 standard error bar set each
+    first = dlg.result.detectors[0]
+    assert list(bars[0].opts["height"]) == [200 * r[f"efficiency error: {first}"] for r in dlg.result.rows]
     import pandas
     table = tmp_path / "sweep.csv"
     assert dlg.save_table(str(table))
@@ -723,3 +729,17 @@ def test_recent_files_menu_reopens(qtbot, win):
     assert [a.text() for a in actions[:2]] == [str(LIGHT_PIPE.resolve()), str(WINDOW.resolve())]
     actions[1].trigger()
     assert win.doc.path == WINDOW.resolve() and win.doc.scene == load_scene(WINDOW)
+
+
+def test_ledger_panel_shows_each_shares_standard_error(qtbot, win):
+    """The ledger panel's error column shows the engine's standard error of each share, in points
+    of % (the GUI adds no statistics of its own), and the summary says what it means."""
+    result = open_sample(qtbot, win, LIGHT_PIPE)
+    tree = win.ledger.tree
+    assert tree.headerItem().text(3) == "\u00b1 error"
+    shown = {tree.topLevelItem(i).toolTip(0): tree.topLevelItem(i).text(3) for i in range(tree.topLevelItemCount())
+             if tree.topLevelItem(i).toolTip(0)}
+    for b in result.ledger.buckets:
+        assert shown[b.label] == f"{100 * result.share_error(b.label):.2f}"
+    assert "\u00b1 " in win.ledger.summary.text()
+    assert "sampling error" in win.ledger.summary.toolTip()

@@ -22,13 +22,19 @@ def test_json_summary_has_the_documented_fields(tmp_path, sample, extra):
     out = tmp_path / "summary.json"
     assert main(["trace", str(ROOT / "samples" / f"{sample}.json"), "--quiet", "--json", str(out), *extra]) == 0
     data = json.loads(out.read_text(encoding="utf-8"))
-    assert {"source_flux", "mode", "buckets", "efficiency", "stats", "settings"} <= set(data)
+    assert {"source_flux", "mode", "buckets", "efficiency", "efficiency_error", "errors", "stats",
+            "settings"} <= set(data)
+    assert set(data["efficiency_error"]) == set(data["efficiency"])
+    assert data["errors"]["sub_batches"] >= 2 and data["errors"]["meaning"]
     assert data["source_flux"] > 0
     total = 0.0
     for b in data["buckets"]:
         assert b["kind"] in KINDS
-        assert set(b) - {"kind", "flux"} <= KINDS[b["kind"]]          # only the fields that apply
-        assert all(b[k] != "" for k in set(b) - {"kind", "flux"})     # left out, never empty
+        common = {"kind", "flux", "share", "share_error"}
+        assert set(b) - common <= KINDS[b["kind"]]                    # only the fields that apply
+        assert all(b[k] != "" for k in set(b) - common)               # left out, never empty
+        assert b["share"] == pytest.approx(b["flux"] / data["source_flux"], rel=1e-12)
+        assert b["share_error"] is None or 0.0 <= b["share_error"] <= 0.5   # a share's error is at most 1/2
         assert b["flux"] >= 0
         if b["kind"] == "truncated":
             assert b["reason"] in REASONS

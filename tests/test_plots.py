@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from raytrace import cli
-from raytrace.plots import SE_COLUMN, sweep_plot
+from raytrace.plots import standard_error_column, sweep_plot
 from raytrace.sweep import SweepResult
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -43,12 +43,16 @@ def test_sweep_plot_svg_shows_the_table(tmp_path):
     lines = fig.axes[0].get_lines()
     assert np.allclose(lines[0].get_xdata(), rows["probe beam.direction_deg"])
     assert np.allclose(lines[0].get_ydata(), 100 * rows["efficiency: inside chamber"])
-    assert not any(c.has_yerr for c in fig.axes[0].containers)
+    # the sweep table carries standard errors: the plot shows them as +-1 se bars
+    bars = fig.axes[0].containers[0]
+    assert bars.has_yerr
+    heights = [s[1][1] - s[0][1] for s in bars.lines[2][0].get_segments()]
+    assert heights == pytest.approx(list(200 * rows["efficiency error: inside chamber"]))
 
 
 def test_sweep_plot_draws_error_bars_from_standard_errors(tmp_path):
     col = "efficiency: d"
-    rows = [{"point": i, "x": float(i), "status": "ok", col: 0.5 + 0.1 * i, SE_COLUMN.format(col): 0.01 * (i + 1)}
+    rows = [{"point": i, "x": float(i), "status": "ok", col: 0.5 + 0.1 * i, standard_error_column(col): 0.01 * (i + 1)}
             for i in range(3)]
     fig = sweep_plot(SweepResult(["x"], ["d"], list(rows[0]), rows), str(tmp_path / "e.png"))
     bars = fig.axes[0].containers[0]

@@ -247,6 +247,9 @@ class SweepDialog(QDialog):
             colour = pg.intColor(k, hues=max(3, len(result.detectors)), values=1, maxValue=200)
             self.plot.plot(x, y, pen=pg.mkPen(colour, width=2), symbol="o", symbolSize=6,
                            symbolBrush=colour, name=det)
+            # +-1 standard error of each point (0 where it cannot be estimated)
+            err = np.array([100 * float(r[f"efficiency error: {det}"] or 0.0) for r in ok], dtype=float)
+            self.plot.addItem(pg.ErrorBarItem(x=x, y=y, height=2 * err, beam=0.0, pen=pg.mkPen(colour)))
 
     def reject(self):
         self.cancel()

@@ -1,0 +1,83 @@
+"""Figures a sweep can export as columns, beyond each detector's efficiency.
+
+    --figure DETECTOR.FIELD     any detector figure: DETECTOR is the detector's name, FIELD one of
+                                DETECTOR_FIGURES (e.g. "return.accepted", "viewer side.centroid_mm",
+                                "viewer side.uniformity.min_over_mean")
+    --route BUCKET=STEPS        the share of the source flux that ended in BUCKET (a detector's
+                                name or a ledger bucket label such as "escaped via guide / input")
+                                by the route whose steps read STEPS, exactly as `trace --routes`
+                                lists them (e.g. "return=reflect off roof prism / hypotenuse")
+
+A figure that does not exist at a point (no ray arrived, so no centroid) is written as an empty
+cell.  Figures are computed where the point is traced, so they cross process lines as numbers.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from .errors import Problems, SceneError
+
+DETECTOR_FIGURES = ("efficiency", "efficiency_error", "total_flux", "flux_s", "flux_p", "hits",
+                    "centroid_mm", "mean_angle_deg", "accepted", "accepted_error",
+                    "uniformity.min_over_mean", "uniformity.max_over_mean",
+                    "arrival_ps.first", "arrival_ps.last", "arrival_ps.spread", "arrival_ps.mean",
+                    "arrival_ps.rms")
+
+
+@dataclass(frozen=True)
+class Figure:
+    column: str          # the CSV column name
+    kind: str            # "detector" or "route"
+    owner: str           # detector name, or bucket label for a route
+    field: str           # detector figure, or the route's steps text
+
+
+def parse_figure(text: str, detectors: list[str], where: str = "--figure") -> Figure:
+    """DETECTOR.FIELD -> Figure; SceneError naming what was expected."""
+    text = text.strip()
+    owner = max((d for d in detectors if text.startswith(d + ".")), key=len, default=None)
+    if owner is None:
+        _fail(where, text, "DETECTOR.FIELD with DETECTOR one of: " + ", ".join(repr(d) for d in detectors))
+    fld = text[len(owner) + 1:]
+    if fld not in DETECTOR_FIGURES:
+        _fail(where, text, "a detector figure: " + ", ".join(DETECTOR_FIGURES))
+    return Figure(text, "detector", owner, fld)
+
+
+def parse_route(text: str, detectors: list[str], where: str = "--route") -> Figure:
+    """BUCKET=STEPS -> Figure; a bare detector name stands for its bucket."""
+    bucket, sep, steps = text.partition("=")
+    bucket, steps = bucket.strip(), steps.strip()
+    if not sep or not bucket or not steps:
+        _fail(where, text, "BUCKET=STEPS, e.g. \"return=reflect off roof prism / hypotenuse\" "
+                           "(the steps as `raytrace trace --routes` lists them)")
+    label = f"detector {bucket}" if bucket in detectors else bucket
+    return Figure(f"route: {bucket}: {steps}", "route", label, steps)
+
+
+def figure_values(result, figures: list[Figure]) -> dict[str, float | None]:
+    """Each figure's value in a traced result (None where it does not exist)."""
+    out: dict[str, float | None] = {}
+    wanted = {f.owner for f in figures if f.kind == "detector"}
+    if wanted:
+        from .detectors import detector_report
+        reports = {name: detector_report(result, name).to_dict() for name in wanted}
+    groups = None
+    for f in figures:
+        if f.kind == "detector":
+            value = reports[f.owner]
+            for key in f.field.split("."):
+                value = value.get(key) if isinstance(value, dict) else None
+            out[f.column] = None if value is None else float(value)
+        else:
+            if groups is None:
+                from .routes import route_groups
+                groups = route_groups(result)
+            out[f.column] = sum(g.share_of_source for g in groups if g.bucket == f.owner and g.text == f.field)
+    return out
+
+
+def _fail(where: str, found, expected: str):
+    p = Problems()
+    p.add(where, found, expected)
+    raise SceneError(p.items)

@@ -1,0 +1,102 @@
+"""`raytrace trace --set NAME=VALUE` and `--target-error`, run as a user runs them."""
+import json
+from pathlib import Path
+
+import pytest
+
+import raytrace
+from raytrace.cli import main
+from raytrace.converge import trace_to_error
+from raytrace.scene_io import load_scene, scene_from_dict
+
+ROOT = Path(__file__).resolve().parent.parent
+PIPE = str(ROOT / "samples" / "light-pipe-90.json")
+WINDOW = str(ROOT / "samples" / "oblique-window.json")
+
+
+def test_set_changes_the_traced_scene_like_an_edited_file(tmp_path, capsys):
+    """--set gives the same ledger as the same change made in the file, and leaves the file alone."""
+    before = Path(PIPE).read_bytes()
+    out = tmp_path / "set.json"
+    assert main(["trace", PIPE, "--set", "guide.segments[1].bend.radius=4", "--set", "trace.rays=600",
+                 "--quiet", "--json", str(out)]) == 0
+    assert Path(PIPE).read_bytes() == before
+    data = json.loads(Path(PIPE).read_text())
+    data["parts"][0]["shape"]["params"]["segments"][1]["bend"]["radius"] = 4.0
+    data["trace"]["rays"] = 600
+    edited = tmp_path / "edited.json"
+    edited.write_text(json.dumps(data))
+    ref = tmp_path / "ref.json"
+    assert main(["trace", str(edited), "--quiet", "--json", str(ref)]) == 0
+    a, b = json.loads(out.read_text()), json.loads(ref.read_text())
+    assert a["buckets"] == b["buckets"] and a["settings"]["rays"] == 600
+
+
+@pytest.mark.parametrize("args,code,words", [
+    (["--set", "guide.nothing=1"], 2, "a parameter of the light_pipe shape"),
+    (["--set", "guide.width"], 2, "NAME=VALUE"),
+    (["--set", "trace.rays=10.5"], 2, "a whole number"),
+    (["--set", "trace.rays=100", "--rays", "300"], 2, "one or the other"),
+    (["--set", "gap=-1"], 1, "after --set gap=-1"),           # the window pushed into the guide
+])
+def test_set_refuses_what_it_cannot_do(capsys, args, code, words):
+    assert main(["trace", PIPE, *args]) == code
+    assert words in capsys.readouterr().err
+
+
+def test_target_error_traces_until_the_monte_carlo_error_is_reached():
+    """Monte Carlo through the window: the share's error must fall as 1/sqrt(n) (binomial,
+    sqrt(p (1 - p) / n); common practice), so reaching 0.1 points needs about
+    p (1 - p) / 0.001^2 rays, here about 75,000 for p = 0.082 (reflected).  The trace must stop
+    at or above the target-met count and not beyond 8x growth past it; seed 1."""
+    scene = load_scene(WINDOW)
+    result = trace_to_error(scene, 0.001, mode="monte_carlo", seed=1)
+    t = result.settings["target_error"]
+    p = result.efficiency("back toward the beam")
+    need = p * (1 - p) / 0.001 ** 2
+    assert t["reached"] and t["rounds"][-1]["largest_error"] <= 0.001
+    assert 0.5 * need <= t["rounds"][-1]["rays"] <= 8 * need
+    assert [r["rays"] for r in t["rounds"]] == sorted(r["rays"] for r in t["rounds"])
+    assert result.warnings == []
+
+
+def test_target_error_stops_at_the_ray_cap_and_says_so(capsys, tmp_path):
+    assert main(["trace", WINDOW, "--mode", "monte_carlo", "--target-error", "0.01%", "--ray-cap", "5000"]) == 0
+    err = capsys.readouterr().err
+    assert "NOT reached" in err and "raise --ray-cap" in err
+    assert main(["trace", WINDOW, "--target-error", "0.1%", "--target-figure", "nowhere", "--quiet"]) == 2
+    assert "'inside chamber'" in capsys.readouterr().err
+    assert main(["trace", WINDOW, "--target-error", "2"]) == 2
+    for alone in (["--ray-cap", "1000"], ["--target-figure", "inside chamber"]):
+        assert main(["trace", WINDOW, *alone]) == 2
+        assert "--target-error E as well" in capsys.readouterr().err
+        assert main(["sweep", WINDOW, "--vary", "probe beam.direction_deg=0,45", *alone, "--csv", str(tmp_path / "x.csv")]) == 2
+        assert "--target-error E as well" in capsys.readouterr().err
+
+
+def test_sweep_with_target_error_reaches_it_at_every_point(tmp_path):
+    out = tmp_path / "w.csv"
+    assert main(["sweep", WINDOW, "--vary", "probe beam.direction_deg=0,45", "--mode", "monte_carlo",
+                 "--target-error", "0.5%", "--workers", "1", "--csv", str(out), "--quiet"]) == 0
+    import csv
+    for row in csv.DictReader(out.open()):
+        assert float(row["efficiency error: inside chamber"]) <= 0.005
+        assert row["warnings"] == ""
+
+
+def test_target_error_of_an_even_fan_also_waits_for_the_figures_to_settle():
+    """An even emitter fan's sub-batch error cannot see the error every sub-fan shares (its grid of
+    about sqrt(n) x sqrt(n) positions and angles), so a coarse fan can be further off than its error
+    says (README: the light pipe at 2,000 rays and a 9 mm bend).  A deterministic trace therefore stops only when
+    the figures also moved by at most the target since the round before; the figure it stops at
+    must be within twice the target of a trace with 8x its rays (common practice: a converged
+    quadrature agrees with a finer one)."""
+    from raytrace.scene_io import scene_to_dict
+    from raytrace.sweep import apply_settings
+    scene = scene_from_dict(apply_settings(scene_to_dict(load_scene(PIPE)), [("guide.segments[1].bend.radius", 4.0)]))
+    result = trace_to_error(scene, 0.01, rays=300)
+    t = result.settings["target_error"]
+    assert t["reached"] and len(t["rounds"]) >= 2
+    assert t["rounds"][-1]["largest_change"] <= 0.01 and t["rounds"][0]["largest_change"] is None
+    finer = raytrace.trace(scene, rays=8 * t["rounds"][-1]["rays"])
+    assert abs(result.efficiency("viewer side") - finer.efficiency("viewer side")) <= 0.02
