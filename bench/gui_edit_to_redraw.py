@@ -1,11 +1,16 @@
 """Time from an edit to the redrawn rays in the desktop application.
 
 A 1,000-ray fan on samples/light-pipe-90.json, every source ray drawn.  Each edit moves the panel
-window by a small step through the document (as a drag step does); the clock stops when the
-worker's result has been drawn and the canvas repainted.  Prints the median and spread, and how
-the time splits into tracing, preparing the drawing and painting.  Not a test: no assertions.
+window by a small step through the document (as a drag step does) and waits until the worker is
+idle; the clock stops when a result has been drawn and the canvas repainted: the first redraw
+(a coarse fan when the worker shows one first) and the final one (the full trace).  Prints the
+medians and spread, and how the time splits into tracing, preparing the drawing and painting.
 
-    QT_QPA_PLATFORM=offscreen python bench/gui_edit_to_redraw.py [--edits 30] [--rays 1000]
+Then a drag: the same moves arrive every 16 ms (a 60 Hz mouse) for --drag-s seconds, as the
+canvas sends them, and the redraws shown meanwhile are counted (redraws per second, how many
+were coarse fans).  Not a test: no assertions.
+
+    QT_QPA_PLATFORM=offscreen python bench/gui_edit_to_redraw.py [--edits 30] [--rays 1000] [--drag-s 3]
 """
 from __future__ import annotations
 
@@ -24,12 +29,47 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 
+def drag_rate(win, part, shown, seconds):
+    """Moves every 16 ms for `seconds`, handed to the document from Qt timers as a drag's mouse
+    events are; returns how many redraws were shown during the drag."""
+    from PySide6.QtCore import QEventLoop, QTimer
+    from gui import edits
+    from gui.document import new_drag_token
+    before = len(shown)
+    token = new_drag_token()
+    base = win.doc.scene
+    t_start = time.perf_counter()
+    loop = QEventLoop()
+    state = {"k": 0}
+
+    def move():
+        if time.perf_counter() - t_start >= seconds:
+            timer.stop()
+            loop.quit()
+            return
+        state["k"] += 1
+        dx = 0.02 * (state["k"] % 50)
+        new = edits.replace_part(base, part, edits.move_part(base.parts[part], dx, 0.0))
+        win.doc.apply(new, "bench drag", token)
+
+    timer = QTimer()
+    timer.setInterval(16)
+    timer.timeout.connect(move)
+    timer.start()
+    loop.exec()
+    during = [(o, t) for o, t in shown[before:] if t - t_start <= seconds]
+    times = [t_start] + [t for _, t in during] + [t_start + seconds]
+    return {"redraws": len(during), "coarse": sum(o.coarse for o, _ in during),
+            "longest_gap": max(b - a for a, b in zip(times, times[1:]))}
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--edits", type=int, default=30)
     ap.add_argument("--rays", type=int, default=1000)
     ap.add_argument("--drawn", type=int, default=None, help="source rays drawn (default: all of them)")
     ap.add_argument("--scene", default=str(ROOT / "samples" / "light-pipe-90.json"))
+    ap.add_argument("--drag-s", type=float, default=3.0, help="length of the simulated drag")
     args = ap.parse_args()
 
     from PySide6.QtCore import QEventLoop, QTimer
@@ -71,7 +111,7 @@ def main() -> int:
 
     wait_for(1)                                     # warm-up: first trace after opening
     part = next(i for i, p in enumerate(win.doc.scene.parts) if p.name == "panel window")
-    totals, traces, draws = [], [], []
+    totals, firsts, traces, draws = [], [], [], []
     for k in range(args.edits):
         before = len(shown)
         scene = win.doc.scene
@@ -81,8 +121,10 @@ def main() -> int:
         win.doc.apply(new, "bench move")
         wait_for(before + 1)
         outcome, t1 = shown[-1]
+        firsts.append(shown[before][1] - t0)
         totals.append(t1 - t0)
         traces.append(outcome.elapsed_s)
+    drag = drag_rate(win, part, shown, args.drag_s)
     segs = shown[-1][0].result.stats["segments"]
     recorded = win.canvas.drawing.n_segments
     drawn = win.canvas.painted_segments
@@ -95,11 +137,16 @@ def main() -> int:
 
     print(f"scene {Path(args.scene).name}: {args.rays:,} source rays, {segs:,} segments traced, "
           f"{recorded:,} recorded for drawing, {drawn:,} painted (the faintest left out); {args.edits} edits")
-    print(f"edit -> redrawn rays  median {ms(statistics.median(totals))}  "
+    print(f"edit -> first redraw  median {ms(statistics.median(firsts))}  "
+          f"min {ms(min(firsts))}  max {ms(max(firsts))}  ({win.worker.coarse_shown} coarse fans shown in all)")
+    print(f"edit -> full redraw   median {ms(statistics.median(totals))}  "
           f"min {ms(min(totals))}  max {ms(max(totals))}")
     print(f"  of which tracing    median {ms(statistics.median(traces))}")
     print(f"  preparing drawing   {ms(draws[0])} (ray grouping and line items, one result)")
     print(f"  painting the canvas median {ms(statistics.median(paint[-args.edits:]))}")
+    print(f"drag, a move every 16 ms for {args.drag_s:g} s: {drag['redraws']} redraws = "
+          f"{drag['redraws'] / args.drag_s:.1f} per second ({drag['coarse']} coarse), "
+          f"longest gap between redraws {ms(drag['longest_gap'])}")
     load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
     print(f"machine: {os.cpu_count()} CPUs, load average {load:.2f} while measuring")
     win.worker.shutdown()

@@ -5,13 +5,20 @@ a queued Qt signal, so it never waits.  Only the newest request is kept while on
 (the states a drag passed through are skipped), a running trace is cancelled when a newer one
 arrives and it has already run for a while, and a result older than one already delivered, or
 from another document, is dropped.
+
+Coarse first, then refine: when the last full trace of the document took longer than
+COARSE_WHEN_OVER_S of the trace thread's CPU time, a request is first traced with a coarse fan,
+sized from that trace's CPU cost per ray to take about COARSE_TRACE_S, and shown (CPU time, not
+wall time, so that the size does not swing with other load on the machine); then, unless a newer request is already
+waiting, the full trace follows and replaces it.  A newer request stops a refining trace at
+once, so during a drag the window keeps showing coarse fans of the newest states.
 """
 from __future__ import annotations
 
 import threading
 import time
 import traceback
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from PySide6.QtCore import QObject, Signal
 
@@ -21,6 +28,10 @@ from raytrace.scene import Scene
 from .tracing import TraceCancelled, TraceOptions, run_trace
 
 CANCEL_AFTER_S = 0.25   # a newer request stops a trace that has run at least this long
+COARSE_WHEN_OVER_S = 0.02   # show a coarse fan first when the last full trace took longer
+COARSE_TRACE_S = 0.008      # a coarse fan is sized to trace in about this long
+COARSE_MIN_RAYS = 32        # ... and has at least this many source rays (else: no coarse stage)
+COARSE, FULL = 0, 1         # stages of a request
 
 
 @dataclass
@@ -39,6 +50,12 @@ class TraceOutcome:
     error: str = ""
     cancelled: bool = False
     elapsed_s: float = 0.0
+    cpu_s: float = 0.0           # CPU time of the trace thread
+    coarse: bool = False         # a coarse fan shown before the full trace of the same request
+
+    @property
+    def stage(self) -> int:
+        return COARSE if self.coarse else FULL
 
 
 class TraceWorker(QObject):
@@ -59,7 +76,11 @@ class TraceWorker(QObject):
         self._undelivered = 0
         self.delivered_id = -1
         self.delivered_epoch = -1
+        self.delivered_stage = FULL
         self.dropped = 0
+        self.coarse_shown = 0
+        self._refining = False
+        self._last_full: tuple[int, int, float] | None = None   # (epoch, source rays, seconds)
         self._thread = threading.Thread(target=self._loop, name="trace worker", daemon=True)
         self._thread.start()
         self._done.connect(self._deliver)
@@ -69,7 +90,7 @@ class TraceWorker(QObject):
             self._next_id += 1
             self._pending = TraceRequest(self._next_id, epoch, scene, options, time.perf_counter())
             run = self._running
-            if run is not None and (run.epoch != epoch or
+            if run is not None and (run.epoch != epoch or self._refining or
                                     time.perf_counter() - self._running_since > CANCEL_AFTER_S):
                 self._cancel.set()
             self._cond.notify()
@@ -101,9 +122,8 @@ class TraceWorker(QObject):
     def accepts(self, outcome: TraceOutcome) -> bool:
         """Stale results (older than one delivered, or of another document) are dropped."""
         r = outcome.request
-        if r.epoch < self.delivered_epoch or (r.epoch == self.delivered_epoch and r.id <= self.delivered_id):
-            return False
-        return True
+        newest = (self.delivered_epoch, self.delivered_id, self.delivered_stage)
+        return (r.epoch, r.id, outcome.stage) > newest
 
     def _deliver(self, outcome: TraceOutcome) -> None:
         with self._cond:
@@ -113,7 +133,20 @@ class TraceWorker(QObject):
             return
         self.delivered_id = outcome.request.id
         self.delivered_epoch = outcome.request.epoch
+        self.delivered_stage = outcome.stage
+        self.coarse_shown += outcome.coarse
         self.finished.emit(outcome)
+
+    def _coarse_options(self, req: TraceRequest) -> TraceOptions | None:
+        """The coarse fan to show first, or None when the full trace is quick enough."""
+        last = self._last_full
+        if last is None or last[0] != req.epoch or last[2] <= COARSE_WHEN_OVER_S:
+            return None
+        rays = req.options.rays if req.options.rays is not None else req.scene.settings.rays
+        n = min(int(COARSE_TRACE_S * last[1] / last[2]), rays // 4)
+        if n < COARSE_MIN_RAYS:
+            return None
+        return replace(req.options, rays=n, drawn_rays=min(req.options.drawn_rays, n))
 
     def _loop(self) -> None:
         while True:
@@ -126,31 +159,49 @@ class TraceWorker(QObject):
                 self._running, self._running_since = req, time.perf_counter()
                 self._cancel.clear()
             self.busy.emit(True)
-            outcome = TraceOutcome(req)
-            t0 = time.perf_counter()
-            last = [0.0]
-
-            def on_progress(stats, last=last):
-                now = time.perf_counter()
-                if now - last[0] > 0.2:          # a few updates a second are plenty
-                    last[0] = now
-                    self.progress.emit(int(stats.get("segments", 0)))
-            try:
-                outcome.result = run_trace(req.scene, req.options, self._cancel, on_progress)
-            except TraceCancelled:
-                outcome.cancelled = True
-            except SceneError as exc:
-                outcome.error = "; ".join(str(p) for p in exc.problems) or str(exc)
-            except RaytraceError as exc:
-                outcome.error = str(exc)
-            except Exception as exc:   # keep the thread alive; show what went wrong
-                outcome.error = f"{type(exc).__name__}: {exc}"
-                traceback.print_exc()
-            outcome.elapsed_s = time.perf_counter() - t0
-            with self._cond:
-                self._running = None
-                self._undelivered += 1
-                idle = self._pending is None
-            self._done.emit(outcome)
+            coarse = self._coarse_options(req)
+            stages = [(coarse, True), (req.options, False)] if coarse is not None else [(req.options, False)]
+            for options, is_coarse in stages:
+                with self._cond:
+                    self._refining = coarse is not None and not is_coarse
+                outcome = self._trace(req, options, is_coarse)
+                if not is_coarse and outcome.result is not None:
+                    rays = options.rays if options.rays is not None else req.scene.settings.rays
+                    self._last_full = (req.epoch, max(1, int(rays)), outcome.cpu_s)
+                with self._cond:
+                    last = not is_coarse or outcome.result is None or self._pending is not None
+                    if last:
+                        self._running = None
+                        self._refining = False
+                    self._undelivered += 1
+                    idle = self._pending is None
+                self._done.emit(outcome)
+                if last:
+                    break
             if idle:
                 self.busy.emit(False)
+
+    def _trace(self, req: TraceRequest, options: TraceOptions, coarse: bool) -> TraceOutcome:
+        outcome = TraceOutcome(req, coarse=coarse)
+        t0, c0 = time.perf_counter(), time.thread_time()
+        last = [0.0]
+
+        def on_progress(stats, last=last):
+            now = time.perf_counter()
+            if now - last[0] > 0.2:          # a few updates a second are plenty
+                last[0] = now
+                self.progress.emit(int(stats.get("segments", 0)))
+        try:
+            outcome.result = run_trace(req.scene, options, self._cancel, on_progress)
+        except TraceCancelled:
+            outcome.cancelled = True
+        except SceneError as exc:
+            outcome.error = "; ".join(str(p) for p in exc.problems) or str(exc)
+        except RaytraceError as exc:
+            outcome.error = str(exc)
+        except Exception as exc:   # keep the thread alive; show what went wrong
+            outcome.error = f"{type(exc).__name__}: {exc}"
+            traceback.print_exc()
+        outcome.elapsed_s = time.perf_counter() - t0
+        outcome.cpu_s = time.thread_time() - c0
+        return outcome

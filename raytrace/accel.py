@@ -50,7 +50,13 @@ def hit_function(cs: CompiledScene, method: str = "auto"):
 
     "auto" uses the grid for scenes of more than GRID_MIN_EDGES edges; otherwise, per call,
     one small ray x edge matrix when the generation is small (fewest numpy calls: what the
-    GUI's small fans need) and the sweep when it is large.  All give identical results."""
+    GUI's small fans need) and the sweep when it is large.  All give identical results.
+    With the compiled kernel selected (`kernel.selected()`), the compiled searches of
+    `kernel_hits` are returned instead: the same results again."""
+    from . import kernel
+    if kernel.compiled():
+        from .kernel_hits import compiled_hit_function
+        return compiled_hit_function(cs, method)
     if method == "plain":
         return nearest_hit
     if method == "auto":

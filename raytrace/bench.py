@@ -10,9 +10,15 @@ Workloads (full size; `--quick` shrinks every one to a smoke test of a few secon
 
 For each workload the accelerated tracer runs at full size on all cores (rays/s, events/s,
 events/s per core, peak memory), and then, for the speedup, the accelerated and the plain
-tracer (`intersect.nearest_hit`, every ray against every edge) run the *same* smaller workload
+tracer (every ray against every edge, in the selected kernel) run the *same* smaller workload
 on one core, one after the other in this process; the ratio of their times is reported because
 absolute times drift on a shared machine.
+
+The light pipe and the window are also measured against the "plain compiled" bar
+(`bench_plain`): a straightforward compiled loop, one ray at a time, every edge tested, the
+same physics, on the same starting rays.  Both run on one core, alternately, best of three CPU
+times each, and the ratio of their costs per event is reported ("vs plain compiled").  The
+first-call (compile or cache-load) time of the compiled kernel is reported too.
 
 Events are segment ends (every traced segment ends in one).  Peak memory is the largest
 proportional set size of this process plus its worker processes, sampled every 50 ms.
@@ -44,6 +50,7 @@ class Workload:
     workers: int | None = None   # None: all cores
     paths: bool = False      # path tallies (off, as `raytrace trace` and the GUI run by default)
     note: str = ""
+    bar_rays: int = 0        # rays for the ratio to the plain compiled loop (0: none)
 
 
 def _sample(name):
@@ -71,7 +78,8 @@ def strip_scene(edges: int, pitch: float = 0.05):
 def workloads(quick: bool) -> list[Workload]:
     q = quick
     return [
-        Workload("light-pipe-1e5", _sample("light-pipe-90.json"), 2_000 if q else 100_000, plain_rays=300 if q else 10_000),
+        Workload("light-pipe-1e5", _sample("light-pipe-90.json"), 2_000 if q else 100_000, plain_rays=300 if q else 10_000,
+                 bar_rays=300 if q else 20_000),
         Workload("light-pipe-1e5-paths", _sample("light-pipe-90.json"), 2_000 if q else 100_000, paths=True,
                  note="with path tallies"),
         Workload("light-pipe-1e6", _sample("light-pipe-90.json"), 4_000 if q else 1_000_000, plain_rays=0),
@@ -79,7 +87,7 @@ def workloads(quick: bool) -> list[Workload]:
         Workload("strip-1000", lambda: strip_scene(1000), 1_000 if q else 100_000, plain_rays=100 if q else 10_000),
         Workload("strip-10000", lambda: strip_scene(10000), 500 if q else 100_000, plain_rays=20 if q else 2_000),
         Workload("window-mc-1e6", _sample("oblique-window.json"), 5_000 if q else 1_000_000, "monte_carlo",
-                 plain_rays=1_000 if q else 100_000),
+                 plain_rays=1_000 if q else 100_000, bar_rays=1_000 if q else 100_000),
         Workload("window-mc-1e7", _sample("oblique-window.json"), 20_000 if q else 10_000_000, "monte_carlo",
                  hits="histogram", note="memory check: ray table off, hits binned"),
     ]
@@ -146,23 +154,54 @@ def _full_trace(scene, cs, rays, mode, workers, hits="auto", track_paths=False):
                  track_paths=track_paths, segment_budget=MAX_SEGMENTS).stats
 
 
-def _ratio_traces(scene, cs, rays, mode):
-    """Accelerated and plain tracer on the same starting rays, seed and limits, one core."""
-    from .intersect import nearest_hit
+def _start_and_limits(scene, rays):
     from .sources import sample_sources
-    from .tracer import Limits, trace_rays
+    from .tracer import Limits
     s = scene.settings
     start = sample_sources(scene.sources, rays, seed=s.seed)
-    lim = Limits(flux_floor=s.flux_floor, max_generations=s.max_generations, segment_budget=MAX_SEGMENTS)
+    return start, Limits(flux_floor=s.flux_floor, max_generations=s.max_generations, segment_budget=MAX_SEGMENTS)
+
+
+def _ratio_traces(scene, cs, rays, mode):
+    """Accelerated and plain tracer on the same starting rays, seed and limits, one core."""
+    from .accel import hit_function
+    from .tracer import trace_rays
+    start, lim = _start_and_limits(scene, rays)
     out = []
-    for hit_fn in (None, nearest_hit):
+    for hit_fn in (None, hit_function(cs, "plain")):
         t0 = time.process_time()
-        raw = trace_rays(cs, start, mode=mode, limits=lim, seed=s.seed, hit_fn=hit_fn,
+        raw = trace_rays(cs, start, mode=mode, limits=lim, seed=scene.settings.seed, hit_fn=hit_fn,
                          n_sources=len(scene.sources), track_paths=False)
         out.append((time.process_time() - t0, raw))
     (fast_s, fast), (plain_s, plain) = out
     same = bool(np.array_equal(fast.bins, plain.bins)) and fast.stats["segments"] == plain.stats["segments"]
     return fast_s, plain_s, int(plain.stats["segments"]), same
+
+
+def _vs_plain_compiled(scene, cs, rays, mode, repeats: int = 3) -> dict:
+    """The tracer and the plain compiled loop on the same starting rays, one core, alternately;
+    best of `repeats` CPU times each (other load on a shared machine only ever adds time)."""
+    from .bench_plain import run_plain
+    from .tracer import trace_rays
+    start, lim = _start_and_limits(scene, rays)
+    seed = scene.settings.seed
+    from .sources import sample_sources
+    run_plain(cs, sample_sources(scene.sources, 20, seed=seed), mode, lim, seed)    # compile / load
+    best_tracer = best_bar = float("inf")
+    for _ in range(repeats):
+        t0 = time.process_time()
+        bar_events, _fates = run_plain(cs, start, mode, lim, seed)
+        best_bar = min(best_bar, time.process_time() - t0)
+        t0 = time.process_time()
+        raw = trace_rays(cs, start, mode=mode, limits=lim, seed=seed, n_sources=len(scene.sources),
+                         track_paths=False)
+        best_tracer = min(best_tracer, time.process_time() - t0)
+    events = int(raw.stats["segments"])
+    tracer_ns = best_tracer / max(events, 1) * 1e9
+    bar_ns = best_bar / max(bar_events, 1) * 1e9
+    return {"bar_rays": rays, "bar_events": int(bar_events), "tracer_events": events,
+            "tracer_ns_per_event": tracer_ns, "bar_ns_per_event": bar_ns,
+            "vs_plain_compiled": tracer_ns / max(bar_ns, 1e-12)}
 
 
 def _cpu() -> np.ndarray:
@@ -196,6 +235,8 @@ def run_workload(w: Workload, workers: int, ratio: bool = True) -> dict:
         fast_s, plain_s, ev, same = _ratio_traces(scene, cs, w.plain_rays, w.mode)
         row.update(ratio_rays=w.plain_rays, ratio_events=ev, accel_cpu_s=fast_s, plain_cpu_s=plain_s,
                    speedup=plain_s / max(fast_s, 1e-12), same_ledger=same)
+    if ratio and w.bar_rays:
+        row.update(_vs_plain_compiled(scene, cs, w.bar_rays, w.mode))
     return row
 
 
@@ -221,7 +262,11 @@ def gui_redraw(repeats: int = 15) -> dict:
 
 
 TARGETS = (
-    ("light-pipe 1e6 rays, full branching to 1e-4, wall time", "light-pipe-1e6", "wall_s", "<=", 10.0, "s"),
+    ("light-pipe 1e6 rays, full branching to 1e-4, wall time", "light-pipe-1e6", "wall_s", "<=", 4.0, "s"),
+    ("light pipe: cost per event / plain compiled loop's (one core)", "light-pipe-1e5", "vs_plain_compiled", "<=",
+     2.0, "x"),
+    ("window: cost per event / plain compiled loop's (one core)", "window-mc-1e6", "vs_plain_compiled", "<=",
+     2.0, "x"),
     ("events per second per core on that workload (wall)", "light-pipe-1e6", "events_per_s_per_core", ">=", 2e6, "/s"),
     ("events per CPU second on that workload", "light-pipe-1e6", "events_per_cpu_s", ">=", 2e6, "/s"),
     ("GUI edit-to-redraw, 1,000 rays, record all (wall, median)", "gui-1000", "median_ms", "<=", 33.0, "ms"),
@@ -237,6 +282,8 @@ def check_targets(rows: dict) -> list[dict]:
     for label, name, key, op, limit, unit in TARGETS:
         if name not in rows:
             continue
+        if key not in rows[name]:
+            continue
         v = rows[name][key]
         ok = v <= limit if op == "<=" else v >= limit
         out.append({"target": label, "value": v, "limit": limit, "unit": unit, "op": op, "met": bool(ok),
@@ -244,11 +291,52 @@ def check_targets(rows: dict) -> list[dict]:
     return out
 
 
+_FIRST_TRACE = """
+import time
+t0 = time.perf_counter()
+import raytrace
+from raytrace.scene_io import load_scene
+scene = load_scene({path!r})
+raytrace.trace(scene, rays=50, record="all", track_paths=False)
+t1 = time.perf_counter()
+raytrace.trace(scene, rays=50, record="all", track_paths=False)
+print(t1 - t0, time.perf_counter() - t1)
+"""
+
+
+def first_call_times(cold: bool = True) -> dict:
+    """Start-up cost of the compiled kernel, each in a fresh process: import + first small trace
+    with an empty cache folder (everything is compiled) and again with that folder filled (the
+    second start), and the same trace once more in the process (nothing left to load)."""
+    import subprocess
+    import sys
+    import tempfile
+    from . import kernel
+    out = {"kernel": kernel.selected()}
+    code = _FIRST_TRACE.format(path=str(SAMPLES / "light-pipe-90.json"))
+    with tempfile.TemporaryDirectory(prefix="raytrace-bench-cache-") as cache:
+        # cold: an empty cache folder of its own; otherwise the cache the user's runs fill
+        env = dict(os.environ, NUMBA_CACHE_DIR=cache) if cold else dict(os.environ)
+        for label in (("cold_cache_s", "warm_cache_s") if cold else ("warm_cache_s",)):
+            res = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True)
+            if res.returncode != 0:
+                out["error"] = res.stderr.strip().splitlines()[-1:] or ["failed"]
+                break
+            first, again = (float(v) for v in res.stdout.split())
+            out[label] = first
+            out["in_process_s"] = again
+    return out
+
+
 def run(quick: bool = False, workers: int | None = None, only: list[str] | None = None,
         ratio: bool = True, echo=print) -> dict:
+    from . import kernel
     from .parallel import default_workers
     workers = workers or default_workers()
     rows: dict[str, dict] = {}
+    echo("  start-up of the kernel ...", end="", flush=True)
+    startup = first_call_times(cold=not quick)
+    echo(" done")
     for w in workloads(quick):
         if only and w.name not in only:
             continue
@@ -261,11 +349,25 @@ def run(quick: bool = False, workers: int | None = None, only: list[str] | None 
         # per-event cost in CPU time, so that other load on the machine cancels out
         rows["strip-ratio"] = {"name": "strip-ratio", "value": rows["strip-10000"]["ns_per_event_cpu"]
                                / rows["strip-100"]["ns_per_event_cpu"]}
+    try:
+        load = os.getloadavg()[0]
+    except OSError:
+        load = float("nan")
     return {"machine": {"cores": workers, "python": platform.python_version(), "numpy": np.__version__,
-                        "platform": platform.platform(), "quick": quick},
+                        "platform": platform.platform(), "quick": quick, "kernel": kernel.selected(),
+                        "numba": _numba_version(), "load_average_end": load},
+            "startup": startup,
             "workloads": [r for r in rows.values() if "rays_per_s" in r],
             "gui": rows.get("gui-1000"), "strip_ratio": rows.get("strip-ratio", {}).get("value"),
             "targets": [] if quick else check_targets(rows)}
+
+
+def _numba_version() -> str:
+    try:
+        import numba
+        return numba.__version__
+    except ImportError:
+        return "-"
 
 
 def format_table(report: dict) -> str:
@@ -280,9 +382,22 @@ def format_table(report: dict) -> str:
     lines.append("")
     lines.append("ev/cpu-s: events per CPU second of all processes (what one core does when it has the "
                  "machine to itself; wall-clock figures suffer from other load)")
-    lines.append("speedup: plain tracer CPU time / accelerated CPU time, same starting rays, one core "
+    lines.append("speedup: plain search (every edge) CPU time / accelerated CPU time, same starting rays, one core "
                  "(" + ", ".join(f"{r['name']}: {r['ratio_rays']:,} rays" for r in report["workloads"]
                                   if "ratio_rays" in r) + ")")
+    for r in report["workloads"]:
+        if "vs_plain_compiled" in r:
+            lines.append(f"vs plain compiled, {r['name']}: {r['tracer_ns_per_event']:.0f} ns per event against the "
+                         f"plain compiled loop's {r['bar_ns_per_event']:.0f} ns = {r['vs_plain_compiled']:.2f}x "
+                         f"({r['bar_rays']:,} rays, {r['tracer_events']:,} / {r['bar_events']:,} events, "
+                         f"one core, best of 3)")
+    st = report.get("startup") or {}
+    if "warm_cache_s" in st:
+        cold = f"{st['cold_cache_s']:.1f} s with an empty compile cache, " if "cold_cache_s" in st else ""
+        lines.append(f"kernel {st['kernel']}: import + first 50-ray trace {cold}{st['warm_cache_s']:.2f} s with the "
+                     f"cache filled, {1e3 * st['in_process_s']:.0f} ms once loaded")
+    elif st.get("error"):
+        lines.append(f"kernel start-up not measured: {st['error'][0]}")
     g = report.get("gui")
     if g:
         lines.append(f"gui-1000: compile + trace + segment table, {g['segments']:,} segments: "

@@ -15,8 +15,10 @@ def summary_text(result: TraceResult, title: str = "", story: str = "") -> str:
         lines.append(f"Scene: {title}")
     if story:
         lines.append(f"  {story}")
+    start = st.get("kernel_start_s", 0.0)
+    start_note = f" ({start:.1f} s of it loading the compiled tracer, once per process)" if start >= 0.05 else ""
     lines.append(f"Traced {st['source_rays']:,} source rays ({result.mode}), {st['segments']:,} segments "
-                 f"in {st['elapsed_s']:.2f} s; source flux {L.source_flux:.6g}")
+                 f"in {st['elapsed_s']:.2f} s{start_note}; source flux {L.source_flux:.6g}")
     sections = ((DETECTOR, "Reached detectors"), (ESCAPED, "Escaped (by the last face met)"),
                 (ABSORBED, "Absorbed"), (TRUNCATED, "Truncated"))
     for kind, heading in sections:

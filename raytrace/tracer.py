@@ -21,7 +21,9 @@ from . import fresnel
 from .accel import edge_table, hit_function
 from .compile import (T_ABSORBER, T_AR, T_BARE, T_DETECT_ABSORB, T_DETECT_MONITOR, T_MIRROR,
                       CompiledScene)
+from . import kernel, kernel_step
 from .errors import BudgetExceeded, memory_limit_text
+from .kernel import timed_first_call
 from .intersect import edge_normal, nearest_hit
 from .ledger import TRUNC_BUDGET, TRUNC_DEPTH, TRUNC_FLUX, BinLayout
 from .pathtrie import PathTrie
@@ -156,6 +158,16 @@ class _SceneArrays:
         self.n_codes = ne * N_EVENT_KINDS
         self.eps = cs.eps
         self.detector_ids = np.flatnonzero(cs.detector >= 0)
+        # the same extended tables as kernel_step.interface_step takes them (EDGE_*_ROWS)
+        i64 = lambda a: np.ascontiguousarray(a, dtype=np.int64)
+        f64 = lambda a: np.ascontiguousarray(a, dtype=float)
+        dex, dey = cs.x1 - cs.x0, cs.y1 - cs.y0
+        self.edge_float = f64(np.array([self.nx, self.ny, self.cx, self.cy, self.reflectance, ext(cs.x0, 0.0),
+                                        ext(cs.y0, 0.0), ext(dex, 1.0), ext(dey, 0.0), ext(np.hypot(dex, dey), 1.0)],
+                                       dtype=float))
+        self.edge_int = i64(np.array([self.treat, self.escape_code, self.is_arc, self.med_plus, self.med_minus,
+                                      ext(cs.detector, -1)], dtype=np.int64))
+        self.x0, self.y0, self.x1, self.y1 = (f64(a) for a in (self.x0, self.y0, self.x1, self.y1))
         self.detectors_touch_boundary = _detectors_touch_boundary(cs)
 
 
@@ -238,6 +250,8 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     limits = limits or Limits()
     record = record or Recording()
     hit_fn = hit_fn or hit_function(cs, accel)
+    compiled = kernel.compiled()
+    compile_before = sum(kernel.COMPILE_SECONDS.values())
     tune_allocator()
     rng = np.random.default_rng(seed)
     t0 = time.perf_counter()
@@ -324,7 +338,17 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         x, y, dx, dy = r["x"], r["y"], r["dx"], r["dy"]
         fs, fp, med = r["fs"], r["fp"], r["med"]
         # --- nearest hit (with the corner rules, see _corner_hits), then travel to it
-        t, e, at_vertex = _corner_hits(cs, K, r, hit_fn, vertex_tol2, stats)
+        t, e, at_vertex = _corner_hits(cs, K, r, hit_fn, vertex_tol2, stats, compiled)
+        if compiled:
+            step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording)
+            r, next_id, seg_rows = _after_compiled_step(
+                cs, K, r, e, step, paths, path_thr, recording, record, root_offset, next_id, seg_store,
+                seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats, batch, batch_bins)
+            if hit_store:
+                hit_rows = sum(len(v) for v in hit_store["root"])
+            gen += 1
+            continue
+        # --- the reference array code of the step that kernel_step.interface_step compiles
         esc = e < 0
         L = np.where(esc, 0.0, t)
         codes: list[np.ndarray] = []      # ledger deposits of this generation
@@ -424,20 +448,9 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
                 _interfaces(cs, K, r, di, e, hx, hy, fs, fp, treat, n_flat, W, mode, rng, stats, end, kids)
 
         if seg_store is not None:
-            want = record.wants(r["root"] + root_offset)
-            if want is not None and want.any():
-                ex = np.where(esc, hx + 3 * cs.scale * dx, hx)
-                ey = np.where(esc, hy + 3 * cs.scale * dy, hy)
-                cols = {"x": x, "y": y, "ex": ex, "ey": ey, "dx": dx, "dy": dy, "fs": fs_start,
-                        "fp": fp_start, "med": med, "opl": opl, "root": r["root"] + root_offset,
-                        "rid": r["rid"], "parent": r["parent"], "born": r["born"], "end": end,
-                        "edge": e, "wli": r["wli"]}
-                if not want.all():
-                    cols = {k: v[want] for k, v in cols.items()}
-                cols["gen"] = np.full(len(cols["x"]), gen, dtype=np.int64)
-                seg_rows += len(cols["x"])
-                for k, v in cols.items():
-                    seg_store.setdefault(k, []).append(v)
+            ex = np.where(esc, hx + 3 * cs.scale * dx, hx)
+            ey = np.where(esc, hy + 3 * cs.scale * dy, hy)
+            seg_rows += _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen)
         if hit_store:
             hit_rows = sum(len(v) for v in hit_store["root"])
 
@@ -457,6 +470,8 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         gen += 1
 
     stats["elapsed_s"] = time.perf_counter() - t0
+    # first calls of the compiled kernel in this process (loading it from the cache, or compiling)
+    stats["kernel_start_s"] = sum(kernel.COMPILE_SECONDS.values()) - compile_before
     stats["events"] = stats["segments"]
     if seg_store is not None and seg_store:
         segments = _segment_table(seg_store, wavelengths)
@@ -638,9 +653,17 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
            "wli": r["wli"][pidx], "root": root[pidx], "corner_edge": np.full(len(pidx), -1, dtype=np.int64)}
     if at_vertex is not None:
         _corner_children(cs, out, np.flatnonzero(at_vertex[pidx]))
-    parent_path = r["path"][pidx]
+    next_id = _child_paths_and_ids(out, r, pidx, start, col(7), col(8) if recording else None, paths,
+                                   path_thr, K, next_id)
+    return out, next_id
+
+
+def _child_paths_and_ids(out, r, pidx, start, ev, born, paths, path_thr, K, next_id, parent_path=None):
+    """The children's path nodes (parent's path extended by the event, or "other paths" for
+    faint rays) and, when a ray table is recorded (`born` given), their ids and parents."""
+    if parent_path is None:
+        parent_path = r["path"][pidx]
     if paths.enabled:
-        ev = col(7)
         bright = (out["fs"] + out["fp"]) >= path_thr[out["root"]]
         if bright.all():
             out["path"] = paths.extend(parent_path, start * N_EVENT_KINDS + ev, K.n_codes)
@@ -651,13 +674,96 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
             out["path"] = node
     else:
         out["path"] = parent_path
-    if recording:
+    if born is not None:
         k = len(pidx)
         out["rid"] = np.arange(next_id, next_id + k, dtype=np.int64)
         out["parent"] = r["rid"][pidx]
-        out["born"] = col(8)
+        out["born"] = born
         next_id += k
-    return out, next_id
+    return next_id
+
+
+def _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen) -> int:
+    """Append this generation's segments of the recorded source rays to the ray table; returns
+    the number of rows added."""
+    want = record.wants(r["root"] + root_offset)
+    if want is None or not want.any():
+        return 0
+    cols = {"x": r["x"], "y": r["y"], "ex": ex, "ey": ey, "dx": r["dx"], "dy": r["dy"], "fs": r["fs"],
+            "fp": r["fp"], "med": r["med"], "opl": opl, "root": r["root"] + root_offset,
+            "rid": r["rid"], "parent": r["parent"], "born": r["born"], "end": end,
+            "edge": e, "wli": r["wli"]}
+    if not want.all():
+        cols = {k: v[want] for k, v in cols.items()}
+    cols["gen"] = np.full(len(cols["x"]), gen, dtype=np.int64)
+    for k, v in cols.items():
+        seg_store.setdefault(k, []).append(v)
+    return len(cols["x"])
+
+
+_NO_DRAWS = np.zeros(0)
+
+
+def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording):
+    """kernel_step.interface_step for this generation, with the Monte Carlo draws the array
+    code would take (one per ray at a dielectric face, in ray order)."""
+    mc = mode == MONTE_CARLO
+    u = _NO_DRAWS
+    if mc:
+        tr = K.treat[e]
+        n_di = int(np.count_nonzero((tr == T_BARE) | (tr == T_AR)))
+        if n_di:
+            u = rng.random(n_di)
+    c = np.ascontiguousarray
+    state = [c(r[k]) for k in _STEP_STATE]
+    return timed_first_call("interface step", lambda: kernel_step.interface_step(
+        *state, t, e, K.edge_float, K.edge_int, n_flat, K.alpha, thr_root, int(W), bool(K.absorbing), mc,
+        int(layout.bulk0), int(layout.face0), int(layout.trunc0 + TRUNC_FLUX), float(cs.eps), float(cs.scale),
+        bool(recording), u))
+
+
+_STEP_STATE = ("x", "y", "dx", "dy", "fs", "fp", "opl", "wli", "med", "root", "last", "path")
+
+
+def _after_compiled_step(cs, K, r, e, step, paths, path_thr, recording, record, root_offset, next_id,
+                         seg_store, seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats,
+                         batch, batch_bins):
+    """Book what the compiled step produced: stats, detector records, ray table, ledger bins and
+    path deposits; returns the next generation."""
+    (end, ex, ey, opl), (dcode, dflux, dnode), children, records, counts = step
+    stats["tir_events"] += int(counts[0])
+    stats["medium_mismatches"] += int(counts[1])
+    stats["grazing_hits"] += int(counts[2])
+    HF, HI, front = records
+    if len(front):
+        pos, angle, hfs, hfp, hopl = HF
+        det, row, hwli, hpath, hroot = HI
+        if hist is not None:
+            hist.add(det, pos, angle, hfs, hfp, hroot + root_offset, r["dx"][row], r["dy"][row])
+        else:
+            for k, v in (("detector", det), ("position", pos), ("angle_deg", angle), ("front", front),
+                         ("flux_s", hfs), ("flux_p", hfp), ("wavelength_nm", wavelengths[hwli]),
+                         ("optical_path", hopl), ("path", hpath), ("root", hroot + root_offset)):
+                hit_store.setdefault(k, []).append(v)
+    if seg_store is not None:
+        seg_rows += _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen)
+    if len(dcode):          # dnode: the row of the ray each deposit comes from
+        bins += np.bincount(dcode, weights=dflux, minlength=len(bins))
+        batch_bins += np.bincount(batch[r["root"][dnode]] * len(bins) + dcode, weights=dflux,
+                                  minlength=len(batch_bins))
+        if paths.enabled:
+            paths.deposit(dcode, r["path"][dnode], dflux)
+    CF, CI = children
+    cx, cy, cdx, cdy, cfs, cfp, copl = CF
+    cmed, clast, start, cwli, croot, cpath, pidx, cev, cborn = CI
+    out = {"x": cx, "y": cy, "dx": cdx, "dy": cdy, "fs": cfs, "fp": cfp, "med": cmed, "start": start,
+           "last": clast, "opl": copl, "wli": cwli, "root": croot,
+           "corner_edge": np.full(len(pidx), -1, dtype=np.int64)}
+    if at_vertex is not None:
+        _corner_children(cs, out, np.flatnonzero(at_vertex[pidx]))
+    next_id = _child_paths_and_ids(out, r, pidx, start, cev, cborn if recording else None, paths, path_thr,
+                                   K, next_id, parent_path=cpath)
+    return out, next_id, seg_rows
 
 
 def _vertex_groups(cs: CompiledScene):
@@ -708,7 +814,7 @@ def _near_vertex(cs, K, e, hx, hy, tol2):
     return (e >= 0) & (d2 < tol2) & (K.treat[ev] < T_DETECT_ABSORB)
 
 
-def _corner_hits(cs, K, r, hit_fn, tol2, stats):
+def _corner_hits(cs, K, r, hit_fn, tol2, stats, compiled=False):
     """Nearest hit of every ray, with the corner rules.  Returns (t, e, at_vertex).
 
     A hit on a vertex belongs to every edge meeting there.  The medium is probed CORNER_PROBE
@@ -723,13 +829,20 @@ def _corner_hits(cs, K, r, hit_fn, tol2, stats):
     by _corner_children."""
     x, y, dx, dy, med = r["x"], r["y"], r["dx"], r["dy"], r["med"]
     t, e = _first_hit(cs, K, x, y, dx, dy, r["start"], hit_fn)
-    hit = e >= 0
-    at_vertex = _near_vertex(cs, K, e, x + np.where(hit, t, 0.0) * dx, y + np.where(hit, t, 0.0) * dy, tol2)
     forced = np.flatnonzero(r["corner_edge"] >= 0)
-    idx = np.flatnonzero(at_vertex)
+    if compiled:        # the same test as _near_vertex, in one compiled pass
+        idx = kernel_step.vertex_candidates(x, y, dx, dy, t, e, K.x0, K.y0, K.x1, K.y1, K.treat, tol2)
+        if len(forced) == 0 and len(idx) == 0:
+            return t, e, None
+        at_vertex = np.zeros(len(x), dtype=bool)
+        at_vertex[idx] = True
+    else:
+        hit = e >= 0
+        at_vertex = _near_vertex(cs, K, e, x + np.where(hit, t, 0.0) * dx, y + np.where(hit, t, 0.0) * dy, tol2)
+        idx = np.flatnonzero(at_vertex)
+        if len(forced) == 0 and len(idx) == 0:
+            return t, e, at_vertex
     events = len(forced)
-    if len(forced) == 0 and len(idx) == 0:
-        return t, e, at_vertex
     t, e = t.copy(), e.copy()
     if len(forced):
         t[forced] = 0.0

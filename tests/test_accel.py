@@ -15,6 +15,7 @@ import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 
 from conftest import make_scene, shaped_part
+from raytrace import kernel
 from raytrace.accel import EdgeGrid, edge_grid, edge_table, hit_function
 from raytrace.compile import compile_scene
 from raytrace.intersect import nearest_hit
@@ -48,11 +49,17 @@ def random_rays(cs, n, seed, on_edges=True):
 
 
 def assert_same_as_plain(cs, x, y, dx, dy, start, methods=METHODS):
+    """Every method of both kernels (the numpy array code and the compiled loops, "plain"
+    included for the compiled one) against the numpy plain search."""
     t0, e0 = nearest_hit(cs, x, y, dx, dy, start)
-    for method in methods:
-        t, e = hit_function(cs, method)(cs, x, y, dx, dy, start)
-        np.testing.assert_array_equal(e, e0, err_msg=f"edge differs ({method})")
-        np.testing.assert_array_equal(t, t0, err_msg=f"distance differs ({method})")
+    for name in kernel.KERNELS:
+        with kernel.using(name):
+            # the compiled every-edge search too, where it is quick (it is what the grid beats)
+            plain = ("plain",) if name == "numba" and cs.n_edges <= 2000 else ()
+            for method in methods + plain:
+                t, e = hit_function(cs, method)(cs, x, y, dx, dy, start)
+                np.testing.assert_array_equal(e, e0, err_msg=f"edge differs ({name} {method})")
+                np.testing.assert_array_equal(t, t0, err_msg=f"distance differs ({name} {method})")
     return t0, e0
 
 
@@ -204,11 +211,7 @@ def test_random_scenes_same_hits(case):
     scene, seed = case
     cs = compile_scene(scene)
     x, y, dx, dy, start = random_rays(cs, 6000, seed=seed)
-    t0, e0 = nearest_hit(cs, x, y, dx, dy, start)
-    for method in ("sweep", "grid"):
-        t, e = hit_function(cs, method)(cs, x, y, dx, dy, start)
-        np.testing.assert_array_equal(e, e0)
-        np.testing.assert_array_equal(t, t0)
+    assert_same_as_plain(cs, x, y, dx, dy, start, methods=("sweep", "grid"))
 
 
 def test_grid_lists_every_edge_in_the_cells_it_touches():
