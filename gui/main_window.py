@@ -162,6 +162,8 @@ class MainWindow(QMainWindow):
         self.recent_menu.aboutToShow.connect(self._fill_recent)
         self._act(f, "&Save", lambda: self.save(), QKeySequence.Save, "Save the scene")
         self._act(f, "Save &as...", lambda: self.save_as(), QKeySequence.SaveAs, "Save under another name")
+        self._act(f, "Import &DXF...", lambda: self.import_dxf(), None,
+                  "Add the closed contours of a DXF drawing as parts, a material per layer")
         f.addSeparator()
         self._act(f, "Export ray table (CSV)...", lambda: self.export_csv(), None,
                   "The drawn rays' segments, one row each")
@@ -234,7 +236,8 @@ class MainWindow(QMainWindow):
         r = mb.addMenu("T&race")
         self._act(r, "Trace &now", lambda: self.request_trace(force=True), "F5")
         self._act(r, "&Stop trace", self.stop_trace, "Shift+F5")
-        self._act(r, "S&weep...", self.open_sweep, "F6", "Vary one number and plot the efficiencies")
+        self._act(r, "S&weep...", self.open_sweep, "F6",
+                  "Vary one number and plot the efficiencies; optimize or tolerance numbers")
 
         h = mb.addMenu("&Help")
         self._act(h, "&Safety cautions", lambda: self.show_info("Safety cautions", help_text.SAFETY))
@@ -557,6 +560,37 @@ class MainWindow(QMainWindow):
         scene = edits.add_part(self.doc.scene, placed)
         self.doc.apply(scene, f"add {scene.parts[-1].name}")
         self.canvas.select((edits.PART, len(scene.parts) - 1))
+
+    def ask_dxf_path(self) -> str:
+        path, _ = QFileDialog.getOpenFileName(self, "Import a DXF drawing", str(self._dir()), "DXF drawings (*.dxf)")
+        return path
+
+    def ask_dxf_setup(self, layers, ask_units):
+        from .dxf_import import ask_setup
+        return ask_setup(self, layers, self.doc.scene, ask_units)
+
+    def import_dxf(self, path: str | None = None) -> bool:
+        """File > Import DXF: the drawing's parts join the scene in one undoable step."""
+        from raytrace.dxf_io import dxf_layers
+        from .dxf_import import import_parts
+        path = path or self.ask_dxf_path()
+        if not path:
+            return False
+        try:
+            layers, units_stated = dxf_layers(path)
+            setup = self.ask_dxf_setup(layers, not units_stated)
+            if setup is None:
+                return False
+            scene, count = import_parts(self.doc.scene, path, *setup)
+        except SceneError as exc:
+            lines = [str(p) for p in exc.problems]
+            self.show_error("Cannot import the drawing",
+                            f"{path} has {len(lines)} problem(s):\n" + "\n".join(lines[:20]))
+            return False
+        self.doc.apply(scene, f"import {count} parts from {Path(path).name}")
+        self.canvas.fit()
+        self.status_note(f"Imported {count} parts from {path}")
+        return True
 
     def open_sweep(self) -> None:
         from .dialogs.sweep import SweepDialog

@@ -1,4 +1,5 @@
-"""Command line: `raytrace check`, `raytrace trace`, `raytrace sweep`, `raytrace materials`.
+"""Command line: `raytrace check`, `raytrace trace`, `raytrace sweep`, `raytrace materials`
+(and, from cli_design, `optimize`, `tolerance`, `import-dxf`, `export-dxf`).
 
 Exit codes (documented in the README):
     0  success
@@ -59,6 +60,7 @@ def build_parser() -> argparse.ArgumentParser:
                         "lower it to see faint ghosts)")
     add_earlier_name(t, "--paths", "--routes", "routes", type=whole(0), nargs="?", const=10)
     add_earlier_name(t, "--paths-min-flux", "--routes-min-flux", "route_flux_floor", type=fraction)
+    t.add_argument("--plot", metavar="FILE.png|svg", help="draw the scene with rays and the detector profiles")
 
     w = sub.add_parser("sweep", help="trace a scene over a range of one or two named numbers",
                        description="Trace SCENE at every point of a range and write one CSV row per point: "
@@ -77,6 +79,7 @@ def build_parser() -> argparse.ArgumentParser:
                         "1 = in this process)")
     w.add_argument("--dask", metavar="ADDRESS",
                    help="run the points on the Dask scheduler at ADDRESS (needs the dask extra)")
+    w.add_argument("--plot", metavar="FILE.png|svg", help="plot the efficiencies against the varied number")
     w.add_argument("--figure", metavar="DETECTOR.FIELD", action="append", default=[],
                    help="add a column with a detector figure, e.g. \"return.accepted\" or "
                         "\"viewer side.centroid_mm\" (repeatable); FIELD is one of "
@@ -91,6 +94,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     from .bench import add_arguments as add_bench_arguments
     add_bench_arguments(sub.add_parser("bench", help="run fixed workloads and report speed and memory"))
+    from .cli_design import add_commands as add_design_commands
+    COMMANDS.update(add_design_commands(sub))     # optimize, tolerance, import-dxf, export-dxf
     return p
 
 
@@ -308,6 +313,11 @@ def cmd_trace(args) -> int:
         if scene is None:
             return EXIT_USAGE
     record = args.record or (("spread", 1000) if args.csv else ("none", 0))
+    if args.plot:
+        if not plot_path_ok(args.plot):
+            return EXIT_USAGE
+        from .plots import record_for_plot
+        record = record_for_plot(record)
     progress = Progress(enabled=not args.quiet)
     try:
         errors = error_kwargs(args)
@@ -366,6 +376,11 @@ def cmd_trace(args) -> int:
         from .detectors import detector_reports, write_profiles
         reports = detector_reports(result)
         if not write_stream(args.detectors_csv, lambda fh: write_profiles(reports, fh)):
+            return EXIT_OUTPUT
+    if args.plot:
+        from .plots import trace_plot
+        if not write_plot(args.plot, lambda: trace_plot(scene, result, args.plot,
+                                                         title=scene.name or Path(args.scene).stem)):
             return EXIT_OUTPUT
     return EXIT_OK
 
@@ -436,6 +451,8 @@ def cmd_sweep(args) -> int:
         return EXIT_USAGE
     scene = load_scene(args.scene)
     print_notes(scene)
+    if args.plot and not plot_path_ok(args.plot):
+        return EXIT_USAGE
     try:
         detectors = [d.name for d in scene.detectors]
         figures = [parse_figure(f, detectors) for f in args.figure] + [parse_route(r, detectors) for r in args.route]
@@ -448,18 +465,11 @@ def cmd_sweep(args) -> int:
             return EXIT_USAGE
         executor, client = None, None
         if args.dask:
-            try:
-                from distributed import Client
-            except ImportError:
-                print("error: --dask needs the optional dask extra (pip install 'raytrace2d[dask]')",
-                      file=sys.stderr)
+            from .cli_design import open_dask
+            opened = open_dask(args.dask)
+            if opened is None:
                 return EXIT_USAGE
-            try:
-                client = Client(args.dask, timeout=30)
-            except (OSError, TimeoutError) as exc:
-                print(f"error: --dask: could not reach the scheduler at {args.dask}: {exc}", file=sys.stderr)
-                return EXIT_USAGE
-            executor = client.get_executor()
+            executor, client = opened
         progress = Progress(enabled=not args.quiet)
         try:
             result = sweep(scene_to_dict(scene), variables, {**trace_kwargs(args), **error_kwargs(args)},
@@ -476,6 +486,10 @@ def cmd_sweep(args) -> int:
         return EXIT_USAGE
     if not write_output(args.csv, result.to_csv()):
         return EXIT_OUTPUT
+    if args.plot:
+        from .plots import sweep_plot
+        if not write_plot(args.plot, lambda: sweep_plot(result, args.plot, title=scene.name)):
+            return EXIT_OUTPUT
     if not args.quiet:
         from .report import sweep_text
         print(sweep_text(result))
@@ -555,6 +569,23 @@ def write_stream(path: str, fill) -> bool:
             fill(fh)
     try:
         atomic_write(path, write)
+        return True
+    except OSError as exc:
+        print(f"error: could not write {path}: {exc.strerror or exc}", file=sys.stderr)
+        return False
+
+
+def plot_path_ok(path: str) -> bool:
+    from .plots import check_plot_path
+    problem = check_plot_path(path)
+    if problem:
+        print(f"error: {problem}", file=sys.stderr)
+    return problem is None
+
+
+def write_plot(path: str, draw) -> bool:
+    try:
+        draw()
         return True
     except OSError as exc:
         print(f"error: could not write {path}: {exc.strerror or exc}", file=sys.stderr)

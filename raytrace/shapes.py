@@ -168,13 +168,18 @@ def prism(apex_angle_deg: float, side: float) -> Loop:
                         ["base", "right face", "left face"])
 
 
-def roof_prism(leg: float) -> Loop:
-    """Right-angle roof prism: hypotenuse down on y = 0 (centred) as the entry face, the two legs
-    meeting at the 90 deg roof apex at (0, leg / sqrt 2).
+def roof_prism(leg: float, roof_angle_deg: float = 90.0) -> Loop:
+    """Roof prism: hypotenuse down on y = 0 (centred) as the entry face, the two legs meeting at
+    the roof apex above its centre, at `roof_angle_deg` (90 for a right-angle roof; a made
+    prism's error from 90 is what tolerancing varies).
     Faces: "hypotenuse", "right leg", "left leg"."""
     L = _number("leg", leg, 0)
-    half = L / math.sqrt(2.0)   # half the hypotenuse, and the apex height
-    return Loop.polygon([(-half, 0.0), (half, 0.0), (0.0, half)],
+    a = _number("roof_angle_deg", roof_angle_deg, 0, False, 180, False)
+    if a == 90.0:
+        half = height = L / math.sqrt(2.0)   # exactly as before the angle could vary
+    else:
+        half, height = L * math.sin(math.radians(a) / 2), L * math.cos(math.radians(a) / 2)
+    return Loop.polygon([(-half, 0.0), (half, 0.0), (0.0, height)],
                         ["hypotenuse", "right leg", "left leg"])
 
 
@@ -468,7 +473,9 @@ PARAMETERS: dict[str, list[ParamInfo]] = {
     ],
     "roof_prism": [
         ParamInfo("leg", "number", "mm", 20.0,
-                  "length of each leg face; the hypotenuse is leg * sqrt 2", **_POS),
+                  "length of each leg face; the hypotenuse is leg * sqrt 2 at a 90 deg roof", **_POS),
+        ParamInfo("roof_angle_deg", "number", "deg", 90.0, "angle between the legs at the roof apex",
+                  required=False, **_ANGLE),
     ],
     "regular_polygon": [
         ParamInfo("sides", "integer", "", 6, "number of sides", min=3, min_inclusive=True),

@@ -346,7 +346,6 @@ def sweep(scene, variables: list[Variable], trace_options: dict | None = None,
     add as columns.  A trace option that a varied name also sets (trace_options rays=500 with
     trace.rays varied) is refused: it would make every point the same.  option_names: how to
     call each option in that message (the CLI passes its flags)."""
-    from .parallel import capped_workers
     from .scene import Scene
     if isinstance(scene, Scene):
         from .scene_io import scene_to_dict
@@ -374,31 +373,42 @@ def sweep(scene, variables: list[Variable], trace_options: dict | None = None,
     figures = list(figures or [])
     tasks = [(data, [(t.paths, val) for t, val in zip(targets, vals)], options, figures) for vals in points]
 
-    results: list[dict | None] = [None] * len(tasks)
+    results = run_tasks(run_point, tasks, executor, workers, progress)
+    return _table(variables, points, results, [d.get("name", "") for d in data.get("detectors", [])],
+                  [f.column for f in figures])
+
+
+def run_tasks(fn: Callable, tasks: list[tuple], executor: Executor | None = None, workers: int | None = None,
+              progress: Callable[[int, int], None] | None = None) -> list:
+    """fn(*task) for every task, results in task order whatever order they finish in: on
+    `executor`, else on a local pool of `workers` processes (default and most: the CPUs this
+    process may use), or in this process when that is one, or there is one task.
+    progress(done, total) as tasks finish."""
+    from .parallel import capped_workers
+    results: list = [None] * len(tasks)
     done = 0
-    if executor is None and (workers == 1 or len(tasks) == 1 or capped_workers(workers) == 1):
+    if executor is None and (workers == 1 or len(tasks) <= 1 or capped_workers(workers) == 1):
         for i, task in enumerate(tasks):
-            results[i] = run_point(*task)
+            results[i] = fn(*task)
             done += 1
             if progress:
                 progress(done, len(tasks))
-    else:
-        own = executor is None
-        from .parallel import die_with_parent
-        ex = executor or ProcessPoolExecutor(max_workers=min(capped_workers(workers), len(tasks)),
-                                             initializer=die_with_parent)
-        try:
-            futures = {ex.submit(run_point, *task): i for i, task in enumerate(tasks)}
-            for fut in as_completed(futures):
-                results[futures[fut]] = fut.result()
-                done += 1
-                if progress:
-                    progress(done, len(tasks))
-        finally:
-            if own:
-                ex.shutdown(wait=True, cancel_futures=True)
-    return _table(variables, points, results, [d.get("name", "") for d in data.get("detectors", [])],
-                  [f.column for f in figures])
+        return results
+    own = executor is None
+    from .parallel import die_with_parent
+    ex = executor or ProcessPoolExecutor(max_workers=min(capped_workers(workers), len(tasks)),
+                                         initializer=die_with_parent)
+    try:
+        futures = {ex.submit(fn, *task): i for i, task in enumerate(tasks)}
+        for fut in as_completed(futures):
+            results[futures[fut]] = fut.result()
+            done += 1
+            if progress:
+                progress(done, len(tasks))
+    finally:
+        if own:
+            ex.shutdown(wait=True, cancel_futures=True)
+    return results
 
 
 def refuse_overrides(targets: list[Target], options: dict, option_names: dict[str, str] | None = None,

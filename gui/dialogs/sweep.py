@@ -1,4 +1,5 @@
-"""Sweep one number of the scene over a range, in the background, and plot the efficiencies.
+"""Sweep one number of the scene over a range, in the background, and plot the efficiencies;
+the Optimize and Tolerance tabs (dialogs/design.py) tune a number or tolerance it.
 
 The sweep runs `raytrace.sweep.sweep` in a worker thread one point at a time; its progress
 callback moves the bar and stops the run when Cancel is pressed (the point being traced is
@@ -6,25 +7,20 @@ finished first, the rest are skipped).
 """
 from __future__ import annotations
 
-import threading
 from dataclasses import replace
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QObject, Signal
+from PySide6.QtCore import Qt
 from PySide6.QtWidgets import (QComboBox, QDialog, QDoubleSpinBox, QFileDialog, QFormLayout,
                                QHBoxLayout, QLabel, QProgressBar, QPushButton, QSpinBox,
-                               QVBoxLayout)
+                               QTabWidget, QVBoxLayout, QWidget)
 
-from raytrace.errors import RaytraceError, SceneError
 from raytrace.shapes import PARAMETERS
 from raytrace.sweep import Variable, sweep
 
 from .. import style
-
-
-class SweepCancelled(Exception):
-    pass
+from .background import BackgroundRun
 
 
 def sweep_names(scene) -> list[str]:
@@ -86,31 +82,6 @@ def current_value(scene, name: str) -> float | None:
     return None
 
 
-class _Runner(QObject):
-    progress = Signal(int, int)
-    done = Signal(object, str)     # SweepResult or None, message
-
-    def __init__(self):
-        super().__init__()
-        self.cancel = threading.Event()
-
-    def run(self, scene, variable, options):
-        def progress(done, total):
-            self.progress.emit(done, total)
-            if self.cancel.is_set():
-                raise SweepCancelled()
-        try:
-            result = sweep(scene, [variable], options, workers=1, progress=progress)
-        except SweepCancelled:
-            self.done.emit(None, "cancelled")
-        except SceneError as exc:
-            self.done.emit(None, "; ".join(str(p) for p in exc.problems))
-        except RaytraceError as exc:
-            self.done.emit(None, str(exc))
-        else:
-            self.done.emit(result, "")
-
-
 class SweepDialog(QDialog):
     def __init__(self, scene, options: dict | None = None, parent=None):
         super().__init__(parent)
@@ -168,17 +139,31 @@ class SweepDialog(QDialog):
         buttons.addWidget(self.cancel_btn)
         buttons.addWidget(self.save_btn)
         buttons.addStretch(1)
-        buttons.addWidget(close)
-        lay = QVBoxLayout(self)
+        sweep_tab = QWidget()
+        lay = QVBoxLayout(sweep_tab)
         lay.addLayout(form)
         lay.addWidget(self.bar)
         lay.addWidget(self.status)
         lay.addWidget(self.plot, 1)
         lay.addLayout(buttons)
+        self.tabs = QTabWidget()
+        self.tabs.addTab(sweep_tab, "Sweep")
+        self._add_design_tabs(scene)
+        outer = QVBoxLayout(self)
+        outer.addWidget(self.tabs, 1)
+        outer.addWidget(close, 0, Qt.AlignRight)
         self.name.currentTextChanged.connect(self._default_range)
         self._default_range(self.name.currentText())
         self._runner = None
         self._thread = None
+
+    def _add_design_tabs(self, scene):
+        from .design import OptimizePanel, TolerancePanel
+        names = sweep_names(scene)
+        self.optimize_panel = OptimizePanel(scene, self.options, names, current_value)
+        self.tolerance_panel = TolerancePanel(scene, self.options, names)
+        self.tabs.addTab(self.optimize_panel, "Optimize")
+        self.tabs.addTab(self.tolerance_panel, "Tolerance")
 
     def _default_range(self, name):
         v = current_value(self.scene, name)
@@ -196,7 +181,7 @@ class SweepDialog(QDialog):
         values = tuple(a + (b - a) * k / (n - 1) for k in range(n)) if n > 1 else (a,)
         variable = Variable(self.name.currentText().strip(), values)
         options = dict(self.options, rays=self.rays.value())
-        self._runner = _Runner()
+        self._runner = BackgroundRun()
         self._runner.progress.connect(self._progress)
         self._runner.done.connect(self._done)
         self.bar.setRange(0, n)
@@ -204,9 +189,9 @@ class SweepDialog(QDialog):
         self.status.setText("running...")
         self.run_btn.setEnabled(False)
         self.cancel_btn.setEnabled(True)
-        self._thread = threading.Thread(target=self._runner.run, args=(self.scene, variable, options),
-                                        name="sweep", daemon=True)
-        self._thread.start()
+        scene = self.scene
+        self._thread = self._runner.start(
+            lambda progress: sweep(scene, [variable], options, workers=1, progress=progress), "sweep")
 
     def cancel(self):
         if self._runner is not None:
@@ -268,6 +253,8 @@ class SweepDialog(QDialog):
 
     def reject(self):
         self.cancel()
+        self.optimize_panel.cancel()
+        self.tolerance_panel.cancel()
         super().reject()
 
 

@@ -1,0 +1,203 @@
+"""The Optimize and Tolerance tabs of the sweep dialog.
+
+Each runs `raytrace.optimize.optimize` or `raytrace.tolerance.tolerance` in a worker thread, one
+trace at a time (the app's own trace worker keeps the other core), shows the report as text and
+plots the evaluations (optimize) or the spread of the samples (tolerance).  Cancel stops after
+the trace in progress.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtWidgets import (QComboBox, QFormLayout, QHBoxLayout, QPlainTextEdit,
+                               QProgressBar, QPushButton, QSpinBox, QVBoxLayout, QWidget)
+
+from .. import style
+from .background import BackgroundRun
+from .sweep import _spin
+
+
+def figure_names(scene) -> list[str]:
+    out = []
+    for d in scene.detectors:
+        out += [f"efficiency: {d.name}", f"mean_angle_deg: {d.name}", f"centroid_mm: {d.name}"]
+    return out
+
+
+class _DesignPanel(QWidget):
+    """A form, Run / Cancel, a progress bar, the report and a plot; subclasses fill the form
+    and say what to run."""
+
+    def __init__(self, scene, options: dict, parent=None):
+        super().__init__(parent)
+        self.scene, self.options = scene, options
+        self.result, self.message = None, ""
+        self.form = QFormLayout()
+        self.figure = QComboBox()
+        self.figure.setEditable(True)
+        self.figure.addItems(figure_names(scene))
+        self.rays = QSpinBox()
+        self.rays.setRange(1, 10_000_000)
+        self.rays.setValue(scene.settings.rays)
+        self.rays.setToolTip("Source rays per trace")
+        self.bar = QProgressBar()
+        self.report = QPlainTextEdit()
+        self.report.setReadOnly(True)
+        self.report.setMinimumHeight(130)
+        self.plot = pg.PlotWidget(background=style.BACKGROUND)
+        self.plot.setMinimumSize(420, 200)
+        for axis in ("left", "bottom"):
+            self.plot.getAxis(axis).enableAutoSIPrefix(False)
+        self.run_btn = QPushButton("Run")
+        self.cancel_btn = QPushButton("Cancel")
+        self.cancel_btn.setEnabled(False)
+        self.run_btn.clicked.connect(self.run)
+        self.cancel_btn.clicked.connect(self.cancel)
+        buttons = QHBoxLayout()
+        buttons.addWidget(self.run_btn)
+        buttons.addWidget(self.cancel_btn)
+        buttons.addStretch(1)
+        lay = QVBoxLayout(self)
+        lay.addLayout(self.form)
+        lay.addWidget(self.bar)
+        lay.addWidget(self.report)
+        lay.addWidget(self.plot, 1)
+        lay.addLayout(buttons)
+        self._runner = self._thread = None
+
+    def job(self):        # -> callable(progress) returning a result
+        raise NotImplementedError
+
+    def show_result(self, result):
+        raise NotImplementedError
+
+    def running(self) -> bool:
+        return self._thread is not None
+
+    def run(self):
+        if self._thread is not None:
+            return
+        job = self.job()
+        self._runner = BackgroundRun()
+        self._runner.progress.connect(lambda done, total: (self.bar.setRange(0, total), self.bar.setValue(done)))
+        self._runner.done.connect(self._done)
+        self.report.setPlainText("running...")
+        self.run_btn.setEnabled(False)
+        self.cancel_btn.setEnabled(True)
+        self._thread = self._runner.start(job, "design")
+
+    def cancel(self):
+        if self._runner is not None:
+            self._runner.cancel.set()
+
+    def _done(self, result, message):
+        self._thread = None
+        if result is not None:
+            self.bar.setValue(self.bar.maximum())     # the refinement may end before its budget
+        self.run_btn.setEnabled(True)
+        self.cancel_btn.setEnabled(False)
+        self.result, self.message = result, message
+        if result is None:
+            self.report.setPlainText(f"Stopped: {message}")
+            return
+        self.report.setPlainText(result.text())
+        self.show_result(result)
+
+    def trace_options(self) -> dict:
+        return dict(self.options, rays=self.rays.value())
+
+
+class OptimizePanel(_DesignPanel):
+    def __init__(self, scene, options: dict, names: list[str], current_value, parent=None):
+        super().__init__(scene, options, parent)
+        self.current_value = current_value
+        self.name = QComboBox()
+        self.name.setEditable(True)
+        self.name.addItems(names)
+        self.low, self.high = _spin(), _spin()
+        rng = QHBoxLayout()
+        rng.addWidget(self.low)
+        rng.addWidget(self.high)
+        self.goal = QComboBox()
+        self.goal.addItems(["maximize", "minimize"])
+        self.form.addRow("Number to tune", self.name)
+        self.form.addRow("Bounds", rng)
+        self.form.addRow("Figure", self.figure)
+        self.form.addRow("Goal", self.goal)
+        self.form.addRow("Rays per trace", self.rays)
+        self.name.currentTextChanged.connect(self._default_bounds)
+        self._default_bounds(self.name.currentText())
+
+    def _default_bounds(self, name):
+        v = self.current_value(self.scene, name)
+        if v is not None:
+            span = abs(v) * 0.2 if v else 1.0
+            self.low.setValue(v - span)
+            self.high.setValue(v + span)
+
+    def job(self):
+        from raytrace.optimize import Bound, optimize
+        bound = Bound(self.name.currentText().strip(), self.low.value(), self.high.value())
+        figure, maximize, options = self.figure.currentText(), self.goal.currentIndex() == 0, self.trace_options()
+        scene = self.scene
+        return lambda progress: optimize(scene, [bound], figure, maximize=maximize, options=options,
+                                         workers=1, progress=progress)
+
+    def show_result(self, result):
+        self.plot.clear()
+        self.plot.setLabel("bottom", result.names[0])
+        self.plot.setLabel("left", result.figure.label)
+        pts = [(e.values[0], e.value) for e in result.evaluations if np.isfinite(e.value)]
+        if pts:
+            x, y = np.array(pts).T
+            self.plot.plot(x, y, pen=None, symbol="o", symbolSize=6, symbolBrush=(60, 110, 200))
+            self.plot.plot([result.optimum[0]], [result.value], pen=None, symbol="star", symbolSize=14,
+                           symbolBrush=(230, 150, 0))
+
+
+class TolerancePanel(_DesignPanel):
+    def __init__(self, scene, options: dict, names: list[str], parent=None):
+        super().__init__(scene, options, parent)
+        self.tols = QPlainTextEdit()
+        self.tols.setPlaceholderText("one per line: NAME=T for +-T, or NAME=-A,+B")
+        self.tols.setPlainText(f"{names[0]}=0.1" if names else "")
+        self.tols.setMaximumHeight(70)
+        self.samples = QSpinBox()
+        self.samples.setRange(2, 100_000)
+        self.samples.setValue(100)
+        self.distribution = QComboBox()
+        self.distribution.addItems(["uniform", "normal"])
+        self.distribution.setToolTip("normal: the tolerance band is +-3 standard deviations")
+        self.seed = QSpinBox()
+        self.seed.setRange(0, 2_000_000_000)
+        self.seed.setValue(1)
+        self.form.addRow("Tolerances", self.tols)
+        self.form.addRow("Figure", self.figure)
+        self.form.addRow("Samples", self.samples)
+        self.form.addRow("Distribution", self.distribution)
+        self.form.addRow("Sample seed", self.seed)
+        self.form.addRow("Rays per trace", self.rays)
+
+    def job(self):
+        from raytrace.tolerance import parse_tolerance, tolerance
+        lines = [ln.strip() for ln in self.tols.toPlainText().splitlines() if ln.strip()]
+        figure, samples = self.figure.currentText(), self.samples.value()
+        distribution, seed, options, scene = self.distribution.currentText(), self.seed.value(), \
+            self.trace_options(), self.scene
+
+        def job(progress):
+            tols = [parse_tolerance(ln, "tolerance") for ln in lines]
+            return tolerance(scene, tols, [figure], samples=samples, distribution=distribution,
+                             sample_seed=seed, options=options, workers=1, progress=progress)
+        return job
+
+    def show_result(self, result):
+        self.plot.clear()
+        spread = result.spreads[0]
+        values = spread.ok
+        if len(values):
+            hist, edges = np.histogram(values, bins=min(30, max(5, len(values) // 5)))
+            self.plot.plot(edges, hist, stepMode="center", fillLevel=0, brush=(60, 110, 200, 120))
+            self.plot.addLine(x=spread.nominal, pen=pg.mkPen((230, 150, 0), width=2))
+        self.plot.setLabel("bottom", spread.figure.label)
+        self.plot.setLabel("left", "samples")

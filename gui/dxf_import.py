@@ -1,0 +1,60 @@
+"""File > Import DXF: add the closed contours of a DXF drawing to the scene as parts.
+
+Before importing, a small dialog asks what each layer is made of (a layer named after a known
+material is preset to it) and, when the file does not state its units, which units it was drawn
+in.  All the parts arrive in one undoable step; a drawing with problems adds nothing and the
+problems are listed, each naming its entity."""
+from __future__ import annotations
+
+from PySide6.QtWidgets import QComboBox, QDialog, QDialogButtonBox, QFormLayout, QLabel, QVBoxLayout
+
+from raytrace.catalog import CATALOG
+from raytrace.dxf_io import TO_MM
+
+
+class DxfSetupDialog(QDialog):
+    def __init__(self, layers: list[str], materials: list[str], ask_units: bool, parent=None):
+        super().__init__(parent)
+        self.setWindowTitle("Import DXF")
+        lay = QVBoxLayout(self)
+        lay.addWidget(QLabel("Material of each layer's parts:"))
+        form = QFormLayout()
+        self.combos: dict[str, QComboBox] = {}
+        for layer in layers:
+            box = QComboBox()
+            box.addItems(materials)
+            if layer in materials:
+                box.setCurrentText(layer)
+            self.combos[layer] = box
+            form.addRow(layer, box)
+        self.units = None
+        if ask_units:
+            self.units = QComboBox()
+            self.units.addItems(list(TO_MM))
+            form.addRow("Drawing units (the file does not say)", self.units)
+        lay.addLayout(form)
+        buttons = QDialogButtonBox(QDialogButtonBox.Ok | QDialogButtonBox.Cancel)
+        buttons.accepted.connect(self.accept)
+        buttons.rejected.connect(self.reject)
+        lay.addWidget(buttons)
+
+    def choice(self) -> tuple[dict[str, str], str | None]:
+        return ({layer: box.currentText() for layer, box in self.combos.items()},
+                self.units.currentText() if self.units is not None else None)
+
+
+def ask_setup(parent, layers: list[str], scene, ask_units: bool):
+    """({layer: material}, units or None), or None when cancelled."""
+    dlg = DxfSetupDialog(layers, list(CATALOG) + [m for m in scene.materials if m not in CATALOG], ask_units, parent)
+    return dlg.choice() if dlg.exec() else None
+
+
+def import_parts(scene, path: str, layer_materials: dict[str, str], units: str | None):
+    """The scene with the drawing's parts added (renamed where a name is taken) and their count;
+    SceneError when the drawing has problems."""
+    from raytrace.dxf_io import import_dxf
+    from . import edits
+    drawn = import_dxf(path, units=units, layer_materials=layer_materials, setup=scene)
+    for part in drawn.parts:
+        scene = edits.add_part(scene, part)
+    return scene, len(drawn.parts)

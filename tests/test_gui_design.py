@@ -1,0 +1,156 @@
+"""The sweep dialog's Optimize and Tolerance tabs and File > Import DXF, driven offscreen as a user
+drives them (tab clicks, typed fields, the File menu's action).  Numbers are compared exactly with
+the engine's API: the GUI adds no physics of its own (common practice)."""
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+
+import pytest  # noqa: E402
+
+pytest.importorskip("pytestqt")
+
+from PySide6.QtCore import Qt  # noqa: E402
+
+from gui.main_window import MainWindow  # noqa: E402
+from raytrace.optimize import Bound, optimize  # noqa: E402
+from raytrace.scene_io import load_scene, scene_to_dict  # noqa: E402
+from raytrace.tolerance import Tolerance, tolerance  # noqa: E402
+
+SAMPLES = Path(__file__).resolve().parents[1] / "samples"
+WINDOW = SAMPLES / "oblique-window.json"
+PIPE_DXF = SAMPLES / "light-pipe.dxf"
+TIMEOUT_MS = 60_000
+
+
+@pytest.fixture
+def win(qtbot, tmp_path, monkeypatch):
+    monkeypatch.setenv("RAYTRACE_GUI_HOME", str(tmp_path / "home"))
+    w = MainWindow(autosave_s=3600.0)
+    qtbot.addWidget(w)
+    w.errors = []
+    w.show_error = lambda title, text: w.errors.append(text)
+    w.ask_unsaved = lambda: "discard"
+    yield w
+    w.worker.shutdown()
+
+
+def sweep_dialog(qtbot, scene):
+    from gui.dialogs.sweep import SweepDialog
+    dlg = SweepDialog(scene, {})
+    qtbot.addWidget(dlg)
+    dlg.show()
+    return dlg
+
+
+def click_tab(qtbot, dlg, title):
+    bar = dlg.tabs.tabBar()
+    index = next(i for i in range(dlg.tabs.count()) if dlg.tabs.tabText(i) == title)
+    qtbot.mouseClick(bar, Qt.LeftButton, pos=bar.tabRect(index).center())
+    assert dlg.tabs.currentIndex() == index
+
+
+def test_optimize_tab_gives_the_api_result(qtbot):
+    scene = load_scene(WINDOW)
+    dlg = sweep_dialog(qtbot, scene)
+    click_tab(qtbot, dlg, "Optimize")
+    p = dlg.optimize_panel
+    p.name.setCurrentText("probe beam.direction_deg")
+    p.low.lineEdit().selectAll()
+    qtbot.keyClicks(p.low.lineEdit(), "30")
+    p.high.lineEdit().selectAll()
+    qtbot.keyClicks(p.high.lineEdit(), "60")
+    p.rays.setValue(8)
+    qtbot.mouseClick(p.run_btn, Qt.LeftButton)
+    qtbot.waitUntil(lambda: not p.running(), timeout=TIMEOUT_MS)
+    assert p.message == ""
+    expected = optimize(scene, [Bound("probe beam.direction_deg", 30.0, 60.0)], "efficiency: inside chamber",
+                        options={"rays": 8}, workers=1)
+    assert p.result.optimum == expected.optimum and p.result.value == expected.value
+    assert "maximize efficiency: inside chamber" in p.report.toPlainText()
+    assert len(p.plot.listDataItems()) == 2          # the evaluations and the optimum
+
+
+def test_tolerance_tab_gives_the_api_result_and_cancels(qtbot):
+    scene = load_scene(WINDOW)
+    dlg = sweep_dialog(qtbot, scene)
+    click_tab(qtbot, dlg, "Tolerance")
+    t = dlg.tolerance_panel
+    t.tols.selectAll()
+    qtbot.keyClicks(t.tols, "probe beam.direction_deg=2")
+    t.samples.setValue(12)
+    t.rays.setValue(8)
+    qtbot.mouseClick(t.run_btn, Qt.LeftButton)
+    qtbot.waitUntil(lambda: not t.running(), timeout=TIMEOUT_MS)
+    assert t.message == ""
+    expected = tolerance(scene, [Tolerance("probe beam.direction_deg", 2.0, 2.0)], ["efficiency: inside chamber"],
+                         samples=12, options={"rays": 8}, workers=1)
+    assert list(t.result.spreads[0].values) == list(expected.spreads[0].values)
+    assert "worst case" in t.report.toPlainText()
+    t.samples.setValue(5000)
+    qtbot.mouseClick(t.run_btn, Qt.LeftButton)
+    qtbot.mouseClick(t.cancel_btn, Qt.LeftButton)
+    qtbot.waitUntil(lambda: not t.running(), timeout=TIMEOUT_MS)
+    assert t.message == "cancelled" and "Stopped: cancelled" in t.report.toPlainText()
+
+
+def test_tolerance_tab_reports_a_bad_name_in_the_dialog(qtbot):
+    dlg = sweep_dialog(qtbot, load_scene(WINDOW))
+    t = dlg.tolerance_panel
+    t.tols.setPlainText("viewport.nope=0.1")
+    t.run()
+    qtbot.waitUntil(lambda: not t.running(), timeout=TIMEOUT_MS)
+    assert t.result is None and "viewport.nope" in t.report.toPlainText()
+
+
+def file_action(win, text):
+    menu = next(a.menu() for a in win.menuBar().actions() if a.text() == "&File")
+    return next(a for a in menu.actions() if a.text() == text)
+
+
+def test_import_dxf_from_the_file_menu_adds_parts_in_one_undo_step(qtbot, win):
+    win.new_scene()
+    asked = []
+    win.ask_dxf_path = lambda: str(PIPE_DXF)
+
+    def setup(layers, ask_units):
+        asked.append((layers, ask_units))
+        return {"guide": "PMMA", "panel window": "polycarbonate"}, None
+    win.ask_dxf_setup = setup
+    file_action(win, "Import &DXF...").trigger()
+    assert asked == [(["guide", "panel window"], False)]
+    scene = win.doc.scene
+    assert [(p.name, p.material) for p in scene.parts] == [("guide", "PMMA"), ("panel window", "polycarbonate")]
+    assert win.doc.undo_stack.count() == 1 and win.doc.modified
+    win.undo_action.trigger()
+    assert win.doc.scene.parts == []
+    assert win.errors == []
+
+
+def test_import_dxf_with_problems_changes_nothing(qtbot, win, tmp_path):
+    import ezdxf
+    doc = ezdxf.new()
+    doc.header["$INSUNITS"] = 0
+    doc.modelspace().add_line((0, 0), (5, 0), dxfattribs={"layer": "PMMA"})
+    bad = tmp_path / "open.dxf"
+    doc.saveas(bad)
+    win.open_file(str(WINDOW))
+    before = scene_to_dict(win.doc.scene)
+    win.ask_dxf_path = lambda: str(bad)
+    win.ask_dxf_setup = lambda layers, ask_units: ({"PMMA": "PMMA"}, "mm" if ask_units else None)
+    assert not win.import_dxf()
+    assert scene_to_dict(win.doc.scene) == before and win.doc.undo_stack.count() == 0
+    assert len(win.errors) == 1 and "open contour" in win.errors[0] and "LINE (handle" in win.errors[0]
+
+
+def test_import_dxf_dialog_presets_known_materials_and_asks_units(qtbot):
+    from gui.dxf_import import DxfSetupDialog
+    dlg = DxfSetupDialog(["PMMA", "glass layer"], ["air", "PMMA", "water"], ask_units=True)
+    qtbot.addWidget(dlg)
+    mapping, units = dlg.choice()
+    assert mapping == {"PMMA": "PMMA", "glass layer": "air"} and units == "mm"
+    dlg.combos["glass layer"].setCurrentText("water")
+    dlg.units.setCurrentText("in")
+    assert dlg.choice() == ({"PMMA": "PMMA", "glass layer": "water"}, "in")
