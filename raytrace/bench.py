@@ -80,7 +80,7 @@ def workloads(quick: bool) -> list[Workload]:
     return [
         Workload("light-pipe-1e5", _sample("light-pipe-90.json"), 2_000 if q else 100_000, plain_rays=300 if q else 10_000,
                  bar_rays=300 if q else 20_000),
-        Workload("light-pipe-1e5-paths", _sample("light-pipe-90.json"), 2_000 if q else 100_000, paths=True,
+        Workload("light-pipe-1e5-routes", _sample("light-pipe-90.json"), 2_000 if q else 100_000, paths=True,
                  note="with path tallies"),
         Workload("light-pipe-1e6", _sample("light-pipe-90.json"), 4_000 if q else 1_000_000, plain_rays=0),
         Workload("strip-100", lambda: strip_scene(100), 1_000 if q else 100_000, plain_rays=200 if q else 10_000),
