@@ -24,7 +24,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import Problems, SceneError
+from .errors import Problems
 
 KINDS = ("efficiency", "centroid_mm", "mean_angle_deg")
 UNITS = {"efficiency": "", "centroid_mm": "mm", "mean_angle_deg": "deg"}
@@ -52,7 +52,7 @@ class Figure:
 
 
 def parse_figure(text: str, detectors: list[str], where: str = "--figure", file: str = "") -> Figure:
-    """'KIND: DETECTOR' or 'DETECTOR' -> Figure; SceneError naming the choices otherwise."""
+    """'KIND: DETECTOR' or 'DETECTOR' -> Figure; SweepError (a SceneError) naming the choices otherwise."""
     text = text.strip()
     kind, sep, det = text.partition(":")
     if sep and kind.strip() in KINDS:
@@ -64,7 +64,8 @@ def parse_figure(text: str, detectors: list[str], where: str = "--figure", file:
         problems.add(where, text, "a detector of the scene (" + ", ".join(repr(d) for d in detectors)
                      + "), optionally after one of " + ", ".join(f"'{k}:'" for k in KINDS)
                      if detectors else "a scene with a detector to measure")
-        raise SceneError(problems.items)
+        from .sweep import SweepError      # a usage error (exit 2), like a bad --vary
+        raise SweepError(problems.items)
     return Figure(kind, det)
 
 

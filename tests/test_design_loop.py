@@ -108,9 +108,12 @@ def test_optimize_bad_input_is_a_usage_error(args, words, capsys):
 
 
 def test_unknown_figure_names_the_detectors(capsys):
+    """A misspelt --figure is a usage error (exit 2), as it is for sweep --figure."""
     code = cli.main(["optimize", str(WINDOW), "--vary", "probe beam.direction_deg=40:70", "--figure", "chamber"])
     err = capsys.readouterr().err
-    assert code == cli.EXIT_SCENE and "--figure" in err and "'inside chamber'" in err
+    assert code == cli.EXIT_USAGE and "--figure" in err and "'inside chamber'" in err
+    code = cli.main(["tolerance", str(WINDOW), "--tol", "probe beam.direction_deg=1", "--figure", "chamber"])
+    assert code == cli.EXIT_USAGE and "'inside chamber'" in capsys.readouterr().err
 
 
 def finite_difference_slope(data: dict, name: str, x0: float, h: float) -> float:
