@@ -86,9 +86,107 @@ def brute_one(x, y, dx, dy, start, lid, lf, aid, af, amaj, eps):
 
 
 @jit
-def brute_all(x, y, dx, dy, start, lid, lf, aid, af, amaj, eps, t_out, e_out):
+def brute_all_scalar(x, y, dx, dy, start, lid, lf, aid, af, amaj, eps, t_out, e_out):
+    """One ray at a time through brute_one: the formulation brute_all replaced, kept as the
+    reference its tests and bench/hit_search.py compare against."""
     for i in range(len(x)):
         t_out[i], e_out[i] = brute_one(x[i], y[i], dx[i], dy[i], start[i], lid, lf, aid, af, amaj, eps)
+
+
+BLOCK = 128     # rays per block: the block's rays and best hits stay in L1 across all edges
+
+
+@jit(inline="always")
+def lines_block(x, y, dx, dy, start, lid, lf, eps, tb, eb):
+    """Every line against the rays of one block (views of BLOCK rays or fewer), improving tb/eb.
+
+    Edge outer, rays inner, without branches: the inner loop is selects only, so the compiler
+    vectorizes it across rays.  Each pair still gets line_t's operations in line_t's order
+    (the division is done for every pair, the sign test decides by a select whether it counts:
+    the same t, the same pairs counted); edges in ascending order with a strict < keep the
+    lowest index on ties, as brute_one does."""
+    m = len(x)
+    for j in range(len(lid)):
+        ax = lf[0, j]
+        ay = lf[1, j]
+        ex = lf[2, j]
+        ey = lf[3, j]
+        lo = -lf[4, j]
+        hi = 1.0 + lf[4, j]
+        ej = lid[j]
+        for k in range(m):
+            denom = dx[k] * ey - dy[k] * ex
+            wx = ax - x[k]
+            wy = ay - y[k]
+            tn = wx * ey - wy * ex
+            inv = 1.0 / denom
+            t = tn * inv
+            u = (wx * dy[k] - wy * dx[k]) * inv
+            ok = ((tn > 0.0) & (denom > 0.0)) | ((tn < 0.0) & (denom < 0.0))
+            ok = ok & (u >= lo) & (u <= hi) & (t > eps) & (start[k] != ej) & (t < tb[k])
+            tb[k] = t if ok else tb[k]
+            eb[k] = ej if ok else eb[k]
+
+
+@jit(inline="always")
+def arcs_block(x, y, dx, dy, aid, af, amaj, eps, tb, eb):
+    """Every arc against the rays of one block, as lines_block: arc_t's operations per pair,
+    both roots as selects (a missed circle gives nan roots, which no comparison passes)."""
+    m = len(x)
+    for j in range(len(aid)):
+        cx = af[0, j]
+        cy = af[1, j]
+        r2 = af[2, j]
+        sx = af[3, j]
+        sy = af[4, j]
+        qx = af[5, j]
+        qy = af[6, j]
+        tol = af[7, j]
+        ntol = -tol
+        major = amaj[j]
+        ej = aid[j]
+        for k in range(m):
+            fx = x[k] - cx
+            fy = y[k] - cy
+            b = fx * dx[k] + fy * dy[k]
+            c = fx * fx + fy * fy - r2
+            disc = b * b - c
+            has = disc >= 0.0
+            sq = math.sqrt(disc)
+            nb = -b
+            t1 = nb - sq
+            hx = fx + t1 * dx[k]
+            hy = fy + t1 * dy[k]
+            c1 = sx * hy - sy * hx >= ntol
+            c2 = hx * qy - hy * qx >= ntol
+            on1 = ((c1 | c2) & major) | ((c1 & c2) & (not major))
+            t2 = nb + sq
+            hx = fx + t2 * dx[k]
+            hy = fy + t2 * dy[k]
+            c1 = sx * hy - sy * hx >= ntol
+            c2 = hx * qy - hy * qx >= ntol
+            on2 = ((c1 | c2) & major) | ((c1 & c2) & (not major))
+            ok1 = has & on1 & (t1 > eps)
+            ok2 = has & on2 & (t2 > eps) & ((t2 < t1) | (not ok1))
+            t = t2 if ok2 else t1
+            ok = (ok1 | ok2) & (t < tb[k])
+            tb[k] = t if ok else tb[k]
+            eb[k] = ej if ok else eb[k]
+
+
+@jit
+def brute_all(x, y, dx, dy, start, lid, lf, aid, af, amaj, eps, t_out, e_out):
+    """Nearest hit of every ray on every edge (brute_one's answer, the same bits), in blocks of
+    BLOCK rays: all lines, then all arcs, each as a loop over the block's rays per edge."""
+    n = len(x)
+    for i0 in range(0, n, BLOCK):
+        i1 = min(n, i0 + BLOCK)
+        tb = t_out[i0:i1]
+        eb = e_out[i0:i1]
+        tb[:] = INF
+        eb[:] = -1
+        lines_block(x[i0:i1], y[i0:i1], dx[i0:i1], dy[i0:i1], start[i0:i1], lid, lf, eps, tb, eb)
+        arcs_block(x[i0:i1], y[i0:i1], dx[i0:i1], dy[i0:i1], aid, af, amaj, eps, tb, eb)
 
 
 @jit(inline="always")
