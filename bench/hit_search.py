@@ -4,7 +4,10 @@ The queries are the ones the tracer really makes: every generation's rays (start
 edges, start edges, directions after refraction and reflection), recorded while tracing a few
 thousand source rays.  Both formulations run on the same queries in this one process, best of
 3 CPU times each (other load on a shared machine only ever adds time), and must agree bit for
-bit.  Run: .venv/bin/python bench/hit_search.py
+bit.  Run: .venv/bin/python bench/hit_search.py [--asm]
+
+--asm compiles into a fresh temporary cache (numba cannot show the machine code of cached
+functions) and counts brute_all's vector instructions, to check that it still vectorizes.
 """
 from __future__ import annotations
 
@@ -17,6 +20,9 @@ import numpy as np
 
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
+if "--asm" in sys.argv:
+    import tempfile
+    os.environ["NUMBA_CACHE_DIR"] = tempfile.mkdtemp(prefix="hit-search-asm-")
 
 from raytrace import kernel                                    # noqa: E402
 from raytrace.bench import strip_scene                         # noqa: E402
@@ -75,6 +81,16 @@ def measure(name, scene, rays):
     return same
 
 
+def vector_instructions() -> str:
+    """Counts of packed-double division / square root and of 256- and 512-bit registers in
+    brute_all's machine code (compiled for the signature the tracer calls it with)."""
+    import re
+    asm = "".join(brute_all.inspect_asm().values())
+    counts = {w: len(re.findall(r"\b" + w + r"\b", asm)) for w in ("vdivpd", "vsqrtpd")}
+    counts.update({r: len(re.findall(r"%" + r + r"\d", asm)) for r in ("ymm", "zmm")})
+    return ", ".join(f"{k} {v}" for k, v in counts.items())
+
+
 def main() -> int:
     os.environ.setdefault("RAYTRACE_KERNEL", "numba")
     print(f"load average {os.getloadavg()[0]:.2f} {os.getloadavg()[1]:.2f} {os.getloadavg()[2]:.2f}, "
@@ -84,6 +100,8 @@ def main() -> int:
     ok &= measure("light pipe", load_scene(ROOT / "samples" / "light-pipe-90.json"), 5_000)
     ok &= measure("oblique window", load_scene(ROOT / "samples" / "oblique-window.json"), 50_000)
     ok &= measure("film, 100 edges", strip_scene(100), 5_000)
+    if "--asm" in sys.argv:
+        print("brute_all machine code:", vector_instructions())
     return 0 if ok else 1
 
 

@@ -5,6 +5,10 @@ the same operations in the same order (numba does not fuse or reorder floating-p
 without fast-math), so every (ray, edge) pair gives the same bits as the array code.  The same
 tie order as the plain search: the line of lowest index, then the arc of lowest index.  The
 grid walk is `accel.EdgeGrid._walk` for one ray at a time, on the grid that class builds.
+
+The every-edge search (`brute_all`) runs in blocks of rays, edge outer and rays inner, with
+selects instead of branches, so the compiler vectorizes it across rays; `brute_one` and
+`brute_all_scalar` are the one-ray formulation it must match bit for bit.
 """
 from __future__ import annotations
 
