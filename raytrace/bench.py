@@ -21,7 +21,8 @@ times each, and the ratio of their costs per event is reported ("vs plain compil
 first-call (compile or cache-load) time of the compiled kernel is reported too.
 
 Events are segment ends (every traced segment ends in one).  Peak memory is the largest
-proportional set size of this process plus its worker processes, sampled every 50 ms.
+proportional set size of this process plus its worker processes, read whenever their resident
+size reaches a new high (checked every 50 ms; see PeakMemory).
 Full-branching workloads run without a segment budget (`MAX_SEGMENTS`).
 """
 from __future__ import annotations
@@ -96,8 +97,8 @@ def workloads(quick: bool) -> list[Workload]:
 class PeakMemory:
     """Largest memory in use by this process and its worker processes while running.
 
-    Linux: the proportional set size (Pss in /proc/PID/smaps_rollup) of each process, summed,
-    sampled every 50 ms; pages that forked workers share with this process are split among
+    Linux: the proportional set size (Pss in /proc/PID/smaps_rollup) of each process, summed;
+    pages that forked workers share with this process are split among
     them rather than counted once per process, so the sum is the machine memory in use.
 
     Reading smaps_rollup walks every mapping of the process in the kernel: for a few GB it
