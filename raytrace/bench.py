@@ -105,8 +105,9 @@ class PeakMemory:
     takes tens of ms, and at a fixed 50 ms the sampler took 5 s of system CPU of a 1e6-ray
     run (a quarter of the run's CPU, on a 2-core machine).  So every 50 ms only the resident
     sizes are read (statm, constant cost), and the proportional sizes are read when the summed
-    resident size reaches a new high (the PSS peak lies at such a moment: PSS only grows with
-    the pages resident), at most as often as keeps the sampler under SAMPLER_SHARE of one core."""
+    resident size reaches a new high, at most as often as keeps the sampler under SAMPLER_SHARE
+    of one core.  A process's PSS never exceeds its resident size, so what is missed is a PSS
+    rise while the resident sum stays below its high (shared pages changing hands)."""
 
     SAMPLER_SHARE = 0.05
     PAGE = os.sysconf("SC_PAGE_SIZE") if hasattr(os, "sysconf") else 4096
