@@ -425,9 +425,14 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
             for j in range(na):
                 CI[row, pos[j]] = tmpi[j]
     if na < m:
-        for j in range(nbk):          # destination before source: a forward copy is safe
-            CF[:, na + j] = CF[:, m + j]
-            CI[:, na + j] = CI[:, m + j]
+        # element by element, row by row: a column slice assignment (CF[:, a] = CF[:, b]) makes
+        # numba copy the source to a fresh temporary first, a malloc and free per child
+        for row in range(7):          # destination before source: a forward copy is safe
+            for j in range(nbk):
+                CF[row, na + j] = CF[row, m + j]
+        for row in range(9):
+            for j in range(nbk):
+                CI[row, na + j] = CI[row, m + j]
     nk = na + nbk
     for j in range(nh):
         i = HI[1, j]
