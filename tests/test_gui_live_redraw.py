@@ -130,8 +130,10 @@ def test_an_edit_shows_its_coarse_fan_first_then_its_full_trace(qtbot, win, monk
     np.testing.assert_array_equal(coarse.result.ledger.bins, ref.ledger.bins)
 
 
-def test_the_canvas_waits_for_the_new_rays_before_painting(qtbot, win):
+def test_the_canvas_waits_for_the_new_rays_before_painting(qtbot, win, monkeypatch):
     _open(qtbot, win)
+    # a hold long enough for any trace on a loaded machine: here the result must end it
+    monkeypatch.setattr(main_window_mod, "PAINT_HOLD_S", 30.0)
     vp = win.canvas.plot.viewport()
     paints = _Paints(vp)
     painted_at_result = []
