@@ -5,8 +5,9 @@ window by a small step through the document (as a drag step does) and waits unti
 idle; the clock stops when the window's own paint of the canvas that follows a shown result has
 finished (the application paints as it does for a user: nothing is grabbed or painted twice):
 the first redraw (a coarse fan when the worker shows one first) and the final one (the full
-trace).  Prints the medians and spread, and how the time splits into tracing, preparing the
-drawing and painting.
+trace).  Prints the medians and spread, how the time splits into tracing, preparing the
+drawing and painting, and the CPU time an edit costs the UI thread and the whole process (the
+machine is shared: CPU time is what other load sways least).
 
 Then a drag: the same moves arrive every 16 ms (a 60 Hz mouse) for --drag-s seconds, as the
 canvas sends them, and the redraws shown meanwhile are counted (redraws per second, how many
@@ -129,14 +130,17 @@ def main() -> int:
     wait_for(1)                                     # warm-up: first trace after opening
     part = next(i for i, p in enumerate(win.doc.scene.parts) if p.name == "panel window")
     totals, firsts, traces, draws = [], [], [], []
+    ui_cpu, all_cpu = [], []      # CPU seconds per edit: the UI thread's, the whole process's
     for k in range(args.edits):
         before = len(shown)
         scene = win.doc.scene
         step = 0.05 if k % 2 == 0 else -0.05
         new = edits.replace_part(scene, part, edits.move_part(scene.parts[part], step, 0.0))
-        t0 = time.perf_counter()
+        t0, u0, p0 = time.perf_counter(), time.thread_time(), time.process_time()
         win.doc.apply(new, "bench move")
         wait_for(before + 1)
+        ui_cpu.append(time.thread_time() - u0)
+        all_cpu.append(time.process_time() - p0)
         outcome, t1 = shown[-1]
         firsts.append(shown[before][1] - t0)
         totals.append(t1 - t0)
@@ -167,6 +171,8 @@ def main() -> int:
     print(f"  preparing drawing   {ms(draws[0])} (ray grouping, on the "
           f"{'trace' if prepare else 'UI'} thread) + {ms(draws[1])} (line items and marks, UI thread)")
     print(f"  painting the canvas median {ms(statistics.median(paint[-args.edits:]))} (the window's paint after a result)")
+    print(f"CPU time per edit (less swayed by other load than the wall times above): UI thread "
+          f"{ms(statistics.median(ui_cpu))}, whole process {ms(statistics.median(all_cpu))} (median)")
     print(f"drag, a move every 16 ms for {args.drag_s:g} s: {drag['redraws']} redraws = "
           f"{drag['redraws'] / args.drag_s:.1f} per second ({drag['coarse']} coarse), "
           f"longest gap between redraws {ms(drag['longest_gap'])}")
