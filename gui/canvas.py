@@ -11,7 +11,7 @@ from dataclasses import replace
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QPointF, Qt, Signal
+from PySide6.QtCore import QPointF, Qt, QTimer, Signal
 from PySide6.QtGui import QBrush, QPainterPath, QPen
 from PySide6.QtWidgets import (QGraphicsPathItem, QHBoxLayout, QLabel, QSizePolicy, QToolTip,
                                QVBoxLayout, QWidget)
@@ -21,7 +21,8 @@ from raytrace.scene import EMITTER, POINT, Scene
 from . import edits, style
 from .flow_layout import FlowLayout
 from .overlay import Overlay, pass_clicks
-from .raydraw import ESCAPE_REACH, KINDS, LEVEL_ALPHA, LEVELS, RayDrawing, arrow_strokes, ray_drawing
+from .raydraw import (KINDS, LEVEL_ALPHA, LEVELS, RayDrawing, arrow_strokes, escape_reach_for, parts_box,
+                      scene_drawing)
 from .snap import snap_index
 from .spectral import faded_rgb, spectral_rgb
 from .tools import TOOLS, SELECT
@@ -264,6 +265,11 @@ class Canvas(QWidget):
         self._preview_item.setZValue(21)
         for it in (self._hits, self._escapes, self._handles, self._preview_item):
             self.plot.addItem(it)
+
+        # after an edit the drawing waits a moment for the rays of the new state (see hold_paint)
+        self._hold = QTimer(self)
+        self._hold.setSingleShot(True)
+        self._hold.timeout.connect(self.release_paint)
 
         self.tools = {name: cls(self) for name, cls in TOOLS.items()}
         self.tool = self.tools[SELECT]
@@ -518,11 +524,7 @@ class Canvas(QWidget):
 
     def parts_box(self):
         """(x0, y0, x1, y1) around the parts, or None without parts."""
-        boxes = [p.outer.bounds() for p in self.scene.parts]
-        if not boxes:
-            return None
-        return (min(b[0] for b in boxes), min(b[1] for b in boxes),
-                max(b[2] for b in boxes), max(b[3] for b in boxes))
+        return parts_box(self.scene)
 
     def fit(self) -> None:
         """Frame the parts and sources with a margin; detectors only when they are near the parts
@@ -665,15 +667,37 @@ class Canvas(QWidget):
         self.plot.addItem(item)
         self._glyph_items.append(item)
 
-    def set_result(self, result) -> None:
-        """Draw a trace result (None clears the rays)."""
+    def hold_paint(self, seconds: float) -> None:
+        """Paint nothing until the next result is drawn, or `seconds` at most: the moved part and
+        its new rays are then painted together, and the old fan (which no longer fits the parts)
+        is not painted once more while the new trace runs.  Painting holds Python's lock, so it
+        would also slow that trace.  A hold already running is not extended: during a drag the
+        parts are painted at least every `seconds`."""
+        if self._hold.isActive():
+            return
+        self.plot.viewport().setUpdatesEnabled(False)
+        self._hold.start(max(1, int(1000 * seconds)))
+
+    def release_paint(self) -> None:
+        self._hold.stop()
+        if not self.plot.viewport().updatesEnabled():
+            self.plot.viewport().setUpdatesEnabled(True)     # repaints the whole drawing
+
+    def set_result(self, result, drawing: RayDrawing | None = None) -> None:
+        """Draw a trace result (None clears the rays).  `drawing` is the result's drawing made
+        beforehand (by the trace thread); it is used when it was made the way this canvas draws
+        now (colour choice, reach of the escaping legs), else the drawing is made here."""
         self.result = result
-        box = self.parts_box()
-        reach = ESCAPE_REACH * max(box[2] - box[0], box[3] - box[1], 1e-6) if box else None
-        self.drawing = (ray_drawing(result, colour_by_wavelength=self.colour_by_wavelength, escape_reach=reach)
-                        if result is not None else RayDrawing())
+        if result is None:
+            self.drawing = RayDrawing()
+        elif (drawing is not None and drawing.colour_by_wavelength == self.colour_by_wavelength
+              and drawing.escape_reach == escape_reach_for(self.scene)):
+            self.drawing = drawing
+        else:
+            self.drawing = scene_drawing(result, self.scene, self.colour_by_wavelength)
         self._draw_rays()
         self._draw_marks()
+        self.release_paint()
 
     def escape_ring_px(self, share: float) -> float:
         """Diameter of an escape ring: grows with the share, capped so it hides nothing."""

@@ -36,6 +36,9 @@ from .tracing import TraceCancelled, run_trace
 from .worker import TraceOutcome, TraceRequest, TraceWorker
 
 SCENE_FILTER = "Scene files (*.json);;All files (*)"
+# after an edit the drawing is painted when the rays of the new state are drawn, or after this
+# long at most (a coarse fan of a slow scene takes a few tens of ms; see Canvas.hold_paint)
+PAINT_HOLD_S = 0.06
 
 
 def distinct_keys(*keys) -> list[QKeySequence]:
@@ -112,6 +115,7 @@ class MainWindow(QMainWindow):
         self.canvas.status_message.connect(self.status_note)
         self.problems_panel.part_chosen.connect(lambda i: self.canvas.select((edits.PART, i)))
         self.worker.finished.connect(self._show_outcome)
+        self.worker.prepare = self._prepare_drawing
         # a bound slot, so the call is queued to this thread (busy is emitted by the trace thread)
         self.worker.busy.connect(self._trace_busy)
         self.worker.progress.connect(self._trace_progress)
@@ -611,7 +615,8 @@ class MainWindow(QMainWindow):
         self.properties.show_selection(scene, self.canvas.selection)
         self.controls.show_scene(scene)
         self._update_title()
-        self.request_trace()
+        if self.request_trace() is not None:
+            self.canvas.hold_paint(PAINT_HOLD_S)
 
     def _show_problems(self, problems) -> None:
         self.problems = problems
@@ -661,6 +666,12 @@ class MainWindow(QMainWindow):
         self._show_outcome(out)
         return out
 
+    def _prepare_drawing(self, result, scene):
+        """Runs on the trace thread: the drawing of a result as the canvas draws it now (the
+        canvas checks the colour choice again when it shows it)."""
+        from .raydraw import scene_drawing
+        return scene_drawing(result, scene, self.canvas.colour_by_wavelength)
+
     def _show_outcome(self, out: TraceOutcome) -> None:
         if out.request.epoch != self.doc.epoch:
             return
@@ -676,7 +687,7 @@ class MainWindow(QMainWindow):
             return
         if out.result is None:
             return
-        self.canvas.set_result(out.result)
+        self.canvas.set_result(out.result, out.drawing)
         self.canvas.legend.show_problem("")
         self.ledger.show_result(out.result)
         self.profiles.show_result(out.result)

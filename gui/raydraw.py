@@ -49,6 +49,7 @@ class RayDrawing:
     # in stacking order within each level
     by_wavelength: list[tuple[float, int, np.ndarray, np.ndarray]] = field(default_factory=list)
     colour_by_wavelength: bool = False
+    escape_reach: float | None = None     # the cut applied to escaping legs (mm), None: none
 
 
 def brightness_level(rel: np.ndarray) -> np.ndarray:
@@ -84,7 +85,7 @@ def clip_escaping(seg: dict, escaping: np.ndarray, reach: float) -> dict:
 def ray_drawing(result, min_escape_share: float = 1e-3, colour_by_wavelength: bool = False,
                 escape_reach: float | None = None) -> RayDrawing:
     """`escape_reach` (mm) cuts the drawn escaping legs to that length (None: as traced)."""
-    d = RayDrawing(colour_by_wavelength=colour_by_wavelength)
+    d = RayDrawing(colour_by_wavelength=colour_by_wavelength, escape_reach=escape_reach)
     seg = result.segments
     if seg is not None and len(seg["x0"]):
         if escape_reach is not None:
@@ -128,6 +129,28 @@ def ray_drawing(result, min_escape_share: float = 1e-3, colour_by_wavelength: bo
     d.hits_nx, d.hits_ny = hit_sides(result)
     d.escapes, d.escape_edges = escape_markers(result, min_escape_share)
     return d
+
+
+def parts_box(scene):
+    """(x0, y0, x1, y1) around the parts of a scene, or None without parts."""
+    boxes = [p.outer.bounds() for p in scene.parts]
+    if not boxes:
+        return None
+    return (min(b[0] for b in boxes), min(b[1] for b in boxes),
+            max(b[2] for b in boxes), max(b[3] for b in boxes))
+
+
+def escape_reach_for(scene) -> float | None:
+    """How far escaping legs are drawn in this scene: ESCAPE_REACH times the parts' size."""
+    box = parts_box(scene)
+    return ESCAPE_REACH * max(box[2] - box[0], box[3] - box[1], 1e-6) if box else None
+
+
+def scene_drawing(result, scene, colour_by_wavelength: bool = False) -> RayDrawing:
+    """The drawing the canvas shows for `result` traced on `scene`.  Pure numpy, so the trace
+    thread builds it beside the trace and the UI thread only hands the arrays to the items."""
+    return ray_drawing(result, colour_by_wavelength=colour_by_wavelength,
+                       escape_reach=escape_reach_for(scene))
 
 
 CUE_RAYS = 3          # source rays whose brightest legs carry a direction arrow

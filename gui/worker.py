@@ -52,6 +52,7 @@ class TraceOutcome:
     elapsed_s: float = 0.0
     cpu_s: float = 0.0           # CPU time of the trace thread
     coarse: bool = False         # a coarse fan shown before the full trace of the same request
+    drawing: object = None       # what the canvas draws of the result, made by the trace thread
 
     @property
     def stage(self) -> int:
@@ -81,6 +82,9 @@ class TraceWorker(QObject):
         self.coarse_shown = 0
         self._refining = False
         self._last_full: tuple[int, int, float] | None = None   # (epoch, source rays, seconds)
+        # prepare(result, scene) -> the result's drawing, made on the trace thread so that the
+        # UI thread only hands arrays to the items (None: the UI thread makes it)
+        self.prepare = None
         self._thread = threading.Thread(target=self._loop, name="trace worker", daemon=True)
         self._thread.start()
         self._done.connect(self._deliver)
@@ -204,4 +208,9 @@ class TraceWorker(QObject):
             traceback.print_exc()
         outcome.elapsed_s = time.perf_counter() - t0
         outcome.cpu_s = time.thread_time() - c0
+        if outcome.result is not None and self.prepare is not None:
+            try:
+                outcome.drawing = self.prepare(outcome.result, req.scene)
+            except Exception:      # the UI thread makes the drawing itself; the result stands
+                traceback.print_exc()
         return outcome

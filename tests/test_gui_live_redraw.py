@@ -1,0 +1,181 @@
+"""The live editor's redraw path: an edit, a coarse fan, then the full trace, drawn as the engine
+traces the scene.
+
+Checked against the engine itself (common practice for a GUI over an engine: it adds no physics
+of its own): the final drawing after a real mouse drag is the drawing of a direct trace of the
+dragged scene, array for array and pixel for pixel; the coarse fan comes first and is a real
+trace of the same state with fewer rays; the canvas is not painted between an edit and its new
+rays (at most PAINT_HOLD_S), and a drawing made on the trace thread is used only when it was
+made the way the canvas draws now.
+"""
+from __future__ import annotations
+
+import os
+from dataclasses import replace
+
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+
+import numpy as np  # noqa: E402
+import pytest  # noqa: E402
+
+pytest.importorskip("pytestqt")
+from PySide6.QtCore import QEvent, QObject  # noqa: E402
+
+from gui import edits, main_window as main_window_mod, worker as worker_mod  # noqa: E402
+from gui.raydraw import scene_drawing  # noqa: E402
+from gui.tracing import run_trace  # noqa: E402
+from gui_events import drag  # noqa: E402  (tests/gui_events.py: real mouse events)
+from test_gui import LIGHT_PIPE, make_window, wait_traced  # noqa: E402
+
+TIMEOUT_MS = 60_000
+
+
+@pytest.fixture
+def home(tmp_path, monkeypatch):
+    h = tmp_path / "home"
+    monkeypatch.setenv("RAYTRACE_GUI_HOME", str(h))
+    return h
+
+
+@pytest.fixture
+def win(qtbot, home):
+    w = make_window(qtbot)
+    w.resize(1200, 800)
+    w.show()
+    qtbot.waitExposed(w)
+    yield w
+    w.worker.shutdown()
+
+
+def _open(qtbot, win, rays=1000):
+    assert win.open_file(str(LIGHT_PIPE))
+    win.controls.drawn.setValue(rays)
+    win.doc.apply(edits.set_settings(win.doc.scene, rays=rays), "rays")
+    wait_traced(qtbot, win)
+
+
+class _Paints(QObject):
+    """Counts the paint events the drawing's viewport receives."""
+
+    def __init__(self, widget):
+        super().__init__()
+        self.count = 0
+        widget.installEventFilter(self)
+
+    def eventFilter(self, obj, ev):
+        if ev.type() == QEvent.Paint:
+            self.count += 1
+        return False
+
+
+def _same_drawing(a, b):
+    assert a.n_segments == b.n_segments > 0
+    for kind in b.lines:
+        for (ax, ay), (bx, by) in zip(a.lines[kind], b.lines[kind]):
+            np.testing.assert_array_equal(ax, bx)
+            np.testing.assert_array_equal(ay, by)
+    np.testing.assert_array_equal(a.hits_x, b.hits_x)
+    np.testing.assert_array_equal(a.hits_y, b.hits_y)
+    assert a.escapes == b.escapes
+
+
+def test_after_a_drag_the_drawing_is_the_direct_trace_of_the_dragged_scene(qtbot, win, monkeypatch):
+    # any trace counts as slow: every state of the drag gets a coarse fan first
+    monkeypatch.setattr(worker_mod, "COARSE_WHEN_OVER_S", 0.0)
+    _open(qtbot, win)
+    shown = []
+    win.worker.finished.connect(shown.append)
+    x0, y0, x1, y1 = win.doc.scene.parts[1].outer.bounds()        # the panel window
+    centre = (0.5 * (x0 + x1), 0.5 * (y0 + y1))
+    drag(qtbot, win.canvas, centre, (centre[0] + 1.0, centre[1] + 0.5))
+    assert win.doc.scene.parts[1].outer.bounds()[0] > x0          # the part moved
+    wait_traced(qtbot, win)
+    final = win.last_outcome
+    assert not final.coarse and final.result.stats["source_rays"] == 1000
+    # the drawing made on the trace thread is the one shown ...
+    assert win.canvas.drawing is final.drawing
+    # ... and equals the drawing of the engine's own trace of the dragged scene
+    direct = run_trace(win.doc.scene, win.controls.options())
+    np.testing.assert_array_equal(final.result.ledger.bins, direct.ledger.bins)
+    _same_drawing(win.canvas.drawing, scene_drawing(direct, win.doc.scene))
+    # pixel for pixel: the window's picture, then the direct trace drawn on the UI thread
+    picture = win.canvas.plot.grab().toImage()
+    win.canvas.set_result(direct)
+    assert win.canvas.drawing is not final.drawing
+    assert win.canvas.plot.grab().toImage() == picture
+    # coarse fans were shown on the way, each a real trace of fewer rays of a dragged state
+    coarse = [o for o in shown if o.coarse]
+    assert coarse and all(o.result.stats["source_rays"] < 1000 for o in coarse)
+    states = {id(o.request.scene) for o in shown}
+    assert all(id(o.request.scene) in states for o in coarse)
+
+
+def test_an_edit_shows_its_coarse_fan_first_then_its_full_trace(qtbot, win, monkeypatch):
+    monkeypatch.setattr(worker_mod, "COARSE_WHEN_OVER_S", 0.0)
+    _open(qtbot, win)
+    shown = []
+    win.worker.finished.connect(lambda o: shown.append((o, win.canvas.drawing.n_segments)))
+    s = win.doc.scene
+    win.doc.apply(edits.replace_part(s, 1, edits.move_part(s.parts[1], 0.2, 0.0)), "move")
+    wait_traced(qtbot, win)
+    assert [o.coarse for o, _ in shown] == [True, False]
+    (coarse, n_coarse), (full, n_full) = shown
+    assert coarse.request is full.request and coarse.request.scene is win.doc.scene
+    assert coarse.result.stats["source_rays"] < full.result.stats["source_rays"] == 1000
+    assert 0 < n_coarse < n_full                     # each was on the canvas in its turn
+    # the coarse fan is the real trace of that state with its number of rays
+    n = coarse.result.stats["source_rays"]
+    ref = run_trace(win.doc.scene, replace(coarse.request.options, rays=n,
+                                           drawn_rays=min(coarse.request.options.drawn_rays, n)))
+    np.testing.assert_array_equal(coarse.result.ledger.bins, ref.ledger.bins)
+
+
+def test_the_canvas_waits_for_the_new_rays_before_painting(qtbot, win, monkeypatch):
+    _open(qtbot, win)
+    # a hold long enough for any trace on a loaded machine: here the result must end it
+    monkeypatch.setattr(main_window_mod, "PAINT_HOLD_S", 30.0)
+    vp = win.canvas.plot.viewport()
+    paints = _Paints(vp)
+    painted_at_result = []
+    win.worker.finished.connect(lambda _o: painted_at_result.append(paints.count))
+    s = win.doc.scene
+    win.doc.apply(edits.replace_part(s, 1, edits.move_part(s.parts[1], 0.2, 0.0)), "move")
+    assert not vp.updatesEnabled()                  # held: the old fan is not painted again
+    wait_traced(qtbot, win)
+    qtbot.waitUntil(lambda: paints.count > 0, timeout=TIMEOUT_MS)
+    assert painted_at_result[0] == 0                # nothing painted before the first new rays
+    assert vp.updatesEnabled()
+
+
+def test_the_hold_ends_on_its_own_when_no_result_comes(qtbot, win, monkeypatch):
+    _open(qtbot, win)
+    vp = win.canvas.plot.viewport()
+    paints = _Paints(vp)
+    monkeypatch.setattr(win.worker, "submit", lambda *a, **k: 1)     # a trace that never returns
+    s = win.doc.scene
+    win.doc.apply(edits.replace_part(s, 1, edits.move_part(s.parts[1], 0.2, 0.0)), "move")
+    assert not vp.updatesEnabled()
+    qtbot.waitUntil(lambda: vp.updatesEnabled() and paints.count > 0,
+                    timeout=int(1000 * main_window_mod.PAINT_HOLD_S) + 5000)
+    # the moved part is on the canvas: its outline item follows the document
+    rect = win.canvas._part_paths[1].boundingRect()
+    assert rect.left() == pytest.approx(win.doc.scene.parts[1].outer.bounds()[0], abs=1e-3)
+
+
+def test_without_live_tracing_an_edit_is_painted_at_once(qtbot, win):
+    _open(qtbot, win)
+    win.controls.live.setChecked(False)
+    s = win.doc.scene
+    win.doc.apply(edits.replace_part(s, 1, edits.move_part(s.parts[1], 0.2, 0.0)), "move")
+    assert win.canvas.plot.viewport().updatesEnabled()
+
+
+def test_a_drawing_made_for_another_colour_choice_is_made_again(qtbot, win):
+    _open(qtbot, win)
+    out = win.last_outcome
+    assert out.drawing is not None and not out.drawing.colour_by_wavelength
+    win.wavelength_colour_action.trigger()           # View > Colour rays by wavelength
+    assert win.canvas.colour_by_wavelength
+    win.canvas.set_result(out.result, out.drawing)
+    assert win.canvas.drawing is not out.drawing and win.canvas.drawing.colour_by_wavelength
+    assert win.canvas.drawing.by_wavelength
