@@ -19,6 +19,7 @@ import argparse
 from dataclasses import replace
 import json
 import math
+import re
 import sys
 from pathlib import Path
 
@@ -209,7 +210,7 @@ def target_error(text: str) -> float:
     except ValueError:
         value = float("nan")
     if not 0.0 < value < 0.5:
-        raise argparse.ArgumentTypeError(f"found {text!r}; expected a standard error above 0 and below 0.5, as a "
+        raise argparse.ArgumentTypeError(f"found {text!r}; expected a positive standard error below 0.5, as a "
                                          "share (0.001) or in points of % (0.1%)")
     return value
 
@@ -229,6 +230,34 @@ def error_kwargs(args) -> dict:
             if getattr(args, k, None) is not None}
 
 
+_NUMBER_LIKE = re.compile(r"^-(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?%?$")
+
+
+def value_options(parser: argparse.ArgumentParser) -> set[str]:
+    """Every option string, of the parser and its subcommands, that takes a value."""
+    found: set[str] = set()
+    for action in parser._actions:          # argparse keeps no public list of them
+        if isinstance(action, argparse._SubParsersAction):
+            for sub in action.choices.values():
+                found |= value_options(sub)
+        elif action.option_strings and action.nargs != 0:
+            found.update(action.option_strings)
+    return found
+
+
+def attach_negative_values(argv: list[str], options: set[str]) -> list[str]:
+    """`--opt -1%` -> `--opt=-1%`: argparse takes only plain negatives such as -1 or -0.5 as values,
+    and reads -1% or -1e-3 as an unknown option ("expected one argument").  Joined, the value
+    reaches the option's own check, whose message says what the option expects."""
+    out: list[str] = []
+    for i, token in enumerate(argv):
+        if out and _NUMBER_LIKE.match(token) and argv[i - 1] in options:
+            out[-1] = f"{out[-1]}={token}"
+        else:
+            out.append(token)
+    return out
+
+
 def main(argv: list[str] | None = None) -> int:
     for stream in (sys.stdout, sys.stderr):
         try:    # a file name with bytes that are not UTF-8 prints escaped, never crashes a message
@@ -237,7 +266,8 @@ def main(argv: list[str] | None = None) -> int:
             pass
     parser = build_parser()
     try:
-        args = parser.parse_args(argv)
+        args = parser.parse_args(attach_negative_values(sys.argv[1:] if argv is None else list(argv),
+                                                         value_options(parser)))
     except SystemExit as exc:
         return EXIT_USAGE if exc.code else EXIT_OK
     try:

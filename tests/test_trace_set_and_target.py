@@ -102,3 +102,46 @@ def test_target_error_of_an_even_fan_also_waits_for_the_figures_to_settle():
     assert t["rounds"][-1]["largest_change"] <= 0.01 and t["rounds"][0]["largest_change"] is None
     finer = raytrace.trace(scene, rays=8 * t["rounds"][-1]["rays"])
     assert abs(result.efficiency("viewer side") - finer.efficiency("viewer side")) <= 0.02
+
+
+@pytest.mark.parametrize("args,words", [
+    (["trace", PIPE, "--target-error", "-1%"], ["--target-error", "'-1%'", "positive", "0.1%"]),
+    (["trace", PIPE, "--target-error", "-1e-3"], ["--target-error", "'-1e-3'", "positive", "0.001"]),
+    (["trace", PIPE, "--flux-floor", "-1e-3"], ["--flux-floor", "from 0 to 1", "-1e-3"]),
+    (["trace", PIPE, "--max-memory-mb", "-5"], ["--max-memory-mb", "above 0", "'-5'"]),
+    (["trace", PIPE, "--routes", "-1"], ["--routes", "at least 0", "-1"]),
+    (["sweep", PIPE, "--vary", "bend_radius=4:8:2", "--csv", "x.csv", "--target-error", "-0.5%"],
+     ["--target-error", "'-0.5%'", "positive"]),
+])
+def test_a_negative_value_is_refused_by_its_option_with_what_it_expects(capsys, args, words):
+    """A value typed with a minus sign reaches the option's own check (argparse alone reads '-1%'
+    as an unknown option and says only 'expected one argument')."""
+    assert main(args) == 2
+    err = capsys.readouterr().err
+    assert "expected one argument" not in err
+    for w in words:
+        assert w in err
+
+
+def test_negative_numbers_where_they_are_legitimate(tmp_path, capsys):
+    """Negative values inside NAME=VALUE texts (--set, a sweep range, an uneven --tol band) are
+    read as numbers: the probe beam's direction at -10 degrees through --set equals the sweep's
+    first point, which starts at -10."""
+    out = tmp_path / "t.json"
+    assert main(["trace", WINDOW, "--set", "probe beam.direction_deg=-10", "--rays", "100", "--quiet",
+                 "--json", str(out)]) == 0
+    traced = json.loads(out.read_text())["efficiency"]["inside chamber"]
+    table = tmp_path / "s.csv"
+    assert main(["sweep", WINDOW, "--vary", "probe beam.direction_deg=-10:10:3", "--rays", "100",
+                 "--csv", str(table), "--quiet"]) == 0
+    rows = table.read_text().splitlines()
+    header, first = rows[0].split(","), rows[1].split(",")
+    assert float(first[header.index("probe beam.direction_deg")]) == -10.0
+    assert float(first[header.index("efficiency: inside chamber")]) == pytest.approx(traced, rel=1e-12)
+    roof = str(ROOT / "samples" / "roof-prism-retroreflector.json")
+    assert main(["tolerance", roof, "--tol", "roof prism.roof_angle_deg=-0.5,+0", "--figure", "return",
+                 "--samples", "4", "--rays", "50", "--workers", "1", "--csv", str(tmp_path / "tol.csv")]) == 0
+    rows = (tmp_path / "tol.csv").read_text().splitlines()
+    column = rows[0].split(",").index("deviation: roof prism.roof_angle_deg")
+    deviations = [float(r.split(",")[column]) for r in rows[1:]]
+    assert deviations and all(-0.5 <= d <= 0 for d in deviations)
