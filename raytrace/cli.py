@@ -215,6 +215,23 @@ def target_error(text: str) -> float:
     return value
 
 
+def refuse_target_figure(scene, args) -> None:
+    """A --target-figure DETECTOR.accepted on a detector without an acceptance cone, refused
+    before any ray is traced (a usage error: SweepError)."""
+    figure = getattr(args, "target_figure", None)
+    if figure is None:
+        return
+    from .figures import no_acceptance_problem
+    from .sweep import SweepError
+    detectors = [(d.name, d.acceptance is not None) for d in scene.detectors]
+    available = [name for name, _ in detectors] + [f"{name}.accepted" for name, has in detectors if has]
+    refused = no_acceptance_problem("--target-figure", figure, detectors,
+                                    available + ["a ledger bucket label such as 'escaped via PART / FACE'"],
+                                    args.scene)
+    if refused is not None:
+        raise SweepError(refused.problems)
+
+
 def error_kwargs(args) -> dict:
     """--target-error, --target-figure, --ray-cap as keywords (empty without --target-error);
     SweepError when the other two come without it (they would do nothing)."""
@@ -351,6 +368,7 @@ def cmd_trace(args) -> int:
     progress = Progress(enabled=not args.quiet)
     try:
         errors = error_kwargs(args)
+        refuse_target_figure(scene, args)
         options = dict(record=record[0], record_count=record[1], progress=progress.trace,
                        track_paths=args.routes is not None, workers=capped_workers(args.trace_workers),
                        route_flux_floor=args.route_flux_floor, **trace_kwargs(args))
@@ -485,7 +503,10 @@ def cmd_sweep(args) -> int:
         return EXIT_USAGE
     try:
         detectors = [d.name for d in scene.detectors]
-        figures = [parse_figure(f, detectors) for f in args.figure] + [parse_route(r, detectors) for r in args.route]
+        accepting = [d.acceptance is not None for d in scene.detectors]
+        figures = ([parse_figure(f, detectors, acceptance=accepting, file=args.scene) for f in args.figure]
+                   + [parse_route(r, detectors) for r in args.route])
+        refuse_target_figure(scene, args)
         variables = [parse_vary(v) for v in args.vary]
         if len(variables) > 2:
             print("error: --vary: found more than two names; expected one or two", file=sys.stderr)

@@ -145,3 +145,28 @@ def test_negative_numbers_where_they_are_legitimate(tmp_path, capsys):
     column = rows[0].split(",").index("deviation: roof prism.roof_angle_deg")
     deviations = [float(r.split(",")[column]) for r in rows[1:]]
     assert deviations and all(-0.5 <= d <= 0 for d in deviations)
+
+
+@pytest.mark.parametrize("args", [
+    ["trace", PIPE, "--target-error", "1%", "--target-figure", "viewer side.accepted"],
+    ["sweep", PIPE, "--vary", "bend_radius=4:8:2", "--csv", "never-written.csv", "--figure", "viewer side.accepted"],
+    ["sweep", PIPE, "--vary", "bend_radius=4:8:2", "--csv", "never-written.csv", "--target-error", "5%",
+     "--target-figure", "viewer side.accepted"],
+])
+def test_accepted_share_of_a_detector_without_acceptance_says_how_to_set_one(tmp_path, monkeypatch, capsys, args):
+    """The light pipe's detector has no acceptance cone: asking for its accepted share is a usage
+    error naming the detector, the scene field that sets a cone and the figures there are,
+    before anything is traced (the sweep used to write an empty column, or fail every point)."""
+    monkeypatch.chdir(tmp_path)
+    assert main(args) == 2
+    err = capsys.readouterr().err
+    assert "detector 'viewer side' has no acceptance cone set" in err
+    assert f"{PIPE} at $.detectors[0].acceptance" in err and '"half_angle_deg"' in err
+    assert "'viewer side" in err.split("available:")[1]
+    assert not (tmp_path / "never-written.csv").exists()
+
+
+def test_accepted_share_of_a_detector_with_acceptance_is_still_a_target(capsys):
+    """The roof prism's return detector has an acceptance: its accepted share is a valid target."""
+    roof = str(ROOT / "samples" / "roof-prism-retroreflector.json")
+    assert main(["trace", roof, "--target-error", "5%", "--target-figure", "return.accepted", "--quiet"]) == 0
