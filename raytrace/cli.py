@@ -355,8 +355,9 @@ def cmd_trace(args) -> int:
     report = sys.stderr if "-" in outputs.values() else sys.stdout
     scene = load_scene(args.scene)
     print_notes(scene)
+    overridden: list = []
     if args.set:
-        scene = scene_with_settings(scene, args)
+        scene = scene_with_settings(scene, args, overridden)
         if scene is None:
             return EXIT_USAGE
     record = args.record or (("spread", 1000) if args.csv else ("none", 0))
@@ -400,6 +401,8 @@ def cmd_trace(args) -> int:
     if args.json:
         from .detectors import detector_reports
         summary = result.to_summary_dict()
+        if overridden:      # what --set changed, so the result can be traced again from the file
+            summary["settings"]["set"] = overridden
         summary["detectors"] = [r.to_dict() for r in detector_reports(result)]
         if args.routes is not None:
             from .routes import route_groups
@@ -444,14 +447,20 @@ def option_flags() -> dict[str, str]:
     return flags
 
 
-def scene_with_settings(scene, args):
-    """The scene with each --set NAME=VALUE applied, or None after printing why not."""
+def scene_with_settings(scene, args, record: list | None = None):
+    """The scene with each --set NAME=VALUE applied, or None after printing why not.  `record`
+    gets what was set, one {"name", "given", "value", "fields"} per --set (the JSON's settings)."""
     from .errors import Problems
     from .scene_io import scene_from_dict, scene_to_dict
     from .sweep import SweepError, apply_settings, parse_set
     try:
         pairs = [parse_set(text) for text in args.set]
-        data = apply_settings(scene_to_dict(scene), pairs, args.scene, trace_kwargs(args), option_flags())
+        applied: list = []
+        data = apply_settings(scene_to_dict(scene), pairs, args.scene, trace_kwargs(args), option_flags(),
+                              record=applied)
+        if record is not None:
+            record.extend({"name": a["name"], "given": text.rpartition("=")[2].strip(), "value": a["value"],
+                           "fields": a["fields"]} for text, a in zip(args.set, applied))
     except SweepError as exc:
         for p in exc.problems:
             print(f"error: {p}", file=sys.stderr)

@@ -518,16 +518,22 @@ def parse_set(text: str) -> tuple[str, float]:
 
 
 def apply_settings(data: dict, pairs: list[tuple[str, float]], file: str = "", options: dict | None = None,
-                   option_names: dict[str, str] | None = None) -> dict:
+                   option_names: dict[str, str] | None = None, record: list | None = None) -> dict:
     """The scene dict with each named number set (`raytrace trace --set`); SweepError for a name
-    that addresses nothing, a fraction in a whole-number field, or a trace option also given."""
+    that addresses nothing, a fraction in a whole-number field, or a trace option also given.
+    `record`, when given, gets one {"name", "value", "fields"} per pair: the value as set (a
+    whole number in a field that counts) and the JSON paths it was written to."""
     targets = [resolve(data, name, file, how="--set") for name, _ in pairs]
     for (name, value), t in zip(pairs, targets):
         if t.whole and value != round(value):
             raise SweepError([_problem(f"--set {name}", value, "a whole number (this field counts things)")])
     _refuse_shared_number(targets, "--set")
     refuse_overrides(targets, {k: v for k, v in (options or {}).items() if v is not None}, option_names, "--set")
-    return _applied(data, [(t.paths, int(round(v)) if t.whole else v) for t, (_, v) in zip(targets, pairs)])
+    values = [int(round(v)) if t.whole else v for t, (_, v) in zip(targets, pairs)]
+    if record is not None:
+        record.extend({"name": name, "value": v, "fields": ["$." + _render_path(p) for p in t.paths]}
+                      for (name, _), t, v in zip(pairs, targets, values))
+    return _applied(data, [(t.paths, v) for t, v in zip(targets, values)])
 
 
 def _table(variables, points, results, detectors, figure_columns=()) -> SweepResult:

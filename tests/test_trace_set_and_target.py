@@ -170,3 +170,33 @@ def test_accepted_share_of_a_detector_with_acceptance_is_still_a_target(capsys):
     """The roof prism's return detector has an acceptance: its accepted share is a valid target."""
     roof = str(ROOT / "samples" / "roof-prism-retroreflector.json")
     assert main(["trace", roof, "--target-error", "5%", "--target-figure", "return.accepted", "--quiet"]) == 0
+
+
+def test_json_records_each_set_so_the_result_can_be_traced_again(tmp_path):
+    """`trace --set ... --json` lists every --set (name, value as typed, value used, fields set);
+    writing those values at those fields of the scene file and tracing it gives the same ledger."""
+    out = tmp_path / "set.json"
+    assert main(["trace", PIPE, "--set", "bend_radius=5", "--set", "trace.rays=6e2", "--set", "guide.width=3.25",
+                 "--quiet", "--json", str(out)]) == 0
+    summary = json.loads(out.read_text())
+    recorded = summary["settings"]["set"]
+    assert recorded == [
+        {"name": "bend_radius", "given": "5", "value": 5.0, "fields": ["$.numbers.bend_radius"]},
+        {"name": "trace.rays", "given": "6e2", "value": 600, "fields": ["$.trace.rays"]},
+        {"name": "guide.width", "given": "3.25", "value": 3.25, "fields": ["$.parts[0].shape.params.width"]}]
+    data = json.loads(Path(PIPE).read_text())
+    for entry in recorded:
+        for field in entry["fields"]:
+            keys = [int(k) if k.isdigit() else k
+                    for k in field[2:].replace("[", ".").replace("]", "").split(".")]
+            node = data
+            for k in keys[:-1]:
+                node = node[k]
+            node[keys[-1]] = entry["value"]
+    edited = tmp_path / "edited.json"
+    edited.write_text(json.dumps(data))
+    ref = tmp_path / "ref.json"
+    assert main(["trace", str(edited), "--quiet", "--json", str(ref)]) == 0
+    again = json.loads(ref.read_text())
+    assert again["buckets"] == summary["buckets"] and again["settings"]["rays"] == 600
+    assert "set" not in again["settings"]
