@@ -27,7 +27,7 @@ import numpy as np
 from .design_points import figure_of, problem as _problem, resolve_continuous, run_points, scene_data, trace_options
 from .errors import Problems
 from .merit import UNITS, Figure, parse_figure
-from .sweep import SweepError
+from .sweep import SweepError, _refuse_shared_number
 
 DISTRIBUTIONS = ("uniform", "normal")
 
@@ -185,6 +185,7 @@ def tolerance(scene, tolerances: list[Tolerance], figures: list[str | Figure], s
     if samples < 2:
         raise SweepError([_problem("--samples", samples, "at least 2 samples")])
     resolved = [resolve_continuous(data, t.name, "--tol", file) for t in tolerances]
+    _refuse_shared_number([t for t, _ in resolved], "--tol", data)   # one number under two names
     detectors = [d.get("name", "") for d in data.get("detectors", [])]
     figs = [f if isinstance(f, Figure) else parse_figure(f, detectors, file=file) for f in figures]
     if not figs:

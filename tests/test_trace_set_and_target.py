@@ -200,3 +200,47 @@ def test_json_records_each_set_so_the_result_can_be_traced_again(tmp_path):
     again = json.loads(ref.read_text())
     assert again["buckets"] == summary["buckets"] and again["settings"]["rays"] == 600
     assert "set" not in again["settings"]
+
+
+BEND = "guide.segments[1].bend.radius"      # linked in the sample by "= bend_radius"
+
+
+@pytest.mark.parametrize("args,named,linked", [
+    (["trace", PIPE, "--set", "bend_radius=5", "--set", f"{BEND}=6"], "--set bend_radius", f"--set {BEND}"),
+    (["trace", PIPE, "--set", f"{BEND}=6", "--set", "bend_radius=5"], "--set bend_radius", f"--set {BEND}"),
+    (["trace", PIPE, "--set", "gap=1", "--set", "panel window.position[1]=6"], "--set gap",
+     "--set panel window.position[1]"),
+    (["sweep", PIPE, "--vary", "bend_radius=4:8:2", "--vary", f"{BEND}=4:8:2", "--csv", "never-written.csv"],
+     "--vary bend_radius", f"--vary {BEND}"),
+    (["optimize", PIPE, "--vary", "bend_radius=4:9", "--vary", f"{BEND}=4:9", "--figure", "viewer side"],
+     "--vary bend_radius", f"--vary {BEND}"),
+    (["tolerance", PIPE, "--tol", "bend_radius=0.1", "--tol", f"{BEND}=0.1", "--figure", "viewer side"],
+     "--tol bend_radius", f"--tol {BEND}"),
+])
+def test_a_named_number_and_a_field_linked_to_it_are_refused_together(tmp_path, monkeypatch, capsys,
+                                                                      args, named, linked):
+    """Setting a named number and a field linked to it: the field's value replaces its link, so
+    the named number's never reaches it.  Refused as a usage error (exit 2) naming both."""
+    monkeypatch.chdir(tmp_path)
+    assert main(args) == 2
+    err = capsys.readouterr().err
+    assert f"error: {linked}: found <linked to the named number" in err
+    assert f"{named} alone" in err and f"{linked} alone" in err
+    assert not (tmp_path / "never-written.csv").exists()
+
+
+def test_a_named_number_linked_through_another_is_refused_with_it(tmp_path, capsys):
+    """Named numbers may follow each other ("gap": "radius / 16"): setting radius and gap, or
+    radius and a field "= gap", leaves one of them ignored too; two unrelated numbers pass."""
+    data = json.loads(Path(PIPE).read_text())
+    data["numbers"] = {"bend_radius": 8.0, "gap": "bend_radius / 16"}
+    scene = tmp_path / "chain.json"
+    scene.write_text(json.dumps(data))
+    assert main(["trace", str(scene), "--set", "bend_radius=6", "--set", "gap=1", "--quiet"]) == 2
+    assert "error: --set gap: found <linked to the named number bend_radius by 'bend_radius / 16'" in \
+        capsys.readouterr().err
+    assert main(["trace", str(scene), "--set", "bend_radius=6", "--set", "panel window.position[1]=9",
+                 "--quiet"]) == 2
+    assert "by '= guide.output_y + gap'" in capsys.readouterr().err
+    assert main(["trace", PIPE, "--set", "bend_radius=6", "--set", "guide.width=3.2", "--rays", "50",
+                 "--quiet"]) == 0
