@@ -35,10 +35,10 @@ def build_parser() -> argparse.ArgumentParser:
     sub = p.add_subparsers(dest="command", required=True)
 
     c = sub.add_parser("check", help="validate scene files and list every problem")
-    c.add_argument("scenes", nargs="+", metavar="SCENE")
+    c.add_argument("scenes", nargs="+", metavar="SCENE", help="scene files (.json) to check")
 
     t = sub.add_parser("trace", help="trace a scene and print the energy ledger")
-    t.add_argument("scene", metavar="SCENE")
+    t.add_argument("scene", metavar="SCENE", help="the scene file (.json)")
     add_trace_options(t)
     add_error_options(t)
     t.add_argument("--set", metavar="NAME=VALUE", action="append", default=[], dest="set",
@@ -72,11 +72,11 @@ def build_parser() -> argparse.ArgumentParser:
                               "(LED.direction_deg), DETECTOR.FIELD (return.start[0]), wavelength, "
                               "trace.FIELD, $.JSON.PATH; KIND:NAME (part:, source:, detector:) when "
                               "names clash.  Values: START:STOP:COUNT or v1,v2,...")
-    w.add_argument("scene", metavar="SCENE")
+    w.add_argument("scene", metavar="SCENE", help="the scene file (.json)")
     w.add_argument("--vary", metavar="NAME=START:STOP:COUNT", action="append", required=True,
                    help="a number to vary (once or twice; two make a grid)")
     w.add_argument("--csv", metavar="OUT", required=True, help="the table to write")
-    w.add_argument("--workers", type=int, help="local worker processes (default and most: the CPUs this process may use; "
+    w.add_argument("--workers", type=int, metavar="N", help="local worker processes (default and most: the CPUs this process may use; "
                         "1 = in this process)")
     w.add_argument("--dask", metavar="ADDRESS",
                    help="run the points on the Dask scheduler at ADDRESS (needs the dask extra)")
@@ -172,15 +172,15 @@ def print_notes(scene) -> None:
 
 
 def add_trace_options(t: argparse.ArgumentParser) -> None:
-    t.add_argument("--rays", type=whole(1), help="source rays (default: the scene's trace.rays)")
+    t.add_argument("--rays", type=whole(1), metavar="N", help="source rays (default: the scene's trace.rays)")
     t.add_argument("--mode", choices=("branching", "monte_carlo"), help="full branching tree or Monte Carlo")
-    t.add_argument("--seed", type=whole(0), help="random seed for Monte Carlo and random sampling")
-    t.add_argument("--flux-floor", type=fraction, dest="flux_floor",
+    t.add_argument("--seed", type=whole(0), metavar="N", help="random seed for Monte Carlo and random sampling")
+    t.add_argument("--flux-floor", type=fraction, dest="flux_floor", metavar="F",
                    help="end children below this fraction of their source ray's flux")
-    t.add_argument("--max-generations", type=whole(1, MAX_GENERATIONS),
+    t.add_argument("--max-generations", type=whole(1, MAX_GENERATIONS), metavar="N",
                    help="follow each ray for at most this many generations (the source ray is generation 0, "
                         "each interaction's children one more)")
-    t.add_argument("--segment-budget", type=whole(1), help="most ray segments the whole trace may hold")
+    t.add_argument("--segment-budget", type=whole(1), metavar="N", help="most ray segments the whole trace may hold")
     add_earlier_name(t, "--min-flux", "--flux-floor", "flux_floor", type=fraction)
     add_earlier_name(t, "--max-depth", "--max-generations", "max_generations", type=whole(1))
     add_earlier_name(t, "--max-segments", "--segment-budget", "segment_budget", type=whole(1))
@@ -330,9 +330,14 @@ def cmd_check(args) -> int:
             continue
         for note in scene.notes:
             print(f"note: {note}")
-        print(f"{path}: ok ({len(scene.parts)} parts, {len(scene.sources)} sources, "
-              f"{len(scene.detectors)} detectors)")
+        print(f"{path}: ok ({counted(len(scene.parts), 'part')}, {counted(len(scene.sources), 'source')}, "
+              f"{counted(len(scene.detectors), 'detector')})")
     return worst
+
+
+def counted(n: int, thing: str) -> str:
+    """'1 part', '2 parts'."""
+    return f"{n:,} {thing}" + ("" if n == 1 else "s")
 
 
 def trace_kwargs(args) -> dict:
