@@ -307,3 +307,14 @@ def test_centroid_standard_error_matches_the_spread_over_seeds():
     values, errors = np.array(runs).T
     assert np.all(np.isfinite(errors)) and np.all(errors > 0)
     assert values.std(ddof=1) == pytest.approx(errors.mean(), rel=0.30)
+
+
+def test_tolerance_with_too_few_samples_to_fit_says_so(capsys):
+    """Two numbers and 3 samples: a least-squares fit of two slopes and an offset needs at least
+    4 points, so the report says the drivers were not fitted (it printed 'nan %' before)."""
+    pipe = ROOT / "samples" / "light-pipe-90.json"
+    assert cli.main(["tolerance", str(pipe), "--tol", "guide.width=0.1", "--tol", "guide.segments[1].bend.radius=0.1",
+                     "--figure", "viewer side", "--rays", "50", "--samples", "3", "--workers", "1"]) == 0
+    out = capsys.readouterr().out
+    assert "drivers: not fitted, 3 traced samples for 2 numbers; the fit needs at least 4 (raise --samples)" in out
+    assert "nan" not in out
