@@ -197,7 +197,8 @@ def cmd_import_dxf(args) -> int:
     except OSError as exc:
         print(f"error: could not write {args.output}: {exc.strerror or exc}", file=sys.stderr)
         return EXIT_OUTPUT
-    print(f"{args.output}: {len(scene.parts)} parts from {args.dxf} "
+    from .cli import counted
+    print(f"{args.output}: {counted(len(scene.parts), 'part')} from {args.dxf} "
           f"({', '.join(sorted({p.material for p in scene.parts}))})")
     from .compile import compile_scene
     from .errors import SceneError
@@ -221,5 +222,7 @@ def cmd_export_dxf(args) -> int:
     except OSError as exc:
         print(f"error: could not write {args.output}: {exc.strerror or exc}", file=sys.stderr)
         return EXIT_OUTPUT
-    print(f"{args.output}: {len(scene.parts)} parts on layers {', '.join(layers)}")
+    from .cli import counted
+    print(f"{args.output}: {counted(len(scene.parts), 'part')} on {'layer' if len(layers) == 1 else 'layers'} "
+          f"{', '.join(layers)}")
     return EXIT_OK
