@@ -19,6 +19,7 @@ import argparse
 from dataclasses import replace
 import json
 import math
+import re
 import sys
 from pathlib import Path
 
@@ -34,10 +35,10 @@ def build_parser() -> argparse.ArgumentParser:
     sub = p.add_subparsers(dest="command", required=True)
 
     c = sub.add_parser("check", help="validate scene files and list every problem")
-    c.add_argument("scenes", nargs="+", metavar="SCENE")
+    c.add_argument("scenes", nargs="+", metavar="SCENE", help="scene files (.json) to check")
 
     t = sub.add_parser("trace", help="trace a scene and print the energy ledger")
-    t.add_argument("scene", metavar="SCENE")
+    t.add_argument("scene", metavar="SCENE", help="the scene file (.json)")
     add_trace_options(t)
     add_error_options(t)
     t.add_argument("--set", metavar="NAME=VALUE", action="append", default=[], dest="set",
@@ -71,11 +72,11 @@ def build_parser() -> argparse.ArgumentParser:
                               "(LED.direction_deg), DETECTOR.FIELD (return.start[0]), wavelength, "
                               "trace.FIELD, $.JSON.PATH; KIND:NAME (part:, source:, detector:) when "
                               "names clash.  Values: START:STOP:COUNT or v1,v2,...")
-    w.add_argument("scene", metavar="SCENE")
+    w.add_argument("scene", metavar="SCENE", help="the scene file (.json)")
     w.add_argument("--vary", metavar="NAME=START:STOP:COUNT", action="append", required=True,
                    help="a number to vary (once or twice; two make a grid)")
     w.add_argument("--csv", metavar="OUT", required=True, help="the table to write")
-    w.add_argument("--workers", type=int, help="local worker processes (default and most: the CPUs this process may use; "
+    w.add_argument("--workers", type=int, metavar="N", help="local worker processes (default and most: the CPUs this process may use; "
                         "1 = in this process)")
     w.add_argument("--dask", metavar="ADDRESS",
                    help="run the points on the Dask scheduler at ADDRESS (needs the dask extra)")
@@ -171,15 +172,15 @@ def print_notes(scene) -> None:
 
 
 def add_trace_options(t: argparse.ArgumentParser) -> None:
-    t.add_argument("--rays", type=whole(1), help="source rays (default: the scene's trace.rays)")
+    t.add_argument("--rays", type=whole(1), metavar="N", help="source rays (default: the scene's trace.rays)")
     t.add_argument("--mode", choices=("branching", "monte_carlo"), help="full branching tree or Monte Carlo")
-    t.add_argument("--seed", type=whole(0), help="random seed for Monte Carlo and random sampling")
-    t.add_argument("--flux-floor", type=fraction, dest="flux_floor",
+    t.add_argument("--seed", type=whole(0), metavar="N", help="random seed for Monte Carlo and random sampling")
+    t.add_argument("--flux-floor", type=fraction, dest="flux_floor", metavar="F",
                    help="end children below this fraction of their source ray's flux")
-    t.add_argument("--max-generations", type=whole(1, MAX_GENERATIONS),
+    t.add_argument("--max-generations", type=whole(1, MAX_GENERATIONS), metavar="N",
                    help="follow each ray for at most this many generations (the source ray is generation 0, "
                         "each interaction's children one more)")
-    t.add_argument("--segment-budget", type=whole(1), help="most ray segments the whole trace may hold")
+    t.add_argument("--segment-budget", type=whole(1), metavar="N", help="most ray segments the whole trace may hold")
     add_earlier_name(t, "--min-flux", "--flux-floor", "flux_floor", type=fraction)
     add_earlier_name(t, "--max-depth", "--max-generations", "max_generations", type=whole(1))
     add_earlier_name(t, "--max-segments", "--segment-budget", "segment_budget", type=whole(1))
@@ -209,9 +210,26 @@ def target_error(text: str) -> float:
     except ValueError:
         value = float("nan")
     if not 0.0 < value < 0.5:
-        raise argparse.ArgumentTypeError(f"found {text!r}; expected a standard error above 0 and below 0.5, as a "
+        raise argparse.ArgumentTypeError(f"found {text!r}; expected a positive standard error below 0.5, as a "
                                          "share (0.001) or in points of % (0.1%)")
     return value
+
+
+def refuse_target_figure(scene, args) -> None:
+    """A --target-figure DETECTOR.accepted on a detector without an acceptance cone, refused
+    before any ray is traced (a usage error: SweepError)."""
+    figure = getattr(args, "target_figure", None)
+    if figure is None:
+        return
+    from .figures import no_acceptance_problem
+    from .sweep import SweepError
+    detectors = [(d.name, d.acceptance is not None) for d in scene.detectors]
+    available = [name for name, _ in detectors] + [f"{name}.accepted" for name, has in detectors if has]
+    refused = no_acceptance_problem("--target-figure", figure, detectors,
+                                    available + ["a ledger bucket label such as 'escaped via PART / FACE'"],
+                                    args.scene)
+    if refused is not None:
+        raise SweepError(refused.problems)
 
 
 def error_kwargs(args) -> dict:
@@ -229,6 +247,34 @@ def error_kwargs(args) -> dict:
             if getattr(args, k, None) is not None}
 
 
+_NUMBER_LIKE = re.compile(r"^-(\d+\.?\d*|\.\d+)([eE][-+]?\d+)?%?$")
+
+
+def value_options(parser: argparse.ArgumentParser) -> set[str]:
+    """Every option string, of the parser and its subcommands, that takes a value."""
+    found: set[str] = set()
+    for action in parser._actions:          # argparse keeps no public list of them
+        if isinstance(action, argparse._SubParsersAction):
+            for sub in action.choices.values():
+                found |= value_options(sub)
+        elif action.option_strings and action.nargs != 0:
+            found.update(action.option_strings)
+    return found
+
+
+def attach_negative_values(argv: list[str], options: set[str]) -> list[str]:
+    """`--opt -1%` -> `--opt=-1%`: argparse takes only plain negatives such as -1 or -0.5 as values,
+    and reads -1% or -1e-3 as an unknown option ("expected one argument").  Joined, the value
+    reaches the option's own check, whose message says what the option expects."""
+    out: list[str] = []
+    for i, token in enumerate(argv):
+        if out and _NUMBER_LIKE.match(token) and argv[i - 1] in options:
+            out[-1] = f"{out[-1]}={token}"
+        else:
+            out.append(token)
+    return out
+
+
 def main(argv: list[str] | None = None) -> int:
     for stream in (sys.stdout, sys.stderr):
         try:    # a file name with bytes that are not UTF-8 prints escaped, never crashes a message
@@ -237,7 +283,8 @@ def main(argv: list[str] | None = None) -> int:
             pass
     parser = build_parser()
     try:
-        args = parser.parse_args(argv)
+        args = parser.parse_args(attach_negative_values(sys.argv[1:] if argv is None else list(argv),
+                                                         value_options(parser)))
     except SystemExit as exc:
         return EXIT_USAGE if exc.code else EXIT_OK
     try:
@@ -283,9 +330,14 @@ def cmd_check(args) -> int:
             continue
         for note in scene.notes:
             print(f"note: {note}")
-        print(f"{path}: ok ({len(scene.parts)} parts, {len(scene.sources)} sources, "
-              f"{len(scene.detectors)} detectors)")
+        print(f"{path}: ok ({counted(len(scene.parts), 'part')}, {counted(len(scene.sources), 'source')}, "
+              f"{counted(len(scene.detectors), 'detector')})")
     return worst
+
+
+def counted(n: int, thing: str) -> str:
+    """'1 part', '2 parts'."""
+    return f"{n:,} {thing}" + ("" if n == 1 else "s")
 
 
 def trace_kwargs(args) -> dict:
@@ -308,8 +360,9 @@ def cmd_trace(args) -> int:
     report = sys.stderr if "-" in outputs.values() else sys.stdout
     scene = load_scene(args.scene)
     print_notes(scene)
+    overridden: list = []
     if args.set:
-        scene = scene_with_settings(scene, args)
+        scene = scene_with_settings(scene, args, overridden)
         if scene is None:
             return EXIT_USAGE
     record = args.record or (("spread", 1000) if args.csv else ("none", 0))
@@ -321,6 +374,7 @@ def cmd_trace(args) -> int:
     progress = Progress(enabled=not args.quiet)
     try:
         errors = error_kwargs(args)
+        refuse_target_figure(scene, args)
         options = dict(record=record[0], record_count=record[1], progress=progress.trace,
                        track_paths=args.routes is not None, workers=capped_workers(args.trace_workers),
                        route_flux_floor=args.route_flux_floor, **trace_kwargs(args))
@@ -352,6 +406,8 @@ def cmd_trace(args) -> int:
     if args.json:
         from .detectors import detector_reports
         summary = result.to_summary_dict()
+        if overridden:      # what --set changed, so the result can be traced again from the file
+            summary["settings"]["set"] = overridden
         summary["detectors"] = [r.to_dict() for r in detector_reports(result)]
         if args.routes is not None:
             from .routes import route_groups
@@ -396,14 +452,20 @@ def option_flags() -> dict[str, str]:
     return flags
 
 
-def scene_with_settings(scene, args):
-    """The scene with each --set NAME=VALUE applied, or None after printing why not."""
+def scene_with_settings(scene, args, record: list | None = None):
+    """The scene with each --set NAME=VALUE applied, or None after printing why not.  `record`
+    gets what was set, one {"name", "given", "value", "fields"} per --set (the JSON's settings)."""
     from .errors import Problems
     from .scene_io import scene_from_dict, scene_to_dict
     from .sweep import SweepError, apply_settings, parse_set
     try:
         pairs = [parse_set(text) for text in args.set]
-        data = apply_settings(scene_to_dict(scene), pairs, args.scene, trace_kwargs(args), option_flags())
+        applied: list = []
+        data = apply_settings(scene_to_dict(scene), pairs, args.scene, trace_kwargs(args), option_flags(),
+                              record=applied)
+        if record is not None:
+            record.extend({"name": a["name"], "given": text.rpartition("=")[2].strip(), "value": a["value"],
+                           "fields": a["fields"]} for text, a in zip(args.set, applied))
     except SweepError as exc:
         for p in exc.problems:
             print(f"error: {p}", file=sys.stderr)
@@ -455,7 +517,10 @@ def cmd_sweep(args) -> int:
         return EXIT_USAGE
     try:
         detectors = [d.name for d in scene.detectors]
-        figures = [parse_figure(f, detectors) for f in args.figure] + [parse_route(r, detectors) for r in args.route]
+        accepting = [d.acceptance is not None for d in scene.detectors]
+        figures = ([parse_figure(f, detectors, acceptance=accepting, file=args.scene) for f in args.figure]
+                   + [parse_route(r, detectors) for r in args.route])
+        refuse_target_figure(scene, args)
         variables = [parse_vary(v) for v in args.vary]
         if len(variables) > 2:
             print("error: --vary: found more than two names; expected one or two", file=sys.stderr)

@@ -11,7 +11,8 @@ import argparse
 import json
 import sys
 
-NAME_HELP = ("NAME forms as in `raytrace sweep`: PART.PARAM (guide.segments[1].bend.radius), "
+NAME_HELP = ("NAME forms as in `raytrace sweep`: a named number of the scene file (bend_radius), "
+             "PART.PARAM (guide.segments[1].bend.radius), "
              "SOURCE.FIELD (LED.direction_deg), DETECTOR.FIELD, trace.FIELD, $.JSON.PATH.  "
              "FIGURE: a detector's name (its efficiency), or efficiency: DET, centroid_mm: DET, "
              "mean_angle_deg: DET.")
@@ -25,12 +26,12 @@ def add_commands(sub) -> dict:
                                         "detector figure", epilog=NAME_HELP,
                        description="Scan the bounds in parallel, then refine the best point with "
                                    "scipy.optimize (bounded Brent for one number, Powell for several).")
-    o.add_argument("scene", metavar="SCENE")
+    o.add_argument("scene", metavar="SCENE", help="the scene file (.json)")
     o.add_argument("--vary", metavar="NAME=LOW:HIGH", action="append", required=True,
                    help="a number to tune and its bounds (repeat for several); the scene's value is the start")
     o.add_argument("--figure", metavar="FIGURE", required=True, help="the detector figure to maximize")
     o.add_argument("--minimize", action="store_true", help="minimize the figure instead")
-    o.add_argument("--scan", type=whole(2), metavar="N", help="scan points per number (default 9 for one, 5 for two)")
+    o.add_argument("--scan", type=whole(2), metavar="N", help="scan points per number (default 9 for one, 5 for two, 3 for more)")
     o.add_argument("--xtol", type=float, default=1e-3, metavar="F",
                    help="stop refining when the numbers are known to this fraction of their bounds (default 1e-3)")
     o.add_argument("--max-evaluations", type=whole(2), default=80, metavar="N",
@@ -42,7 +43,7 @@ def add_commands(sub) -> dict:
 
     t = sub.add_parser("tolerance", help="Monte Carlo over +- tolerances of named numbers: spread and worst "
                                          "case of detector figures", epilog=NAME_HELP)
-    t.add_argument("scene", metavar="SCENE")
+    t.add_argument("scene", metavar="SCENE", help="the scene file (.json)")
     t.add_argument("--tol", metavar="NAME=T", action="append", required=True,
                    help="a number and its tolerance: NAME=T for +-T, or NAME=-A,+B (repeat for several)")
     t.add_argument("--figure", metavar="FIGURE", action="append", required=True,
@@ -72,14 +73,15 @@ def add_commands(sub) -> dict:
                    help="take sources, detectors, materials and trace settings from this scene (not its parts)")
 
     e = sub.add_parser("export-dxf", help="write a scene's parts as a DXF drawing (one layer per material)")
-    e.add_argument("scene", metavar="SCENE")
+    e.add_argument("scene", metavar="SCENE", help="the scene file (.json)")
     e.add_argument("-o", "--output", metavar="DRAWING.dxf", required=True)
     return {"optimize": cmd_optimize, "tolerance": cmd_tolerance, "import-dxf": cmd_import_dxf,
             "export-dxf": cmd_export_dxf}
 
 
 def _add_parallel_options(p: argparse.ArgumentParser) -> None:
-    p.add_argument("--workers", type=int, help="local worker processes (default: CPU count; 1 = in this process)")
+    p.add_argument("--workers", type=int, metavar="N",
+                   help="local worker processes (default and most: the CPUs this process may use; 1 = in this process)")
     p.add_argument("--dask", metavar="ADDRESS", help="run the traces on the Dask scheduler at ADDRESS (dask extra)")
 
 
@@ -195,7 +197,8 @@ def cmd_import_dxf(args) -> int:
     except OSError as exc:
         print(f"error: could not write {args.output}: {exc.strerror or exc}", file=sys.stderr)
         return EXIT_OUTPUT
-    print(f"{args.output}: {len(scene.parts)} parts from {args.dxf} "
+    from .cli import counted
+    print(f"{args.output}: {counted(len(scene.parts), 'part')} from {args.dxf} "
           f"({', '.join(sorted({p.material for p in scene.parts}))})")
     from .compile import compile_scene
     from .errors import SceneError
@@ -219,5 +222,7 @@ def cmd_export_dxf(args) -> int:
     except OSError as exc:
         print(f"error: could not write {args.output}: {exc.strerror or exc}", file=sys.stderr)
         return EXIT_OUTPUT
-    print(f"{args.output}: {len(scene.parts)} parts on layers {', '.join(layers)}")
+    from .cli import counted
+    print(f"{args.output}: {counted(len(scene.parts), 'part')} on {'layer' if len(layers) == 1 else 'layers'} "
+          f"{', '.join(layers)}")
     return EXIT_OK

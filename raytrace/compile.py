@@ -167,6 +167,16 @@ def _check_part(part: Part, path: str, size: float, tol: float, problems: Proble
             problems.add(lpath, f"<a gap of {gap:.3g} mm between consecutive edges>", "a closed boundary")
             loop_ok = False
         for j, e in enumerate(loop.edges):
+            tiny = 1e-12 * max(size, 1.0)
+            if e.is_arc and min(e.radius, math.dist(e.end, e.arc_center)) <= tiny:
+                on = [w for w, p in (("start (this entry's \"from\")", e.start),
+                                     ("end (the next entry's \"from\")", e.end)) if math.dist(p, e.arc_center) <= tiny]
+                problems.add(f"{lpath}[{j}].arc.center", list(e.arc_center),
+                             f"a centre off the arc's {' and '.join(on)}: a centre on it gives a radius of "
+                             "zero; the centre is the middle of the circle the edge follows, equally far "
+                             "from its start and end")
+                loop_ok = False
+                continue        # one problem: a zero radius also makes the zero-length edge
             if e.is_arc and abs(math.dist(e.start, e.arc_center) - math.dist(e.end, e.arc_center)) > 1e-7 * max(e.radius, 1e-9):
                 problems.add(f"{lpath}[{j}].arc.center", list(e.arc_center),
                              "a centre equally far from the edge's start and end")

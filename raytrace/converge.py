@@ -44,6 +44,14 @@ def largest_error(result, figure: str | None = None) -> tuple[str, float]:
     errors = figure_errors(result)
     if figure is not None:
         if figure not in errors:
+            from .figures import no_acceptance_problem
+            cs = result.compiled
+            has = [bool(cs.acceptance) and cs.acceptance[i] is not None for i in range(len(cs.detectors))]
+            refused = no_acceptance_problem("--target-figure", figure,
+                                            [(d.name, h) for d, h in zip(cs.detectors, has)], list(errors))
+            if refused is not None:
+                from .sweep import SweepError
+                raise SweepError(refused.problems)
             p = Problems()
             p.add("--target-figure", figure, "a detector's name, DETECTOR.accepted or a ledger bucket label: "
                   + ", ".join(repr(k) for k in errors))

@@ -98,7 +98,7 @@ def evaluate_point(data: dict, settings: list[tuple[tuple, Any]], options: dict,
         return {"status": "invalid: " + "; ".join(str(p) for p in exc.problems)}
     except RaytraceError as exc:
         return {"status": f"stopped: {exc}"}
-    return {"status": "ok", "figures": {f.label: list(measure(result, f, start.flux)) for f in figures}}
+    return {"status": "ok", "figures": {f.label: list(measure(result, f)) for f in figures}}
 
 
 def run_points(data: dict, points: list[list[tuple[tuple, Any]]], options: dict, figures: list[Figure],

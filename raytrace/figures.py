@@ -32,8 +32,30 @@ class Figure:
     field: str           # detector figure, or the route's steps text
 
 
-def parse_figure(text: str, detectors: list[str], where: str = "--figure") -> Figure:
-    """DETECTOR.FIELD -> Figure; SceneError naming what was expected."""
+ACCEPTANCE_FIGURES = ("accepted", "accepted_error")
+
+
+def no_acceptance_problem(where: str, text: str, detectors: list[tuple[str, bool]], available: list[str],
+                          file: str = ""):
+    """SceneError for DETECTOR.accepted on a detector without an acceptance cone, or None when
+    `text` is not that.  `detectors`: (name, has an acceptance) in scene order."""
+    owner = max((i for i, (d, _) in enumerate(detectors) if text.startswith(d + ".")),
+                key=lambda i: len(detectors[i][0]), default=None)
+    if owner is None or detectors[owner][1] or text[len(detectors[owner][0]) + 1:] not in ACCEPTANCE_FIGURES:
+        return None
+    name = detectors[owner][0]
+    p = Problems()
+    p.add(where, text, f"a figure this scene has: detector {name!r} has no acceptance cone set, so it "
+          f"has no accepted share; set one in {file or 'the scene file'} at $.detectors[{owner}].acceptance, e.g. "
+          '{"half_angle_deg": 1, "back_to_source": "SOURCE NAME"} or {"half_angle_deg": 5, '
+          '"direction_deg": 90}; figures available: ' + ", ".join(repr(a) for a in available))
+    return SceneError(p.items)
+
+
+def parse_figure(text: str, detectors: list[str], where: str = "--figure",
+                 acceptance: list[bool] | None = None, file: str = "") -> Figure:
+    """DETECTOR.FIELD -> Figure; SceneError naming what was expected.  `acceptance`: whether
+    each detector has an acceptance cone (DETECTOR.accepted needs one)."""
     text = text.strip()
     owner = max((d for d in detectors if text.startswith(d + ".")), key=len, default=None)
     if owner is None:
@@ -41,6 +63,12 @@ def parse_figure(text: str, detectors: list[str], where: str = "--figure") -> Fi
     fld = text[len(owner) + 1:]
     if fld not in DETECTOR_FIGURES:
         _fail(where, text, "a detector figure: " + ", ".join(DETECTOR_FIGURES))
+    if acceptance is not None:
+        available = [f"{d}.{f}" for d, has in zip(detectors, acceptance) for f in DETECTOR_FIGURES
+                     if has or f not in ACCEPTANCE_FIGURES]
+        refused = no_acceptance_problem(where, text, list(zip(detectors, acceptance)), available, file)
+        if refused is not None:
+            raise refused
     return Figure(text, "detector", owner, fld)
 
 

@@ -28,7 +28,7 @@ from typing import Any
 
 from . import fields as F
 from .errors import Problems
-from .expressions import RESERVED, ExpressionError, Reference, evaluate, parse
+from .expressions import RESERVED, ExpressionError, Reference, evaluate, parse, references
 
 # fields that hold text: a value there that starts with "=" is text, not an expression
 TEXT_KEYS = frozenset({"name", "story", "note", "material", "ambient", "kind", "face",
@@ -728,3 +728,42 @@ def _apply(plain: dict, numbers: str | None, active: list) -> dict:
         ordered.setdefault("numbers", json.loads(numbers))
         out = ordered
     return out
+
+
+def numbers_behind(data: dict, path: tuple) -> dict[str, str]:
+    """The named numbers the value at `path` of a scene file's dict follows, each with the
+    expression text that links it (the field's own, or the one in between): a field written
+    "= bend_radius + 1" follows bend_radius; a named number "gap": "radius / 16" follows radius,
+    and so does a field "= gap".  A reference to a part ("= guide.output_y") is not followed: a
+    number that shapes the guide still moves the guide when the field is set.  Empty for a plain
+    number; expressions that cannot be read are left to the loader's own message."""
+    numbers = data.get("numbers") if isinstance(data.get("numbers"), dict) else {}
+    found: dict[str, str] = {}
+    seen: set = set()
+
+    def follow(value, link: str | None) -> None:
+        if not isinstance(value, str):
+            return
+        text = value.strip()
+        try:
+            node = parse(text[1:] if text.startswith("=") else text)
+        except ExpressionError:
+            return
+        for ref in references(node):
+            if ref.index is None and not ref.attrs and ref.base in numbers:
+                found.setdefault(ref.base, link or value)
+                if ("number", ref.base) not in seen:
+                    seen.add(("number", ref.base))
+                    follow(numbers[ref.base], link or value)
+
+    try:
+        value = _get(data, path)
+    except (KeyError, IndexError, TypeError):
+        return found
+    if path[:1] == ("numbers",):
+        seen.add(("number", path[1]))
+        if isinstance(value, str):
+            follow(value, None)
+    elif _is_expression(value, path[-1] if isinstance(path[-1], str) else None):
+        follow(value, None)
+    return found

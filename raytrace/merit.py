@@ -8,14 +8,11 @@ name alone, which means its efficiency:
     centroid_mm: screen         flux-weighted mean position along the detector (mm from its start)
     mean_angle_deg: return      flux-weighted mean angle of arrival (degrees from its normal)
 
-Standard errors come from the spread of the source rays' own contributions: every source ray
-(with all its branches) is one sample, and a figure is a ratio of two sums over source rays, so
-its error is the ratio estimator's, sqrt(N/(N-1) sum (a_i - F b_i)^2) / sum b_i.  For random
-sampling and Monte Carlo traces this is the statistical error; for even sampling, whose rays are
-spread evenly rather than drawn, it overstates the error and reads as an upper estimate.
-
-When detector figures carry their own standard errors in the trace result, `measure` is the one
-place to switch to them.
+Standard errors are the trace's own, from its 32 sub-batches of source rays
+(`raytrace.uncertainty`), so a figure shows the same +- here as in `raytrace trace`, the JSON and
+a sweep.  An efficiency takes the trace's `efficiency_error`; a centroid or mean angle is a ratio
+of two flux sums, and takes the same ratio-estimate error over the same sub-batches.  With even
+sampling this is a sampling error of the fan (see `raytrace.uncertainty`).
 """
 from __future__ import annotations
 
@@ -25,6 +22,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import Problems
+from .uncertainty import batch_sums, ratio_error
 
 KINDS = ("efficiency", "centroid_mm", "mean_angle_deg")
 UNITS = {"efficiency": "", "centroid_mm": "mm", "mean_angle_deg": "deg"}
@@ -69,28 +67,16 @@ def parse_figure(text: str, detectors: list[str], where: str = "--figure", file:
     return Figure(kind, det)
 
 
-def measure(result, figure: Figure, start_flux: np.ndarray) -> tuple[float, float]:
-    """(value, standard error) of `figure` in a trace whose source ray i carried start_flux[i]."""
-    hits = result.detector(figure.detector)
-    n = len(start_flux)
-    f = hits.flux
+def measure(result, figure: Figure) -> tuple[float, float]:
+    """(value, standard error) of `figure` in a trace: the figures and errors `raytrace trace`
+    reports for the same scene."""
     if figure.kind == "efficiency":
-        a = np.bincount(hits.source_ray, weights=f, minlength=n)
-        return _ratio(a, np.asarray(start_flux, float))
-    values = hits.position if figure.kind == "centroid_mm" else hits.angle_deg
-    a = np.bincount(hits.source_ray, weights=f * values, minlength=n)
-    b = np.bincount(hits.source_ray, weights=f, minlength=n)
-    return _ratio(a, b)
-
-
-def _ratio(a: np.ndarray, b: np.ndarray) -> tuple[float, float]:
-    """sum a / sum b and its ratio-estimator standard error (nan when nothing arrived)."""
-    total = float(b.sum())
-    if total <= 0:
+        return result.efficiency(figure.detector), result.efficiency_error(figure.detector)
+    hits = result.detector(figure.detector)
+    f = hits.flux
+    total = f.sum()
+    if not total > 0:
         return float("nan"), float("nan")
-    value = float(a.sum()) / total
-    n = len(b)
-    if n < 2:
-        return value, float("nan")
-    resid = a - value * b
-    return value, float(math.sqrt(n / (n - 1) * float(np.dot(resid, resid))) / total)
+    values = hits.position if figure.kind == "centroid_mm" else hits.angle_deg
+    value = float((values * f).sum() / total)     # as the detector report's centroid and mean angle
+    return value, ratio_error(batch_sums(hits.source_ray, f * values), batch_sums(hits.source_ray, f))

@@ -23,7 +23,7 @@ from .design_points import (figure_of, problem as _problem, resolve_continuous, 
                             scene_data, trace_options)
 from .errors import Problems
 from .merit import Figure, parse_figure
-from .sweep import SweepError
+from .sweep import SweepError, _refuse_shared_number
 
 INVALID_OBJECTIVE = 1e12     # what an untraceable point scores in the minimized objective
 
@@ -167,6 +167,7 @@ def optimize(scene, bounds: list[Bound], figure: str | Figure, maximize: bool = 
                                        "(widen them, or change the value in the scene first)", file)])
         targets.append(target)
         start.append(x0)
+    _refuse_shared_number(targets, "--vary", data)    # two names for one number, or a number and a field linked to it
     fig = figure if isinstance(figure, Figure) else parse_figure(
         figure, [d.get("name", "") for d in data.get("detectors", [])], file=file)
     opts = trace_options(options)

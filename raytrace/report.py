@@ -36,8 +36,11 @@ def summary_text(result: TraceResult, title: str = "", story: str = "") -> str:
     lines.append(f"Ledger: buckets sum to {L.total:.12g} (difference {closure:.2e})")
     lines.append(f"Errors (+-, in points of %): {result.error_meaning}")
     if st.get("vertex_hits") or st.get("grazing_hits") or st.get("medium_mismatches"):
-        lines.append(f"Edge cases: {st['vertex_hits']} hits at a vertex, {st['grazing_hits']} grazing hits, "
-                     f"{st['medium_mismatches']} medium mismatches (traced deterministically)")
+        def n(count, one, many):
+            return f"{count:,} {one if count == 1 else many}"
+        lines.append(f"Edge cases: {n(st['vertex_hits'], 'hit', 'hits')} at a vertex, "
+                     f"{n(st['grazing_hits'], 'grazing hit', 'grazing hits')}, "
+                     f"{n(st['medium_mismatches'], 'medium mismatch', 'medium mismatches')} (traced deterministically)")
     return "\n".join(lines)
 
 

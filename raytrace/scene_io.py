@@ -74,6 +74,12 @@ def load_scene(path: str | os.PathLike, check_shapes: bool = True) -> Scene:
     except (OSError, UnicodeDecodeError) as exc:
         problems.add("$", f"<unreadable file: {exc}>", "a readable UTF-8 JSON file")
         raise SceneError(problems.items)
+    if path.suffix.lower() == ".dxf" and not text.lstrip().startswith("{"):
+        # a drawing given where a scene belongs: say how to turn it into one
+        problems.add("$", "<a DXF drawing, not a scene file>",
+                     f"a scene file (JSON); make one from the drawing with: raytrace import-dxf {path} "
+                     f"-o {path.with_suffix('.json').name}")
+        raise SceneError(problems.items)
     return scene_from_text(text, problems, check_shapes)
 
 

@@ -357,7 +357,7 @@ def sweep(scene, variables: list[Variable], trace_options: dict | None = None,
     if len({v.name for v in variables}) != len(variables):
         raise SweepError([_problem("--vary", [v.name for v in variables], "two different names")])
     targets = [resolve(data, v.name, file) for v in variables]
-    _refuse_shared_number(targets)
+    _refuse_shared_number(targets, data=data)
     for v, t in zip(variables, targets):
         if t.whole:
             bad = [x for x in v.values if x != round(x)]
@@ -427,9 +427,13 @@ def refuse_overrides(targets: list[Target], options: dict, option_names: dict[st
         raise SweepError(problems.items)
 
 
-def _refuse_shared_number(targets: list[Target], how: str = "--vary") -> None:
+def _refuse_shared_number(targets: list[Target], how: str = "--vary", data: dict | None = None) -> None:
     """Two names for one number (guide.width and $.parts[0].shape.params.width, or wavelength
-    and LED.wavelength, or one name twice): the later would silently overwrite the earlier."""
+    and LED.wavelength, or one name twice): the later would silently overwrite the earlier.
+    With the scene's `data`, also a named number and a field linked to it ("= EXPR"): the
+    field's new value replaces its link, so the named number's would not reach it."""
+    if data is not None:
+        refuse_linked_pair(data, targets, how)
     for i, b in enumerate(targets):
         for a in targets[:i]:
             for pa in a.paths:
@@ -440,6 +444,27 @@ def _refuse_shared_number(targets: list[Target], how: str = "--vary") -> None:
                                  f"<the number {a.name} sets too ($.{_render_path(pb)})>")
                         raise SweepError([_problem(f"{how} {b.name}", found,
                                                    "two names for two different numbers")])
+
+
+def refuse_linked_pair(data: dict, targets: list, how: str, file: str = "") -> None:
+    """SweepError naming both when one target is a named number and another a field (or named
+    number) whose "= EXPR" follows it."""
+    from .linked import numbers_behind
+    named = {t.paths[0][1]: t for t in targets if len(t.paths) == 1 and t.paths[0][:1] == ("numbers",)}
+    if not named:
+        return
+    for b in targets:
+        for path in b.paths:
+            for number, link in numbers_behind(data, path).items():
+                a = named.get(number)
+                if a is None or a is b:
+                    continue
+                p = Problems(file=file)
+                p.add(f"{how} {b.name}", f"<linked to the named number {number} by {link!r} at "
+                      f"$.{_render_path(path)}, and {how} {a.name} sets {number} too>",
+                      f"one of the two: {how} {a.name} alone (the linked field follows it) or {how} "
+                      f"{b.name} alone (its value replaces the link); given both, one would be ignored")
+                raise SweepError(p.items)
 
 
 def _problem(path, found, expected):
@@ -518,16 +543,22 @@ def parse_set(text: str) -> tuple[str, float]:
 
 
 def apply_settings(data: dict, pairs: list[tuple[str, float]], file: str = "", options: dict | None = None,
-                   option_names: dict[str, str] | None = None) -> dict:
+                   option_names: dict[str, str] | None = None, record: list | None = None) -> dict:
     """The scene dict with each named number set (`raytrace trace --set`); SweepError for a name
-    that addresses nothing, a fraction in a whole-number field, or a trace option also given."""
+    that addresses nothing, a fraction in a whole-number field, or a trace option also given.
+    `record`, when given, gets one {"name", "value", "fields"} per pair: the value as set (a
+    whole number in a field that counts) and the JSON paths it was written to."""
     targets = [resolve(data, name, file, how="--set") for name, _ in pairs]
     for (name, value), t in zip(pairs, targets):
         if t.whole and value != round(value):
             raise SweepError([_problem(f"--set {name}", value, "a whole number (this field counts things)")])
-    _refuse_shared_number(targets, "--set")
+    _refuse_shared_number(targets, "--set", data)
     refuse_overrides(targets, {k: v for k, v in (options or {}).items() if v is not None}, option_names, "--set")
-    return _applied(data, [(t.paths, int(round(v)) if t.whole else v) for t, (_, v) in zip(targets, pairs)])
+    values = [int(round(v)) if t.whole else v for t, (_, v) in zip(targets, pairs)]
+    if record is not None:
+        record.extend({"name": name, "value": v, "fields": ["$." + _render_path(p) for p in t.paths]}
+                      for (name, _), t, v in zip(pairs, targets, values))
+    return _applied(data, [(t.paths, v) for t, v in zip(targets, values)])
 
 
 def _table(variables, points, results, detectors, figure_columns=()) -> SweepResult:

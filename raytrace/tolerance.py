@@ -27,7 +27,7 @@ import numpy as np
 from .design_points import figure_of, problem as _problem, resolve_continuous, run_points, scene_data, trace_options
 from .errors import Problems
 from .merit import UNITS, Figure, parse_figure
-from .sweep import SweepError
+from .sweep import SweepError, _refuse_shared_number
 
 DISTRIBUTIONS = ("uniform", "normal")
 
@@ -99,6 +99,11 @@ class ToleranceResult:
                 devs = ", ".join(f"{name} {d:+.4g}" for name, d in zip(self.names, self.deviations[w]))
                 lines.append(f"  worst case {f.format(float(s.values[w]))} (sample {w}: {devs})")
                 order = sorted(range(len(self.names)), key=lambda j: -s.shares[j])
+                if not any(math.isfinite(x) for x in s.slopes):
+                    # a least-squares fit of k slopes and an offset needs more than k + 1 samples
+                    lines.append(f"  drivers: not fitted, {len(s.ok)} traced samples for {len(self.names)} "
+                                 f"numbers; the fit needs at least {len(self.names) + 2} (raise --samples)")
+                    continue
                 lines.append("  drivers (share of the spread, slope): " + "; ".join(
                     f"{self.names[j]} {100 * s.shares[j]:.0f} %, {_slope(f, s.slopes[j])}" for j in order)
                     + f" (linear fit explains {100 * s.fit_r2:.0f} %)")
@@ -185,6 +190,7 @@ def tolerance(scene, tolerances: list[Tolerance], figures: list[str | Figure], s
     if samples < 2:
         raise SweepError([_problem("--samples", samples, "at least 2 samples")])
     resolved = [resolve_continuous(data, t.name, "--tol", file) for t in tolerances]
+    _refuse_shared_number([t for t, _ in resolved], "--tol", data)   # one number under two names
     detectors = [d.get("name", "") for d in data.get("detectors", [])]
     figs = [f if isinstance(f, Figure) else parse_figure(f, detectors, file=file) for f in figures]
     if not figs:

@@ -411,3 +411,39 @@ def test_validity_reasons_are_translated():
         "holes that cut the part into pieces at (2.5, -1e-07) mm"
     assert plain_validity("something new[1 2]") == "an invalid shape at (1, 2) mm"
     _no_library_words(plain_validity("Too few distinct points in geometry component"))
+
+
+@pytest.mark.parametrize("centre,where", [([20, 10], "start"), ([0, 10], "end")])
+def test_an_arc_centred_on_its_own_start_or_end_gets_one_clear_message(tmp_path, capsys, centre, where):
+    """A centre on the arc's start (or end) is a radius of zero: one message at the arc's centre
+    field saying so, not a second one about a zero-length edge that follows from it."""
+    data = copy.deepcopy(WINDOW)
+    data["parts"] = [{"name": "domed window", "material": "fused silica", "boundary": [
+        {"from": [0, 0]}, {"from": [20, 0]},
+        {"from": [20, 10], "face": "dome", "arc": {"center": centre, "direction": "ccw"}},
+        {"from": [0, 10]}]}]
+    f = _write(tmp_path, data)
+    assert main(["check", str(f)]) == 1
+    lines = [ln for ln in capsys.readouterr().out.splitlines() if ln.startswith("error:")]
+    assert len(lines) == 1, lines
+    assert lines[0].startswith(f"error: {f}: $.parts[0].boundary[2].arc.center: found {[float(c) for c in centre]}")
+    assert f"a centre off the arc's {where}" in lines[0] and "radius of zero" in lines[0]
+    assert "zero length" not in lines[0]
+
+
+def test_a_dxf_drawing_given_as_a_scene_says_how_to_import_it(capsys):
+    """`raytrace check` (or trace) on the bundled DXF drawing: not 'malformed JSON' but what the
+    file is and the import command that makes a scene of it."""
+    drawing = SAMPLES / "light-pipe.dxf"
+    assert main(["check", str(drawing)]) == 1
+    out = capsys.readouterr().out
+    assert f"error: {drawing}: $: found <a DXF drawing, not a scene file>" in out
+    assert f"raytrace import-dxf {drawing} -o light-pipe.json" in out and "malformed JSON" not in out
+    assert main(["trace", str(drawing)]) == 1
+    assert "a DXF drawing, not a scene file" in capsys.readouterr().err
+
+
+def test_check_counts_in_plain_words(capsys):
+    """One source is '1 source', two detectors '2 detectors'."""
+    assert main(["check", str(SAMPLES / "microprism-strip.json")]) == 0
+    assert "ok (1 part, 1 source, 2 detectors)" in capsys.readouterr().out

@@ -268,3 +268,53 @@ def test_named_and_linked_numbers_start_from_their_evaluated_values(capsys):
     code = cli.main(["tolerance", str(sheet), "--tol", "emitter beam.turn_deg=0.5", "--figure", "return"])
     err = capsys.readouterr().err
     assert code == cli.EXIT_USAGE and "'= entry_deg'" in err and "named number" in err
+
+
+def test_readme_optimize_example_reproduces_with_the_traces_own_errors(tmp_path, capsys):
+    """The README's bend-radius example, run as written there: its figures are these, and the
+    start point's +- is the one `raytrace trace` prints for the same scene (both from the
+    trace's 32 sub-batches, raytrace/uncertainty.py), not a second estimate of its own."""
+    readme = (ROOT / "README.md").read_text()
+    pipe = ROOT / "samples" / "light-pipe-90.json"
+    command = 'raytrace optimize samples/light-pipe-90.json --vary "bend_radius=4:14" --figure "viewer side"'
+    assert command in readme
+    assert cli.main(["optimize", str(pipe), "--vary", "bend_radius=4:14", "--figure", "viewer side",
+                     "--workers", "2", "--json", str(tmp_path / "o.json")]) == 0
+    out = capsys.readouterr().out
+    assert "figure at the optimum: 74.343 +- 0.348 %  (start 67.829 +- 0.659 %)" in out
+    assert "evaluations: 20 (the start, 9 in the scan, 10 refining)" in out
+    for quoted in ("best radius is 11.53 mm", "74.343 +- 0.348 %", "67.829 +- 0.659 %", "It took 20 traces"):
+        assert quoted in readme
+    start = json.loads((tmp_path / "o.json").read_text())["evaluations"][0]
+    assert cli.main(["trace", str(pipe), "--json", str(tmp_path / "t.json"), "--quiet"]) == 0
+    traced = json.loads((tmp_path / "t.json").read_text())
+    assert start["stage"] == "start"
+    assert start["value"] == traced["efficiency"]["viewer side"]
+    assert start["se"] == traced["efficiency_error"]["viewer side"]
+    capsys.readouterr()
+
+
+def test_centroid_standard_error_matches_the_spread_over_seeds():
+    """A centroid's standard error (the sub-batch ratio estimate, Cochran 1977 sec. 6.4) against
+    the scatter of the centroid over 40 Monte Carlo trace seeds of 400 rays each: the scatter's
+    own relative error is 1/sqrt(78) = 11 %, tolerance 30 %."""
+    from raytrace.design_points import evaluate_point
+    from raytrace.merit import Figure
+    data = scene_to_dict(load_scene(WINDOW))
+    fig = Figure("centroid_mm", "inside chamber")
+    runs = [evaluate_point(data, [], {"rays": 400, "mode": "monte_carlo", "seed": s}, [fig])["figures"][fig.label]
+            for s in range(1, 41)]
+    values, errors = np.array(runs).T
+    assert np.all(np.isfinite(errors)) and np.all(errors > 0)
+    assert values.std(ddof=1) == pytest.approx(errors.mean(), rel=0.30)
+
+
+def test_tolerance_with_too_few_samples_to_fit_says_so(capsys):
+    """Two numbers and 3 samples: a least-squares fit of two slopes and an offset needs at least
+    4 points, so the report says the drivers were not fitted (it printed 'nan %' before)."""
+    pipe = ROOT / "samples" / "light-pipe-90.json"
+    assert cli.main(["tolerance", str(pipe), "--tol", "guide.width=0.1", "--tol", "guide.segments[1].bend.radius=0.1",
+                     "--figure", "viewer side", "--rays", "50", "--samples", "3", "--workers", "1"]) == 0
+    out = capsys.readouterr().out
+    assert "drivers: not fitted, 3 traced samples for 2 numbers; the fit needs at least 4 (raise --samples)" in out
+    assert "nan" not in out

@@ -257,3 +257,12 @@ def test_setup_links_do_not_follow_into_the_imported_scene(tmp_path):
     again = load_scene(out)
     assert raytrace.trace(again, rays=100).efficiency("viewer side") == pytest.approx(
         raytrace.trace(load_scene(PIPE_JSON), rays=100).efficiency("viewer side"), abs=1e-9)
+
+
+def test_export_says_one_part_on_one_layer_in_plain_words(tmp_path, capsys):
+    """`raytrace export-dxf` on the roof prism sample: one part on one layer ('1 part on layer')."""
+    from raytrace.cli import main as cli_main
+    roof = Path(__file__).resolve().parents[1] / "samples" / "roof-prism-retroreflector.json"
+    out = tmp_path / "roof.dxf"
+    assert cli_main(["export-dxf", str(roof), "-o", str(out)]) == 0
+    assert capsys.readouterr().out.strip() == f"{out}: 1 part on layer crown glass"

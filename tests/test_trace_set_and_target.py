@@ -102,3 +102,145 @@ def test_target_error_of_an_even_fan_also_waits_for_the_figures_to_settle():
     assert t["rounds"][-1]["largest_change"] <= 0.01 and t["rounds"][0]["largest_change"] is None
     finer = raytrace.trace(scene, rays=8 * t["rounds"][-1]["rays"])
     assert abs(result.efficiency("viewer side") - finer.efficiency("viewer side")) <= 0.02
+
+
+@pytest.mark.parametrize("args,words", [
+    (["trace", PIPE, "--target-error", "-1%"], ["--target-error", "'-1%'", "positive", "0.1%"]),
+    (["trace", PIPE, "--target-error", "-1e-3"], ["--target-error", "'-1e-3'", "positive", "0.001"]),
+    (["trace", PIPE, "--flux-floor", "-1e-3"], ["--flux-floor", "from 0 to 1", "-1e-3"]),
+    (["trace", PIPE, "--max-memory-mb", "-5"], ["--max-memory-mb", "above 0", "'-5'"]),
+    (["trace", PIPE, "--routes", "-1"], ["--routes", "at least 0", "-1"]),
+    (["sweep", PIPE, "--vary", "bend_radius=4:8:2", "--csv", "x.csv", "--target-error", "-0.5%"],
+     ["--target-error", "'-0.5%'", "positive"]),
+])
+def test_a_negative_value_is_refused_by_its_option_with_what_it_expects(capsys, args, words):
+    """A value typed with a minus sign reaches the option's own check (argparse alone reads '-1%'
+    as an unknown option and says only 'expected one argument')."""
+    assert main(args) == 2
+    err = capsys.readouterr().err
+    assert "expected one argument" not in err
+    for w in words:
+        assert w in err
+
+
+def test_negative_numbers_where_they_are_legitimate(tmp_path, capsys):
+    """Negative values inside NAME=VALUE texts (--set, a sweep range, an uneven --tol band) are
+    read as numbers: the probe beam's direction at -10 degrees through --set equals the sweep's
+    first point, which starts at -10."""
+    out = tmp_path / "t.json"
+    assert main(["trace", WINDOW, "--set", "probe beam.direction_deg=-10", "--rays", "100", "--quiet",
+                 "--json", str(out)]) == 0
+    traced = json.loads(out.read_text())["efficiency"]["inside chamber"]
+    table = tmp_path / "s.csv"
+    assert main(["sweep", WINDOW, "--vary", "probe beam.direction_deg=-10:10:3", "--rays", "100",
+                 "--csv", str(table), "--quiet"]) == 0
+    rows = table.read_text().splitlines()
+    header, first = rows[0].split(","), rows[1].split(",")
+    assert float(first[header.index("probe beam.direction_deg")]) == -10.0
+    assert float(first[header.index("efficiency: inside chamber")]) == pytest.approx(traced, rel=1e-12)
+    roof = str(ROOT / "samples" / "roof-prism-retroreflector.json")
+    assert main(["tolerance", roof, "--tol", "roof prism.roof_angle_deg=-0.5,+0", "--figure", "return",
+                 "--samples", "4", "--rays", "50", "--workers", "1", "--csv", str(tmp_path / "tol.csv")]) == 0
+    rows = (tmp_path / "tol.csv").read_text().splitlines()
+    column = rows[0].split(",").index("deviation: roof prism.roof_angle_deg")
+    deviations = [float(r.split(",")[column]) for r in rows[1:]]
+    assert deviations and all(-0.5 <= d <= 0 for d in deviations)
+
+
+@pytest.mark.parametrize("args", [
+    ["trace", PIPE, "--target-error", "1%", "--target-figure", "viewer side.accepted"],
+    ["sweep", PIPE, "--vary", "bend_radius=4:8:2", "--csv", "never-written.csv", "--figure", "viewer side.accepted"],
+    ["sweep", PIPE, "--vary", "bend_radius=4:8:2", "--csv", "never-written.csv", "--target-error", "5%",
+     "--target-figure", "viewer side.accepted"],
+])
+def test_accepted_share_of_a_detector_without_acceptance_says_how_to_set_one(tmp_path, monkeypatch, capsys, args):
+    """The light pipe's detector has no acceptance cone: asking for its accepted share is a usage
+    error naming the detector, the scene field that sets a cone and the figures there are,
+    before anything is traced (the sweep used to write an empty column, or fail every point)."""
+    monkeypatch.chdir(tmp_path)
+    assert main(args) == 2
+    err = capsys.readouterr().err
+    assert "detector 'viewer side' has no acceptance cone set" in err
+    assert f"{PIPE} at $.detectors[0].acceptance" in err and '"half_angle_deg"' in err
+    assert "'viewer side" in err.split("available:")[1]
+    assert not (tmp_path / "never-written.csv").exists()
+
+
+def test_accepted_share_of_a_detector_with_acceptance_is_still_a_target(capsys):
+    """The roof prism's return detector has an acceptance: its accepted share is a valid target."""
+    roof = str(ROOT / "samples" / "roof-prism-retroreflector.json")
+    assert main(["trace", roof, "--target-error", "5%", "--target-figure", "return.accepted", "--quiet"]) == 0
+
+
+def test_json_records_each_set_so_the_result_can_be_traced_again(tmp_path):
+    """`trace --set ... --json` lists every --set (name, value as typed, value used, fields set);
+    writing those values at those fields of the scene file and tracing it gives the same ledger."""
+    out = tmp_path / "set.json"
+    assert main(["trace", PIPE, "--set", "bend_radius=5", "--set", "trace.rays=6e2", "--set", "guide.width=3.25",
+                 "--quiet", "--json", str(out)]) == 0
+    summary = json.loads(out.read_text())
+    recorded = summary["settings"]["set"]
+    assert recorded == [
+        {"name": "bend_radius", "given": "5", "value": 5.0, "fields": ["$.numbers.bend_radius"]},
+        {"name": "trace.rays", "given": "6e2", "value": 600, "fields": ["$.trace.rays"]},
+        {"name": "guide.width", "given": "3.25", "value": 3.25, "fields": ["$.parts[0].shape.params.width"]}]
+    data = json.loads(Path(PIPE).read_text())
+    for entry in recorded:
+        for field in entry["fields"]:
+            keys = [int(k) if k.isdigit() else k
+                    for k in field[2:].replace("[", ".").replace("]", "").split(".")]
+            node = data
+            for k in keys[:-1]:
+                node = node[k]
+            node[keys[-1]] = entry["value"]
+    edited = tmp_path / "edited.json"
+    edited.write_text(json.dumps(data))
+    ref = tmp_path / "ref.json"
+    assert main(["trace", str(edited), "--quiet", "--json", str(ref)]) == 0
+    again = json.loads(ref.read_text())
+    assert again["buckets"] == summary["buckets"] and again["settings"]["rays"] == 600
+    assert "set" not in again["settings"]
+
+
+BEND = "guide.segments[1].bend.radius"      # linked in the sample by "= bend_radius"
+
+
+@pytest.mark.parametrize("args,named,linked", [
+    (["trace", PIPE, "--set", "bend_radius=5", "--set", f"{BEND}=6"], "--set bend_radius", f"--set {BEND}"),
+    (["trace", PIPE, "--set", f"{BEND}=6", "--set", "bend_radius=5"], "--set bend_radius", f"--set {BEND}"),
+    (["trace", PIPE, "--set", "gap=1", "--set", "panel window.position[1]=6"], "--set gap",
+     "--set panel window.position[1]"),
+    (["sweep", PIPE, "--vary", "bend_radius=4:8:2", "--vary", f"{BEND}=4:8:2", "--csv", "never-written.csv"],
+     "--vary bend_radius", f"--vary {BEND}"),
+    (["optimize", PIPE, "--vary", "bend_radius=4:9", "--vary", f"{BEND}=4:9", "--figure", "viewer side"],
+     "--vary bend_radius", f"--vary {BEND}"),
+    (["tolerance", PIPE, "--tol", "bend_radius=0.1", "--tol", f"{BEND}=0.1", "--figure", "viewer side"],
+     "--tol bend_radius", f"--tol {BEND}"),
+])
+def test_a_named_number_and_a_field_linked_to_it_are_refused_together(tmp_path, monkeypatch, capsys,
+                                                                      args, named, linked):
+    """Setting a named number and a field linked to it: the field's value replaces its link, so
+    the named number's never reaches it.  Refused as a usage error (exit 2) naming both."""
+    monkeypatch.chdir(tmp_path)
+    assert main(args) == 2
+    err = capsys.readouterr().err
+    assert f"error: {linked}: found <linked to the named number" in err
+    assert f"{named} alone" in err and f"{linked} alone" in err
+    assert not (tmp_path / "never-written.csv").exists()
+
+
+def test_a_named_number_linked_through_another_is_refused_with_it(tmp_path, capsys):
+    """Named numbers may follow each other ("gap": "radius / 16"): setting radius and gap, or
+    radius and a field "= gap", leaves one of them ignored too; two unrelated numbers pass."""
+    data = json.loads(Path(PIPE).read_text())
+    data["numbers"] = {"bend_radius": 8.0, "gap": "bend_radius / 16"}
+    scene = tmp_path / "chain.json"
+    scene.write_text(json.dumps(data))
+    assert main(["trace", str(scene), "--set", "bend_radius=6", "--set", "gap=1", "--quiet"]) == 2
+    assert "error: --set gap: found <linked to the named number bend_radius by 'bend_radius / 16'" in \
+        capsys.readouterr().err
+    assert main(["trace", str(scene), "--set", "bend_radius=6", "--set", "panel window.position[1]=9",
+                 "--quiet"]) == 2
+    assert "by '= guide.output_y + gap'" in capsys.readouterr().err
+    assert main(["trace", PIPE, "--set", "bend_radius=6", "--set", "guide.width=3.2", "--rays", "50",
+                 "--quiet"]) == 0
