@@ -1,0 +1,78 @@
+"""Rough edges of the editor, checked the way a user meets them: a window of 1024 x 700 or
+larger, files opened from disk, keys and mouse events sent to the widgets."""
+from __future__ import annotations
+
+import json
+import os
+from pathlib import Path
+
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+
+import pytest  # noqa: E402
+
+pytest.importorskip("pytestqt")
+
+from PySide6.QtCore import QRect, Qt  # noqa: E402
+from PySide6.QtGui import QFontMetrics  # noqa: E402
+
+from test_gui import home, make_window, wait_traced, win  # noqa: E402,F401  (the GUI tests' fixtures)
+from test_gui_report import shown  # noqa: E402
+
+SAMPLES = Path(__file__).resolve().parents[1] / "samples"
+LIGHT_PIPE = SAMPLES / "light-pipe-90.json"
+MICROPRISM = SAMPLES / "microprism-strip.json"
+
+ZWSP = "\u200b"
+
+
+# ---------------------------------------------------------------------------- 1. ledger names
+def _long_named_film(tmp_path) -> Path:
+    data = json.loads(MICROPRISM.read_text())
+    data["parts"][0]["name"] = "brightness_enhancement_film_PMMA_90deg_rev_B"
+    data["detectors"][0]["name"] = "viewer side, 300 mm in front of the display panel"
+    data["detectors"][1]["name"] = "recycled towards the backlight's reflector sheet"
+    path = tmp_path / "long-names.json"
+    path.write_text(json.dumps(data))
+    return path
+
+
+@pytest.mark.parametrize("size", [(1024, 700), (1600, 1000)])
+def test_every_ledger_row_is_readable_in_full(qtbot, win, tmp_path, size):
+    """Long part, face and detector names wrap in the ledger instead of ending in an ellipsis,
+    the figures keep their columns, and the panel still shows every row without scrolling."""
+    shown(qtbot, win, size)
+    assert win.open_file(str(_long_named_film(tmp_path)))
+    wait_traced(qtbot, win)
+    qtbot.wait(50)
+    tree = win.ledger.tree
+    fm = QFontMetrics(tree.font())
+    items = win.ledger.items()
+    names = [it.text(0).replace(ZWSP, "") for it in items]
+    assert "brightness_enhancement_film_PMMA_90deg_rev_B / prism facet" in names
+    assert "viewer side, 300 mm in front of the display panel" in names
+    col0 = tree.header().sectionSize(0)
+    wrapped = 0
+    for it in items:
+        rect = tree.visualItemRect(it)
+        assert rect.height() > 0, it.text(0)
+        indent = 0 if it.parent() is None else tree.indentation()
+        text_w = col0 - indent - 8            # the delegate's margins
+        need = fm.boundingRect(QRect(0, 0, text_w, 10_000), Qt.TextWordWrap, it.text(0)).height()
+        # the row is tall enough for the wrapped name, and no line is wider than the column
+        assert rect.height() >= need - 1, (it.text(0), rect.height(), need)
+        for word in it.text(0).replace(ZWSP, " ").split():
+            assert fm.horizontalAdvance(word) <= text_w + 1, word
+        wrapped += need > fm.lineSpacing() + 1
+        for c in (1, 2, 3):                  # the figures shown are never cut
+            if not tree.isColumnHidden(c):
+                assert fm.horizontalAdvance(it.text(c)) <= tree.header().sectionSize(c), it.text(c)
+        if it.parent() is not None:          # the flux is always there: in its column or tooltip
+            assert it.toolTip(2) == f"flux {it.text(1)}"
+    if size[0] == 1024:
+        assert wrapped >= 2, "at 1024 px the long names take more than one line"
+        assert tree.isColumnHidden(1), "the narrow panel gives the names the flux column's width"
+    else:
+        assert not tree.isColumnHidden(1), "a wide panel shows the flux column"
+    assert tree.verticalScrollBar().maximum() == 0, "every row shows without scrolling"
+    assert tree.horizontalScrollBar().maximum() == 0 or not tree.horizontalScrollBar().isVisible()
+    win.grab().save(str(tmp_path / f"ledger-{size[0]}.png"))
