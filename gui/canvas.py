@@ -210,6 +210,7 @@ class Canvas(QWidget):
 
         self.view = _View(self)
         self.plot = pg.PlotWidget(viewBox=self.view, background=style.BACKGROUND)
+        self.fit_left_out: list[str] = []    # detectors the last fit left outside the view
         self.plot.hideButtons()      # no auto-range "A": Ctrl+0 fits, and it must not show in pictures
         self.plot.setLabel("bottom", "x", units="mm")
         self.plot.setLabel("left", "y", units="mm")
@@ -524,9 +525,11 @@ class Canvas(QWidget):
         return (min(b[0] for b in boxes), min(b[1] for b in boxes),
                 max(b[2] for b in boxes), max(b[3] for b in boxes))
 
-    def fit(self) -> None:
-        """Frame the parts and sources with a margin; detectors only when they are near the parts
-        (a detector far away would shrink a thin film to a sliver)."""
+    def fit(self, everything: bool = False) -> None:
+        """Frame what matters: the parts and the sources, with a margin.  A detector counts by
+        its point nearest the parts when that lies within reach of them, so a long detector over
+        a thin film crosses the frame without shrinking the film to a sliver; a detector further
+        away is named in the status bar.  `everything` frames every detector whole as well."""
         s = self.scene
         xs, ys = [], []
         box = self.parts_box()
@@ -537,21 +540,30 @@ class Canvas(QWidget):
             for q in self.source_span(src):
                 xs.append(q[0])
                 ys.append(q[1])
-        # detectors count as far as they lie within reach of the parts (ends clamped there)
-        reach = 0.5 * math.hypot(box[2] - box[0], box[3] - box[1]) if box else math.inf
+        core = (min(xs), min(ys), max(xs), max(ys)) if xs else None
+        outside = []
         for d in s.detectors:
-            for q in (d.start, d.end):
-                if box is None:
-                    xs.append(q[0])
-                    ys.append(q[1])
-                else:
-                    xs.append(min(max(q[0], box[0] - reach), box[2] + reach))
-                    ys.append(min(max(q[1], box[1] - reach), box[3] + reach))
+            if everything or core is None:
+                xs += [d.start[0], d.end[0]]
+                ys += [d.start[1], d.end[1]]
+                continue
+            centre = ((core[0] + core[2]) / 2, (core[1] + core[3]) / 2)
+            reach = max(0.75 * math.hypot(core[2] - core[0], core[3] - core[1]), 1e-3)
+            q = _nearest_on_segment(centre, d.start, d.end)
+            if math.hypot(q[0] - centre[0], q[1] - centre[1]) <= reach:
+                xs.append(q[0])
+                ys.append(q[1])
+            else:
+                outside.append(d.name)
         if not xs:
             xs, ys = [-10, 10], [-10, 10]
         w = max(max(xs) - min(xs), max(ys) - min(ys), 1e-3)
         m = 0.12 * w
         self.view.setRange(xRange=(min(xs) - m, max(xs) + m), yRange=(min(ys) - m, max(ys) + m), padding=0)
+        self.fit_left_out = outside
+        if outside:
+            self.message(f"Outside the view: detector {', '.join(outside)} (View > Fit everything, "
+                         "Ctrl+Shift+0, shows it)")
 
     def _draw_parts(self) -> None:
         for it in self._part_items:
@@ -834,6 +846,13 @@ def _detector_ticks(det, g: float) -> QPainterPath:
         path.moveTo(x, y)
         path.lineTo(x + 0.45 * g * (bx - 0.5 * ux), y + 0.45 * g * (by - 0.5 * uy))
     return path
+
+
+def _nearest_on_segment(p, a, b) -> tuple[float, float]:
+    dx, dy = b[0] - a[0], b[1] - a[1]
+    L2 = dx * dx + dy * dy
+    t = 0.0 if L2 == 0 else min(max(((p[0] - a[0]) * dx + (p[1] - a[1]) * dy) / L2, 0.0), 1.0)
+    return (a[0] + t * dx, a[1] + t * dy)
 
 
 def _segment_distance(p, a, b) -> float:

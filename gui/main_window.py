@@ -191,7 +191,10 @@ class MainWindow(QMainWindow):
                   "A material of your own: constant index or nd/Vd glass")
 
         v = mb.addMenu("&View")
-        self._act(v, "&Fit scene", self.canvas.fit, "Ctrl+0", "Show the whole scene")
+        self._act(v, "&Fit parts and sources", lambda: self.canvas.fit(), "Ctrl+0",
+                  "Frame the parts and sources (detectors near them cross the frame)")
+        self._act(v, "Fit &everything", lambda: self.canvas.fit(everything=True), "Ctrl+Shift+0",
+                  "Frame the parts, sources and every detector whole")
         self.grid_action = self._act(v, "&Grid", self.canvas.show_grid, "G", "Show the grid", True)
         self.grid_action.setChecked(True)
         self.wavelength_colour_action = self._act(

@@ -76,3 +76,57 @@ def test_every_ledger_row_is_readable_in_full(qtbot, win, tmp_path, size):
     assert tree.verticalScrollBar().maximum() == 0, "every row shows without scrolling"
     assert tree.horizontalScrollBar().maximum() == 0 or not tree.horizontalScrollBar().isVisible()
     win.grab().save(str(tmp_path / f"ledger-{size[0]}.png"))
+
+
+# ---------------------------------------------------------------------------- 2. fit frames the parts
+def _frame(win):
+    (x0, x1), (y0, y1) = win.canvas.view.viewRange()
+    return x0, x1, y0, y1
+
+
+def _fit_keys(qtbot, win, modifiers):
+    win.activateWindow()
+    qtbot.waitUntil(win.isActiveWindow, timeout=5000)
+    win.canvas.zoom(0.2)                              # somewhere else first, so the key must act
+    qtbot.keyClick(win.canvas.plot, Qt.Key_0, modifiers)
+    qtbot.wait(20)
+
+
+@pytest.mark.parametrize("size", [(1024, 700), (1600, 1000)])
+def test_ctrl_0_frames_the_prism_film_and_its_detectors_cross_the_frame(qtbot, win, size):
+    """The prism film sample: 12 mm of film between two 40 mm detectors.  Ctrl+0 makes the film
+    most of the drawing's width; both detectors still cross the frame; Ctrl+Shift+0 shows the
+    detectors whole; Ctrl+= and Ctrl+- still zoom about the view."""
+    shown(qtbot, win, size)
+    assert win.open_file(str(MICROPRISM))
+    _fit_keys(qtbot, win, Qt.ControlModifier)
+    x0, x1, y0, y1 = _frame(win)
+    px0, _, px1, _ = win.canvas.parts_box()
+    assert (px1 - px0) / (x1 - x0) > 0.7, "the film fills most of the width"
+    for d in win.doc.scene.detectors:                 # horizontal detectors at y = 8 and y = 0
+        assert y0 < d.start[1] < y1 and min(d.start[0], d.end[0]) < x0 and max(d.start[0], d.end[0]) > x1
+    assert win.canvas.fit_left_out == []
+    _fit_keys(qtbot, win, Qt.ControlModifier | Qt.ShiftModifier)
+    x0, x1, y0, y1 = _frame(win)
+    assert x0 < -20 and x1 > 20, "fit everything shows the detectors end to end"
+    width = x1 - x0
+    qtbot.keyClick(win.canvas.plot, Qt.Key_Equal, Qt.ControlModifier)
+    assert _frame(win)[1] - _frame(win)[0] < 0.9 * width, "Ctrl+= zooms in"
+    qtbot.keyClick(win.canvas.plot, Qt.Key_Minus, Qt.ControlModifier)
+    assert _frame(win)[1] - _frame(win)[0] == pytest.approx(width, rel=1e-6), "Ctrl+- zooms back out"
+
+
+def test_a_far_detector_is_named_when_the_fit_leaves_it_out(qtbot, win, tmp_path):
+    """A screen 500 mm from a 12 mm film would shrink the film to nothing: Ctrl+0 leaves it out
+    of the frame and the status bar names it and the key that shows it."""
+    data = json.loads(MICROPRISM.read_text())
+    data["detectors"][0]["start"], data["detectors"][0]["end"] = [-20.0, 500.0], [20.0, 500.0]
+    path = tmp_path / "far.json"
+    path.write_text(json.dumps(data))
+    shown(qtbot, win, (1024, 700))
+    assert win.open_file(str(path))
+    _fit_keys(qtbot, win, Qt.ControlModifier)
+    x0, x1, y0, y1 = _frame(win)
+    assert y1 < 500 and (12.0 / (x1 - x0)) > 0.7
+    assert win.canvas.fit_left_out == ["viewer"]
+    assert "viewer" in win.statusBar().currentMessage() and "Ctrl+Shift+0" in win.statusBar().currentMessage()
