@@ -169,6 +169,9 @@ class MainWindow(QMainWindow):
                   "The drawn rays' segments, one row each")
         self._act(f, "Export drawing (PNG)...", lambda: self.export_png(), None, "The drawing with its legend")
         self._act(f, "Export drawing (SVG)...", lambda: self.export_svg(), None, "The drawing as vector graphics")
+        self.export_dxf_action = self._act(
+            f, "Export cross-section as D&XF...", lambda: self.export_dxf(), None,
+            "The parts' outlines and holes as DXF lines and arcs in mm, a layer per material")
         f.addSeparator()
         quit_action = self._act(f, "&Quit", self.close, None, "Quit (asks first when there are unsaved changes)")
         quit_action.setShortcuts(distinct_keys(QKeySequence.Quit, "Ctrl+Q"))   # Quit is empty on some platforms
@@ -478,6 +481,15 @@ class MainWindow(QMainWindow):
     def export_svg(self) -> bool:
         return self._export("the drawing", ".svg", "SVG image (*.svg)",
                             lambda p: save_figure_svg(self.canvas, p, **self._figure_titles()))
+
+    def export_dxf(self) -> bool:
+        """File > Export cross-section as DXF: the parts as they are edited, for the CAD model."""
+        from raytrace.dxf_io import export_dxf
+        if not self.doc.scene.parts:
+            self.show_error("Not exported", "The scene has no parts to export.")
+            return False
+        return self._export("the cross-section", ".dxf", "DXF drawing (*.dxf)",
+                            lambda p: (export_dxf(self.doc.scene, p), None)[1])
 
     def offer_recovery(self) -> bool:
         """After a crash: offer the newest recovery copy; True when one was restored."""

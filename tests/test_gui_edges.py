@@ -130,3 +130,55 @@ def test_a_far_detector_is_named_when_the_fit_leaves_it_out(qtbot, win, tmp_path
     assert y1 < 500 and (12.0 / (x1 - x0)) > 0.7
     assert win.canvas.fit_left_out == ["viewer"]
     assert "viewer" in win.statusBar().currentMessage() and "Ctrl+Shift+0" in win.statusBar().currentMessage()
+
+
+# ---------------------------------------------------------------------------- 6. DXF export
+def test_export_cross_section_as_dxf_writes_the_edited_parts(qtbot, win, tmp_path):
+    """Open the light pipe, move the guide one grid step by key, File > Export cross-section as
+    DXF: the file, read back with ezdxf (the reference DXF library), holds every edge of the
+    edited scene in mm as a LINE or an ARC with the same ends, centre and radius."""
+    import ezdxf
+    from gui import edits
+    shown(qtbot, win, (1024, 700))
+    assert win.open_file(str(LIGHT_PIPE))
+    win.activateWindow()
+    qtbot.waitUntil(win.isActiveWindow, timeout=5000)
+    win.canvas.select((edits.PART, 0))
+    win.canvas.setFocus()
+    qtbot.keyClick(win.canvas.plot, Qt.Key_Right)
+    scene = win.doc.scene
+    out = tmp_path / "section.dxf"
+    win.ask_save_path = lambda *a, **k: str(out)
+    menu = next(a.menu() for a in win.menuBar().actions() if a.text() == "&File")
+    action = next(a for a in menu.actions() if a.text() == "Export cross-section as D&XF...")
+    action.trigger()
+    assert out.exists(), win.errors
+    assert "Exported the cross-section" in win.statusBar().currentMessage()
+    doc = ezdxf.readfile(out)
+    assert doc.header["$INSUNITS"] == 4                       # DXF reference: 4 = millimetres
+    msp = doc.modelspace()
+    lines = [((e.dxf.start.x, e.dxf.start.y), (e.dxf.end.x, e.dxf.end.y)) for e in msp.query("LINE")]
+    arcs = [(e.dxf.center.x, e.dxf.center.y, e.dxf.radius, e.start_point, e.end_point) for e in msp.query("ARC")]
+    n = 0
+    for part in scene.parts:
+        for loop in part.loops:
+            for e in loop.edges:
+                n += 1
+                if e.is_arc:
+                    assert any(abs(cx - e.arc_center[0]) < 1e-9 and abs(cy - e.arc_center[1]) < 1e-9
+                               and abs(r - e.radius) < 1e-9
+                               and {(round(p.x, 9), round(p.y, 9)) for p in (a, b)}
+                               == {(round(q[0], 9), round(q[1], 9)) for q in (e.start, e.end)}
+                               for cx, cy, r, a, b in arcs), e
+                else:
+                    assert any({tuple(round(v, 9) for v in p) for p in ln}
+                               == {tuple(round(v, 9) for v in q) for q in (e.start, e.end)} for ln in lines), e
+    assert len(lines) + len(arcs) == n
+    assert arcs, "the bend stays arcs"
+    before = load_first_x(LIGHT_PIPE)
+    assert min(x for (a, b) in lines for x in (a[0], b[0])) == pytest.approx(before + 1.0), "the moved guide"
+
+
+def load_first_x(path):
+    from raytrace.scene_io import load_scene
+    return min(x for p in load_scene(path).parts for lp in p.loops for e in lp.edges for x in (e.start[0], e.end[0]))
