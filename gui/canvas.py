@@ -745,6 +745,13 @@ class Canvas(QWidget):
         # dense fans are drawn fainter so that overlapping legs still read as separate rays
         dim = min(1.0, max(0.4, math.sqrt(5000.0 / max(self.drawing.n_segments, 1))))
         hide_faintest = self.drawing.n_segments > FAINT_SHOWN_BELOW
+        thinned = self.drawing.n_thinned > 0
+        self.legend.fade_note.setText("(all fade with flux; crowded fans thinned)" if thinned
+                                      else "(all fade with flux)")
+        self.legend.fade_note.setToolTip(FADE_NOTE + (
+            f".  Where legs crowd so that they would paint a solid fill, they are drawn a step fainter "
+            f"and only every 2nd, 4th... source ray is drawn there ({self.drawing.n_thinned:,} legs "
+            f"not drawn); the flux ledger counts them all." if thinned else ""))
         groups = [g for g in self._ray_groups() if not (hide_faintest and g[1] == len(LEVELS) - 1)]
         while len(self._ray_items) < len(groups):
             item = pg.PlotCurveItem(connect="pairs", antialias=False, skipFiniteCheck=True)

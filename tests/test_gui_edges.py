@@ -182,3 +182,55 @@ def test_export_cross_section_as_dxf_writes_the_edited_parts(qtbot, win, tmp_pat
 def load_first_x(path):
     from raytrace.scene_io import load_scene
     return min(x for p in load_scene(path).parts for lp in p.loops for e in lp.edges for x in (e.start[0], e.end[0]))
+
+
+# ---------------------------------------------------------------------------- 4. dense ray fans
+def _guide_pixels(qtbot, win, with_rays: bool):
+    """The drawing's pixels over the upright arm of the light pipe (x 18.5..20.5, y 12..19 mm)."""
+    import numpy as np
+    from gui_events import widget_point
+    for it in win.canvas._ray_items:
+        it.setVisible(with_rays)
+    qtbot.wait(20)
+    img = win.canvas.plot.viewport().grab().toImage()
+    a, b = widget_point(win.canvas, (18.5, 19.0)), widget_point(win.canvas, (20.5, 12.0))
+    out = np.array([[img.pixelColor(x, y).getRgb()[:3] for x in range(int(a.x()), int(b.x()))]
+                    for y in range(int(a.y()), int(b.y()))], dtype=float)
+    for it in win.canvas._ray_items:
+        it.setVisible(True)
+    return out
+
+
+def test_a_dense_tir_fan_reads_as_rays_not_as_a_fill(qtbot, win):
+    """The light pipe's 2,000 source rays bounce by TIR thousands of times in a 3 mm guide.  Drawn
+    with opaque lines they painted the guide solid green; now most of the guide's tint shows
+    between the rays, green TIR rays still show there, and the legend says the fan is thinned."""
+    import numpy as np
+    from gui import style  # noqa: F401  (the colours are the canvas's own)
+    from gui.canvas import KIND_COLOUR
+    shown(qtbot, win, (1024, 700))
+    assert win.open_file(str(LIGHT_PIPE))
+    wait_traced(qtbot, win)
+    qtbot.wait(30)
+    bare = _guide_pixels(qtbot, win, with_rays=False)
+    drawn = _guide_pixels(qtbot, win, with_rays=True)
+    tint = np.median(bare.reshape(-1, 3), axis=0)
+    same = np.abs(drawn - tint).max(axis=2) <= 3
+    assert same.mean() > 0.5, f"only {same.mean():.0%} of the guide shows its tint between the rays"
+    green = KIND_COLOUR["tir"]
+    g = np.array([green.red(), green.green(), green.blue()], dtype=float)
+    # a TIR leg's pixel lies between the tint and the TIR colour: closer to that colour than the tint
+    toward = ((drawn - tint) @ (g - tint)) / ((g - tint) @ (g - tint))
+    assert (toward > 0.2).mean() > 0.02, "TIR rays still show in the guide"
+    assert win.canvas.drawing.n_thinned > 0
+    assert "thinned" in win.canvas.legend.fade_note.text()
+    assert "ledger counts them all" in win.canvas.legend.fade_note.toolTip()
+
+
+def test_a_sparse_beam_is_neither_faded_nor_thinned(qtbot, win):
+    """The oblique window's parallel beam does not crowd: every leg is drawn at its flux step."""
+    shown(qtbot, win, (1024, 700))
+    assert win.open_file(str(SAMPLES / "oblique-window.json"))
+    wait_traced(qtbot, win)
+    assert win.canvas.drawing.n_thinned == 0
+    assert win.canvas.legend.fade_note.text() == "(all fade with flux)"
