@@ -19,6 +19,7 @@ from PySide6.QtWidgets import (QGraphicsPathItem, QHBoxLayout, QLabel, QSizePoli
 from raytrace.scene import EMITTER, POINT, Scene
 
 from . import edits, style
+from .arcs import signed_radius
 from .flow_layout import FlowLayout
 from .overlay import Overlay, pass_clicks
 from .raydraw import ESCAPE_REACH, KINDS, LEVEL_ALPHA, LEVELS, RayDrawing, arrow_strokes, ray_drawing
@@ -797,7 +798,10 @@ class Canvas(QWidget):
         part = self.scene.parts[f[0]]
         e = part.outer.edges[f[1]]
         t = e.treatment.kind + (f" R={e.treatment.reflectance:g}" if e.treatment.kind == "mirror" else "")
-        return f"{part.name} / {e.face or f'edge {f[1] + 1}'} ({t})"
+        arc = ""
+        if e.is_arc:        # signed as the arc tool and the vertex table take it
+            arc = f", arc R {signed_radius(part, 0, f[1]):.4g} mm"
+        return f"{part.name} / {e.face or f'edge {f[1] + 1}'} ({t}{arc})"
 
 
 # ---------------------------------------------------------------------- glyph shapes

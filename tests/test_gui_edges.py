@@ -234,3 +234,75 @@ def test_a_sparse_beam_is_neither_faded_nor_thinned(qtbot, win):
     wait_traced(qtbot, win)
     assert win.canvas.drawing.n_thinned == 0
     assert win.canvas.legend.fade_note.text() == "(all fade with flux)"
+
+
+# ---------------------------------------------------------------------------- 3. arcs and holes in the table
+def _type_in_cell(qtbot, table, row, col, text):
+    """Click-select the cell, F2 to edit, select what is there, type, Enter: as a user does."""
+    from PySide6.QtTest import QTest
+    from PySide6.QtWidgets import QApplication
+    table.setFocus()
+    table.setCurrentCell(row, col)
+    QTest.keyClick(table, Qt.Key_F2)
+    qtbot.wait(10)
+    editor = QApplication.focusWidget()
+    QTest.keyClick(editor, Qt.Key_A, Qt.ControlModifier)
+    QTest.keyClicks(editor, text)
+    QTest.keyClick(editor, Qt.Key_Return)
+    qtbot.wait(10)
+
+
+def test_vertex_table_shows_and_edits_arc_radii_and_hole_rows(qtbot, win, tmp_path):
+    """A ring (a 20 x 10 plate with a round hole of radius 2) saved to disk and opened: the
+    table lists the outline's four vertices and the hole's two, each arc with its radius; an
+    outline edge typed to R 40 becomes that arc, a radius shorter than half the edge is refused
+    with a message naming the part, row and field, Ctrl+Z undoes, and the saved file reopens
+    with the arc.  Hovering the arc's face shows its radius."""
+    from raytrace.scene_io import load_scene, save_scene
+    from test_dxf_io import scene_with_everything
+    import gui_events
+    from gui import edits
+    path = tmp_path / "ring.json"
+    save_scene(scene_with_everything(), path)
+    shown(qtbot, win, (1024, 700))
+    assert win.open_file(str(path))
+    win.canvas.select((edits.PART, 0))
+    qtbot.wait(20)
+    from PySide6.QtWidgets import QTableWidget
+    table = next(t for t in win.properties.findChildren(QTableWidget)
+                 if t.isVisibleTo(win.properties) and t.columnCount() == 6)
+    heads = [table.verticalHeaderItem(r).text() for r in range(table.rowCount())]
+    assert heads == ["1", "2", "3", "4", "hole 1.1", "hole 1.2"]
+    assert table.horizontalHeaderItem(5).text() == "arc R (mm)"
+    assert [table.item(r, 5).text() for r in range(6)][:4] == ["", "", "", ""]
+    hole_r = [float(table.item(r, 5).text()) for r in (4, 5)]
+    assert [abs(r) for r in hole_r] == [2.0, 2.0]         # the hole's half circles, radius 2 mm
+    assert not table.item(4, 0).flags() & Qt.ItemIsEditable   # a hole's vertices are shown only
+
+    _type_in_cell(qtbot, table, 0, 5, "40")               # edge 1, (0,0) -> (20,0), chord 20 mm
+    e = win.doc.scene.parts[0].outer.edges[0]
+    assert e.is_arc and e.radius == pytest.approx(40.0) and e.start == (0, 0) and e.end == (20, 0)
+    assert table.item(0, 5).text() == "40"
+    bent = win.doc.scene
+    _type_in_cell(qtbot, table, 1, 5, "3")                # edge 2 is 10 mm long: R 3 cannot span it
+    assert win.doc.scene is bent, "a bad radius changes nothing"
+    said = win.statusBar().currentMessage()
+    assert "ring, row 2: arc R:" in said and "half the edge's length (5 mm)" in said, said
+    assert table.item(1, 5).text() == ""
+    _type_in_cell(qtbot, table, 4, 5, "-2.5")             # a hole's edge: radius 2.5 into the material
+    assert win.doc.scene.parts[0].holes[0].edges[0].radius == pytest.approx(2.5)
+
+    # hovering the bent face says its radius (it bulges out of the plate: +40)
+    mid = e.point_at(0.5)
+    win.canvas.fit()
+    gui_events.hover(qtbot, win.canvas, mid)
+    assert "arc R 40 mm" in win.canvas.hover_text(*mid)
+
+    win.canvas.setFocus()
+    qtbot.keyClick(win.canvas.plot, Qt.Key_Z, Qt.ControlModifier)
+    assert win.doc.scene is bent, "Ctrl+Z undoes the hole's radius"
+    out = tmp_path / "ring-bent.json"
+    win.ask_save_path = lambda *a, **k: str(out)
+    assert win.save_as()
+    again = load_scene(out, check_shapes=False).parts[0].outer.edges[0]
+    assert again.is_arc and again.radius == pytest.approx(40.0)
