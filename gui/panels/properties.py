@@ -324,8 +324,8 @@ class PartPage(_Page):
         except ValueError as exc:
             row_name = self.table.verticalHeaderItem(row).text() if self.table.verticalHeaderItem(row) else str(row + 1)
             field = "arc R: " if col == self.RADIUS_COL else ""
-            self.error(f"{p.name}, row {row_name}: {field}{exc}" if "expected" in str(exc)
-                       else f"{p.name}, row {row_name}: {field}expected {exc}")
+            self.error(f"row {row_name}: {field}{exc}" if "expected" in str(exc)
+                       else f"row {row_name}: {field}expected {exc}")
             self.show(self.doc.scene, self.index)
             return
         self._replace(new, what)
