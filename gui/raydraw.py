@@ -147,7 +147,7 @@ CROWD_START = 1.0       # covered share where fading starts (solid ink); each fu
 CROWD_MAX_STEPS = 1
 CROWD_DIRECTIONS = 12   # direction bins of 15 degrees
 CROWD_TANGLE = 5        # a cell with ink in this many direction bins is a tangle, not beams
-CROWD_CAP = 0.5         # at most this covered share is drawn in a cell; the rest is thinned
+CROWD_CAP = 1.0         # at most this covered share is drawn in a cell; the rest is thinned
 
 
 def crowding(seg, root: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
