@@ -19,6 +19,7 @@ from PySide6.QtWidgets import (QGraphicsPathItem, QHBoxLayout, QLabel, QSizePoli
 from raytrace.scene import EMITTER, POINT, Scene
 
 from . import edits, style
+from .arcs import signed_radius
 from .flow_layout import FlowLayout
 from .overlay import Overlay, pass_clicks
 from .raydraw import (KINDS, LEVEL_ALPHA, LEVELS, RayDrawing, arrow_strokes, escape_reach_for, parts_box,
@@ -211,6 +212,7 @@ class Canvas(QWidget):
 
         self.view = _View(self)
         self.plot = pg.PlotWidget(viewBox=self.view, background=style.BACKGROUND)
+        self.fit_left_out: list[str] = []    # detectors the last fit left outside the view
         self.plot.hideButtons()      # no auto-range "A": Ctrl+0 fits, and it must not show in pictures
         self.plot.setLabel("bottom", "x", units="mm")
         self.plot.setLabel("left", "y", units="mm")
@@ -526,9 +528,11 @@ class Canvas(QWidget):
         """(x0, y0, x1, y1) around the parts, or None without parts."""
         return parts_box(self.scene)
 
-    def fit(self) -> None:
-        """Frame the parts and sources with a margin; detectors only when they are near the parts
-        (a detector far away would shrink a thin film to a sliver)."""
+    def fit(self, everything: bool = False) -> None:
+        """Frame what matters: the parts and the sources, with a margin.  A detector counts by
+        its point nearest the parts when that lies within reach of them, so a long detector over
+        a thin film crosses the frame without shrinking the film to a sliver; a detector further
+        away is named in the status bar.  `everything` frames every detector whole as well."""
         s = self.scene
         xs, ys = [], []
         box = self.parts_box()
@@ -539,21 +543,30 @@ class Canvas(QWidget):
             for q in self.source_span(src):
                 xs.append(q[0])
                 ys.append(q[1])
-        # detectors count as far as they lie within reach of the parts (ends clamped there)
-        reach = 0.5 * math.hypot(box[2] - box[0], box[3] - box[1]) if box else math.inf
+        core = (min(xs), min(ys), max(xs), max(ys)) if xs else None
+        outside = []
         for d in s.detectors:
-            for q in (d.start, d.end):
-                if box is None:
-                    xs.append(q[0])
-                    ys.append(q[1])
-                else:
-                    xs.append(min(max(q[0], box[0] - reach), box[2] + reach))
-                    ys.append(min(max(q[1], box[1] - reach), box[3] + reach))
+            if everything or core is None:
+                xs += [d.start[0], d.end[0]]
+                ys += [d.start[1], d.end[1]]
+                continue
+            centre = ((core[0] + core[2]) / 2, (core[1] + core[3]) / 2)
+            reach = max(0.75 * math.hypot(core[2] - core[0], core[3] - core[1]), 1e-3)
+            q = _nearest_on_segment(centre, d.start, d.end)
+            if math.hypot(q[0] - centre[0], q[1] - centre[1]) <= reach:
+                xs.append(q[0])
+                ys.append(q[1])
+            else:
+                outside.append(d.name)
         if not xs:
             xs, ys = [-10, 10], [-10, 10]
         w = max(max(xs) - min(xs), max(ys) - min(ys), 1e-3)
         m = 0.12 * w
         self.view.setRange(xRange=(min(xs) - m, max(xs) + m), yRange=(min(ys) - m, max(ys) + m), padding=0)
+        self.fit_left_out = outside
+        if outside:
+            self.message(f"Outside the view: detector {', '.join(outside)} (View > Fit everything, "
+                         "Ctrl+Shift+0, shows it)")
 
     def _draw_parts(self) -> None:
         for it in self._part_items:
@@ -757,6 +770,13 @@ class Canvas(QWidget):
         # dense fans are drawn fainter so that overlapping legs still read as separate rays
         dim = min(1.0, max(0.4, math.sqrt(5000.0 / max(self.drawing.n_segments, 1))))
         hide_faintest = self.drawing.n_segments > FAINT_SHOWN_BELOW
+        thinned = self.drawing.n_thinned > 0
+        self.legend.fade_note.setText("(all fade with flux; crowded fans thinned)" if thinned
+                                      else "(all fade with flux)")
+        self.legend.fade_note.setToolTip(FADE_NOTE + (
+            f".  Where legs crowd so that they would paint a solid fill, they are drawn a step fainter "
+            f"and only every 2nd, 4th... source ray is drawn there ({self.drawing.n_thinned:,} legs "
+            f"not drawn); the flux ledger counts them all." if thinned else ""))
         groups = [g for g in self._ray_groups() if not (hide_faintest and g[1] == len(LEVELS) - 1)]
         while len(self._ray_items) < len(groups):
             item = pg.PlotCurveItem(connect="pairs", antialias=False, skipFiniteCheck=True)
@@ -802,7 +822,10 @@ class Canvas(QWidget):
         part = self.scene.parts[f[0]]
         e = part.outer.edges[f[1]]
         t = e.treatment.kind + (f" R={e.treatment.reflectance:g}" if e.treatment.kind == "mirror" else "")
-        return f"{part.name} / {e.face or f'edge {f[1] + 1}'} ({t})"
+        arc = ""
+        if e.is_arc:        # signed as the arc tool and the vertex table take it
+            arc = f", arc R {signed_radius(part, 0, f[1]):.4g} mm"
+        return f"{part.name} / {e.face or f'edge {f[1] + 1}'} ({t}{arc})"
 
 
 # ---------------------------------------------------------------------- glyph shapes
@@ -858,6 +881,13 @@ def _detector_ticks(det, g: float) -> QPainterPath:
         path.moveTo(x, y)
         path.lineTo(x + 0.45 * g * (bx - 0.5 * ux), y + 0.45 * g * (by - 0.5 * uy))
     return path
+
+
+def _nearest_on_segment(p, a, b) -> tuple[float, float]:
+    dx, dy = b[0] - a[0], b[1] - a[1]
+    L2 = dx * dx + dy * dy
+    t = 0.0 if L2 == 0 else min(max(((p[0] - a[0]) * dx + (p[1] - a[1]) * dy) / L2, 0.0), 1.0)
+    return (a[0] + t * dx, a[1] + t * dy)
 
 
 def _segment_distance(p, a, b) -> float:

@@ -173,6 +173,9 @@ class MainWindow(QMainWindow):
                   "The drawn rays' segments, one row each")
         self._act(f, "Export drawing (PNG)...", lambda: self.export_png(), None, "The drawing with its legend")
         self._act(f, "Export drawing (SVG)...", lambda: self.export_svg(), None, "The drawing as vector graphics")
+        self.export_dxf_action = self._act(
+            f, "Export cross-section as D&XF...", lambda: self.export_dxf(), None,
+            "The parts' outlines and holes as DXF lines and arcs in mm, a layer per material")
         f.addSeparator()
         quit_action = self._act(f, "&Quit", self.close, None, "Quit (asks first when there are unsaved changes)")
         quit_action.setShortcuts(distinct_keys(QKeySequence.Quit, "Ctrl+Q"))   # Quit is empty on some platforms
@@ -195,7 +198,10 @@ class MainWindow(QMainWindow):
                   "A material of your own: constant index or nd/Vd glass")
 
         v = mb.addMenu("&View")
-        self._act(v, "&Fit scene", self.canvas.fit, "Ctrl+0", "Show the whole scene")
+        self._act(v, "&Fit parts and sources", lambda: self.canvas.fit(), "Ctrl+0",
+                  "Frame the parts and sources (detectors near them cross the frame)")
+        self._act(v, "Fit &everything", lambda: self.canvas.fit(everything=True), "Ctrl+Shift+0",
+                  "Frame the parts, sources and every detector whole")
         self.grid_action = self._act(v, "&Grid", self.canvas.show_grid, "G", "Show the grid", True)
         self.grid_action.setChecked(True)
         self.wavelength_colour_action = self._act(
@@ -480,6 +486,15 @@ class MainWindow(QMainWindow):
         return self._export("the drawing", ".svg", "SVG image (*.svg)",
                             lambda p: save_figure_svg(self.canvas, p, **self._figure_titles()))
 
+    def export_dxf(self) -> bool:
+        """File > Export cross-section as DXF: the parts as they are edited, for the CAD model."""
+        from raytrace.dxf_io import export_dxf
+        if not self.doc.scene.parts:
+            self.show_error("Not exported", "The scene has no parts to export.")
+            return False
+        return self._export("the cross-section", ".dxf", "DXF drawing (*.dxf)",
+                            lambda p: (export_dxf(self.doc.scene, p), None)[1])
+
     def offer_recovery(self) -> bool:
         """After a crash: offer the newest recovery copy; True when one was restored."""
         for rec in find_recoveries():
@@ -602,6 +617,23 @@ class MainWindow(QMainWindow):
         dlg = SweepDialog(self.doc.scene, {"mode": s.mode, "flux_floor": s.flux_floor,
                                            "max_generations": s.max_generations}, self)
         dlg.exec()
+
+    def apply_optimum(self, result) -> bool:
+        """The optimize tab's "Apply to scene": the tuned numbers set to the optimum, one undo step."""
+        from raytrace.scene_io import scene_from_dict, scene_to_dict
+        from raytrace.errors import RaytraceError
+        from raytrace.sweep import SweepError, apply_settings
+        pairs = list(zip(result.names, result.optimum))
+        try:
+            data = apply_settings(scene_to_dict(self.doc.scene), pairs, str(self.doc.path or ""))
+            scene = scene_from_dict(data, check_shapes=False)
+        except (SweepError, RaytraceError, ValueError) as exc:
+            self.show_error("Not applied", f"The optimum could not be applied to the scene: {exc}")
+            return False
+        self.doc.apply(scene, "apply optimum " + ", ".join(f"{n} = {v:.6g}" for n, v in pairs))
+        self.status_note("Applied the optimum: " + ", ".join(f"{n} = {v:.6g}" for n, v in pairs)
+                         + " (Ctrl+Z undoes)")
+        return True
 
     def _selection_changed(self, sel) -> None:
         self.properties.show_selection(self.doc.scene, sel)

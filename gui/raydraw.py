@@ -45,6 +45,7 @@ class RayDrawing:
     cue_y1: np.ndarray = field(default_factory=lambda: np.zeros(0))
     cue_at: np.ndarray = field(default_factory=lambda: np.zeros(0))   # where along the leg (0..1)
     n_segments: int = 0
+    n_thinned: int = 0          # legs not drawn because their fan was too crowded to read
     # with colour by wavelength: (wavelength bin in nm, or nan, level, x, y) per non-empty group,
     # in stacking order within each level
     by_wavelength: list[tuple[float, int, np.ndarray, np.ndarray]] = field(default_factory=list)
@@ -98,11 +99,17 @@ def ray_drawing(result, min_escape_share: float = 1e-3, colour_by_wavelength: bo
         ref = start_flux[root]
         rel = np.divide(flux, ref, out=np.zeros_like(flux), where=ref > 0)
         level = brightness_level(rel)
+        cue_level = level
+        steps, keep = crowding(seg, root)
+        faintest = len(LEVELS) - 1            # (a crowded leg fades at most to the step above it)
+        level = np.where(level == faintest, level, np.minimum(level + steps, faintest - 1))
+        level[~keep] = -1                                     # thinned out of a crowded fan
+        d.n_thinned = int((~keep).sum())
         kind = np.full(len(flux), 0, dtype=np.int64)
         kind[seg["end"] == E_ESCAPED] = 1
         kind[seg["born"] == B_TIR] = 2
         d.n_segments = len(flux)
-        _direction_cues(d, seg, root, level)
+        _direction_cues(d, seg, root, cue_level)
         for k, name in enumerate(KINDS):
             d.lines[name] = [_pairs(seg, (kind == k) & (level == lv)) for lv in range(len(LEVELS))]
         if colour_by_wavelength:
@@ -151,6 +158,56 @@ def scene_drawing(result, scene, colour_by_wavelength: bool = False) -> RayDrawi
     thread builds it beside the trace and the UI thread only hands the arrays to the items."""
     return ray_drawing(result, colour_by_wavelength=colour_by_wavelength,
                        escape_reach=escape_reach_for(scene))
+
+
+# Where legs crowd, each is drawn some brightness steps fainter, so a dense fan of TIR legs reads
+# as rays, not as a solid fill; kinds keep their colours.  Ink is estimated on a grid of
+# CROWD_CELLS cells across the rays' extent, for a view about CROWD_VIEW_PX pixels across with
+# 1 px lines: a cell's covered share = leg length in it x pixel size / cell area.
+CROWD_CELLS = 48
+CROWD_VIEW_PX = 600
+CROWD_START = 1.0       # covered share where fading starts (solid ink); each further x3 one step more
+CROWD_MAX_STEPS = 1
+CROWD_DIRECTIONS = 12   # direction bins of 15 degrees
+CROWD_TANGLE = 5        # a cell with ink in this many direction bins is a tangle, not beams
+CROWD_CAP = 1.0         # at most this covered share is drawn in a cell; the rest is thinned
+
+
+def crowding(seg, root: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(steps, keep) per leg: brightness steps (0..CROWD_MAX_STEPS) to fade it by, and whether
+    it is drawn at all.  Opaque lines at full cover are a fill whatever their shade, so where
+    the legs would cover a cell more than CROWD_CAP times over, only every 2nd, 4th... source
+    ray's legs are drawn there (strides of 2^k nest, so a kept ray runs on unbroken into
+    sparser cells)."""
+    x0, y0, x1, y1 = (np.asarray(seg[k], dtype=float) for k in ("x0", "y0", "x1", "y1"))
+    lo_x, hi_x = min(x0.min(), x1.min()), max(x0.max(), x1.max())
+    lo_y, hi_y = min(y0.min(), y1.min()), max(y0.max(), y1.max())
+    extent = max(hi_x - lo_x, hi_y - lo_y, 1e-9)
+    cell = extent / CROWD_CELLS
+    t = (np.arange(4) + 0.5) / 4                       # four sample points along each leg
+    px = x0[:, None] + t * (x1 - x0)[:, None]
+    py = y0[:, None] + t * (y1 - y0)[:, None]
+    ix = np.minimum(((px - lo_x) / cell).astype(np.int64), CROWD_CELLS)
+    iy = np.minimum(((py - lo_y) / cell).astype(np.int64), CROWD_CELLS)
+    flat = ix * (CROWD_CELLS + 1) + iy
+    length = np.hypot(x1 - x0, y1 - y0)
+    ink = np.bincount(flat.ravel(), weights=np.repeat(length / 4, 4), minlength=(CROWD_CELLS + 1) ** 2)
+    share = ink[flat].max(axis=1) * (extent / CROWD_VIEW_PX) / (cell * cell)
+    # a beam drawn as a solid band still reads as a beam, and so do two beams crossing; only
+    # legs running in many directions make an unreadable fill: count the 15-degree direction
+    # bins holding at least 5 % of a cell's ink
+    th = np.mod(np.arctan2(y1 - y0, x1 - x0), np.pi)
+    dbin = np.minimum((th / (np.pi / CROWD_DIRECTIONS)).astype(np.int64), CROWD_DIRECTIONS - 1)
+    key = flat * CROWD_DIRECTIONS + np.repeat(dbin, 4).reshape(flat.shape)
+    by_dir = np.bincount(key.ravel(), weights=np.repeat(length / 4, 4),
+                         minlength=ink.size * CROWD_DIRECTIONS).reshape(ink.size, CROWD_DIRECTIONS)
+    n_dirs = (by_dir >= 0.05 * np.maximum(ink, 1e-300)[:, None]).sum(axis=1) * (ink > 0)
+    share = np.where(n_dirs[flat].max(axis=1) >= CROWD_TANGLE, share, 0.0)
+    steps = np.floor(np.log(np.maximum(share, 1e-12) / CROWD_START) / np.log(3.0)) + 1
+    steps = np.clip(steps, 0, CROWD_MAX_STEPS).astype(np.int64)
+    stride = 2 ** np.ceil(np.log2(np.maximum(share / CROWD_CAP, 1.0))).astype(np.int64)
+    rank = np.unique(root, return_inverse=True)[1].reshape(-1)
+    return steps, rank % stride == 0
 
 
 CUE_RAYS = 3          # source rays whose brightest legs carry a direction arrow

@@ -750,8 +750,7 @@ def test_ledger_panel_shows_each_shares_standard_error(qtbot, win):
     result = open_sample(qtbot, win, LIGHT_PIPE)
     tree = win.ledger.tree
     assert tree.headerItem().text(3) == "\u00b1 error"
-    shown = {tree.topLevelItem(i).toolTip(0): tree.topLevelItem(i).text(3) for i in range(tree.topLevelItemCount())
-             if tree.topLevelItem(i).toolTip(0)}
+    shown = {it.toolTip(0): it.text(3) for it in win.ledger.items() if it.toolTip(0)}
     for b in result.ledger.buckets:
         assert shown[b.label] == f"{100 * result.share_error(b.label):.2f}"
     assert "\u00b1 " in win.ledger.summary.text()

@@ -154,3 +154,51 @@ def test_import_dxf_dialog_presets_known_materials_and_asks_units(qtbot):
     dlg.combos["glass layer"].setCurrentText("water")
     dlg.units.setCurrentText("in")
     assert dlg.choice() == ({"PMMA": "PMMA", "glass layer": "water"}, "in")
+
+
+def test_optimize_result_table_and_apply_to_scene_with_undo(qtbot, win, tmp_path):
+    """After a run the Optimize tab lists the tuned number from start to optimum and the figure
+    with its +- (the engine's OptimizeResult, exactly); "Apply to scene" sets the optimum in the
+    open scene as one undo step: Ctrl+Z by key restores it, and a save reopens with the optimum."""
+    from gui.dialogs.sweep import SweepDialog
+    win.resize(1024, 700)
+    win.show()
+    qtbot.waitExposed(win)
+    assert win.open_file(str(WINDOW))
+    before = win.doc.scene
+    dlg = SweepDialog(win.doc.scene, {}, win)
+    qtbot.addWidget(dlg)
+    dlg.show()
+    click_tab(qtbot, dlg, "Optimize")
+    p = dlg.optimize_panel
+    assert not p.apply_btn.isEnabled(), "nothing to apply before a run"
+    p.name.setCurrentText("probe beam.direction_deg")
+    p.low.lineEdit().selectAll()
+    qtbot.keyClicks(p.low.lineEdit(), "30")
+    p.high.lineEdit().selectAll()
+    qtbot.keyClicks(p.high.lineEdit(), "60")
+    p.rays.setValue(8)
+    qtbot.mouseClick(p.run_btn, Qt.LeftButton)
+    qtbot.waitUntil(lambda: not p.running(), timeout=TIMEOUT_MS)
+    r = p.result
+    cells = [[p.table.item(i, c).text() for c in range(4)] for i in range(p.table.rowCount())]
+    assert cells[0] == ["probe beam.direction_deg", f"{r.start[0]:.6g}", f"{r.optimum[0]:.6g}", "30 .. 60"]
+    v0, se0 = r.start_value
+    assert cells[1] == [r.figure.label, f"{v0:.6g} \u00b1 {se0:.2g}", f"{r.value:.6g} \u00b1 {r.se:.2g}", "maximize"]
+    assert p.apply_btn.isEnabled()
+    qtbot.mouseClick(p.apply_btn, Qt.LeftButton)
+    assert win.doc.scene.sources[0].direction_deg == r.optimum[0]
+    assert "Ctrl+Z undoes" in win.statusBar().currentMessage()
+    applied = win.doc.scene
+    dlg.close()
+    win.activateWindow()
+    qtbot.waitUntil(win.isActiveWindow, timeout=5000)
+    win.canvas.setFocus()
+    qtbot.keyClick(win.canvas.plot, Qt.Key_Z, Qt.ControlModifier)
+    assert win.doc.scene == before, "Ctrl+Z undoes the applied optimum in one step"
+    qtbot.keyClick(win.canvas.plot, Qt.Key_Y, Qt.ControlModifier)
+    assert win.doc.scene == applied
+    out = tmp_path / "tuned.json"
+    win.ask_save_path = lambda *a, **k: str(out)
+    assert win.save_as()
+    assert load_scene(out).sources[0].direction_deg == pytest.approx(r.optimum[0], abs=0)

@@ -9,8 +9,10 @@ from __future__ import annotations
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtWidgets import (QComboBox, QFormLayout, QHBoxLayout, QPlainTextEdit,
-                               QProgressBar, QPushButton, QSpinBox, QVBoxLayout, QWidget)
+from PySide6.QtCore import Qt
+from PySide6.QtWidgets import (QComboBox, QFormLayout, QHBoxLayout, QHeaderView, QPlainTextEdit,
+                               QProgressBar, QPushButton, QSpinBox, QTableWidget, QTableWidgetItem,
+                               QVBoxLayout, QWidget)
 
 from .. import style
 from .background import BackgroundRun
@@ -108,9 +110,27 @@ class _DesignPanel(QWidget):
 
 
 class OptimizePanel(_DesignPanel):
-    def __init__(self, scene, options: dict, names: list[str], current_value, parent=None):
+    """`apply_optimum(result)` puts the optimum into the open document (one undo step)."""
+
+    def __init__(self, scene, options: dict, names: list[str], current_value, parent=None, apply_optimum=None):
         super().__init__(scene, options, parent)
         self.current_value = current_value
+        self.apply_optimum = apply_optimum
+        # the result at a glance: each tuned number from start to optimum, and the figure with its +-
+        self.table = QTableWidget(0, 4)
+        self.table.setHorizontalHeaderLabels(["", "start", "optimum", "bounds"])
+        self.table.verticalHeader().setVisible(False)
+        self.table.setEditTriggers(QTableWidget.NoEditTriggers)
+        self.table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeToContents)
+        self.table.horizontalHeader().setStretchLastSection(True)
+        self.table.setFixedHeight(self.table.horizontalHeader().sizeHint().height() + 4)
+        self.apply_btn = QPushButton("Apply to scene")
+        self.apply_btn.setToolTip("Set the tuned numbers to the optimum in the open scene (Ctrl+Z undoes)")
+        self.apply_btn.setEnabled(False)
+        self.apply_btn.clicked.connect(self.apply)
+        lay = self.layout()
+        lay.insertWidget(lay.indexOf(self.report), self.table)
+        lay.itemAt(lay.count() - 1).layout().insertWidget(2, self.apply_btn)
         self.name = QComboBox()
         self.name.setEditable(True)
         self.name.addItems(names)
@@ -143,7 +163,32 @@ class OptimizePanel(_DesignPanel):
         return lambda progress: optimize(scene, [bound], figure, maximize=maximize, options=options,
                                          workers=1, progress=progress)
 
+    def apply(self):
+        if self.result is not None and self.apply_optimum is not None and self.apply_optimum(self.result):
+            self.apply_btn.setEnabled(False)        # applied once; run again to tune further
+
+    def _fill_table(self, result):
+        rows = []
+        for k, (name, x0, x) in enumerate(zip(result.names, result.start, result.optimum)):
+            b = result.bounds[k] if k < len(result.bounds) else None
+            rows.append((name, f"{x0:.6g}", f"{x:.6g}", f"{b[0]:.6g} .. {b[1]:.6g}" if b else ""))
+        v0, se0 = result.start_value
+        rows.append((result.figure.label, f"{v0:.6g} \u00b1 {se0:.2g}", f"{result.value:.6g} \u00b1 {result.se:.2g}",
+                     "maximize" if result.maximize else "minimize"))
+        self.table.setRowCount(len(rows))
+        for r, row in enumerate(rows):
+            for c, text in enumerate(row):
+                it = QTableWidgetItem(text)
+                if c:
+                    it.setTextAlignment(Qt.AlignRight | Qt.AlignVCenter)
+                self.table.setItem(r, c, it)
+        self.table.resizeRowsToContents()       # every row shows whole, without scrolling
+        self.table.setFixedHeight(self.table.horizontalHeader().sizeHint().height() + 2 * self.table.frameWidth()
+                                  + sum(self.table.rowHeight(r) for r in range(len(rows))) + 2)
+        self.apply_btn.setEnabled(self.apply_optimum is not None)
+
     def show_result(self, result):
+        self._fill_table(result)
         self.plot.clear()
         self.plot.setLabel("bottom", result.names[0])
         self.plot.setLabel("left", result.figure.label)

@@ -160,7 +160,8 @@ class SweepDialog(QDialog):
     def _add_design_tabs(self, scene):
         from .design import OptimizePanel, TolerancePanel
         names = sweep_names(scene)
-        self.optimize_panel = OptimizePanel(scene, self.options, names, current_value)
+        self.optimize_panel = OptimizePanel(scene, self.options, names, current_value,
+                                            apply_optimum=getattr(self.parent(), "apply_optimum", None))
         self.tolerance_panel = TolerancePanel(scene, self.options, names)
         self.tabs.addTab(self.optimize_panel, "Optimize")
         self.tabs.addTab(self.tolerance_panel, "Tolerance")

@@ -21,7 +21,7 @@ from raytrace.geometry import TREATMENT_KINDS
 from raytrace.scene import DISTRIBUTIONS, POLARIZATIONS, SAMPLINGS, SOURCE_KINDS, Spectrum
 from raytrace.shapes import PARAMETERS, ShapeParameterError
 
-from .. import edits
+from .. import arcs, edits
 from ..dialogs.shape import SHAPE_LABELS, param_value, param_widget
 
 
@@ -187,7 +187,8 @@ class ScenePage(_Page):
 
 
 class PartPage(_Page):
-    COLS = ("x (mm)", "y (mm)", "face", "treatment", "mirror R")
+    COLS = ("x (mm)", "y (mm)", "face", "treatment", "mirror R", "arc R (mm)")
+    RADIUS_COL = 5
 
     def __init__(self, panel):
         super().__init__(panel)
@@ -226,7 +227,9 @@ class PartPage(_Page):
 
         self.table = QTableWidget(0, len(self.COLS))
         self.table.setHorizontalHeaderLabels(self.COLS)
-        self.table.setToolTip("Row i: vertex i (start of edge i) and the face from it to the next vertex")
+        self.table.setToolTip("Row i: vertex i (start of edge i) and the face from it to the next vertex; "
+                              "rows 'hole k.i' are the holes' vertices.  arc R: the edge's arc radius "
+                              "(> 0 bulges out of the material, < 0 into it, 0 or empty straight)")
         self.table.itemChanged.connect(self._cell_changed)
         lay = QVBoxLayout(self)
         lay.addWidget(QLabel("<b>Part</b>"))
@@ -283,12 +286,29 @@ class PartPage(_Page):
             return
         self._replace(new, f"change shape of {p.name}")
 
+    def _loop_edge(self, row):
+        """(loop index, edge index) of a table row: the outline's edges, then each hole's."""
+        p = self.part()
+        for li, loop in enumerate(p.loops):
+            if row < len(loop.edges):
+                return li, row
+            row -= len(loop.edges)
+        raise IndexError(row)
+
     def _cell_changed(self, item):
         row, col = item.row(), item.column()
         p = self.part()
         text = item.text().strip()
+        li, ei = self._loop_edge(row)
         try:
-            if col in (0, 1):
+            if col == self.RADIUS_COL:
+                r = typed_number(text or "0", "an arc radius in mm (0 for a straight edge)", -MAX_COORD, MAX_COORD)
+                new = arcs.bend_by_radius(p, li, ei, r)
+                label = f"hole {li}, edge {ei + 1}" if li else f"edge {ei + 1}"
+                what = f"set arc radius of {p.name} / {label}"
+            elif li:
+                return          # a hole's other cells are shown, not edited here
+            elif col in (0, 1):
                 v = typed_number(text, "a coordinate in mm", -MAX_COORD, MAX_COORD)
                 new = edits.set_vertex_xy(p, row, **({"x": v} if col == 0 else {"y": v}))
                 what = f"move vertex {row + 1} of {p.name}"
@@ -302,7 +322,10 @@ class PartPage(_Page):
             else:
                 return
         except ValueError as exc:
-            self.error(f"row {row + 1}: {exc}" if "expected" in str(exc) else f"row {row + 1}: expected {exc}")
+            row_name = self.table.verticalHeaderItem(row).text() if self.table.verticalHeaderItem(row) else str(row + 1)
+            field = "arc R: " if col == self.RADIUS_COL else ""
+            self.error(f"row {row_name}: {field}{exc}" if "expected" in str(exc)
+                       else f"row {row_name}: {field}expected {exc}")
             self.show(self.doc.scene, self.index)
             return
         self._replace(new, what)
@@ -322,29 +345,41 @@ class PartPage(_Page):
         _set(self.material, p.material)
         self._show_shape(p)
         self.table.blockSignals(True)
-        edges = p.outer.edges
-        self.table.setRowCount(len(edges))
-        for r, e in enumerate(edges):
+        rows = [(li, ei, e) for li, loop in enumerate(p.loops) for ei, e in enumerate(loop.edges)]
+        edges = rows
+        self.table.setRowCount(len(rows))
+        self.table.setVerticalHeaderLabels([f"hole {li}.{ei + 1}" if li else f"{ei + 1}" for li, ei, _ in rows])
+        for r, (li, ei, e) in enumerate(rows):
             cells = [f"{e.start[0]:.6g}", f"{e.start[1]:.6g}", e.face or ""]
             for c, text in enumerate(cells):
                 it = QTableWidgetItem(text)
                 if e.is_arc and c == 2:
                     it.setToolTip(f"arc about ({e.arc_center[0]:.4g}, {e.arc_center[1]:.4g}), "
                                   f"radius {e.radius:.4g} mm")
+                if li:
+                    it.setFlags(it.flags() & ~Qt.ItemIsEditable)
                 self.table.setItem(r, c, it)
-            combo = self.table.cellWidget(r, 3)
-            if combo is None:      # made once per row; a drag only updates the texts
-                combo = QComboBox()
-                combo.addItems(TREATMENT_KINDS)
-                combo.currentTextChanged.connect(lambda k, row=r: self._treatment(row, k))
-                self.table.setCellWidget(r, 3, combo)
-            combo.blockSignals(True)
-            combo.setCurrentText(e.treatment.kind)
-            combo.blockSignals(False)
+            if li:                  # a hole's treatment is shown; it is set on the drawing
+                self.table.removeCellWidget(r, 3)
+                tit = QTableWidgetItem(e.treatment.kind)
+                tit.setFlags(tit.flags() & ~Qt.ItemIsEditable)
+                self.table.setItem(r, 3, tit)
+            else:
+                combo = self.table.cellWidget(r, 3)
+                if combo is None:      # made once per row; a drag only updates the texts
+                    combo = QComboBox()
+                    combo.addItems(TREATMENT_KINDS)
+                    combo.currentTextChanged.connect(lambda k, row=r: self._treatment(row, k))
+                    self.table.setCellWidget(r, 3, combo)
+                combo.blockSignals(True)
+                combo.setCurrentText(e.treatment.kind)
+                combo.blockSignals(False)
             rit = QTableWidgetItem(f"{e.treatment.reflectance:g}" if e.treatment.kind == "mirror" else "")
-            if e.treatment.kind != "mirror":
+            if e.treatment.kind != "mirror" or li:
                 rit.setFlags(rit.flags() & ~Qt.ItemIsEditable)
             self.table.setItem(r, 4, rit)
+            radius = arcs.signed_radius(p, li, ei)
+            self.table.setItem(r, self.RADIUS_COL, QTableWidgetItem(f"{radius:.6g}" if radius else ""))
         if self.table.property("sized_for") != (index, len(edges)):
             self.table.resizeColumnsToContents()
             self.table.setProperty("sized_for", (index, len(edges)))
