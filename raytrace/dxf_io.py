@@ -16,10 +16,12 @@ extrusion +Z, or -Z (their own coordinates then have x mirrored); lines are in w
 
 Export
 ------
-One layer per material; every edge is a LINE or an ARC (arcs stay arcs), $INSUNITS = mm.  Each
-entity carries its part and face name (and a face treatment) as XDATA of the application
-RAYTRACE2D, so a drawing exported here imports back to the same parts, names and faces.  Sources,
-detectors and trace settings are not part of a cross-section drawing.
+One layer per material, named as the material (a character a layer name cannot hold becomes
+"_", and two materials that would still share a name get " 2", " 3"); every edge is a LINE or an
+ARC (arcs stay arcs), $INSUNITS = mm.  Each entity carries its part and face name (and a face
+treatment, and its material where the layer's name differs from it) as XDATA of the application
+RAYTRACE2D, so a drawing exported here imports back to the same parts, names, faces and
+materials.  Sources, detectors and trace settings are not part of a cross-section drawing.
 """
 from __future__ import annotations
 
@@ -302,7 +304,8 @@ def _parts(loops, materials: dict) -> list[tuple[Part, str]]:
         meta = loops[i][1][0].meta
         seen[layer[i]] = seen.get(layer[i], 0) + 1
         name = meta.get("part") or (layer[i] if counts[layer[i]] == 1 else f"{layer[i]} {seen[layer[i]]}")
-        material = materials.get(layer[i], layer[i])
+        # the mapping, else the material this program's export recorded, else the layer's name
+        material = materials.get(layer[i], meta.get("material") or layer[i])
         parts.append((Part(name, material, _with_faces(*loops[i]), tuple(_with_faces(*loops[j]) for j in holes)),
                       layer[i]))
     return parts
@@ -323,9 +326,11 @@ def _with_faces(loop: Loop, members: list[Piece]) -> Loop:
 def _check_materials(scene, parts, materials: dict, problems: Problems) -> None:
     from .catalog import CATALOG, close_matches, lookup
     known = list(CATALOG) + list(scene.materials)
-    for layer in dict.fromkeys(layer for part, layer in parts if lookup(part.material, scene.materials) is None):
-        material = materials.get(layer, layer)
-        how = "given for it" if layer in materials else "the layer's own name (no --layer-material for it)"
+    unknown = {layer: part.material for part, layer in reversed(parts) if lookup(part.material, scene.materials) is None}
+    for layer in dict.fromkeys(layer for part, layer in parts if layer in unknown):
+        material = unknown[layer]
+        how = ("given for it" if layer in materials else "the layer's own name (no --layer-material for it)"
+               if material == layer else "as the drawing records it (no --layer-material for it)")
         hint = close_matches(material, known)
         problems.add(f"layer {layer!r}", f"<material {material!r}, {how}>",
                      f"a catalog or scene material (--layer-material {layer}=MATERIAL"
@@ -342,14 +347,14 @@ def export_dxf(scene, path: str | os.PathLike) -> list[str]:
     doc.header["$INSUNITS"] = 4          # mm
     doc.appids.add(APP)
     msp = doc.modelspace()
-    layers: list[str] = []
+    layer_of = _layer_names([part.material for part in scene.parts], [layer.dxf.name for layer in doc.layers])
+    for layer in dict.fromkeys(layer_of.values()):
+        doc.layers.add(layer)
     for part in scene.parts:
-        if part.material not in layers:
-            layers.append(part.material)
-            doc.layers.add(_layer_name(part.material))
+        layer = layer_of[part.material]
         for loop in part.loops:
             for e in loop.edges:
-                attribs = {"layer": _layer_name(part.material)}
+                attribs = {"layer": layer}
                 if e.is_arc:
                     a0, sweep = e.arc_angles()
                     a1 = a0 + sweep
@@ -358,6 +363,8 @@ def export_dxf(scene, path: str | os.PathLike) -> list[str]:
                 else:
                     ent = msp.add_line(e.start, e.end, dxfattribs=attribs)
                 meta = {"part": part.name}
+                if layer != part.material:      # the layer name could not be the material's
+                    meta["material"] = part.material
                 if e.is_arc and not e.ccw:
                     meta["reversed"] = True
                 if e.face:
@@ -366,9 +373,27 @@ def export_dxf(scene, path: str | os.PathLike) -> list[str]:
                     meta["treatment"] = e.treatment.to_dict()
                 ent.set_xdata(APP, [(1000, json.dumps(meta))])
     atomic_write(path, doc.saveas)
-    return [_layer_name(m) for m in layers]
+    return list(dict.fromkeys(layer_of.values()))
 
 
 def _layer_name(material: str) -> str:
     """DXF layer names may not hold <>/\\":;?*|=' characters."""
     return "".join("_" if ch in '<>/\\":;?*|=\'' else ch for ch in material)
+
+
+def _layer_names(materials: list[str], existing: list[str]) -> dict[str, str]:
+    """A new layer name per material, distinct as DXF compares them (without case) from each
+    other and from the drawing's `existing` layers ("0"): two materials that differ only in a
+    character a layer name cannot hold ("A/B", "A:B") or only in case would otherwise share a
+    layer, which the DXF library refuses; the later ones get " 2", " 3"."""
+    out: dict[str, str] = {}
+    taken = {name.casefold() for name in existing}
+    for m in dict.fromkeys(materials):
+        base = name = _layer_name(m)
+        k = 1
+        while name.casefold() in taken:
+            k += 1
+            name = f"{base} {k}"
+        taken.add(name.casefold())
+        out[m] = name
+    return out

@@ -266,3 +266,32 @@ def test_export_says_one_part_on_one_layer_in_plain_words(tmp_path, capsys):
     out = tmp_path / "roof.dxf"
     assert cli_main(["export-dxf", str(roof), "-o", str(out)]) == 0
     assert capsys.readouterr().out.strip() == f"{out}: 1 part on layer crown glass"
+
+
+def test_materials_whose_layer_names_would_clash_get_layers_of_their_own(tmp_path, capsys):
+    """Materials "glass/A" and "glass:A" both become layer "glass_A" (a layer name cannot hold '/'
+    or ':'), and "Glass/a" the same name without case, as DXF compares layer names; a material
+    "0" is the name of every drawing's own layer 0.  The export gave a traceback from the DXF
+    library ("LAYER 'glass_A' already exists"); now each material has its own layer, ezdxf (the
+    reference DXF reader) reads them back, and the import gives every part its own material."""
+    import json
+    data = json.loads(PIPE_JSON.read_text())
+    data["materials"] = {m: {"model": "constant", "n": 1.5 + 0.01 * k}
+                         for k, m in enumerate(["glass/A", "glass:A", "Glass/a", "0"])}
+    window = data["parts"][1]
+    data["parts"] = [data["parts"][0]] + [
+        dict(window, name=f"window {k}", shape=dict(window["shape"], position=[-20.0 - 15 * k, 0.0]))
+        for k in range(4)]
+    data["parts"][1] = window                 # the detector's position is linked to this one
+    for part, material in zip(data["parts"], ["glass/A", "glass:A", "Glass/a", "0", "glass/A"]):
+        part["material"] = material
+    scene_file = tmp_path / "clash.json"
+    scene_file.write_text(json.dumps(data))
+    out = tmp_path / "clash.dxf"
+    assert cli.main(["export-dxf", str(scene_file), "-o", str(out)]) == cli.EXIT_OK
+    assert capsys.readouterr().out.strip() == f"{out}: 5 parts on layers glass_A, glass_A 2, Glass_a 3, 0 2"
+    doc = ezdxf.readfile(out)
+    layers = [layer.dxf.name for layer in doc.layers]
+    assert len({n.casefold() for n in layers}) == len(layers) == 6     # "0", "Defpoints" and the four above
+    back = import_dxf(out, setup=load_scene(scene_file))
+    assert {p.name: p.material for p in back.parts} == {p["name"]: p["material"] for p in data["parts"]}
