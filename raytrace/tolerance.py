@@ -101,8 +101,10 @@ class ToleranceResult:
                 order = sorted(range(len(self.names)), key=lambda j: -s.shares[j])
                 if not any(math.isfinite(x) for x in s.slopes):
                     # a least-squares fit of k slopes and an offset needs more than k + 1 samples
-                    lines.append(f"  drivers: not fitted, {len(s.ok)} traced samples for {len(self.names)} "
-                                 f"numbers; the fit needs at least {len(self.names) + 2} (raise --samples)")
+                    from .cli import counted
+                    lines.append(f"  drivers: not fitted, {counted(len(s.ok), 'traced sample')} for "
+                                 f"{counted(len(self.names), 'number')}; the fit needs at least "
+                                 f"{len(self.names) + 2} (raise --samples)")
                     continue
                 lines.append("  drivers (share of the spread, slope): " + "; ".join(
                     f"{self.names[j]} {100 * s.shares[j]:.0f} %, {_slope(f, s.slopes[j])}" for j in order)

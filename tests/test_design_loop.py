@@ -318,3 +318,13 @@ def test_tolerance_with_too_few_samples_to_fit_says_so(capsys):
     out = capsys.readouterr().out
     assert "drivers: not fitted, 3 traced samples for 2 numbers; the fit needs at least 4 (raise --samples)" in out
     assert "nan" not in out
+
+
+def test_too_few_samples_for_one_number_is_said_in_the_singular(capsys):
+    """One number and two samples: '2 traced samples for 1 number' (it said '1 numbers'); a
+    fit of one slope and an offset needs at least 3 points to leave a residual."""
+    pipe = ROOT / "samples" / "light-pipe-90.json"
+    assert cli.main(["tolerance", str(pipe), "--tol", "guide.width=0.1", "--figure", "viewer side",
+                     "--rays", "20", "--samples", "2", "--workers", "1"]) == 0
+    out = capsys.readouterr().out
+    assert "drivers: not fitted, 2 traced samples for 1 number; the fit needs at least 3 (raise --samples)" in out
