@@ -618,8 +618,9 @@ class MainWindow(QMainWindow):
                                            "max_generations": s.max_generations}, self)
         dlg.exec()
 
-    def apply_optimum(self, result) -> bool:
-        """The optimize tab's "Apply to scene": the tuned numbers set to the optimum, one undo step."""
+    def apply_optimum(self, result):
+        """The optimize tab's "Apply to scene": the tuned numbers set to the optimum, one undo
+        step; the document's scene after it, or None when it could not be applied."""
         from raytrace.scene_io import scene_from_dict, scene_to_dict
         from raytrace.errors import RaytraceError
         from raytrace.sweep import SweepError, apply_settings
@@ -629,11 +630,11 @@ class MainWindow(QMainWindow):
             scene = scene_from_dict(data, check_shapes=False)
         except (SweepError, RaytraceError, ValueError) as exc:
             self.show_error("Not applied", f"The optimum could not be applied to the scene: {exc}")
-            return False
+            return None
         self.doc.apply(scene, "apply optimum " + ", ".join(f"{n} = {v:.6g}" for n, v in pairs))
         self.status_note("Applied the optimum: " + ", ".join(f"{n} = {v:.6g}" for n, v in pairs)
                          + " (Ctrl+Z undoes)")
-        return True
+        return self.doc.scene
 
     def _selection_changed(self, sel) -> None:
         self.properties.show_selection(self.doc.scene, sel)

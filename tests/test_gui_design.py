@@ -202,3 +202,40 @@ def test_optimize_result_table_and_apply_to_scene_with_undo(qtbot, win, tmp_path
     win.ask_save_path = lambda *a, **k: str(out)
     assert win.save_as()
     assert load_scene(out).sources[0].direction_deg == pytest.approx(r.optimum[0], abs=0)
+
+
+def test_after_apply_the_next_run_starts_from_the_applied_optimum(qtbot, win):
+    """Tune, Apply to scene, then run again in the same dialog: the second run starts from the
+    optimum now in the scene (its start column shows it), and the Sweep and Tolerance tabs work
+    on that scene too.  Before, every tab kept the scene the dialog was opened with, so a second
+    number tuned after applying the first was tuned without the first one's optimum.  While a
+    run is going, Apply is off (the optimum shown is about to be replaced)."""
+    from gui.dialogs.sweep import SweepDialog
+    win.resize(1024, 700)
+    win.show()
+    qtbot.waitExposed(win)
+    assert win.open_file(str(WINDOW))
+    start_direction = win.doc.scene.sources[0].direction_deg
+    dlg = SweepDialog(win.doc.scene, {}, win)
+    qtbot.addWidget(dlg)
+    dlg.show()
+    click_tab(qtbot, dlg, "Optimize")
+    p = dlg.optimize_panel
+    p.name.setCurrentText("probe beam.direction_deg")
+    p.low.setValue(30.0)
+    p.high.setValue(70.0)
+    p.rays.setValue(8)
+    qtbot.mouseClick(p.run_btn, Qt.LeftButton)
+    qtbot.waitUntil(lambda: not p.running(), timeout=TIMEOUT_MS)
+    first = p.result
+    assert first.start[0] == start_direction and first.optimum[0] != start_direction
+    qtbot.mouseClick(p.apply_btn, Qt.LeftButton)
+    assert win.doc.scene.sources[0].direction_deg == first.optimum[0]
+    assert dlg.scene is win.doc.scene and p.scene is win.doc.scene and dlg.tolerance_panel.scene is win.doc.scene
+    qtbot.mouseClick(p.run_btn, Qt.LeftButton)
+    assert not p.apply_btn.isEnabled(), "no Apply while the next run is going"
+    qtbot.waitUntil(lambda: not p.running(), timeout=TIMEOUT_MS)
+    assert p.result.start[0] == first.optimum[0]
+    assert p.table.item(0, 1).text() == f"{first.optimum[0]:.6g}"
+    assert p.apply_btn.isEnabled()
+    dlg.close()

@@ -110,12 +110,15 @@ class _DesignPanel(QWidget):
 
 
 class OptimizePanel(_DesignPanel):
-    """`apply_optimum(result)` puts the optimum into the open document (one undo step)."""
+    """`apply_optimum(result)` puts the optimum into the open document (one undo step) and
+    returns the document's scene then (None when it could not); `applied(scene)` is told it."""
 
-    def __init__(self, scene, options: dict, names: list[str], current_value, parent=None, apply_optimum=None):
+    def __init__(self, scene, options: dict, names: list[str], current_value, parent=None, apply_optimum=None,
+                 applied=None):
         super().__init__(scene, options, parent)
         self.current_value = current_value
         self.apply_optimum = apply_optimum
+        self.applied = applied
         # the result at a glance: each tuned number from start to optimum, and the figure with its +-
         self.table = QTableWidget(0, 4)
         self.table.setHorizontalHeaderLabels(["", "start", "optimum", "bounds"])
@@ -163,9 +166,20 @@ class OptimizePanel(_DesignPanel):
         return lambda progress: optimize(scene, [bound], figure, maximize=maximize, options=options,
                                          workers=1, progress=progress)
 
+    def run(self):
+        self.apply_btn.setEnabled(False)        # the optimum shown is about to be replaced
+        super().run()
+
     def apply(self):
-        if self.result is not None and self.apply_optimum is not None and self.apply_optimum(self.result):
-            self.apply_btn.setEnabled(False)        # applied once; run again to tune further
+        if self.result is None or self.apply_optimum is None:
+            return
+        scene = self.apply_optimum(self.result)
+        if scene is None:
+            return
+        self.apply_btn.setEnabled(False)        # applied once; run again to tune further
+        self.scene = scene                      # the next run starts from the applied optimum
+        if self.applied is not None:
+            self.applied(scene)
 
     def _fill_table(self, result):
         rows = []

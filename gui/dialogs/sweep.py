@@ -161,10 +161,18 @@ class SweepDialog(QDialog):
         from .design import OptimizePanel, TolerancePanel
         names = sweep_names(scene)
         self.optimize_panel = OptimizePanel(scene, self.options, names, current_value,
-                                            apply_optimum=getattr(self.parent(), "apply_optimum", None))
+                                            apply_optimum=getattr(self.parent(), "apply_optimum", None),
+                                            applied=self.use_scene)
         self.tolerance_panel = TolerancePanel(scene, self.options, names)
         self.tabs.addTab(self.optimize_panel, "Optimize")
         self.tabs.addTab(self.tolerance_panel, "Tolerance")
+
+    def use_scene(self, scene) -> None:
+        """After "Apply to scene": every tab goes on from the scene with the optimum in it (a
+        second number tuned or toleranced next must see the first one's optimum)."""
+        self.scene = scene
+        for panel in (self.optimize_panel, self.tolerance_panel):
+            panel.scene = scene
 
     def _default_range(self, name):
         v = current_value(self.scene, name)
