@@ -122,6 +122,10 @@ def _read(path: str, problems: Problems):
         problems.add("file", f"<could not read: {exc.strerror or exc}>", "a readable DXF file")
     except ezdxf.DXFError as exc:
         problems.add("file", f"<not a DXF drawing: {exc}>", "a DXF file (ASCII or binary)")
+    except (StopIteration, EOFError, ValueError):
+        # the DXF library's own readers stop with these on a file cut short in its header
+        problems.add("file", "<not a whole DXF drawing: it ends early or is damaged>",
+                     "a complete DXF file (ASCII or binary); save or copy the drawing again")
     raise SceneError(problems.items)
 
 

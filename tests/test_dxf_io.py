@@ -295,3 +295,17 @@ def test_materials_whose_layer_names_would_clash_get_layers_of_their_own(tmp_pat
     assert len({n.casefold() for n in layers}) == len(layers) == 6     # "0", "Defpoints" and the four above
     back = import_dxf(out, setup=load_scene(scene_file))
     assert {p.name: p.material for p in back.parts} == {p["name"]: p["material"] for p in data["parts"]}
+
+
+@pytest.mark.parametrize("size", [50, 200, 4000])
+def test_a_drawing_cut_short_is_an_error_naming_the_file_not_a_traceback(tmp_path, capsys, size):
+    """The sample drawing cut off after `size` bytes (a copy that stopped early): the DXF
+    library's reader ended in a StopIteration traceback; now one error names the file and says
+    what it expected."""
+    cut = tmp_path / "cut.dxf"
+    cut.write_bytes(PIPE_DXF.read_bytes()[:size])
+    assert cli.main(["import-dxf", str(cut), "-o", str(tmp_path / "cut.json")]) == cli.EXIT_SCENE
+    err = capsys.readouterr().err
+    assert f"error: {cut}: file: found <not a whole DXF drawing: it ends early or is damaged>" in err
+    assert "a complete DXF file" in err and "Traceback" not in err
+    assert not (tmp_path / "cut.json").exists()
