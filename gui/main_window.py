@@ -394,7 +394,10 @@ class MainWindow(QMainWindow):
             self.doc.open(path)
         except SceneError as exc:
             lines = [str(p) for p in exc.problems]
-            self.show_error("Cannot open the scene", f"{path} has {len(lines)} problem(s):\n" + "\n".join(lines[:20]))
+            text = f"{path} has {len(lines)} problem(s):\n" + "\n".join(lines[:20])
+            if any("a DXF drawing, not a scene file" in line for line in lines):
+                text += "\n\nIn this app, File > Import DXF... adds the drawing's contours to the scene as parts."
+            self.show_error("Cannot open the scene", text)
             return False
         except OSError as exc:
             self.show_error("Cannot open the scene", f"Could not read {path}: {exc.strerror or exc}")

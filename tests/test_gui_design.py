@@ -239,3 +239,12 @@ def test_after_apply_the_next_run_starts_from_the_applied_optimum(qtbot, win):
     assert p.table.item(0, 1).text() == f"{first.optimum[0]:.6g}"
     assert p.apply_btn.isEnabled()
     dlg.close()
+
+
+def test_opening_a_dxf_drawing_as_a_scene_points_to_file_import_dxf(win):
+    """File > Open on the bundled DXF drawing: the message says what the file is and names the
+    app's own way to use it (File > Import DXF...), beside the command line's import-dxf."""
+    assert not win.open_file(str(PIPE_DXF))
+    text = win.errors[-1]
+    assert "a DXF drawing, not a scene file" in text and "File > Import DXF..." in text
+    assert win.doc.path is None
