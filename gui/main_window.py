@@ -609,9 +609,10 @@ class MainWindow(QMainWindow):
             self.show_error("Cannot import the drawing",
                             f"{path} has {len(lines)} problem(s):\n" + "\n".join(lines[:20]))
             return False
-        self.doc.apply(scene, f"import {count} parts from {Path(path).name}")
+        from raytrace.cli import counted
+        self.doc.apply(scene, f"import {counted(count, 'part')} from {Path(path).name}")
         self.canvas.fit()
-        self.status_note(f"Imported {count} parts from {path}")
+        self.status_note(f"Imported {counted(count, 'part')} from {path}")
         return True
 
     def open_sweep(self) -> None:

@@ -248,3 +248,19 @@ def test_opening_a_dxf_drawing_as_a_scene_points_to_file_import_dxf(win):
     text = win.errors[-1]
     assert "a DXF drawing, not a scene file" in text and "File > Import DXF..." in text
     assert win.doc.path is None
+
+
+def test_import_of_one_part_says_1_part(qtbot, win, tmp_path):
+    """A drawing with one contour: the status bar and the undo step say '1 part' (was '1 parts')."""
+    import ezdxf
+    doc = ezdxf.new()
+    doc.header["$INSUNITS"] = 4
+    doc.modelspace().add_lwpolyline([(0, 0), (4, 0), (4, 4), (0, 4)], close=True, dxfattribs={"layer": "PMMA"})
+    one = tmp_path / "one.dxf"
+    doc.saveas(one)
+    win.new_scene()
+    win.ask_dxf_path = lambda: str(one)
+    win.ask_dxf_setup = lambda layers, ask_units: ({"PMMA": "PMMA"}, None)
+    assert win.import_dxf()
+    assert win.statusBar().currentMessage() == f"Imported 1 part from {one}"
+    assert win.doc.undo_stack.text(0) == "import 1 part from one.dxf"
