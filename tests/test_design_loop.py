@@ -281,10 +281,17 @@ def test_readme_optimize_example_reproduces_with_the_traces_own_errors(tmp_path,
     assert cli.main(["optimize", str(pipe), "--vary", "bend_radius=4:14", "--figure", "viewer side",
                      "--workers", "2", "--json", str(tmp_path / "o.json")]) == 0
     out = capsys.readouterr().out
-    assert "figure at the optimum: 74.343 +- 0.348 %  (start 67.829 +- 0.659 %)" in out
-    assert "evaluations: 20 (the start, 9 in the scan, 10 refining)" in out
-    for quoted in ("best radius is 11.53 mm", "74.343 +- 0.348 %", "67.829 +- 0.659 %", "It took 20 traces"):
-        assert quoted in readme
+    # the README quotes what the run prints (read from the output, so no figure is written
+    # into this test: a change of the engine's result shows up as a README to re-run)
+    import re
+    radius = float(re.search(r"bend_radius: ([0-9.]+)  \(start 8\)", out).group(1))
+    best, start = re.search(r"figure at the optimum: ([0-9.]+ \+- [0-9.]+) %  \(start ([0-9.]+ \+- [0-9.]+) %\)",
+                            out).groups()
+    total, scan, refine = re.search(r"evaluations: (\d+) \(the start, (\d+) in the scan, (\d+) refining\)",
+                                    out).groups()
+    text = " ".join(readme.split())
+    assert (f"the best radius is {radius:.2f} mm, with {best} % on the viewer side, against {start} % at the "
+            f"sample's 8 mm. It took {total} traces: the start, {scan} in the scan and {refine} to refine") in text
     start = json.loads((tmp_path / "o.json").read_text())["evaluations"][0]
     assert cli.main(["trace", str(pipe), "--json", str(tmp_path / "t.json"), "--quiet"]) == 0
     traced = json.loads((tmp_path / "t.json").read_text())
