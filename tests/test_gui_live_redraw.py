@@ -132,8 +132,9 @@ def test_an_edit_shows_its_coarse_fan_first_then_its_full_trace(qtbot, win, monk
 
 def test_the_canvas_waits_for_the_new_rays_before_painting(qtbot, win, monkeypatch):
     _open(qtbot, win)
-    # a hold long enough for any trace on a loaded machine: here the result must end it
-    monkeypatch.setattr(main_window_mod, "PAINT_HOLD_S", 30.0)
+    # a hold of an hour: only the result can end it, however slow the machine (with a hold of
+    # seconds, a trace slower than that would fail the check through the timer)
+    monkeypatch.setattr(main_window_mod, "PAINT_HOLD_S", 3600.0)
     vp = win.canvas.plot.viewport()
     paints = _Paints(vp)
     painted_at_result = []
