@@ -106,8 +106,10 @@ class PeakMemory:
     run (a quarter of the run's CPU, on a 2-core machine).  So every 50 ms only the resident
     sizes are read (statm, constant cost), and the proportional sizes are read when the summed
     resident size reaches a new high, at most as often as keeps the sampler under SAMPLER_SHARE
-    of one core.  A process's PSS never exceeds its resident size, so what is missed is a PSS
-    rise while the resident sum stays below its high (shared pages changing hands)."""
+    of one core.  A process's PSS never exceeds its resident size, so what can be missed is a
+    PSS rise while the resident sum stays below its high (shared pages changing hands), and a
+    high that has passed again before the proportional reading it asked for: after a reading
+    the next waits (that reading's CPU time) / SAMPLER_SHARE, e.g. 0.4 s after a 20 ms one."""
 
     SAMPLER_SHARE = 0.05
     PAGE = os.sysconf("SC_PAGE_SIZE") if hasattr(os, "sysconf") else 4096
