@@ -22,6 +22,7 @@ SHORTCUTS = """<h3>Keys</h3>
 <tr><td>Ctrl+N / Ctrl+O / Ctrl+S / Ctrl+Shift+S</td><td>new, open, save, save as</td></tr>
 <tr><td>Ctrl+Z / Ctrl+Shift+Z or Ctrl+Y</td><td>undo / redo</td></tr>
 <tr><td>Del, Ctrl+D</td><td>delete, duplicate the selected part, source or detector</td></tr>
+<tr><td>Ctrl+Shift+A</td><td>add a part from a shape (prism, window, light pipe...)</td></tr>
 <tr><td>arrow keys (Shift: x10)</td><td>move the selection by one grid step</td></tr>
 <tr><td>V, R</td><td>select and drag / rotate</td></tr>
 <tr><td>P, B</td><td>draw a part by its vertices / by a rectangle</td></tr>
@@ -32,11 +33,13 @@ SHORTCUTS = """<h3>Keys</h3>
 <tr><td>Enter, Backspace, Esc</td><td>close, take back a vertex, cancel (while drawing)</td></tr>
 <tr><td>F5 / Shift+F5</td><td>trace now / stop the trace</td></tr>
 <tr><td>F6</td><td>sweep a number of the scene</td></tr>
-<tr><td>Ctrl+0</td><td>fit the scene in the view</td></tr>
+<tr><td>Ctrl+0</td><td>fit the parts and sources in the view (detectors near them cross it)</td></tr>
+<tr><td>Ctrl+Shift+0</td><td>fit everything, every detector whole</td></tr>
 <tr><td>Ctrl+= (Ctrl++), Ctrl+-</td><td>zoom in, zoom out</td></tr>
 <tr><td>G, Shift+G</td><td>grid on/off, snapping to the grid on/off</td></tr>
 <tr><td>Shift+V</td><td>snapping to vertices, midpoints, arc centres and edges on/off</td></tr>
 <tr><td>Ctrl+Q</td><td>quit (asks first about unsaved changes)</td></tr>
+<tr><td>F1</td><td>this list of keys</td></tr>
 <tr><td>mouse wheel, drag on empty space</td><td>zoom, pan</td></tr>
 </table>
 """

@@ -306,3 +306,24 @@ def test_vertex_table_shows_and_edits_arc_radii_and_hole_rows(qtbot, win, tmp_pa
     assert win.save_as()
     again = load_scene(out, check_shapes=False).parts[0].outer.edges[0]
     assert again.is_arc and again.radius == pytest.approx(40.0)
+
+
+# ---------------------------------------------------------------------------- Help > Keys
+def test_help_keys_lists_a_shortcut_of_every_menu_action(win):
+    """Help > Keys and mouse (F1) names at least one key of every menu action that has one, as
+    the menus set them (Fit everything, Ctrl+Shift+0, was missing, and Ctrl+0 was called 'fit
+    the scene' after it came to frame the parts and sources)."""
+    import re
+    from PySide6.QtGui import QKeySequence
+    from gui.help import SHORTCUTS
+    keys = set()
+    for cell in re.findall(r"<tr><td>(.*?)</td>", SHORTCUTS):
+        keys.update(k for k in re.split(r"\s*(?:/|,| or |\(|\))\s*", cell) if k)
+    missing = []
+    for top in win.menuBar().actions():
+        for a in top.menu().actions():
+            shortcuts = [s.toString(QKeySequence.PortableText) for s in a.shortcuts()]
+            if shortcuts and not keys.intersection(shortcuts):
+                missing.append((a.text(), shortcuts))
+    assert missing == []
+    assert "fit the parts and sources" in SHORTCUTS
