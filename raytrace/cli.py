@@ -335,6 +335,18 @@ def cmd_check(args) -> int:
     return worst
 
 
+def route_faces(scene) -> dict[str, list[str]] | None:
+    """The scene's parts and their faces, for checking --route buckets (None when the scene
+    does not compile: its points then report why)."""
+    from .compile import compile_scene
+    from .errors import RaytraceError
+    from .figures import scene_faces
+    try:
+        return scene_faces(compile_scene(scene))
+    except RaytraceError:
+        return None
+
+
 def counted(n: int, thing: str) -> str:
     """'1 part', '2 parts'."""
     return f"{n:,} {thing}" + ("" if n == 1 else "s")
@@ -519,7 +531,7 @@ def cmd_sweep(args) -> int:
         detectors = [d.name for d in scene.detectors]
         accepting = [d.acceptance is not None for d in scene.detectors]
         figures = ([parse_figure(f, detectors, acceptance=accepting, file=args.scene) for f in args.figure]
-                   + [parse_route(r, detectors) for r in args.route])
+                   + [parse_route(r, detectors, faces=route_faces(scene)) for r in args.route])
         refuse_target_figure(scene, args)
         variables = [parse_vary(v) for v in args.vary]
         if len(variables) > 2:

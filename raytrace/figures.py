@@ -13,6 +13,8 @@ cell.  Figures are computed where the point is traced, so they cross process lin
 """
 from __future__ import annotations
 
+import re
+
 from dataclasses import dataclass
 
 from .errors import Problems, SceneError
@@ -72,8 +74,11 @@ def parse_figure(text: str, detectors: list[str], where: str = "--figure",
     return Figure(text, "detector", owner, fld)
 
 
-def parse_route(text: str, detectors: list[str], where: str = "--route") -> Figure:
-    """BUCKET=STEPS -> Figure; a bare detector name stands for its bucket."""
+def parse_route(text: str, detectors: list[str], where: str = "--route",
+                faces: dict[str, list[str]] | None = None) -> Figure:
+    """BUCKET=STEPS -> Figure; a bare detector name stands for its bucket.  `faces`: the scene's
+    part names, each with its face names (`scene_faces`), to refuse a bucket naming a part or
+    face the scene does not have."""
     bucket, sep, steps = text.partition("=")
     bucket, steps = bucket.strip(), steps.strip()
     if not sep or not bucket or not steps:
@@ -86,7 +91,46 @@ def parse_route(text: str, detectors: list[str], where: str = "--route") -> Figu
               + ", ".join(repr(d) for d in detectors) + ") or a ledger bucket label as `raytrace "
               "trace` prints it: \"escaped via PART / FACE\", \"escaped without meeting anything\", "
               "\"absorbed at PART / FACE\", \"absorbed in bulk of PART\" or \"truncated: REASON\"")
+    if faces is not None:
+        _check_bucket_names(where, text, label, faces)
     return Figure(f"route: {bucket}: {steps}", "route", label, steps)
+
+
+def scene_faces(cs) -> dict[str, list[str]]:
+    """Part name -> its face names, as ledger bucket labels name them, of a compiled scene."""
+    out: dict[str, list[str]] = {name: [] for name in cs.part_names}
+    for part, face in cs.face_labels:
+        if part in out and face not in out[part]:
+            out[part].append(face)
+    return out
+
+
+_GENERATED_FACE = re.compile(r"^(hole \d+ )?edge \d+$")   # an unnamed edge; a sweep may add some
+
+
+def _check_bucket_names(where: str, text: str, label: str, faces: dict[str, list[str]]) -> None:
+    """A bucket label's PART (and FACE) must be the scene's: a misspelt one would match no route
+    and give a column of zeros."""
+    from .ledger import TRUNCATION_REASONS
+    if label.startswith("truncated: "):
+        if label[len("truncated: "):] not in TRUNCATION_REASONS:
+            _fail(where, text, "a truncation bucket: " + ", ".join(f'"truncated: {r}"' for r in TRUNCATION_REASONS))
+        return
+    if label.startswith("absorbed in bulk of "):
+        part, face = label[len("absorbed in bulk of "):], None
+    elif label.startswith(("escaped via ", "absorbed at ")):
+        rest = label.split(" ", 2)[2]
+        part = max((p for p in faces if rest.startswith(p + " / ")), key=len, default=None)
+        if part is None:
+            _fail(where, text, "a bucket naming a part of the scene as PART / FACE, parts: "
+                  + ", ".join(repr(p) for p in faces))
+        face = rest[len(part) + 3:]
+    else:
+        return
+    if part not in faces:
+        _fail(where, text, "a bucket naming a part of the scene: " + ", ".join(repr(p) for p in faces))
+    if face is not None and face not in faces[part] and not _GENERATED_FACE.match(face):
+        _fail(where, text, f"a face of part {part!r}: " + ", ".join(repr(f) for f in faces[part]))
 
 
 def _is_bucket_label(label: str, detectors: list[str]) -> bool:

@@ -166,3 +166,31 @@ def test_acceptance_needs_one_direction_and_a_known_source():
     with pytest.raises(SceneError) as e:
         scene_from_dict(base)
     assert any("exactly one of direction_deg" in p.expected for p in e.value.problems)
+
+
+@pytest.mark.parametrize("bucket,words", [
+    ("escaped via roof prism / hypotenusee", "a face of part 'roof prism': 'hypotenuse'"),
+    ("escaped via roof prsm / hypotenuse", "parts: 'roof prism'"),
+    ("absorbed in bulk of roof", "a part of the scene: 'roof prism'"),
+    ("truncated: flux", '"truncated: below flux floor"'),
+])
+def test_route_naming_a_part_or_face_the_scene_lacks_is_refused(tmp_path, capsys, bucket, words):
+    """A bucket of the right form with a misspelt part or face (or truncation reason) matched no
+    route either and gave the same silent column of zeros; it is refused naming what there is."""
+    out = tmp_path / "x.csv"
+    code = main(["sweep", str(SAMPLES / "roof-prism-retroreflector.json"), "--vary",
+                 "emitter beam.direction_deg=85,90", "--route", f"{bucket}=reflect off roof prism / hypotenuse",
+                 "--csv", str(out)])
+    assert code == 2 and not out.exists()
+    assert words in capsys.readouterr().err
+
+
+def test_route_with_the_scenes_own_bucket_is_a_column(tmp_path):
+    """The same route through a real bucket of the scene is accepted and written."""
+    out = tmp_path / "x.csv"
+    assert main(["sweep", str(SAMPLES / "roof-prism-retroreflector.json"), "--vary",
+                 "emitter beam.direction_deg=85,90", "--route",
+                 "escaped via roof prism / hypotenuse=reflect off roof prism / hypotenuse",
+                 "--rays", "50", "--csv", str(out), "--quiet"]) == 0
+    assert "route: escaped via roof prism / hypotenuse: reflect off roof prism / hypotenuse" in \
+        out.read_text().splitlines()[0]
