@@ -93,7 +93,43 @@ def parse_route(text: str, detectors: list[str], where: str = "--route",
               "\"absorbed at PART / FACE\", \"absorbed in bulk of PART\" or \"truncated: REASON\"")
     if faces is not None:
         _check_bucket_names(where, text, label, faces)
+        _check_steps(where, text, steps, faces, detectors)
     return Figure(f"route: {bucket}: {steps}", "route", label, steps)
+
+
+_VERBS = ("TIR at ", "reflect off ", "mirror at ", "enter through ", "leave through ", "cross ")
+
+
+def _check_steps(where: str, text: str, steps: str, faces: dict[str, list[str]], detectors: list[str]) -> None:
+    """Each step of STEPS as `trace --routes` prints it (routes._step), naming a face or detector
+    of the scene: a misspelt step matches no route, a column of zeros again."""
+    from .routes import OTHER_ROUTES
+    names = list(faces) + [f for fs in faces.values() for f in fs] + list(detectors)
+    if steps in (OTHER_ROUTES, "straight from the source") or any(", " in n for n in names):
+        return              # (names with ", " in them cannot be told from the step separator)
+    wheres = [f"{p} / {f}" for p, fs in faces.items() for f in fs]
+    for step in steps.split(", "):
+        step = re.sub(r"^\d+ x ", "", step)
+        if step.startswith("pass detector "):
+            if step[len("pass detector "):] not in detectors:
+                _fail(where, text, f"in step {step!r} a detector of the scene: "
+                      + ", ".join(repr(d) for d in detectors))
+            continue
+        verb = next((v for v in _VERBS if step.startswith(v)), None)
+        if verb is None:
+            _fail(where, text, f"steps as `raytrace trace --routes` prints them; step {step!r} is none of: "
+                  + ", ".join(f"'{v}PART / FACE'" for v in _VERBS[:-1])
+                  + ", 'cross PART / FACE into MEDIUM', 'pass detector NAME', 'N x STEP'")
+        rest = step[len(verb):]
+        if verb == "cross ":
+            rest = rest.rsplit(" into ", 1)[0]
+        part = max((p for p in faces if rest.startswith(p + " / ")), key=len, default=None)
+        if rest in wheres or (part is not None and _GENERATED_FACE.match(rest[len(part) + 3:])):
+            continue
+        if part is None:
+            _fail(where, text, f"in step {step!r} a part of the scene as PART / FACE, parts: "
+                  + ", ".join(repr(p) for p in faces))
+        _fail(where, text, f"in step {step!r} a face of part {part!r}: " + ", ".join(repr(f) for f in faces[part]))
 
 
 def scene_faces(cs) -> dict[str, list[str]]:

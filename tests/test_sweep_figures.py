@@ -194,3 +194,36 @@ def test_route_with_the_scenes_own_bucket_is_a_column(tmp_path):
                  "--rays", "50", "--csv", str(out), "--quiet"]) == 0
     assert "route: escaped via roof prism / hypotenuse: reflect off roof prism / hypotenuse" in \
         out.read_text().splitlines()[0]
+
+
+@pytest.mark.parametrize("bucket,steps,words", [
+    ("return", "reflect off roof prism / hypotenusee", "a face of part 'roof prism'"),
+    ("return", "refelct off roof prism / hypotenuse", "step 'refelct off roof prism / hypotenuse' is none of"),
+    ("return", "pass detector retrun", "a detector of the scene: 'return'"),
+])
+def test_route_steps_naming_what_the_scene_lacks_are_refused(tmp_path, capsys, bucket, steps, words):
+    out = tmp_path / "x.csv"
+    code = main(["sweep", str(SAMPLES / "roof-prism-retroreflector.json"), "--vary",
+                 "emitter beam.direction_deg=85,90", "--route", f"{bucket}={steps}", "--csv", str(out)])
+    assert code == 2 and not out.exists()
+    assert words in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("path", sorted(SAMPLES.glob("*.json")), ids=lambda p: p.stem)
+def test_every_route_a_trace_prints_passes_the_route_check(path):
+    """The check must refuse only what no trace prints: every (bucket, steps) of a 300-ray
+    trace of each sample, as `trace --routes` lists them, is accepted as a --route."""
+    import raytrace
+    from raytrace.compile import compile_scene
+    from raytrace.figures import parse_route, scene_faces
+    from raytrace.routes import route_groups
+    from raytrace.scene_io import load_scene
+    scene = load_scene(path)
+    result = raytrace.trace(scene, rays=300, track_paths=True)
+    detectors = [d.name for d in scene.detectors]
+    faces = scene_faces(compile_scene(scene))
+    groups = route_groups(result)
+    assert groups
+    for g in groups:
+        bucket = g.bucket[len("detector "):] if g.bucket.startswith("detector ") else g.bucket
+        parse_route(f"{bucket}={g.text}", detectors, faces=faces)
