@@ -410,6 +410,9 @@ class MainWindow(QMainWindow):
             self.result_tabs.setCurrentWidget(self.problems_panel)
             self.status_note(f"Opened {path}: {len(self.problems)} problem(s) to fix before it can be "
                              "traced (see Problems)")
+        elif self.canvas.fit_left_out:      # the fit's own note would be replaced by "Opened"
+            self.status_note(f"Opened {Path(path).name}; outside the view: detector "
+                             f"{', '.join(self.canvas.fit_left_out)} (Ctrl+Shift+0 shows it)")
         else:
             self.status_note(f"Opened {path}")
         return True

@@ -327,3 +327,17 @@ def test_help_keys_lists_a_shortcut_of_every_menu_action(win):
                 missing.append((a.text(), shortcuts))
     assert missing == []
     assert "fit the parts and sources" in SHORTCUTS
+
+
+def test_opening_a_scene_with_a_far_detector_names_it(qtbot, win, tmp_path):
+    """Open frames the parts too: the status bar's "Opened ..." also names the detector the
+    frame leaves out (the fit's own note was replaced by "Opened" at once)."""
+    data = json.loads(MICROPRISM.read_text())
+    data["detectors"][0]["start"], data["detectors"][0]["end"] = [-20.0, 500.0], [20.0, 500.0]
+    path = tmp_path / "far.json"
+    path.write_text(json.dumps(data))
+    shown(qtbot, win, (1024, 700))
+    assert win.open_file(str(path))
+    assert win.canvas.fit_left_out == ["viewer"]
+    said = win.statusBar().currentMessage()
+    assert said == "Opened far.json; outside the view: detector viewer (Ctrl+Shift+0 shows it)", said
