@@ -133,9 +133,13 @@ def _usage_errors(exc) -> int:
 def _design_command(args, run, history_csv, failed=lambda result: False) -> int:
     """Load the scene, run(scene, executor, workers, progress), print the report and write the
     --csv and --json files: what optimize and tolerance share."""
-    from .cli import EXIT_OK, EXIT_OUTPUT, EXIT_SWEEP_POINTS, print_notes, write_output
+    from .cli import (EXIT_OK, EXIT_OUTPUT, EXIT_SWEEP_POINTS, EXIT_USAGE, print_notes, refuse_clashing_outputs,
+                      refuse_two_on_stdout, write_output)
     from .scene_io import load_scene
     from .sweep import SweepError
+    outputs = {"--csv": args.csv, "--json": args.json}
+    if refuse_clashing_outputs({"scene": args.scene}, outputs) or refuse_two_on_stdout(outputs):
+        return EXIT_USAGE          # before any trace: an output over the scene would destroy it
     scene = load_scene(args.scene)
     print_notes(scene)
     try:
@@ -182,9 +186,12 @@ def cmd_tolerance(args) -> int:
 
 
 def cmd_import_dxf(args) -> int:
-    from .cli import EXIT_OK, EXIT_OUTPUT, EXIT_SCENE, EXIT_USAGE
+    from .cli import EXIT_OK, EXIT_OUTPUT, EXIT_SCENE, EXIT_USAGE, refuse_clashing_outputs
     from .dxf_io import import_dxf, layer_materials
     from .scene_io import load_scene, save_scene
+    inputs = {"drawing": args.dxf, "--setup-from scene": args.setup_from, "--materials-file": args.materials_file}
+    if refuse_clashing_outputs({k: v for k, v in inputs.items() if v}, {"-o": args.output}):
+        return EXIT_USAGE
     try:
         mapping = layer_materials(args.layer_material, args.materials_file)
     except ValueError as exc:
@@ -215,7 +222,10 @@ def cmd_import_dxf(args) -> int:
 def cmd_export_dxf(args) -> int:
     from .cli import EXIT_OK, EXIT_OUTPUT
     from .dxf_io import export_dxf
+    from .cli import EXIT_USAGE, refuse_clashing_outputs
     from .scene_io import load_scene
+    if refuse_clashing_outputs({"scene": args.scene}, {"-o": args.output}):
+        return EXIT_USAGE
     scene = load_scene(args.scene)
     try:
         layers = export_dxf(scene, args.output)

@@ -335,3 +335,19 @@ def test_too_few_samples_for_one_number_is_said_in_the_singular(capsys):
                      "--rays", "20", "--samples", "2", "--workers", "1"]) == 0
     out = capsys.readouterr().out
     assert "drivers: not fitted, 2 traced samples for 1 number; the fit needs at least 3 (raise --samples)" in out
+
+
+@pytest.mark.parametrize("command", [
+    ["optimize", "--vary", "probe beam.direction_deg=40:70", "--figure", "inside chamber"],
+    ["tolerance", "--tol", "probe beam.direction_deg=1", "--figure", "inside chamber", "--samples", "3"],
+])
+@pytest.mark.parametrize("flag", ["--csv", "--json"])
+def test_optimize_and_tolerance_refuse_an_output_over_the_scene(tmp_path, capsys, command, flag):
+    """--csv or --json naming the scene file wrote the table over the scene after the run; now it
+    is refused before any trace, and the scene stays byte for byte."""
+    scene = tmp_path / "window.json"
+    scene.write_bytes(WINDOW.read_bytes())
+    args = [command[0], str(scene), *command[1:], "--rays", "20", "--workers", "1", flag, str(scene)]
+    assert cli.main(args) == cli.EXIT_USAGE
+    assert f"{flag} {scene}: found the same file as the scene" in capsys.readouterr().err
+    assert scene.read_bytes() == WINDOW.read_bytes()

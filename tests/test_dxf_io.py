@@ -309,3 +309,22 @@ def test_a_drawing_cut_short_is_an_error_naming_the_file_not_a_traceback(tmp_pat
     assert f"error: {cut}: file: found <not a whole DXF drawing: it ends early or is damaged>" in err
     assert "a complete DXF file" in err and "Traceback" not in err
     assert not (tmp_path / "cut.json").exists()
+
+
+def test_export_and_import_refuse_to_write_over_their_own_input(tmp_path, capsys):
+    """`export-dxf scene.json -o scene.json` wrote the drawing over the scene, and `import-dxf
+    d.dxf -o d.dxf` (or -o the --setup-from scene) the scene over the drawing: the user's file was
+    gone.  Now each is a usage error naming both, and the input stays byte for byte."""
+    scene = tmp_path / "pipe.json"
+    scene.write_bytes(PIPE_JSON.read_bytes())
+    drawn = tmp_path / "pipe.dxf"
+    drawn.write_bytes(PIPE_DXF.read_bytes())
+    for args, words in (
+            (["export-dxf", str(scene), "-o", str(scene)], f"-o {scene}: found the same file as the scene"),
+            (["import-dxf", str(drawn), "-o", str(drawn)], f"-o {drawn}: found the same file as the drawing"),
+            (["import-dxf", str(drawn), "-o", str(scene), "--setup-from", str(scene)],
+             "found the same file as the --setup-from scene")):
+        assert cli.main(args) == cli.EXIT_USAGE
+        err = capsys.readouterr().err
+        assert words in err and "writing it would destroy the other" in err
+    assert scene.read_bytes() == PIPE_JSON.read_bytes() and drawn.read_bytes() == PIPE_DXF.read_bytes()
