@@ -365,7 +365,8 @@ def cmd_trace(args) -> int:
     from .scene_io import load_scene
     from .sweep import SweepError
     outputs = {"--json": args.json, "--csv": args.csv, "--detectors-csv": args.detectors_csv}
-    if refuse_clashing_outputs({"scene": args.scene}, outputs) or refuse_two_on_stdout(outputs):
+    if refuse_clashing_outputs({"scene": args.scene}, dict(outputs, **{"--plot": args.plot})) \
+            or refuse_two_on_stdout(outputs):
         return EXIT_USAGE
     # With an output on standard output the printed report goes to stderr, so that what is
     # piped on stays valid JSON or CSV.
@@ -521,7 +522,7 @@ def cmd_sweep(args) -> int:
     from .report import Progress
     from .scene_io import load_scene, scene_to_dict
     from .sweep import SweepError, parse_vary, sweep
-    if refuse_clashing_outputs({"scene": args.scene}, {"--csv": args.csv}):
+    if refuse_clashing_outputs({"scene": args.scene}, {"--csv": args.csv, "--plot": args.plot}):
         return EXIT_USAGE
     scene = load_scene(args.scene)
     print_notes(scene)

@@ -566,3 +566,16 @@ def test_a_file_name_that_is_not_utf8_prints_escaped(tmp_path):
                           capture_output=True, env={**os.environ, "PYTHONIOENCODING": "utf-8"})
     assert run_.returncode == cli.EXIT_OK, run_.stderr
     assert run_.stdout.decode("utf-8").startswith("scene\\udcff.json: ok")
+
+
+@pytest.mark.parametrize("args", [
+    ["trace", "{scene}", "--rays", "20", "--json", "{out}", "--plot", "{out}"],
+    ["sweep", "{scene}", "--vary", "probe beam.direction_deg=40,50", "--rays", "20", "--csv", "{out}", "--plot", "{out}"],
+])
+def test_a_plot_on_the_file_of_another_output_is_refused(scene_file, tmp_path, capsys, args):
+    """--plot out.svg beside --json out.svg (or a sweep's --csv out.png): one silently replaced the
+    other after the run; now it is refused before tracing, naming both."""
+    out = tmp_path / "out.svg"
+    code, _, err = run([a.format(scene=scene_file, out=out) for a in args], capsys)
+    assert code == cli.EXIT_USAGE and not out.exists()
+    assert f"{out}: found the same file as" in err and "--plot" in err
