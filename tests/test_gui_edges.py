@@ -341,3 +341,22 @@ def test_opening_a_scene_with_a_far_detector_names_it(qtbot, win, tmp_path):
     assert win.canvas.fit_left_out == ["viewer"]
     said = win.statusBar().currentMessage()
     assert said == "Opened far.json; outside the view: detector viewer (Ctrl+Shift+0 shows it)", said
+
+
+def test_sweep_table_is_not_saved_over_the_open_scene(qtbot, win, tmp_path):
+    """Sweep > Save table... onto the open scene's own file wrote the CSV over the scene (the
+    main window's exports refuse that, the dialog did not); now it is refused, the file stays."""
+    import shutil
+    from gui.dialogs.sweep import SweepDialog
+    from test_gui import run_sweep_dialog
+    scene = tmp_path / "window.json"
+    shutil.copy(SAMPLES / "oblique-window.json", scene)
+    assert win.open_file(str(scene))
+    dlg = SweepDialog(win.doc.scene, {}, win)
+    qtbot.addWidget(dlg)
+    run_sweep_dialog(qtbot, dlg, "probe beam.direction_deg", 30.0, 50.0, 2, 10)
+    assert dlg.result is not None
+    assert not dlg.save_table(str(scene))
+    assert "the open scene's own file" in dlg.status.text()
+    assert scene.read_bytes() == (SAMPLES / "oblique-window.json").read_bytes()
+    assert dlg.save_table(str(tmp_path / "table.csv"))

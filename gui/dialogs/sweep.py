@@ -237,6 +237,13 @@ class SweepDialog(QDialog):
         path = path or self.ask_save_path()
         if not path:
             return False
+        doc = getattr(self.parent(), "doc", None)
+        if doc is not None and doc.path is not None:
+            from raytrace.atomic import clashing_outputs
+            if clashing_outputs({"scene": str(doc.path)}, {"the table": path}):
+                self.status.setText(f"Not saved: {path} is the open scene's own file; writing the table "
+                                    "there would destroy it. Choose another name.")
+                return False
         try:
             self.result.to_csv(path)
         except OSError as exc:
