@@ -242,7 +242,7 @@ class Canvas(QWidget):
 
         self._part_items: list[QGraphicsPathItem] = []
         self._part_paths: list[QPainterPath] = []
-        self._edge_polys: list[tuple[int, int, np.ndarray]] = []   # (part, edge, points)
+        self._edge_polys: list[tuple[int, int, int, np.ndarray]] = []   # (part, loop, edge, points)
         self._glyph_items: list[QGraphicsPathItem] = []
         self._problem_items: list[QGraphicsPathItem] = []
         self.problems = []
@@ -423,13 +423,14 @@ class Canvas(QWidget):
         return None
 
     def face_at(self, x, y):
-        """(part index, edge index) of the face under (x, y), or None."""
+        """(part index, loop index, edge index) of the face under (x, y), or None; loop 0 is
+        the outline, loop k the part's k-th hole."""
         tol = style.PICK_PX * self.pixel_mm()
         best, best_d = None, tol
-        for pi, ei, pts in self._edge_polys:
+        for pi, li, ei, pts in self._edge_polys:
             d = _polyline_distance((x, y), pts)
             if d <= best_d:
-                best, best_d = (pi, ei), d
+                best, best_d = (pi, li, ei), d
         return best
 
     def aim_handle(self, src):
@@ -583,9 +584,10 @@ class Canvas(QWidget):
                 for q in pts[1:]:
                     path.lineTo(*q)
                 path.closeSubpath()
-            for ei, e in enumerate(part.outer.edges):
-                pts = e.flattened(tol) + [e.end]
-                self._edge_polys.append((i, ei, np.asarray(pts, dtype=float)))
+            for li, loop in enumerate(part.loops):      # the outline, then each hole
+                for ei, e in enumerate(loop.edges):
+                    pts = e.flattened(tol) + [e.end]
+                    self._edge_polys.append((i, li, ei, np.asarray(pts, dtype=float)))
             selected = self.selection == (edits.PART, i)
             # the fill lies under the rays, the outline over them
             fill = QGraphicsPathItem(path)
@@ -819,13 +821,16 @@ class Canvas(QWidget):
         f = self.face_at(x, y)
         if f is None:
             return ""
-        part = self.scene.parts[f[0]]
-        e = part.outer.edges[f[1]]
+        pi, li, ei = f
+        part = self.scene.parts[pi]
+        e = part.loops[li].edges[ei]
         t = e.treatment.kind + (f" R={e.treatment.reflectance:g}" if e.treatment.kind == "mirror" else "")
         arc = ""
         if e.is_arc:        # signed as the arc tool and the vertex table take it
-            arc = f", arc R {signed_radius(part, 0, f[1]):.4g} mm"
-        return f"{part.name} / {e.face or f'edge {f[1] + 1}'} ({t}{arc})"
+            arc = f", arc R {signed_radius(part, li, ei):.4g} mm"
+        # an unnamed face is called as the flux ledger calls it
+        face = e.face or (f"hole {li} edge {ei + 1}" if li else f"edge {ei + 1}")
+        return f"{part.name} / {face} ({t}{arc})"
 
 
 # ---------------------------------------------------------------------- glyph shapes
