@@ -702,7 +702,7 @@ class MainWindow(QMainWindow):
         """Runs on the trace thread: the drawing of a result as the canvas draws it now (the
         canvas checks the colour choice again when it shows it)."""
         from .raydraw import scene_drawing
-        return scene_drawing(result, scene, self.canvas.colour_by_wavelength)
+        return scene_drawing(result, scene, self.canvas.colour_by_wavelength, self.canvas.view_pixel_mm)
 
     def _show_outcome(self, out: TraceOutcome) -> None:
         if out.request.epoch != self.doc.epoch:

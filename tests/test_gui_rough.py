@@ -4,6 +4,7 @@ events go through the drawing's viewport in a real order (see gui_events)."""
 from __future__ import annotations
 
 import os
+from pathlib import Path
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
@@ -69,3 +70,67 @@ def test_hovering_a_hole_face_shows_its_tooltip_like_an_outer_face(qtbot, win, t
     # inside the hole, away from its edge, nothing is named (Qt hides a tooltip after a moment)
     gui_events.hover(qtbot, c, (20.0, 6.0))
     qtbot.waitUntil(lambda: not QToolTip.isVisible(), timeout=2000)
+
+
+# ---------------------------------------------------------------------------- 3. thinning follows the zoom
+LIGHT_PIPE = Path(__file__).resolve().parents[1] / "samples" / "light-pipe-90.json"
+
+
+def _ray_share(qtbot, win, a, b):
+    """The share of the drawing's pixels in the box a-b (scene mm) that the rays change."""
+    import numpy as np
+    from gui_events import widget_point
+    c = win.canvas
+
+    def grab(with_rays):
+        for it in c._ray_items:
+            it.setVisible(with_rays)
+        qtbot.wait(20)
+        img = c.plot.viewport().grab().toImage()
+        p, q = widget_point(c, a), widget_point(c, b)
+        return np.array([[img.pixelColor(x, y).getRgb()[:3] for x in range(int(p.x()), int(q.x()), 2)]
+                         for y in range(int(p.y()), int(q.y()), 2)], dtype=float)
+    bare, drawn = grab(False), grab(True)
+    for it in c._ray_items:
+        it.setVisible(True)
+    return float((np.abs(drawn - bare).max(axis=2) > 3).mean())
+
+
+def test_zooming_in_on_a_crowded_fan_shows_more_of_its_rays_without_a_new_trace(qtbot, win, monkeypatch):
+    """The light pipe's TIR fan is thinned so it reads as rays.  Zoomed in about 4x (Ctrl+= six
+    times, 1.25^6 = 3.8) the same legs are spread over 4x the pixels: drawn as thinned for the
+    fit they would ink the guide a quarter as much; thinned for the new view more rays show,
+    the guide is inked about as much as before, and its tint still shows between the rays."""
+    from PySide6.QtCore import Qt
+    shown(qtbot, win, (1024, 700))
+    assert win.open_file(str(LIGHT_PIPE))
+    wait_traced(qtbot, win)
+    c = win.canvas
+    qtbot.wait(300)        # a rest after the fit: the drawing is the one for this view
+    submitted = []
+    real_submit = win.worker.submit
+    monkeypatch.setattr(win.worker, "submit", lambda *a, **k: submitted.append(a) or real_submit(*a, **k))
+    traces = win.traces_shown
+    thinned_fit = c.drawing.n_thinned
+    assert thinned_fit > 0, "the fan is crowded at the fit"
+    centre = (19.5, 15.5)                         # on the upright arm, 3 mm wide (x 18..21)
+    box = ((18.6, 17.0), (20.4, 14.0))
+    c.view.setRange(xRange=(centre[0] - 16, centre[0] + 16), yRange=(centre[1] - 11, centre[1] + 11), padding=0)
+    qtbot.wait(300)
+    share_fit = _ray_share(qtbot, win, *box)     # the same view framing, before the zoom
+    legs_fit, px_fit = c.painted_segments, c.pixel_mm()
+    c.setFocus()
+    for _ in range(6):
+        gui_events.key(Qt.Key_Equal, Qt.ControlModifier)
+    assert c.pixel_mm() == pytest.approx(px_fit / 1.25 ** 6, rel=1e-6)
+    qtbot.waitUntil(lambda: c.drawing.pixel_mm == pytest.approx(c.pixel_mm()), timeout=3000)
+    qtbot.wait(50)
+    # legs outside the tangles were never thinned, so the count grows by less than the zoom
+    assert c.painted_segments > legs_fit, (legs_fit, c.painted_segments)
+    assert c.drawing.n_thinned < thinned_fit
+    share_zoomed = _ray_share(qtbot, win, *box)
+    # without re-thinning the share drops by the zoom (found 0.27 -> 0.072, 1 / 3.8); strides
+    # are powers of 2, so a view's share may land up to 2x from another's
+    assert share_zoomed > 0.5 * share_fit, (share_fit, share_zoomed)
+    assert share_zoomed < 0.5, "still rays with the guide's tint between them, not a fill"
+    assert submitted == [] and win.traces_shown == traces and win.worker.is_idle(), "no new trace"
