@@ -134,3 +134,92 @@ def test_zooming_in_on_a_crowded_fan_shows_more_of_its_rays_without_a_new_trace(
     assert share_zoomed > 0.5 * share_fit, (share_fit, share_zoomed)
     assert share_zoomed < 0.5, "still rays with the guide's tint between them, not a fill"
     assert submitted == [] and win.traces_shown == traces and win.worker.is_idle(), "no new trace"
+
+
+# ---------------------------------------------------------------------------- 2. the vertex table's room
+def _vertex_table(win):
+    from gui import edits
+    return win.properties.pages[edits.PART].table
+
+
+def _fully_shown_rows(table, win) -> int:
+    """Rows whose whole height is on screen: inside the table's viewport and inside the Edit
+    panel's own scroll area (a table taller than the panel is cut by it)."""
+    from PySide6.QtCore import QPoint
+    outer = win.edit_tabs.currentWidget().viewport()
+    top = max(0, table.viewport().mapTo(outer, QPoint(0, 0)).y())
+    shown = 0
+    for r in range(table.rowCount()):
+        rect = table.visualRect(table.model().index(r, 0))
+        y0 = table.viewport().mapTo(outer, QPoint(0, rect.top())).y()
+        y1 = table.viewport().mapTo(outer, QPoint(0, rect.bottom())).y()
+        shown += rect.top() >= 0 and rect.bottom() < table.viewport().height() and y0 >= top and y1 < outer.height()
+    return shown
+
+
+def _check_fits_sideways(table):
+    """No sideways scrolling, every column inside the panel, no header cut short."""
+    from PySide6.QtGui import QFontMetrics
+    header = table.horizontalHeader()
+    assert not table.horizontalScrollBar().isVisible()
+    assert table.horizontalScrollBar().maximum() == 0, "nothing lies beyond the right edge"
+    shown_cols = [c for c in range(table.columnCount()) if not table.isColumnHidden(c)]
+    assert header.sectionViewportPosition(shown_cols[-1]) + header.sectionSize(shown_cols[-1]) <= table.viewport().width()
+    fm = QFontMetrics(header.font())
+    for c in shown_cols:
+        text = table.horizontalHeaderItem(c).text()
+        assert header.sectionSize(c) >= fm.horizontalAdvance(text) + 6, f"header {text!r} is cut"
+    # the faces' names read whole (the face column takes what the numbers leave)
+    fm = QFontMetrics(table.font())
+    for r in range(table.rowCount()):
+        name = table.item(r, 2).text()
+        assert header.sectionSize(2) >= fm.horizontalAdvance(name) + 6, f"face {name!r} is cut"
+
+
+@pytest.mark.parametrize("size, rows", [((1024, 700), 6), ((1600, 1000), 8)])
+def test_the_vertex_table_gets_the_room_of_the_edit_panel(qtbot, win, size, rows):
+    """Clicking the light pipe (8 vertices) at 1024 x 700 shows at least 6 whole rows of its
+    vertex table, at 1600 x 1000 all 8 and the builder's fields above them; the columns fit the
+    panel's width, the part page does not scroll as a whole, and the flux ledger below still shows
+    all its rows."""
+    shown(qtbot, win, size)
+    assert win.open_file(str(LIGHT_PIPE))
+    wait_traced(qtbot, win)
+    gui_events.click(qtbot, win.canvas, (19.5, 15.0))          # inside the guide's upright arm
+    qtbot.wait(50)
+    from gui import edits
+    assert win.canvas.selection == (edits.PART, 0)
+    table = _vertex_table(win)
+    assert table.isVisible() and table.rowCount() == 8
+    assert _fully_shown_rows(table, win) >= rows, _fully_shown_rows(table, win)
+    _check_fits_sideways(table)
+    outer = win.edit_tabs.currentWidget()                     # the Selection tab's scroll area
+    assert outer.verticalScrollBar().maximum() == 0, "the part page fits the panel's height"
+    page = win.properties.pages[edits.PART]
+    if size == (1600, 1000):
+        assert page.fields_area.verticalScrollBar().maximum() == 0, "name, material and shape fields shown whole"
+    tree = win.ledger.tree
+    last = win.ledger.items()[-1]
+    assert tree.visualItemRect(last).bottom() < tree.viewport().height(), "the ledger keeps its rows"
+
+
+def test_hole_rows_and_a_mirror_column_fit_a_1024_px_window(qtbot, win, tmp_path):
+    """A plate with two holes: 'hole k.i' rows and, as it has a mirror face, the reflectance
+    column; still no sideways scrolling at 1024 x 700, also after the window was wider."""
+    from raytrace.scene_io import save_scene
+    path = tmp_path / "plate.json"
+    save_scene(_plate_with_holes(), path)
+    shown(qtbot, win, (1600, 1000))
+    assert win.open_file(str(path))
+    wait_traced(qtbot, win)
+    win.canvas.fit()
+    gui_events.click(qtbot, win.canvas, (3.0, 3.0))
+    qtbot.wait(50)
+    table = _vertex_table(win)
+    assert table.rowCount() == 10 and not table.isColumnHidden(4)
+    _check_fits_sideways(table)
+    win.resize(1024, 700)                   # the user makes the window smaller
+    qtbot.waitUntil(lambda: win.width() == 1024, timeout=2000)
+    qtbot.wait(50)
+    _check_fits_sideways(table)
+    assert _fully_shown_rows(table, win) >= 5
