@@ -394,8 +394,10 @@ class PartPage(_Page):
             for c, text in enumerate(cells):
                 it = QTableWidgetItem(text)
                 if e.is_arc and c == 2:
-                    it.setToolTip(f"arc about ({e.arc_center[0]:.4g}, {e.arc_center[1]:.4g}), "
+                    it.setToolTip(f"{text + ': ' if text else ''}arc about ({e.arc_center[0]:.4g}, {e.arc_center[1]:.4g}), "
                                   f"radius {e.radius:.4g} mm")
+                elif c == 2 and text:
+                    it.setToolTip(text)          # the whole name where a narrow column cuts it
                 if li:
                     it.setFlags(it.flags() & ~Qt.ItemIsEditable)
                 self.table.setItem(r, c, it)
