@@ -100,6 +100,7 @@ def screenshot(app, win, scene_path, png, size) -> int:
     live.blockSignals(False)
     app.processEvents()
     win.canvas.fit()
+    win.canvas.thin_for_view()       # crowded fans as the framed view shows them, without waiting
     app.processEvents()
     try:
         save_widget_png(win, png)

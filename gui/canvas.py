@@ -23,7 +23,7 @@ from .arcs import signed_radius
 from .flow_layout import FlowLayout
 from .overlay import Overlay, pass_clicks
 from .raydraw import (KINDS, LEVEL_ALPHA, LEVELS, RayDrawing, arrow_strokes, escape_reach_for, parts_box,
-                      scene_drawing)
+                      scene_drawing, thinned_for)
 from .snap import snap_index
 from .spectral import faded_rgb, spectral_rgb
 from .tools import TOOLS, SELECT
@@ -35,6 +35,9 @@ from .tools import TOOLS, SELECT
 # Legs below 0.1 % of their source ray's flux are drawn only in small fans: in dense ones they
 # are a few percent from the background, invisible, yet a third of the painting time.
 FAINT_SHOWN_BELOW = 5000
+
+# How long the view must rest after a zoom before crowded fans are thinned anew for it.
+RETHIN_AFTER_MS = 150
 
 KIND_COLOUR = {"ray": style.RAY, "escaping": style.ESCAPING, "tir": style.TIR}
 KIND_LABEL = {"ray": "ray", "escaping": "escaping", "tir": "after TIR"}
@@ -242,7 +245,7 @@ class Canvas(QWidget):
 
         self._part_items: list[QGraphicsPathItem] = []
         self._part_paths: list[QPainterPath] = []
-        self._edge_polys: list[tuple[int, int, np.ndarray]] = []   # (part, edge, points)
+        self._edge_polys: list[tuple[int, int, int, np.ndarray]] = []   # (part, loop, edge, points)
         self._glyph_items: list[QGraphicsPathItem] = []
         self._problem_items: list[QGraphicsPathItem] = []
         self.problems = []
@@ -272,6 +275,13 @@ class Canvas(QWidget):
         self._hold = QTimer(self)
         self._hold.setSingleShot(True)
         self._hold.timeout.connect(self.release_paint)
+        # crowded fans are thinned for the view's pixel size: after a zoom the drawing is remade
+        # from the rays already traced (no new trace), once the zooming pauses
+        self.view_pixel_mm = self.pixel_mm()    # kept for the trace thread, which must not ask the view
+        self._rethin = QTimer(self)
+        self._rethin.setSingleShot(True)
+        self._rethin.setInterval(RETHIN_AFTER_MS)
+        self._rethin.timeout.connect(self.thin_for_view)
 
         self.tools = {name: cls(self) for name, cls in TOOLS.items()}
         self.tool = self.tools[SELECT]
@@ -423,13 +433,14 @@ class Canvas(QWidget):
         return None
 
     def face_at(self, x, y):
-        """(part index, edge index) of the face under (x, y), or None."""
+        """(part index, loop index, edge index) of the face under (x, y), or None; loop 0 is
+        the outline, loop k the part's k-th hole."""
         tol = style.PICK_PX * self.pixel_mm()
         best, best_d = None, tol
-        for pi, ei, pts in self._edge_polys:
+        for pi, li, ei, pts in self._edge_polys:
             d = _polyline_distance((x, y), pts)
             if d <= best_d:
-                best, best_d = (pi, ei), d
+                best, best_d = (pi, li, ei), d
         return best
 
     def aim_handle(self, src):
@@ -472,6 +483,9 @@ class Canvas(QWidget):
         self._draw_grid()
 
     def _view_changed(self) -> None:
+        self.view_pixel_mm = self.pixel_mm()
+        if self.result is not None and not thinned_for(self.drawing, self.view_pixel_mm):
+            self._rethin.start()
         self._draw_glyphs()
         self._draw_grid()
         self._draw_marks()
@@ -583,9 +597,10 @@ class Canvas(QWidget):
                 for q in pts[1:]:
                     path.lineTo(*q)
                 path.closeSubpath()
-            for ei, e in enumerate(part.outer.edges):
-                pts = e.flattened(tol) + [e.end]
-                self._edge_polys.append((i, ei, np.asarray(pts, dtype=float)))
+            for li, loop in enumerate(part.loops):      # the outline, then each hole
+                for ei, e in enumerate(loop.edges):
+                    pts = e.flattened(tol) + [e.end]
+                    self._edge_polys.append((i, li, ei, np.asarray(pts, dtype=float)))
             selected = self.selection == (edits.PART, i)
             # the fill lies under the rays, the outline over them
             fill = QGraphicsPathItem(path)
@@ -704,13 +719,23 @@ class Canvas(QWidget):
         if result is None:
             self.drawing = RayDrawing()
         elif (drawing is not None and drawing.colour_by_wavelength == self.colour_by_wavelength
-              and drawing.escape_reach == escape_reach_for(self.scene)):
+              and drawing.escape_reach == escape_reach_for(self.scene)
+              and thinned_for(drawing, self.view_pixel_mm)):
             self.drawing = drawing
         else:
-            self.drawing = scene_drawing(result, self.scene, self.colour_by_wavelength)
+            self.drawing = scene_drawing(result, self.scene, self.colour_by_wavelength, self.view_pixel_mm)
         self._draw_rays()
         self._draw_marks()
         self.release_paint()
+
+    def thin_for_view(self) -> None:
+        """Remake the drawing of the shown rays for the view's pixel size: zoomed in, crowded
+        fans show more of their rays (the trace is not run again)."""
+        if self.result is None or thinned_for(self.drawing, self.view_pixel_mm):
+            return
+        self.drawing = scene_drawing(self.result, self.scene, self.colour_by_wavelength, self.view_pixel_mm)
+        self._draw_rays()
+        self._draw_marks()
 
     def escape_ring_px(self, share: float) -> float:
         """Diameter of an escape ring: grows with the share, capped so it hides nothing."""
@@ -819,13 +844,16 @@ class Canvas(QWidget):
         f = self.face_at(x, y)
         if f is None:
             return ""
-        part = self.scene.parts[f[0]]
-        e = part.outer.edges[f[1]]
+        pi, li, ei = f
+        part = self.scene.parts[pi]
+        e = part.loops[li].edges[ei]
         t = e.treatment.kind + (f" R={e.treatment.reflectance:g}" if e.treatment.kind == "mirror" else "")
         arc = ""
         if e.is_arc:        # signed as the arc tool and the vertex table take it
-            arc = f", arc R {signed_radius(part, 0, f[1]):.4g} mm"
-        return f"{part.name} / {e.face or f'edge {f[1] + 1}'} ({t}{arc})"
+            arc = f", arc R {signed_radius(part, li, ei):.4g} mm"
+        # an unnamed face is called as the flux ledger calls it
+        face = e.face or (f"hole {li} edge {ei + 1}" if li else f"edge {ei + 1}")
+        return f"{part.name} / {face} ({t}{arc})"
 
 
 # ---------------------------------------------------------------------- glyph shapes

@@ -65,6 +65,14 @@ def _scrolled(widget):
     return area
 
 
+# The Results dock's least height: the flux ledger of a sample scene (about 15 rows) without
+# scrolling; what is left of a 700 px window goes to the Edit dock and its vertex table.
+RESULTS_MIN_PX = 360
+# In a taller window the Results dock takes this share: the ledger and profiles keep their room
+# and the Edit dock shows a part's fields and its vertex table together.
+RESULTS_SHARE = 0.42
+
+
 class MainWindow(QMainWindow):
     def __init__(self, autosave_s: float = 60.0):
         super().__init__()
@@ -131,11 +139,12 @@ class MainWindow(QMainWindow):
 
     def arrange_docks(self) -> None:
         """Share the window between drawing and panels by its size: at 1024 x 700 the drawing
-        keeps most of the width and the flux ledger its rows; at 1400 x 900 the panels grow."""
+        keeps most of the width and the flux ledger its rows, the rest of the height going to the
+        Edit dock's vertex table; at 1400 x 900 the panels grow."""
         w, h = self.width(), self.height()
         self.resizeDocks(self._docks[:1], [int(min(470, max(330, 0.34 * w)))], Qt.Horizontal)
         avail = h - self.menuBar().sizeHint().height() - self.statusBar().sizeHint().height()
-        results = int(min(max(0.5 * avail, 400), avail - 200))
+        results = int(min(max(RESULTS_SHARE * avail, RESULTS_MIN_PX), avail - 200))
         self.resizeDocks(self._docks, [avail - results, results], Qt.Vertical)
 
     def showEvent(self, ev):
@@ -710,7 +719,7 @@ class MainWindow(QMainWindow):
         """Runs on the trace thread: the drawing of a result as the canvas draws it now (the
         canvas checks the colour choice again when it shows it)."""
         from .raydraw import scene_drawing
-        return scene_drawing(result, scene, self.canvas.colour_by_wavelength)
+        return scene_drawing(result, scene, self.canvas.colour_by_wavelength, self.canvas.view_pixel_mm)
 
     def _show_outcome(self, out: TraceOutcome) -> None:
         if out.request.epoch != self.doc.epoch:

@@ -51,6 +51,7 @@ class RayDrawing:
     by_wavelength: list[tuple[float, int, np.ndarray, np.ndarray]] = field(default_factory=list)
     colour_by_wavelength: bool = False
     escape_reach: float | None = None     # the cut applied to escaping legs (mm), None: none
+    pixel_mm: float | None = None         # the view's pixel size the crowding was judged for
 
 
 def brightness_level(rel: np.ndarray) -> np.ndarray:
@@ -84,9 +85,10 @@ def clip_escaping(seg: dict, escaping: np.ndarray, reach: float) -> dict:
 
 
 def ray_drawing(result, min_escape_share: float = 1e-3, colour_by_wavelength: bool = False,
-                escape_reach: float | None = None) -> RayDrawing:
-    """`escape_reach` (mm) cuts the drawn escaping legs to that length (None: as traced)."""
-    d = RayDrawing(colour_by_wavelength=colour_by_wavelength, escape_reach=escape_reach)
+                escape_reach: float | None = None, pixel_mm: float | None = None) -> RayDrawing:
+    """`escape_reach` (mm) cuts the drawn escaping legs to that length (None: as traced);
+    `pixel_mm` is the size of a screen pixel in the view the drawing is for (see `crowding`)."""
+    d = RayDrawing(colour_by_wavelength=colour_by_wavelength, escape_reach=escape_reach, pixel_mm=pixel_mm)
     seg = result.segments
     if seg is not None and len(seg["x0"]):
         if escape_reach is not None:
@@ -100,7 +102,7 @@ def ray_drawing(result, min_escape_share: float = 1e-3, colour_by_wavelength: bo
         rel = np.divide(flux, ref, out=np.zeros_like(flux), where=ref > 0)
         level = brightness_level(rel)
         cue_level = level
-        steps, keep = crowding(seg, root)
+        steps, keep = crowding(seg, root, pixel_mm)
         faintest = len(LEVELS) - 1            # (a crowded leg fades at most to the step above it)
         level = np.where(level == faintest, level, np.minimum(level + steps, faintest - 1))
         level[~keep] = -1                                     # thinned out of a crowded fan
@@ -153,19 +155,26 @@ def escape_reach_for(scene) -> float | None:
     return ESCAPE_REACH * max(box[2] - box[0], box[3] - box[1], 1e-6) if box else None
 
 
-def scene_drawing(result, scene, colour_by_wavelength: bool = False) -> RayDrawing:
-    """The drawing the canvas shows for `result` traced on `scene`.  Pure numpy, so the trace
-    thread builds it beside the trace and the UI thread only hands the arrays to the items."""
+def scene_drawing(result, scene, colour_by_wavelength: bool = False,
+                  pixel_mm: float | None = None) -> RayDrawing:
+    """The drawing the canvas shows for `result` traced on `scene`, in a view of `pixel_mm` mm
+    per pixel.  Pure numpy, so the trace thread builds it beside the trace and the UI thread
+    only hands the arrays to the items."""
     return ray_drawing(result, colour_by_wavelength=colour_by_wavelength,
-                       escape_reach=escape_reach_for(scene))
+                       escape_reach=escape_reach_for(scene), pixel_mm=pixel_mm)
 
 
 # Where legs crowd, each is drawn some brightness steps fainter, so a dense fan of TIR legs reads
 # as rays, not as a solid fill; kinds keep their colours.  Ink is estimated on a grid of
-# CROWD_CELLS cells across the rays' extent, for a view about CROWD_VIEW_PX pixels across with
-# 1 px lines: a cell's covered share = leg length in it x pixel size / cell area.
+# CROWD_CELLS cells across the rays' extent, for the view's pixel size with 1 px lines (a view
+# about CROWD_VIEW_PX pixels across the rays when it is not known): a cell's covered share =
+# leg length in it x pixel size / cell area.  Zoomed in, a pixel is smaller, so a fan covers
+# less of each cell and more of its rays are drawn.
 CROWD_CELLS = 48
 CROWD_VIEW_PX = 600
+# A drawing is thinned anew when the view's pixel size moves this factor away from the one it
+# was judged for (strides go in powers of 2, so a smaller change would rarely change one).
+RETHIN_RATIO = 1.4
 CROWD_START = 1.0       # covered share where fading starts (solid ink); each further x3 one step more
 CROWD_MAX_STEPS = 1
 CROWD_DIRECTIONS = 12   # direction bins of 15 degrees
@@ -173,12 +182,18 @@ CROWD_TANGLE = 5        # a cell with ink in this many direction bins is a tangl
 CROWD_CAP = 1.0         # at most this covered share is drawn in a cell; the rest is thinned
 
 
-def crowding(seg, root: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def thinned_for(drawing: RayDrawing, pixel_mm: float) -> bool:
+    """Whether `drawing`'s crowding was judged for a view of about `pixel_mm` mm per pixel."""
+    was = drawing.pixel_mm
+    return bool(was and pixel_mm > 0 and max(was / pixel_mm, pixel_mm / was) < RETHIN_RATIO)
+
+
+def crowding(seg, root: np.ndarray, pixel_mm: float | None = None) -> tuple[np.ndarray, np.ndarray]:
     """(steps, keep) per leg: brightness steps (0..CROWD_MAX_STEPS) to fade it by, and whether
     it is drawn at all.  Opaque lines at full cover are a fill whatever their shade, so where
     the legs would cover a cell more than CROWD_CAP times over, only every 2nd, 4th... source
     ray's legs are drawn there (strides of 2^k nest, so a kept ray runs on unbroken into
-    sparser cells)."""
+    sparser cells).  `pixel_mm`: the view's pixel size in mm (None: CROWD_VIEW_PX across)."""
     x0, y0, x1, y1 = (np.asarray(seg[k], dtype=float) for k in ("x0", "y0", "x1", "y1"))
     lo_x, hi_x = min(x0.min(), x1.min()), max(x0.max(), x1.max())
     lo_y, hi_y = min(y0.min(), y1.min()), max(y0.max(), y1.max())
@@ -192,7 +207,8 @@ def crowding(seg, root: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     flat = ix * (CROWD_CELLS + 1) + iy
     length = np.hypot(x1 - x0, y1 - y0)
     ink = np.bincount(flat.ravel(), weights=np.repeat(length / 4, 4), minlength=(CROWD_CELLS + 1) ** 2)
-    share = ink[flat].max(axis=1) * (extent / CROWD_VIEW_PX) / (cell * cell)
+    px = pixel_mm if pixel_mm and pixel_mm > 0 else extent / CROWD_VIEW_PX
+    share = ink[flat].max(axis=1) * px / (cell * cell)
     # a beam drawn as a solid band still reads as a beam, and so do two beams crossing; only
     # legs running in many directions make an unreadable fill: count the 15-degree direction
     # bins holding at least 5 % of a cell's ink

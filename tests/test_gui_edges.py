@@ -273,7 +273,7 @@ def test_vertex_table_shows_and_edits_arc_radii_and_hole_rows(qtbot, win, tmp_pa
                  if t.isVisibleTo(win.properties) and t.columnCount() == 6)
     heads = [table.verticalHeaderItem(r).text() for r in range(table.rowCount())]
     assert heads == ["1", "2", "3", "4", "hole 1.1", "hole 1.2"]
-    assert table.horizontalHeaderItem(5).text() == "arc R (mm)"
+    assert table.horizontalHeaderItem(5).text() == "arc R" and "in mm" in table.horizontalHeaderItem(5).toolTip()
     assert [table.item(r, 5).text() for r in range(6)][:4] == ["", "", "", ""]
     hole_r = [float(table.item(r, 5).text()) for r in (4, 5)]
     assert [abs(r) for r in hole_r] == [2.0, 2.0]         # the hole's half circles, radius 2 mm

@@ -97,7 +97,7 @@ def test_after_a_drag_the_drawing_is_the_direct_trace_of_the_dragged_scene(qtbot
     # ... and equals the drawing of the engine's own trace of the dragged scene
     direct = run_trace(win.doc.scene, win.controls.options())
     np.testing.assert_array_equal(final.result.ledger.bins, direct.ledger.bins)
-    _same_drawing(win.canvas.drawing, scene_drawing(direct, win.doc.scene))
+    _same_drawing(win.canvas.drawing, scene_drawing(direct, win.doc.scene, pixel_mm=win.canvas.view_pixel_mm))
     # pixel for pixel: the window's picture, then the direct trace drawn on the UI thread
     picture = win.canvas.plot.grab().toImage()
     win.canvas.set_result(direct)

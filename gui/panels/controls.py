@@ -40,9 +40,13 @@ class TraceControls(QWidget):
         self.mode = QComboBox()
         for key, label in MODE_LABELS.items():
             self.mode.addItem(label, key)
+        # the list that opens shows the whole labels; the closed box may cut the explanation
+        self.mode.setSizeAdjustPolicy(QComboBox.AdjustToMinimumContentsLengthWithIcon)
+        self.mode.setMinimumContentsLength(14)
         self.mode.setToolTip("Branching follows every reflected and refracted child; Monte Carlo "
                              "picks one per event with the Fresnel probabilities")
-        self.one_wavelength = QCheckBox("one wavelength for all sources")
+        # short texts, so the panel needs no sideways scrolling in a 1024 px window
+        self.one_wavelength = QCheckBox("all sources at")
         self.one_wavelength.setToolTip("Trace every source at the wavelength on the right instead of "
                                        "its own spectrum (not saved in the file)")
         self.wavelength = QDoubleSpinBox()

@@ -29,7 +29,7 @@ class ProfilePanel(QWidget):
         for w in (self.irr, self.ang):
             for ax in ("bottom", "left"):
                 w.getAxis(ax).enableAutoSIPrefix(False)
-            w.setMinimumHeight(110)
+            w.setMinimumHeight(100)      # two fit under the ledger-sized Results dock of a 700 px window
             w.getPlotItem().layout.setContentsMargins(2, 2, 6, 2)
         top = QHBoxLayout()
         top.addWidget(QLabel("Detector"))

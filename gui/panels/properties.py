@@ -9,11 +9,11 @@ from __future__ import annotations
 import math
 from dataclasses import replace
 
-from PySide6.QtCore import Qt, Signal
-from PySide6.QtWidgets import (QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QGroupBox,
-                               QHBoxLayout, QLabel, QLineEdit, QPlainTextEdit, QPushButton, QSpinBox,
-                               QStackedWidget, QTableWidget, QTableWidgetItem, QVBoxLayout,
-                               QWidget)
+from PySide6.QtCore import Qt, QTimer, Signal
+from PySide6.QtWidgets import (QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QFrame, QGroupBox,
+                               QHBoxLayout, QLabel, QLineEdit, QPlainTextEdit, QPushButton, QScrollArea,
+                               QSizePolicy, QSpinBox, QSplitter, QStackedWidget, QTableWidget,
+                               QTableWidgetItem, QVBoxLayout, QWidget)
 
 from raytrace.catalog import CATALOG
 from raytrace.fields import MAX_COORD, bad_text
@@ -23,6 +23,7 @@ from raytrace.shapes import PARAMETERS, ShapeParameterError
 
 from .. import arcs, edits
 from ..dialogs.shape import SHAPE_LABELS, param_value, param_widget
+from .fit_table import fit_columns, height_for_rows, make_fitting
 
 
 def _dspin(lo=-1e6, hi=1e6, decimals=4, suffix=" mm", tip=""):
@@ -187,8 +188,20 @@ class ScenePage(_Page):
 
 
 class PartPage(_Page):
-    COLS = ("x (mm)", "y (mm)", "face", "treatment", "mirror R", "arc R (mm)")
+    # short headers, so six columns fit a narrow panel; the units are in the headers' tooltips
+    COLS = ("x", "y", "face", "treatment", "mirror R", "arc R")
+    COL_TIPS = ("x of the vertex (mm)", "y of the vertex (mm)", "Name of the face from this vertex to the next",
+                "What the face does to the rays", "Reflectance of a mirror face (0 to 1); shown when "
+                "the part has a mirror face", "Arc radius of the face in mm: > 0 bulges out of the material, "
+                "< 0 into it, empty straight")
+    MIRROR_COL = 4
     RADIUS_COL = 5
+    FACE_COL = 2
+    # The vertex table and the fields above it share the page through a splitter: the table is
+    # given room for up to TABLE_ROWS rows, the fields at least FIELDS_SHARE of the height (they
+    # scroll on their own when that is less than they need), until the user moves the splitter.
+    TABLE_ROWS = 10
+    FIELDS_SHARE = 0.3
 
     def __init__(self, panel):
         super().__init__(panel)
@@ -227,16 +240,43 @@ class PartPage(_Page):
 
         self.table = QTableWidget(0, len(self.COLS))
         self.table.setHorizontalHeaderLabels(self.COLS)
+        for c, tip in enumerate(self.COL_TIPS):
+            self.table.horizontalHeaderItem(c).setToolTip(tip)
         self.table.setToolTip("Row i: vertex i (start of edge i) and the face from it to the next vertex; "
                               "rows 'hole k.i' are the holes' vertices.  arc R: the edge's arc radius "
                               "(> 0 bulges out of the material, < 0 into it, 0 or empty straight)")
         self.table.itemChanged.connect(self._cell_changed)
+        make_fitting(self.table, self.FACE_COL)
+        self.fields = QWidget()
+        fields = QVBoxLayout(self.fields)
+        fields.setContentsMargins(0, 0, 0, 0)
+        fields.addWidget(QLabel("<b>Part</b>"))
+        fields.addLayout(top)
+        fields.addWidget(self.shape_box)
+        fields.addStretch(1)
+        self.fields_area = QScrollArea()
+        self.fields_area.setWidget(self.fields)
+        self.fields_area.setWidgetResizable(True)
+        self.fields_area.setFrameShape(QFrame.NoFrame)
+        self.fields_area.setHorizontalScrollBarPolicy(Qt.ScrollBarAlwaysOff)
+        rows = QWidget()
+        rows_lay = QVBoxLayout(rows)
+        rows_lay.setContentsMargins(0, 0, 0, 0)
+        rows_lay.setSpacing(2)
+        self.rows_label = QLabel("Vertices and faces")
+        rows_lay.addWidget(self.rows_label)
+        rows_lay.addWidget(self.table, 1)
+        self.split = QSplitter(Qt.Vertical)
+        self.split.setChildrenCollapsible(False)
+        self.split.addWidget(self.fields_area)
+        self.split.addWidget(rows)
+        self.split.setStretchFactor(1, 1)
+        self._split_by_user = False
+        self._split_for = None
+        self.split.splitterMoved.connect(lambda *_: setattr(self, "_split_by_user", True))
         lay = QVBoxLayout(self)
-        lay.addWidget(QLabel("<b>Part</b>"))
-        lay.addLayout(top)
-        lay.addWidget(self.shape_box)
-        lay.addWidget(QLabel("Vertices and faces"))
-        lay.addWidget(self.table, 1)
+        lay.setContentsMargins(4, 2, 2, 2)
+        lay.addWidget(self.split)
         self.name.editingFinished.connect(self._rename)
         self.material.activated.connect(lambda _i: self._material(self.material.currentText()))
 
@@ -354,8 +394,10 @@ class PartPage(_Page):
             for c, text in enumerate(cells):
                 it = QTableWidgetItem(text)
                 if e.is_arc and c == 2:
-                    it.setToolTip(f"arc about ({e.arc_center[0]:.4g}, {e.arc_center[1]:.4g}), "
+                    it.setToolTip(f"{text + ': ' if text else ''}arc about ({e.arc_center[0]:.4g}, {e.arc_center[1]:.4g}), "
                                   f"radius {e.radius:.4g} mm")
+                elif c == 2 and text:
+                    it.setToolTip(text)          # the whole name where a narrow column cuts it
                 if li:
                     it.setFlags(it.flags() & ~Qt.ItemIsEditable)
                 self.table.setItem(r, c, it)
@@ -369,6 +411,9 @@ class PartPage(_Page):
                 if combo is None:      # made once per row; a drag only updates the texts
                     combo = QComboBox()
                     combo.addItems(TREATMENT_KINDS)
+                    # as wide as "absorber": the list that opens shows the longer names whole
+                    combo.setSizeAdjustPolicy(QComboBox.AdjustToMinimumContentsLengthWithIcon)
+                    combo.setMinimumContentsLength(6)
                     combo.currentTextChanged.connect(lambda k, row=r: self._treatment(row, k))
                     self.table.setCellWidget(r, 3, combo)
                 combo.blockSignals(True)
@@ -380,10 +425,37 @@ class PartPage(_Page):
             self.table.setItem(r, 4, rit)
             radius = arcs.signed_radius(p, li, ei)
             self.table.setItem(r, self.RADIUS_COL, QTableWidgetItem(f"{radius:.6g}" if radius else ""))
+        # the reflectance column only takes room when a face of the part (outline or hole) is a mirror
+        mirrors = any(e.treatment.kind == "mirror" for _, _, e in rows)
+        if self.table.isColumnHidden(self.MIRROR_COL) == mirrors:
+            self.table.setColumnHidden(self.MIRROR_COL, not mirrors)
+            self.table.setProperty("sized_for", None)
         if self.table.property("sized_for") != (index, len(edges)):
-            self.table.resizeColumnsToContents()
+            fit_columns(self.table, self.FACE_COL)
             self.table.setProperty("sized_for", (index, len(edges)))
         self.table.blockSignals(False)
+        self._fit_split()
+        QTimer.singleShot(0, self._fit_split)     # again once new builder fields are polished
+
+    def resizeEvent(self, ev):
+        super().resizeEvent(ev)
+        self._fit_split()
+
+    def _fit_split(self) -> None:
+        """Share the page between the fields and the vertex table (see TABLE_ROWS)."""
+        h = self.split.height() - self.split.handleWidth()
+        if self._split_by_user or h <= 0:
+            return
+        self.fields.layout().activate()      # builder rows just added count in its size hint
+        want_fields = self.fields.sizeHint().height()
+        key = (h, self.table.rowCount(), want_fields)
+        if key == self._split_for:
+            return
+        self._split_for = key
+        want_table = (self.rows_label.sizeHint().height() + 2
+                      + height_for_rows(self.table, min(self.table.rowCount(), self.TABLE_ROWS)))
+        fields = min(want_fields, max(h - want_table, int(self.FIELDS_SHARE * h)))
+        self.split.setSizes([fields, h - fields])
 
     def _show_shape(self, p):
         if p.shape is None:
@@ -591,6 +663,10 @@ class DetectorPage(_Page):
 
 
 class PropertiesPanel(QStackedWidget):
+    """One page per kind of selection.  The panel is as tall as the page shown (a stack is as
+    tall as its tallest page, which made the part page scroll as a whole under the source
+    page's long form)."""
+
     def __init__(self, doc, message=lambda text: None, ask_material=None, parent=None):
         super().__init__(parent)
         self.doc = doc
@@ -601,13 +677,30 @@ class PropertiesPanel(QStackedWidget):
         for p in self.pages.values():
             self.addWidget(p)
         self.selection = None
+        self._size_by(self.pages[None])
+
+    def _size_by(self, page) -> None:
+        for p in self.pages.values():
+            policy = QSizePolicy.Preferred if p is page else QSizePolicy.Ignored
+            p.setSizePolicy(policy, policy)
+        self.updateGeometry()
 
     def show_selection(self, scene, selection) -> None:
         self.selection = selection
         kind, index = selection if selection else (None, 0)
         page = self.pages[kind]
-        self.setCurrentWidget(page)
+        if page is not self.currentWidget():
+            self.setCurrentWidget(page)
+            self._size_by(page)
         page.show(scene, index)
+
+    def sizeHint(self):
+        page = self.currentWidget()
+        return page.sizeHint() if page is not None else super().sizeHint()
+
+    def minimumSizeHint(self):
+        page = self.currentWidget()
+        return page.minimumSizeHint() if page is not None else super().minimumSizeHint()
 
     def fill_materials(self, combo: QComboBox, scene) -> None:
         combo.blockSignals(True)
