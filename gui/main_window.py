@@ -39,6 +39,8 @@ SCENE_FILTER = "Scene files (*.json);;All files (*)"
 # after an edit the drawing is painted when the rays of the new state are drawn, or after this
 # long at most (a coarse fan of a slow scene takes a few tens of ms; see Canvas.hold_paint)
 PAINT_HOLD_S = 0.06
+# the full trace after a coarse fan starts once the fan is painted, or after this long at most
+REFINE_WAIT_S = 0.1
 
 
 def distinct_keys(*keys) -> list[QKeySequence]:
@@ -116,6 +118,9 @@ class MainWindow(QMainWindow):
         self.problems_panel.part_chosen.connect(lambda i: self.canvas.select((edits.PART, i)))
         self.worker.finished.connect(self._show_outcome)
         self.worker.prepare = self._prepare_drawing
+        self.worker.refine_wait_s = REFINE_WAIT_S
+        self._coarse_on_canvas = -1       # request id of a coarse fan drawn but not yet painted
+        self.canvas.plot.painted.connect(self._canvas_painted)
         # a bound slot, so the call is queued to this thread (busy is emitted by the trace thread)
         self.worker.busy.connect(self._trace_busy)
         self.worker.progress.connect(self._trace_progress)
@@ -721,9 +726,25 @@ class MainWindow(QMainWindow):
             return
         self.canvas.set_result(out.result, out.drawing)
         self.canvas.legend.show_problem("")
-        self.ledger.show_result(out.result)
-        self.profiles.show_result(out.result)
         self.traces_shown += 1
         self.redraw_times.append(time.perf_counter() - out.request.submitted)
+        if out.coarse:
+            # a preview: the panels wait for the full trace of the same state, which the worker
+            # starts once the fan is on the screen (the drawing would otherwise share Python's
+            # lock with it); a drawing that is not shown need not be waited for
+            self.trace_label.setText(f"preview of {out.result.stats['source_rays']:,} rays, refining...")
+            self._coarse_on_canvas = out.request.id
+            if not self.canvas.plot.isVisible():
+                self._canvas_painted()
+            return
+        self._coarse_on_canvas = -1
+        self.ledger.show_result(out.result)
+        self.profiles.show_result(out.result)
         # the one time figure of a trace (the flux panel gives rays and segments)
         self.trace_label.setText(f"traced in {out.elapsed_s * 1000:.0f} ms")
+
+    def _canvas_painted(self) -> None:
+        """The drawing has been painted: a coarse fan on it is on the screen."""
+        if self._coarse_on_canvas >= 0:
+            self.worker.shown(self._coarse_on_canvas)
+            self._coarse_on_canvas = -1

@@ -123,11 +123,19 @@ def test_an_edit_shows_its_coarse_fan_first_then_its_full_trace(qtbot, win, monk
     assert coarse.request is full.request and coarse.request.scene is win.doc.scene
     assert coarse.result.stats["source_rays"] < full.result.stats["source_rays"] == 1000
     assert 0 < n_coarse < n_full                     # each was on the canvas in its turn
-    # the coarse fan is the real trace of that state with its number of rays
+    # the coarse fan is the real trace of that state with its number of rays, ending its legs
+    # at the coarse flux floor (the scene's own floor is lower)
     n = coarse.result.stats["source_rays"]
-    ref = run_trace(win.doc.scene, replace(coarse.request.options, rays=n,
-                                           drawn_rays=min(coarse.request.options.drawn_rays, n)))
+    floor = max(win.doc.scene.settings.flux_floor, worker_mod.COARSE_FLUX_FLOOR)
+    assert coarse.options == replace(coarse.request.options, rays=n, flux_floor=floor,
+                                     drawn_rays=min(coarse.request.options.drawn_rays, n))
+    ref = run_trace(win.doc.scene, coarse.options)
     np.testing.assert_array_equal(coarse.result.ledger.bins, ref.ledger.bins)
+    assert coarse.result.settings["flux_floor"] == floor
+    # the full trace keeps the scene's floor and equals the direct trace of the state
+    assert full.options == full.request.options
+    np.testing.assert_array_equal(full.result.ledger.bins,
+                                  run_trace(win.doc.scene, full.request.options).ledger.bins)
 
 
 def test_the_canvas_waits_for_the_new_rays_before_painting(qtbot, win, monkeypatch):
