@@ -9,7 +9,7 @@ import html
 import time
 from pathlib import Path
 
-from PySide6.QtCore import Qt
+from PySide6.QtCore import Qt, QTimer
 from PySide6.QtGui import QAction, QActionGroup, QKeySequence
 from PySide6.QtWidgets import (QDockWidget, QDoubleSpinBox, QFileDialog, QLabel, QMainWindow,
                                QMessageBox, QScrollArea, QTabWidget, QToolBar)
@@ -19,7 +19,7 @@ from raytrace.errors import SceneError
 from raytrace.scene import Scene
 from raytrace.scene_io import scene_from_text
 
-from . import edits, help as help_text
+from . import edits, gc_policy, help as help_text
 from .autosave import Autosaver, find_recoveries
 from .canvas import Canvas
 from .document import Document
@@ -70,6 +70,7 @@ def _scrolled(widget):
 class MainWindow(QMainWindow):
     def __init__(self, autosave_s: float = 60.0):
         super().__init__()
+        gc_policy.collect_on_ui_thread()
         self.doc = Document(self)
         self.worker = TraceWorker(self)
         self.autosaver = Autosaver(self.doc, autosave_s, self)
@@ -647,20 +648,24 @@ class MainWindow(QMainWindow):
 
     def _scene_changed(self) -> None:
         scene = self.doc.scene
+        # the trace first: the trace thread compiles the scene while this thread redraws the
+        # parts and refreshes the panels (the drawing is held until the new rays are there)
+        if self.request_trace() is not None:
+            self.canvas.hold_paint(PAINT_HOLD_S)
         self.canvas.set_scene(scene)
         self._show_problems(scene_problems(scene))
         self.properties.show_selection(scene, self.canvas.selection)
         self.controls.show_scene(scene)
         self._update_title()
-        if self.request_trace() is not None:
-            self.canvas.hold_paint(PAINT_HOLD_S)
 
     def _show_problems(self, problems) -> None:
         self.problems = problems
         self.canvas.set_problems(problems)
         self.problems_panel.show_problems(problems)
         i = self.result_tabs.indexOf(self.problems_panel)
-        self.result_tabs.setTabText(i, f"Problems ({len(problems)})" if problems else "Problems")
+        text = f"Problems ({len(problems)})" if problems else "Problems"
+        if self.result_tabs.tabText(i) != text:        # an unchanged tab needs no new layout
+            self.result_tabs.setTabText(i, text)
 
     # ------------------------------------------------------------------ tracing
     def request_trace(self, force: bool = False) -> int | None:
@@ -738,6 +743,8 @@ class MainWindow(QMainWindow):
                 self._canvas_painted()
             return
         self._coarse_on_canvas = -1
+        if not gc_policy.heap_settled():
+            QTimer.singleShot(0, gc_policy.settle_heap)      # after this result is painted
         self.ledger.show_result(out.result)
         self.profiles.show_result(out.result)
         # the one time figure of a trace (the flux panel gives rays and segments)
