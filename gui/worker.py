@@ -39,7 +39,7 @@ from .tracing import TraceCancelled, TraceOptions, compile_for, run_trace
 
 CANCEL_AFTER_S = 0.25   # a newer request stops a trace that has run at least this long
 COARSE_WHEN_OVER_S = 0.02   # show a coarse fan first when the last full trace and drawing took longer
-COARSE_TRACE_S = 0.008      # a coarse fan is sized to trace and draw in about this long (CPU)
+COARSE_TRACE_S = 0.005      # a coarse fan is sized to trace and draw in about this long (CPU)
 COARSE_MIN_RAYS = 32        # ... and has at least this many source rays (else: no coarse stage)
 COARSE_FLUX_FLOOR = 1e-3    # ... and ends its legs at this share of their source ray's flux
 COARSE, FULL = 0, 1         # stages of a request
