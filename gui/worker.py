@@ -15,8 +15,8 @@ for the light pipe it costs more than the trace itself.  A newer request stops a
 once, so during a drag the window keeps showing coarse fans of the newest states.
 
 The coarse fan stops at COARSE_FLUX_FLOOR of its source ray's flux (where the scene's own floor
-is lower): the legs below it are the faintest brightness level, which a fan of that size does not
-paint anyway, and they cost about a third of its trace.  The full trace keeps the scene's floor.
+is lower): the legs below it make up the faintest brightness level, painted a few percent from
+the background (and left out of dense fans altogether), and they cost about a third of its trace.  The full trace keeps the scene's floor.
 Both stages of a request share one compiled scene.
 
 The refinement waits until the window says it has painted the coarse fan (`shown`), at most
