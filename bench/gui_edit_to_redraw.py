@@ -5,8 +5,8 @@ window by a small step through the document (as a drag step does) and waits unti
 idle; the clock stops when the window's own paint of the canvas that follows a shown result has
 finished (the application paints as it does for a user: nothing is grabbed or painted twice):
 the first redraw (a coarse fan when the worker shows one first) and the final one (the full
-trace).  Prints the medians and spread, how the time splits into tracing, preparing the
-drawing and painting, and the CPU time an edit costs the UI thread and the whole process (the
+trace).  Prints the medians and spread, how the time splits into tracing (and what a coarse fan
+costs), preparing the drawing (timed again on the last edit's full result) and painting, and the CPU time an edit costs the UI thread and the whole process (the
 machine is shared: CPU time is what other load sways least).
 
 Then a drag: the same moves arrive every 16 ms (a 60 Hz mouse) for --drag-s seconds, as the
@@ -129,7 +129,7 @@ def main() -> int:
 
     wait_for(1)                                     # warm-up: first trace after opening
     part = next(i for i, p in enumerate(win.doc.scene.parts) if p.name == "panel window")
-    totals, firsts, traces, draws = [], [], [], []
+    totals, firsts, traces, draws, coarse = [], [], [], [], []
     ui_cpu, all_cpu = [], []      # CPU seconds per edit: the UI thread's, the whole process's
     for k in range(args.edits):
         before = len(shown)
@@ -145,11 +145,12 @@ def main() -> int:
         firsts.append(shown[before][1] - t0)
         totals.append(t1 - t0)
         traces.append(outcome.elapsed_s)
-    drag = drag_rate(win, part, shown, args.drag_s)
-    segs = shown[-1][0].result.stats["segments"]
+        coarse += [o for o, _ in shown[before:] if o.coarse]
+    # the split is measured on the last edit's full result, before the drag
+    last = shown[-1][0]
+    segs = last.result.stats["segments"]
     recorded = win.canvas.drawing.n_segments
     drawn = win.canvas.painted_segments
-    last = shown[-1][0]
     t = time.perf_counter()
     prepare = getattr(win.worker, "prepare", None)    # made on the trace thread, if the app does
     prepared = prepare(last.result, last.request.scene) if prepare else None
@@ -157,6 +158,7 @@ def main() -> int:
     t = time.perf_counter()
     win.canvas.set_result(last.result, prepared) if prepared is not None else win.canvas.set_result(last.result)
     draws.append(time.perf_counter() - t)
+    drag = drag_rate(win, part, shown, args.drag_s)
 
     def ms(v):
         return f"{1000 * v:7.1f} ms"
@@ -168,6 +170,12 @@ def main() -> int:
     print(f"edit -> full redraw   median {ms(statistics.median(totals))}  "
           f"min {ms(min(totals))}  max {ms(max(totals))}")
     print(f"  of which tracing    median {ms(statistics.median(traces))}")
+    if coarse:
+        print(f"  a coarse fan: median {statistics.median(o.result.stats['source_rays'] for o in coarse):.0f} "
+              f"rays, {statistics.median(o.result.stats['segments'] for o in coarse):,.0f} segments, "
+              f"traced in {ms(statistics.median(o.elapsed_s for o in coarse))} (CPU "
+              f"{ms(statistics.median(o.cpu_s for o in coarse))}), its drawing CPU "
+              f"{ms(statistics.median(getattr(o, 'drawing_cpu_s', float('nan')) for o in coarse))}")
     print(f"  preparing drawing   {ms(draws[0])} (ray grouping, on the "
           f"{'trace' if prepare else 'UI'} thread) + {ms(draws[1])} (line items and marks, UI thread)")
     print(f"  painting the canvas median {ms(statistics.median(paint[-args.edits:]))} (the window's paint after a result)")

@@ -21,6 +21,7 @@ from raytrace.scene import EMITTER, POINT, Scene
 from . import edits, style
 from .arcs import signed_radius
 from .flow_layout import FlowLayout
+from .marks import Dots
 from .overlay import Overlay, pass_clicks
 from .raydraw import (KINDS, LEVEL_ALPHA, LEVELS, RayDrawing, arrow_strokes, escape_reach_for, parts_box,
                       scene_drawing, thinned_for)
@@ -67,6 +68,17 @@ def _pen(colour, width=1.5, style_=Qt.SolidLine):
 
 
 _NUDGE = {Qt.Key_Left: (-1, 0), Qt.Key_Right: (1, 0), Qt.Key_Up: (0, 1), Qt.Key_Down: (0, -1)}
+
+
+class _Plot(pg.PlotWidget):
+    """The plot widget; says when a paint of the drawing has reached the screen."""
+
+    painted = Signal()
+
+    def paintEvent(self, ev):
+        super().paintEvent(ev)
+        # after this pass of painting and its flush to the screen, not in the middle of it
+        QTimer.singleShot(0, self.painted.emit)
 
 
 class _View(pg.ViewBox):
@@ -214,7 +226,7 @@ class Canvas(QWidget):
         self._preview = None
 
         self.view = _View(self)
-        self.plot = pg.PlotWidget(viewBox=self.view, background=style.BACKGROUND)
+        self.plot = _Plot(viewBox=self.view, background=style.BACKGROUND)
         self.fit_left_out: list[str] = []    # detectors the last fit left outside the view
         self.plot.hideButtons()      # no auto-range "A": Ctrl+0 fits, and it must not show in pictures
         self.plot.setLabel("bottom", "x", units="mm")
@@ -254,7 +266,7 @@ class Canvas(QWidget):
         # what each ray item shows: (kind name or wavelength bin in nm, level, pen colour, segments)
         self.ray_groups: list[tuple[object, int, object, int]] = []
         # hit marks sit beside the detector line on the side the ray came from, under the line
-        self._hits = pg.ScatterPlotItem(size=style.HIT_PX, pen=None, brush=pg.mkBrush(style.HIT), pxMode=True)
+        self._hits = Dots(style.HIT_PX, style.HIT)      # one item, painted in one call
         self._hits.setZValue(14)
         self._escapes = pg.ScatterPlotItem(pxMode=True, brush=None, pen=_pen(style.ESCAPE_MARK, 2))
         self._escapes.setZValue(11)
@@ -287,9 +299,10 @@ class Canvas(QWidget):
         self.tool = self.tools[SELECT]
         self._previous_tool = SELECT
         self.overlay = Overlay(self)
-        # dots, rings and handles are looked at, not clicked: a scatter item keeps a click on
-        # one of its symbols (a 60 px escape ring over a vertex) and the tool never sees it
-        for markers in (self._hits, self._escapes, self._handles):
+        # rings and handles are looked at, not clicked: a scatter item keeps a click on one of
+        # its symbols (a 60 px escape ring over a vertex) and the tool never sees it (the hit
+        # dots accept no mouse button at all)
+        for markers in (self._escapes, self._handles):
             pass_clicks(markers)
         self.view.sigRangeChanged.connect(lambda *_: self._view_changed())
         self.plot.scene().sigMouseMoved.connect(self._mouse_moved)

@@ -9,7 +9,7 @@ import html
 import time
 from pathlib import Path
 
-from PySide6.QtCore import Qt
+from PySide6.QtCore import Qt, QTimer
 from PySide6.QtGui import QAction, QActionGroup, QKeySequence
 from PySide6.QtWidgets import (QDockWidget, QDoubleSpinBox, QFileDialog, QLabel, QMainWindow,
                                QMessageBox, QScrollArea, QTabWidget, QToolBar)
@@ -19,7 +19,7 @@ from raytrace.errors import SceneError
 from raytrace.scene import Scene
 from raytrace.scene_io import scene_from_text
 
-from . import edits, help as help_text
+from . import edits, gc_policy, help as help_text
 from .autosave import Autosaver, find_recoveries
 from .canvas import Canvas
 from .document import Document
@@ -39,6 +39,8 @@ SCENE_FILTER = "Scene files (*.json);;All files (*)"
 # after an edit the drawing is painted when the rays of the new state are drawn, or after this
 # long at most (a coarse fan of a slow scene takes a few tens of ms; see Canvas.hold_paint)
 PAINT_HOLD_S = 0.06
+# the full trace after a coarse fan starts once the fan is painted, or after this long at most
+REFINE_WAIT_S = 0.1
 
 
 def distinct_keys(*keys) -> list[QKeySequence]:
@@ -76,6 +78,7 @@ RESULTS_SHARE = 0.42
 class MainWindow(QMainWindow):
     def __init__(self, autosave_s: float = 60.0):
         super().__init__()
+        gc_policy.collect_on_ui_thread()
         self.doc = Document(self)
         self.worker = TraceWorker(self)
         self.autosaver = Autosaver(self.doc, autosave_s, self)
@@ -124,6 +127,9 @@ class MainWindow(QMainWindow):
         self.problems_panel.part_chosen.connect(lambda i: self.canvas.select((edits.PART, i)))
         self.worker.finished.connect(self._show_outcome)
         self.worker.prepare = self._prepare_drawing
+        self.worker.refine_wait_s = REFINE_WAIT_S
+        self._coarse_on_canvas = -1       # request id of a coarse fan drawn but not yet painted
+        self.canvas.plot.painted.connect(self._canvas_painted)
         # a bound slot, so the call is queued to this thread (busy is emitted by the trace thread)
         self.worker.busy.connect(self._trace_busy)
         self.worker.progress.connect(self._trace_progress)
@@ -659,20 +665,24 @@ class MainWindow(QMainWindow):
 
     def _scene_changed(self) -> None:
         scene = self.doc.scene
+        # the trace first: the trace thread compiles the scene while this thread redraws the
+        # parts and refreshes the panels (the drawing is held until the new rays are there)
+        if self.request_trace() is not None:
+            self.canvas.hold_paint(PAINT_HOLD_S)
         self.canvas.set_scene(scene)
         self._show_problems(scene_problems(scene))
         self.properties.show_selection(scene, self.canvas.selection)
         self.controls.show_scene(scene)
         self._update_title()
-        if self.request_trace() is not None:
-            self.canvas.hold_paint(PAINT_HOLD_S)
 
     def _show_problems(self, problems) -> None:
         self.problems = problems
         self.canvas.set_problems(problems)
         self.problems_panel.show_problems(problems)
         i = self.result_tabs.indexOf(self.problems_panel)
-        self.result_tabs.setTabText(i, f"Problems ({len(problems)})" if problems else "Problems")
+        text = f"Problems ({len(problems)})" if problems else "Problems"
+        if self.result_tabs.tabText(i) != text:        # an unchanged tab needs no new layout
+            self.result_tabs.setTabText(i, text)
 
     # ------------------------------------------------------------------ tracing
     def request_trace(self, force: bool = False) -> int | None:
@@ -738,9 +748,27 @@ class MainWindow(QMainWindow):
             return
         self.canvas.set_result(out.result, out.drawing)
         self.canvas.legend.show_problem("")
-        self.ledger.show_result(out.result)
-        self.profiles.show_result(out.result)
         self.traces_shown += 1
         self.redraw_times.append(time.perf_counter() - out.request.submitted)
+        if out.coarse:
+            # a preview: the panels wait for the full trace of the same state, which the worker
+            # starts once the fan is on the screen (the drawing would otherwise share Python's
+            # lock with it); a drawing that is not shown need not be waited for
+            self.trace_label.setText(f"preview of {out.result.stats['source_rays']:,} rays, refining...")
+            self._coarse_on_canvas = out.request.id
+            if not self.canvas.plot.isVisible():
+                self._canvas_painted()
+            return
+        self._coarse_on_canvas = -1
+        if not gc_policy.heap_settled():
+            QTimer.singleShot(0, gc_policy.settle_heap)      # after this result is painted
+        self.ledger.show_result(out.result)
+        self.profiles.show_result(out.result)
         # the one time figure of a trace (the flux panel gives rays and segments)
         self.trace_label.setText(f"traced in {out.elapsed_s * 1000:.0f} ms")
+
+    def _canvas_painted(self) -> None:
+        """The drawing has been painted: a coarse fan on it is on the screen."""
+        if self._coarse_on_canvas >= 0:
+            self.worker.shown(self._coarse_on_canvas)
+            self._coarse_on_canvas = -1

@@ -55,9 +55,16 @@ def scene_for(scene: Scene, options: TraceOptions) -> Scene:
     return s
 
 
+def compile_for(scene: Scene, options: TraceOptions):
+    """The compiled scene `run_trace` traces for these options (raises SceneError)."""
+    return raytrace.compile_scene(scene_for(scene, options))
+
+
 def run_trace(scene: Scene, options: TraceOptions, cancel: threading.Event | None = None,
-              on_progress=None):
+              on_progress=None, compiled=None):
     """Trace for display; raises TraceCancelled when `cancel` is set during the trace.
+    `compiled`: `compile_for(scene, options)` made beforehand (the coarse and the full trace of
+    one request share it), else the scene is compiled here.
 
     Path statistics are not kept (nothing in the window shows them and they cost a third of
     the trace time); the ledger and detector records do not depend on them."""
@@ -74,4 +81,4 @@ def run_trace(scene: Scene, options: TraceOptions, cancel: threading.Event | Non
     record = SampledRecording(stride) if stride else "none"
     return raytrace.trace(traced, rays=options.rays, mode=options.mode,
                           flux_floor=options.flux_floor, max_generations=options.max_generations,
-                          record=record, progress=progress, track_paths=False)
+                          record=record, progress=progress, track_paths=False, compiled=compiled)

@@ -123,11 +123,19 @@ def test_an_edit_shows_its_coarse_fan_first_then_its_full_trace(qtbot, win, monk
     assert coarse.request is full.request and coarse.request.scene is win.doc.scene
     assert coarse.result.stats["source_rays"] < full.result.stats["source_rays"] == 1000
     assert 0 < n_coarse < n_full                     # each was on the canvas in its turn
-    # the coarse fan is the real trace of that state with its number of rays
+    # the coarse fan is the real trace of that state with its number of rays, ending its legs
+    # at the coarse flux floor (the scene's own floor is lower)
     n = coarse.result.stats["source_rays"]
-    ref = run_trace(win.doc.scene, replace(coarse.request.options, rays=n,
-                                           drawn_rays=min(coarse.request.options.drawn_rays, n)))
+    floor = max(win.doc.scene.settings.flux_floor, worker_mod.COARSE_FLUX_FLOOR)
+    assert coarse.options == replace(coarse.request.options, rays=n, flux_floor=floor,
+                                     drawn_rays=min(coarse.request.options.drawn_rays, n))
+    ref = run_trace(win.doc.scene, coarse.options)
     np.testing.assert_array_equal(coarse.result.ledger.bins, ref.ledger.bins)
+    assert coarse.result.settings["flux_floor"] == floor
+    # the full trace keeps the scene's floor and equals the direct trace of the state
+    assert full.options == full.request.options
+    np.testing.assert_array_equal(full.result.ledger.bins,
+                                  run_trace(win.doc.scene, full.request.options).ledger.bins)
 
 
 def test_the_canvas_waits_for_the_new_rays_before_painting(qtbot, win, monkeypatch):
@@ -180,3 +188,126 @@ def test_a_drawing_made_for_another_colour_choice_is_made_again(qtbot, win):
     win.canvas.set_result(out.result, out.drawing)
     assert win.canvas.drawing is not out.drawing and win.canvas.drawing.colour_by_wavelength
     assert win.canvas.drawing.by_wavelength
+
+
+def _slow_scene_edit(win):
+    s = win.doc.scene
+    win.doc.apply(edits.replace_part(s, 1, edits.move_part(s.parts[1], 0.2, 0.0)), "move")
+
+
+def test_the_panels_show_the_full_trace_not_the_coarse_fan(qtbot, win, monkeypatch):
+    monkeypatch.setattr(worker_mod, "COARSE_WHEN_OVER_S", 0.0)
+    _open(qtbot, win)
+    before_rows, before_result = list(win.ledger.rows), win.profiles.result
+    seen = []       # connected after the window's own slot: what the panels show once it ran
+    win.worker.finished.connect(lambda o: seen.append((o, list(win.ledger.rows), win.profiles.result,
+                                                       win.trace_label.text())))
+    _slow_scene_edit(win)
+    wait_traced(qtbot, win)
+    (coarse, c_rows, c_result, c_label), (full, f_rows, f_result, f_label) = seen
+    assert coarse.coarse and not full.coarse
+    # the coarse fan is drawn, the panels still show the last full trace ...
+    assert c_rows == before_rows and c_result is before_result
+    assert "preview" in c_label
+    # ... and the full trace refreshes them: every bucket of its ledger, in its order
+    from gui.panels.ledger import SECTIONS
+    buckets = full.result.ledger.buckets
+    assert [(r[0], r[1]) for r in f_rows] == [(b.label, b.flux) for kind, _ in SECTIONS
+                                              for b in buckets if b.kind == kind]
+    assert c_rows != f_rows
+    assert f_result is full.result and "traced in" in f_label
+
+
+def test_the_full_trace_starts_once_the_coarse_fan_is_painted(qtbot, win, monkeypatch):
+    monkeypatch.setattr(worker_mod, "COARSE_WHEN_OVER_S", 0.0)
+    _open(qtbot, win)
+    # the worker would start on its own after this long: far longer than the test waits for
+    win.worker.refine_wait_s = 3600.0
+    paints = _Paints(win.canvas.plot.viewport())
+    at_coarse, at_full = [], []
+    win.worker.finished.connect(lambda o: o.coarse and at_coarse.append(paints.count))
+    real = worker_mod.run_trace
+
+    def traced(scene, options, *a, **k):
+        if options.rays is None:                       # the full stage: the scene's own count
+            at_full.append((paints.count, win.worker._shown_id))
+        return real(scene, options, *a, **k)
+    monkeypatch.setattr(worker_mod, "run_trace", traced)
+    _slow_scene_edit(win)
+    wait_traced(qtbot, win)
+    assert len(at_coarse) == 1 and len(at_full) == 1
+    (painted, shown_id), req = at_full[0], win.last_outcome.request
+    assert painted > at_coarse[0], "the coarse fan was painted before the full trace began"
+    assert shown_id >= req.id, "the window said so"
+
+
+def test_a_hidden_window_does_not_hold_up_the_full_trace(qtbot, win, monkeypatch):
+    monkeypatch.setattr(worker_mod, "COARSE_WHEN_OVER_S", 0.0)
+    _open(qtbot, win)
+    win.worker.refine_wait_s = 3600.0
+    win.hide()
+    _slow_scene_edit(win)
+    wait_traced(qtbot, win)          # would wait for the hour: nothing paints a hidden window
+    assert not win.last_outcome.coarse and win.worker._shown_id >= win.last_outcome.request.id
+
+
+def test_one_compile_serves_both_stages_and_a_retrace(qtbot, win, monkeypatch):
+    monkeypatch.setattr(worker_mod, "COARSE_WHEN_OVER_S", 0.0)
+    _open(qtbot, win)
+    calls = []
+    real = worker_mod.compile_for
+    monkeypatch.setattr(worker_mod, "compile_for", lambda *a: calls.append(a) or real(*a))
+    shown = []
+    win.worker.finished.connect(shown.append)
+    _slow_scene_edit(win)
+    wait_traced(qtbot, win)
+    assert [o.coarse for o in shown] == [True, False] and len(calls) == 1
+    win.request_trace(force=True)                       # Trace now: the same scene again
+    wait_traced(qtbot, win, count=win.traces_shown + 1)
+    assert len(calls) == 1
+    # what the shared compile traced is what a trace of its own gives
+    direct = run_trace(win.doc.scene, win.controls.options())
+    np.testing.assert_array_equal(win.last_outcome.result.ledger.bins, direct.ledger.bins)
+    _same_drawing(win.canvas.drawing, scene_drawing(direct, win.doc.scene))
+
+
+def test_an_unchanged_problem_list_is_not_refilled(qtbot, win):
+    from gui.problems import SceneProblem
+    panel = win.problems_panel
+    p = [SceneProblem("$.parts[1]: found an overlapping part; expected apart", (1, 0))]
+    panel.show_problems(p)
+    first = panel.list.item(0)
+    panel.show_problems(list(p))               # the same problems again (every edit asks)
+    assert panel.list.item(0) is first and panel.list.count() == 1
+    panel.show_problems([SceneProblem("$.parts[0]: found a crossing; expected none", (0,))])
+    assert panel.list.item(0).text().startswith("$.parts[0]")
+    panel.show_problems([])
+    assert panel.list.count() == 0 and "No problems" in panel.summary.text()
+
+
+def test_garbage_is_collected_on_the_ui_thread_only(qtbot, win):
+    """Collection freeing Qt objects outside the UI thread can deadlock against it (see
+    gui/gc_policy.py): automatic collection is off, a UI-thread timer collects, and after the
+    first trace what lives is frozen out of full collections."""
+    import gc
+    import threading
+    from gui import gc_policy
+    _open(qtbot, win)
+    assert not gc.isenabled()
+    qtbot.waitUntil(gc_policy.heap_settled, timeout=TIMEOUT_MS)
+    assert gc.get_freeze_count() > 0
+    threads = []
+
+    def watch(phase, info):
+        threads.append(threading.current_thread() is threading.main_thread())
+    gc.callbacks.append(watch)
+    try:
+        class Cycle:
+            pass
+        for _ in range(5 * gc.get_threshold()[0]):      # garbage enough for a gen-0 collection
+            a, b = Cycle(), Cycle()
+            a.b, b.a = b, a
+        qtbot.waitUntil(lambda: len(threads) > 0, timeout=TIMEOUT_MS)
+    finally:
+        gc.callbacks.remove(watch)
+    assert all(threads)

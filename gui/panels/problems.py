@@ -26,7 +26,12 @@ class ProblemsPanel(QWidget):
         self.show_problems([])
 
     def show_problems(self, problems) -> None:
-        self.problems = list(problems)
+        problems = list(problems)
+        if problems == self.problems and self.summary.text():
+            # every edit asks again; refilling the same list and text would lay out the whole
+            # results dock anew (a few ms of the UI thread while the new trace runs)
+            return
+        self.problems = problems
         self.list.clear()
         for p in self.problems:
             item = QListWidgetItem(p.text)      # plain text: "<part 'a' ...>" shows as written
