@@ -268,7 +268,7 @@ def test_one_compile_serves_both_stages_and_a_retrace(qtbot, win, monkeypatch):
     # what the shared compile traced is what a trace of its own gives
     direct = run_trace(win.doc.scene, win.controls.options())
     np.testing.assert_array_equal(win.last_outcome.result.ledger.bins, direct.ledger.bins)
-    _same_drawing(win.canvas.drawing, scene_drawing(direct, win.doc.scene))
+    _same_drawing(win.canvas.drawing, scene_drawing(direct, win.doc.scene, pixel_mm=win.canvas.view_pixel_mm))
 
 
 def test_an_unchanged_problem_list_is_not_refilled(qtbot, win):
