@@ -360,3 +360,27 @@ def test_sweep_table_is_not_saved_over_the_open_scene(qtbot, win, tmp_path):
     assert "the open scene's own file" in dlg.status.text()
     assert scene.read_bytes() == (SAMPLES / "oblique-window.json").read_bytes()
     assert dlg.save_table(str(tmp_path / "table.csv"))
+
+
+def test_typing_a_vertex_of_a_built_part_says_it_becomes_a_plain_outline(qtbot, win):
+    """The light pipe's guide is built from a shape; typing a vertex's x in the table makes it
+    a plain outline (the documented rule).  The status bar says so and how to undo; Ctrl+Z
+    gives the shape back."""
+    from gui import edits
+    from PySide6.QtWidgets import QTableWidget
+    shown(qtbot, win, (1024, 700))
+    assert win.open_file(str(LIGHT_PIPE))
+    built = win.doc.scene
+    assert built.parts[0].shape is not None
+    win.canvas.select((edits.PART, 0))
+    qtbot.wait(20)
+    table = next(t for t in win.properties.findChildren(QTableWidget)
+                 if t.isVisibleTo(win.properties) and t.columnCount() >= 5)
+    x0 = float(table.item(0, 0).text())
+    _type_in_cell(qtbot, table, 0, 0, f"{x0 - 0.5:g}")
+    assert win.doc.scene.parts[0].shape is None
+    said = win.statusBar().currentMessage()
+    assert said.startswith("guide is now a plain outline") and "Ctrl+Z" in said, said
+    win.canvas.setFocus()
+    qtbot.keyClick(win.canvas.plot, Qt.Key_Z, Qt.ControlModifier)
+    assert win.doc.scene == built and win.doc.scene.parts[0].shape is not None

@@ -369,13 +369,21 @@ class PartPage(_Page):
             self.show(self.doc.scene, self.index)
             return
         self._replace(new, what)
+        self._note_outline(p, new)
+
+    def _note_outline(self, old, new):
+        # a hand edit of a built part's outline ends its shape: say so, the fields vanish
+        if old.shape is not None and new.shape is None and self.part() is new:
+            self.error(f"{new.name} is now a plain outline: its shape fields are gone and numbers "
+                       f"linked to its shape save as plain numbers (Ctrl+Z undoes)")
 
     def _treatment(self, row, kind):
         p = self.part()
         old = p.outer.edges[row].treatment
         R = old.reflectance if kind == "mirror" else 1.0
-        self._replace(edits.set_edge(p, row, treatment=edits.treatment(kind, R)),
-                      f"set {kind} on {p.name} / {p.outer.edges[row].face or f'edge {row + 1}'}")
+        new = edits.set_edge(p, row, treatment=edits.treatment(kind, R))
+        self._replace(new, f"set {kind} on {p.name} / {p.outer.edges[row].face or f'edge {row + 1}'}")
+        self._note_outline(p, new)
 
     def show(self, scene, index):
         self.index = index
