@@ -1,4 +1,4 @@
-"""Traces spread over a process pool give exactly the single-process result for the same seed.
+"""Traces spread over threads or a process pool give exactly the single-worker result for the same seed.
 
 common practice: chunk seeds come from (trace seed, chunk index) and chunks are merged in
 chunk order, so the number of workers cannot change anything: ledgers, detector hits, path
@@ -9,7 +9,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from raytrace import trace
+from raytrace import kernel, parallel, trace
 from raytrace.parallel import default_workers
 from raytrace.scene_io import load_scene
 
@@ -40,3 +40,39 @@ def test_three_workers_on_a_film():
 
 def test_default_workers_is_at_least_one():
     assert default_workers() >= 1
+
+
+@pytest.fixture
+def pool(request, monkeypatch):
+    """Force the pool kind run_parallel uses (threads are the compiled kernel's default)."""
+    original = parallel.run_parallel
+    monkeypatch.setattr(parallel, "run_parallel",
+                        lambda *a, **k: original(*a, **{**k, "pool": request.param}))
+    return request.param
+
+
+@pytest.mark.parametrize("pool", ["threads", "processes"], indirect=True)
+@pytest.mark.parametrize("mode", ["branching", "monte_carlo"])
+def test_thread_and_process_pools_equal_one_worker(mode, pool):
+    """Both pool kinds, with the compiled kernel, against one worker: the same ledger, the same
+    detector records (the merger joins the chunks' per-generation pieces) and the same tallies."""
+    scene = load_scene(SAMPLES["light-pipe-90"])
+    with kernel.using("numba"):
+        one = trace(scene, rays=3000, mode=mode, chunk_size=400, workers=1, seed=4)
+        two = trace(scene, rays=3000, mode=mode, chunk_size=400, workers=2, seed=4)
+    np.testing.assert_array_equal(one.ledger.bins, two.ledger.bins)
+    assert sorted(one.raw.hits) == sorted(two.raw.hits) and len(one.raw.hits["root"]) > 0
+    for k in one.raw.hits:
+        np.testing.assert_array_equal(one.raw.hits[k], two.raw.hits[k])
+    np.testing.assert_array_equal(one.raw.path_parent, two.raw.path_parent)
+    assert dict(one.raw.path_flux) == dict(two.raw.path_flux)
+    np.testing.assert_array_equal(one.raw.batch_bins, two.raw.batch_bins)
+    assert one.stats["segments"] == two.stats["segments"]
+
+
+def test_default_pool_follows_the_kernel():
+    """Threads only where the kernel releases the GIL between generations' Python steps."""
+    with kernel.using("numba"):
+        assert parallel.pool_kind() == "threads"
+    with kernel.using("numpy"):
+        assert parallel.pool_kind() == "processes"
