@@ -59,7 +59,7 @@ def run_chunk(cs: CompiledScene, start: StartRays, job: ChunkJob, mode: str, rec
         rec = Recording()           # no ray of this chunk is wanted in the table
     return trace_rays(cs, sub, mode=mode, limits=job.limits, seed=job.seed, record=rec,
                       track_paths=track_paths, n_sources=n_sources, accel=accel,
-                      root_offset=job.lo, keep_hits=keep_hits, join_hits=False)
+                      root_offset=job.lo, keep_hits=keep_hits)
 
 
 class Merger:
@@ -90,7 +90,7 @@ class Merger:
         from .errors import BudgetExceeded, memory_limit_text
         from .tracer import BYTES_PER_HIT, BYTES_PER_SEGMENT_ROW, KEPT_COPIES
         self.chunks += 1
-        self.kept_bytes += BYTES_PER_HIT * _rows(raw.hits.get("root", ())) + \
+        self.kept_bytes += BYTES_PER_HIT * len(raw.hits.get("root", ())) + \
             BYTES_PER_SEGMENT_ROW * (len(raw.segments["ray_id"]) if raw.segments is not None else 0)
         need = KEPT_COPIES * self.kept_bytes      # the pieces and, at the end, their joined copy
         if need > self.kept_mb * 1e6:
@@ -109,11 +109,10 @@ class Merger:
             b, node, f = _flux_arrays(raw.path_flux)
             if len(b):
                 self.trie.deposit(b, remap[node], f)
-        for k, v in raw.hits.items():         # an array, or a chunk's list of pieces
-            pieces = v if isinstance(v, list) else [v]
+        for k, v in raw.hits.items():
             if k == "path" and remap is not None:
-                pieces = [remap[p] for p in pieces]
-            self.hits.setdefault(k, []).extend(pieces)
+                v = remap[v]
+            self.hits.setdefault(k, []).append(v)
         self.histograms = merge_histograms(self.histograms, raw.histograms)
         if raw.segments is not None:
             if self.segments is None:
@@ -149,11 +148,6 @@ class Merger:
             path_parent=self.trie.parent.copy(), path_code=self.trie.code.copy(),
             path_flux=self.trie.flux_dict() if self.trie.enabled else {}, wavelengths=wl, stats=stats,
             histograms=self.histograms, batch_bins=self.batch_bins, batch_flux=self.batch_flux)
-
-
-def _rows(column) -> int:
-    """Rows of a record column: an array or a list of pieces."""
-    return sum(len(p) for p in column) if isinstance(column, list) else len(column)
 
 
 def start_bytes(start: StartRays) -> int:

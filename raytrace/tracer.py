@@ -237,16 +237,14 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
                limits: Limits | None = None, seed: int | list[int] = 1, record: Recording | None = None,
                track_paths: bool = True, hit_fn=None, n_sources: int | None = None,
                progress=None, accel: str = "auto", root_offset: int = 0,
-               keep_hits: bool = True, join_hits: bool = True) -> RawTrace:
+               keep_hits: bool = True) -> RawTrace:
     """Trace `start` rays through the compiled scene and return the raw tallies.
 
     hit_fn: a nearest-hit function (default: the fastest exact method for the scene, see
     `accel.hit_function`; `intersect.nearest_hit` is the plain reference).  root_offset: the
     index of start[0] among all source rays of a chunked trace (recording and hit records use
     global source-ray numbers).  keep_hits=False bins detector hits into histograms instead
-    of keeping one record per hit.  join_hits=False leaves each record column as the list of
-    its per-generation pieces (a chunk's merger joins all chunks' pieces at once: one copy of
-    the records instead of two)."""
+    of keeping one record per hit."""
     if mode not in MODES:
         raise ValueError(f"mode: expected one of {', '.join(MODES)}, found {mode!r}")
     limits = limits or Limits()
@@ -483,7 +481,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         segments = None
     return RawTrace(
         bins=bins, source_flux=source_flux, segments=segments,
-        hits={k: np.concatenate(v) if join_hits else v for k, v in hit_store.items()},
+        hits={k: np.concatenate(v) for k, v in hit_store.items()},
         path_parent=paths.parent.copy(), path_code=paths.code.copy(),
         path_flux=paths.flux_dict() if paths.enabled else {}, wavelengths=wavelengths, stats=stats,
         histograms=hist.to_dict() if hist is not None else None,

@@ -55,7 +55,7 @@ def pool(request, monkeypatch):
 @pytest.mark.parametrize("mode", ["branching", "monte_carlo"])
 def test_thread_and_process_pools_equal_one_worker(mode, pool):
     """Both pool kinds, with the compiled kernel, against one worker: the same ledger, the same
-    detector records (the merger joins the chunks' per-generation pieces) and the same tallies."""
+    detector records and the same tallies."""
     scene = load_scene(SAMPLES["light-pipe-90"])
     with kernel.using("numba"):
         one = trace(scene, rays=3000, mode=mode, chunk_size=400, workers=1, seed=4)
