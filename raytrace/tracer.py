@@ -752,9 +752,8 @@ def _after_compiled_step(cs, K, r, e, step, paths, path_thr, recording, record, 
     if seg_store is not None:
         seg_rows += _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen)
     if len(dcode):          # dnode: the row of the ray each deposit comes from
-        bins += np.bincount(dcode, weights=dflux, minlength=len(bins))
-        batch_bins += np.bincount(batch[r["root"][dnode]] * len(bins) + dcode, weights=dflux,
-                                  minlength=len(batch_bins))
+        timed_first_call("ledger deposits", lambda: kernel_step.book_deposits(
+            bins, batch_bins, dcode, dflux, dnode, r["root"], batch))
         if paths.enabled:
             paths.deposit(dcode, r["path"][dnode], dflux)
     CF, CI = children
