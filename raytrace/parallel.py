@@ -86,8 +86,9 @@ def run_parallel(cs, start, jobs, mode, record, track_paths, n_sources, keep_hit
     hit_function(cs, accel)            # build the grid once, before the workers start
     n_workers = min(capped_workers(workers), len(jobs))
     if pool == "threads":
-        from .tracer import tune_allocator
+        from .tracer import release_free_memory, tune_allocator
         tune_allocator()               # one malloc arena, set before the threads first allocate
+        release_free_memory()          # what earlier traces freed does not count against this one
         with ThreadPoolExecutor(max_workers=n_workers, thread_name_prefix="raytrace-chunk") as ex:
             yield from ex.map(lambda job: run_chunk(cs, start, job, *args), jobs)
         return
