@@ -170,6 +170,27 @@ def _stable_by_tag(tag, n, n_tags):
     return pos
 
 
+@jit
+def book_deposits(bins, batch_bins, dcode, dflux, dnode, root, batch):
+    """Add a generation's deposits to the ledger bins and to the bins per sub-batch of source
+    rays (`uncertainty`): the sums np.bincount makes (each bin's deposits added in list order,
+    starting from 0), then added to the running totals, so the bits are the array code's.
+    dnode: the row of the ray each deposit comes from; root: each row's source ray (chunk-local);
+    batch: each source ray's sub-batch."""
+    nb = len(bins)
+    gen = np.zeros(nb)
+    gen_batch = np.zeros(len(batch_bins))
+    for j in range(len(dcode)):
+        c = dcode[j]
+        f = dflux[j]
+        gen[c] += f
+        gen_batch[batch[root[dnode[j]]] * nb + c] += f
+    for k in range(nb):
+        bins[k] += gen[k]
+    for k in range(len(batch_bins)):
+        batch_bins[k] += gen_batch[k]
+
+
 # rows of the per-edge tables (extended by one "no edge" column at index ne)
 EDGE_FLOAT_ROWS = ("nx", "ny", "cx", "cy", "reflectance", "x0", "y0", "ex", "ey", "length")
 EDGE_INT_ROWS = ("treat", "escape_code", "is_arc", "med_plus", "med_minus", "detector")

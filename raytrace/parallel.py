@@ -1,16 +1,21 @@
-"""Spread the chunks of a trace over a process pool.
+"""Spread the chunks of a trace over threads (compiled kernel) or a process pool (array kernel).
 
-Workers are forked where the platform allows it, so the compiled scene (and its cached
-acceleration grid) is inherited rather than sent; elsewhere it is sent once per worker.  Results
-come back in chunk order (`Executor.map`), so merging does not depend on which worker finished
-first, and the result does not depend on the number of workers.
+With the compiled kernel the hit search and the interface step release the GIL (`nogil`), and
+what holds it between them is a small share of a generation, so threads in this one process
+share the cores: no fork, no copy-on-write faults, no detector records pickled back.  The
+array kernel holds the GIL for most of its work, so it gets processes: forked where the platform
+allows it, so the compiled scene (and its cached acceleration grid) is inherited rather than
+sent; elsewhere it is sent once per worker.  Either way results come back in chunk order
+(`Executor.map`), so merging does not depend on which worker finished first, and the result
+does not depend on the number or kind of workers.
 """
 from __future__ import annotations
 
 import multiprocessing as mp
 import os
-from concurrent.futures import ProcessPoolExecutor
+from concurrent.futures import ProcessPoolExecutor, ThreadPoolExecutor
 
+from . import kernel
 from .accel import hit_function
 from .streaming import run_chunk
 
@@ -62,10 +67,31 @@ def _work(job):
     return run_chunk(s["cs"], s["start"], job, *s["args"])
 
 
-def run_parallel(cs, start, jobs, mode, record, track_paths, n_sources, keep_hits, accel, workers):
-    """Yield each chunk's RawTrace in chunk order."""
+POOLS = ("threads", "processes")
+
+
+def pool_kind() -> str:
+    """Threads where the kernel releases the GIL (the compiled one), else processes."""
+    return "threads" if kernel.compiled() else "processes"
+
+
+def run_parallel(cs, start, jobs, mode, record, track_paths, n_sources, keep_hits, accel, workers,
+                 pool: str | None = None):
+    """Yield each chunk's RawTrace in chunk order.  pool: "threads" or "processes" (default:
+    `pool_kind()`)."""
+    pool = pool or pool_kind()
+    if pool not in POOLS:
+        raise ValueError(f"pool: expected one of {', '.join(POOLS)}, found {pool!r}")
     args = (mode, record, track_paths, n_sources, keep_hits, accel)
-    hit_function(cs, accel)            # build the grid once, before the workers fork
+    hit_function(cs, accel)            # build the grid once, before the workers start
+    n_workers = min(capped_workers(workers), len(jobs))
+    if pool == "threads":
+        from .tracer import release_free_memory, tune_allocator
+        tune_allocator()               # one malloc arena, set before the threads first allocate
+        release_free_memory()          # what earlier traces freed does not count against this one
+        with ThreadPoolExecutor(max_workers=n_workers, thread_name_prefix="raytrace-chunk") as ex:
+            yield from ex.map(lambda job: run_chunk(cs, start, job, *args), jobs)
+        return
     methods = mp.get_all_start_methods()
     if "fork" in methods:
         ctx = mp.get_context("fork")
@@ -74,7 +100,7 @@ def run_parallel(cs, start, jobs, mode, record, track_paths, n_sources, keep_hit
     else:
         ctx = mp.get_context("spawn")
         init, initargs = _init_worker, (cs, start, args)
-    with ProcessPoolExecutor(max_workers=min(capped_workers(workers), len(jobs)), mp_context=ctx,
-                             initializer=init, initargs=initargs) as pool:
-        yield from pool.map(_work, jobs)
+    with ProcessPoolExecutor(max_workers=n_workers, mp_context=ctx, initializer=init,
+                             initargs=initargs) as ex:
+        yield from ex.map(_work, jobs)
     _STATE.clear()

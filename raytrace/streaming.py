@@ -201,4 +201,8 @@ def trace_chunked(cs: CompiledScene, start: StartRays, mode: str, limits: Limits
         merger.add(raw, job.hi - job.lo, job.lo)
         if progress is not None:
             progress({**merger.stats, "chunks_done": merger.chunks, "chunks": len(jobs)})
-    return merger.result()
+    out = merger.result()
+    if workers > 1:
+        from .tracer import release_free_memory
+        release_free_memory()     # the chunks' pieces, now joined: keep only the result
+    return out

@@ -364,8 +364,11 @@ def test_sigterm_to_the_parent_ends_the_pool_workers(scene_file, tmp_path, comma
     args = (["sweep", str(scene_file), "--vary", "trace.seed=1:8:8", "--rays", "400000", "--csv",
              str(tmp_path / "s.csv"), "--workers", "2"] if command == "sweep" else
             ["trace", str(scene_file), "--rays", "3000000", "--workers", "2"])
+    # a trace with the compiled kernel runs its chunks on threads of the one process; the array
+    # kernel keeps the process pool whose workers must not outlive the parent
+    env = {**os.environ, "RAYTRACE_KERNEL": "numpy"} if command == "trace" else None
     proc = subprocess.Popen([sys.executable, "-m", "raytrace.cli", *args, "--quiet"],
-                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+                            stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, env=env)
     kids: set[int] = set()
     try:
         deadline = time.monotonic() + 60
