@@ -380,7 +380,8 @@ def test_typing_a_vertex_of_a_built_part_says_it_becomes_a_plain_outline(qtbot, 
     _type_in_cell(qtbot, table, 0, 0, f"{x0 - 0.5:g}")
     assert win.doc.scene.parts[0].shape is None
     said = win.statusBar().currentMessage()
-    assert said.startswith("guide is now a plain outline") and "Ctrl+Z" in said, said
+    assert said.startswith("guide is now a plain outline (Ctrl+Z undoes)"), said
+    assert "linked to its shape save as plain numbers" in win.statusBar().toolTip()   # the whole note
     win.canvas.setFocus()
     qtbot.keyClick(win.canvas.plot, Qt.Key_Z, Qt.ControlModifier)
     assert win.doc.scene == built and win.doc.scene.parts[0].shape is not None

@@ -374,8 +374,8 @@ class PartPage(_Page):
     def _note_outline(self, old, new):
         # a hand edit of a built part's outline ends its shape: say so, the fields vanish
         if old.shape is not None and new.shape is None and self.part() is new:
-            self.error(f"{new.name} is now a plain outline: its shape fields are gone and numbers "
-                       f"linked to its shape save as plain numbers (Ctrl+Z undoes)")
+            self.error(f"{new.name} is now a plain outline (Ctrl+Z undoes): its shape fields are "
+                       f"gone and numbers linked to its shape save as plain numbers")
 
     def _treatment(self, row, kind):
         p = self.part()
