@@ -130,9 +130,21 @@ CHILD_FLOAT_ROWS = ("x", "y", "dx", "dy", "fs", "fp", "opl")
 CHILD_INT_ROWS = ("med", "last", "start", "wli", "root", "path", "parent row", "event", "born")
 
 
+# optional integer rows of the children, asked for by `streams` bits: the event (for the path
+# tallies) and the birth code (for the ray table); without them the kernel writes 7 rows
+STREAM_EVENT, STREAM_BORN = 1, 2
+
+
+@jit
+def child_int_rows(streams):
+    """Rows of the children's integer block for these `streams` (born needs event before it)."""
+    return 9 if streams & STREAM_BORN else (8 if streams & STREAM_EVENT else 7)
+
+
 @jit
 def _put_child(CF, CI, k, f, med, last, start, wli, root, path, parent, event, born):
-    """Write child k: f = (x, y, dx, dy, fs, fp, optical path), then its integers."""
+    """Write child k: f = (x, y, dx, dy, fs, fp, optical path), then its integers (as many of
+    CHILD_INT_ROWS as CI has rows)."""
     for r in range(7):
         CF[r, k] = f[r]
     CI[0, k] = med
@@ -142,8 +154,10 @@ def _put_child(CF, CI, k, f, med, last, start, wli, root, path, parent, event, b
     CI[4, k] = root
     CI[5, k] = path
     CI[6, k] = parent
-    CI[7, k] = event
-    CI[8, k] = born
+    if CI.shape[0] > 7:
+        CI[7, k] = event
+        if CI.shape[0] > 8:
+            CI[8, k] = born
 
 
 @jit(inline="always")
@@ -198,7 +212,7 @@ EDGE_INT_ROWS = ("treat", "escape_code", "is_arc", "med_plus", "med_minus", "det
 
 @jit
 def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, TF, TI, n_flat, alpha,
-                   thr_root, W, absorbing, mc, bulk0, face0, trunc_code, eps, scale, rec, u):
+                   thr_root, W, absorbing, mc, bulk0, face0, trunc_code, eps, scale, rec, u, streams):
     """One generation after its hit search.
 
     x .. path: ray state; t, e: the hits.  TF, TI: per-edge tables (EDGE_FLOAT_ROWS,
@@ -207,7 +221,8 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
     per (medium, wavelength); alpha: absorption per medium; thr_root: truncation threshold per
     source ray.  W wavelengths; bulk0, face0, trunc_code: ledger bins; rec: write the per-ray
     columns of the ray table.  u: uniform draws for the dielectric rays of a Monte Carlo
-    generation, in ray order.  (Plain array and scalar arguments only: numba types those fast,
+    generation, in ray order.  streams: STREAM_* bits, the optional children's rows the caller
+    reads (unasked ones are not written).  (Plain array and scalar arguments only: numba types those fast,
     tuples slowly, and a generation of a small fan is over in well under a millisecond.)
 
     Everything is written in one pass over the rays into buffers kept in ray order; where the
@@ -243,7 +258,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
     # tagged by group) from column 0 up, B children (transmitted) from column m up, moved down
     # behind the A children at the end
     CF = np.empty((7, 2 * m))
-    CI = np.empty((9, 2 * m), dtype=np.int64)
+    CI = np.empty((child_int_rows(streams), 2 * m), dtype=np.int64)
     ctag = np.empty(m, dtype=np.int64)
     # detector records, in ray order: position, angle, fs, fp, optical path; detector, ray
     HF = np.empty((5, m))
@@ -448,10 +463,10 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
     if na < m:
         # element by element, row by row: a column slice assignment (CF[:, a] = CF[:, b]) makes
         # numba copy the source to a fresh temporary first, a malloc and free per child
-        for row in range(7):          # destination before source: a forward copy is safe
+        for row in range(CF.shape[0]):    # destination before source: a forward copy is safe
             for j in range(nbk):
                 CF[row, na + j] = CF[row, m + j]
-        for row in range(9):
+        for row in range(CI.shape[0]):
             for j in range(nbk):
                 CI[row, na + j] = CI[row, m + j]
     nk = na + nbk

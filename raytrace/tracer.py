@@ -360,7 +360,8 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         # --- nearest hit (with the corner rules, see _corner_hits), then travel to it
         t, e, at_vertex = _corner_hits(cs, K, r, hit_fn, vertex_tol2, stats, compiled)
         if compiled:
-            step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording)
+            step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording,
+                                  paths.enabled)
             r, next_id, seg_rows = _after_compiled_step(
                 cs, K, r, e, step, paths, path_thr, recording, record, root_offset, next_id, seg_store,
                 seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats, batch, batch_bins)
@@ -724,9 +725,10 @@ def _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen
 _NO_DRAWS = np.zeros(0)
 
 
-def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording):
+def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording, track_paths):
     """kernel_step.interface_step for this generation, with the Monte Carlo draws the array
-    code would take (one per ray at a dielectric face, in ray order)."""
+    code would take (one per ray at a dielectric face, in ray order).  The children's event
+    rows are written only for path tallies and their birth codes only for a ray table."""
     mc = mode == MONTE_CARLO
     u = _NO_DRAWS
     if mc:
@@ -739,7 +741,8 @@ def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recor
     return timed_first_call("interface step", lambda: kernel_step.interface_step(
         *state, t, e, K.edge_float, K.edge_int, n_flat, K.alpha, thr_root, int(W), bool(K.absorbing), mc,
         int(layout.bulk0), int(layout.face0), int(layout.trunc0 + TRUNC_FLUX), float(cs.eps), float(cs.scale),
-        bool(recording), u))
+        bool(recording), u, (kernel_step.STREAM_EVENT if track_paths else 0)
+        | (kernel_step.STREAM_BORN if recording else 0)))
 
 
 _STEP_STATE = ("x", "y", "dx", "dy", "fs", "fp", "opl", "wli", "med", "root", "last", "path")
@@ -774,13 +777,15 @@ def _after_compiled_step(cs, K, r, e, step, paths, path_thr, recording, record, 
             paths.deposit(dcode, r["path"][dnode], dflux)
     CF, CI = children
     cx, cy, cdx, cdy, cfs, cfp, copl = CF
-    cmed, clast, start, cwli, croot, cpath, pidx, cev, cborn = CI
+    cmed, clast, start, cwli, croot, cpath, pidx = CI[:7]
+    cev = CI[7] if len(CI) > 7 else None            # only when asked for (_compiled_step)
+    cborn = CI[8] if len(CI) > 8 else None
     out = {"x": cx, "y": cy, "dx": cdx, "dy": cdy, "fs": cfs, "fp": cfp, "med": cmed, "start": start,
            "last": clast, "opl": copl, "wli": cwli, "root": croot,
            "corner_edge": np.full(len(pidx), -1, dtype=np.int64)}
     if at_vertex is not None:
         _corner_children(cs, out, np.flatnonzero(at_vertex[pidx]))
-    next_id = _child_paths_and_ids(out, r, pidx, start, cev, cborn if recording else None, paths, path_thr,
+    next_id = _child_paths_and_ids(out, r, pidx, start, cev, cborn, paths, path_thr,
                                    K, next_id, parent_path=cpath)
     return out, next_id, seg_rows
 
