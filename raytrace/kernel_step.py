@@ -130,21 +130,31 @@ CHILD_FLOAT_ROWS = ("x", "y", "dx", "dy", "fs", "fp", "opl")
 CHILD_INT_ROWS = ("med", "last", "start", "wli", "root", "path", "parent row", "event", "born")
 
 
-# optional integer rows of the children, asked for by `streams` bits: the event (for the path
-# tallies) and the birth code (for the ray table); without them the kernel writes 7 rows
-STREAM_EVENT, STREAM_BORN = 1, 2
+# optional integer rows of the children, asked for by `streams` bits and kept in this order
+# after the first six of CHILD_INT_ROWS: the parent's row (for a ray table and the corner rules),
+# the event (for the path tallies) and the birth code (for the ray table); the kernel writes only
+# the rows asked for
+STREAM_PARENT, STREAM_EVENT, STREAM_BORN = 1, 2, 4
+CHILD_BASE_ROWS = 6
 
 
 @jit
 def child_int_rows(streams):
-    """Rows of the children's integer block for these `streams` (born needs event before it)."""
-    return 9 if streams & STREAM_BORN else (8 if streams & STREAM_EVENT else 7)
+    """Rows of the children's integer block for these `streams`."""
+    return CHILD_BASE_ROWS + (streams & 1) + ((streams >> 1) & 1) + ((streams >> 2) & 1)
+
+
+def child_row(streams: int, stream: int) -> int | None:
+    """Row of one optional stream in the children's integer block, None when not written."""
+    if not streams & stream:
+        return None
+    return CHILD_BASE_ROWS + sum(1 for s in (STREAM_PARENT, STREAM_EVENT) if s < stream and streams & s)
 
 
 @jit
-def _put_child(CF, CI, k, f, med, last, start, wli, root, path, parent, event, born):
-    """Write child k: f = (x, y, dx, dy, fs, fp, optical path), then its integers (as many of
-    CHILD_INT_ROWS as CI has rows)."""
+def _put_child(CF, CI, k, f, med, last, start, wli, root, path, parent, event, born, streams):
+    """Write child k: f = (x, y, dx, dy, fs, fp, optical path), then its integers (the first six
+    of CHILD_INT_ROWS and the optional ones `streams` asks for)."""
     for r in range(7):
         CF[r, k] = f[r]
     CI[0, k] = med
@@ -153,11 +163,15 @@ def _put_child(CF, CI, k, f, med, last, start, wli, root, path, parent, event, b
     CI[3, k] = wli
     CI[4, k] = root
     CI[5, k] = path
-    CI[6, k] = parent
-    if CI.shape[0] > 7:
-        CI[7, k] = event
-        if CI.shape[0] > 8:
-            CI[8, k] = born
+    r = CHILD_BASE_ROWS
+    if streams & STREAM_PARENT:
+        CI[r, k] = parent
+        r += 1
+    if streams & STREAM_EVENT:
+        CI[r, k] = event
+        r += 1
+    if streams & STREAM_BORN:
+        CI[r, k] = born
 
 
 @jit(inline="always")
@@ -409,14 +423,14 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
                     f = b_fs + b_fp
                     if f >= thr_root[root[i]] and f > 0:
                         _put_child(CF, CI, m + nbk, (hx, hy, tx, ty, b_fs, b_fp, o_end), m_to, ed, ed,
-                                   wli[i], root[i], node, i, EV_THROUGH, B_REFRACTED)
+                                   wli[i], root[i], node, i, EV_THROUGH, B_REFRACTED, streams)
                         nbk += 1
                     else:
                         nt = _book_faint(tflux, tnode, ttag, nt, f, i, G_TRANSMIT)
         if take_a:
             f = a[4] + a[5]
             if f >= thr_root[root[i]] and f > 0:
-                _put_child(CF, CI, na, a, a_med, a_last, ed, wli[i], root[i], node, i, a_ev, a_born)
+                _put_child(CF, CI, na, a, a_med, a_last, ed, wli[i], root[i], node, i, a_ev, a_born, streams)
                 ctag[na] = a_grp
                 na += 1
             else:
