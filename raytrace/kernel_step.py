@@ -130,9 +130,31 @@ CHILD_FLOAT_ROWS = ("x", "y", "dx", "dy", "fs", "fp", "opl")
 CHILD_INT_ROWS = ("med", "last", "start", "wli", "root", "path", "parent row", "event", "born")
 
 
+# optional integer rows of the children, asked for by `streams` bits and kept in this order
+# after the first six of CHILD_INT_ROWS: the parent's row (for a ray table and the corner rules),
+# the event (for the path tallies) and the birth code (for the ray table); the kernel writes only
+# the rows asked for
+STREAM_PARENT, STREAM_EVENT, STREAM_BORN = 1, 2, 4
+CHILD_BASE_ROWS = 6
+
+
 @jit
-def _put_child(CF, CI, k, f, med, last, start, wli, root, path, parent, event, born):
-    """Write child k: f = (x, y, dx, dy, fs, fp, optical path), then its integers."""
+def child_int_rows(streams):
+    """Rows of the children's integer block for these `streams`."""
+    return CHILD_BASE_ROWS + (streams & 1) + ((streams >> 1) & 1) + ((streams >> 2) & 1)
+
+
+def child_row(streams: int, stream: int) -> int | None:
+    """Row of one optional stream in the children's integer block, None when not written."""
+    if not streams & stream:
+        return None
+    return CHILD_BASE_ROWS + sum(1 for s in (STREAM_PARENT, STREAM_EVENT) if s < stream and streams & s)
+
+
+@jit
+def _put_child(CF, CI, k, f, med, last, start, wli, root, path, parent, event, born, streams):
+    """Write child k: f = (x, y, dx, dy, fs, fp, optical path), then its integers (the first six
+    of CHILD_INT_ROWS and the optional ones `streams` asks for)."""
     for r in range(7):
         CF[r, k] = f[r]
     CI[0, k] = med
@@ -141,9 +163,15 @@ def _put_child(CF, CI, k, f, med, last, start, wli, root, path, parent, event, b
     CI[3, k] = wli
     CI[4, k] = root
     CI[5, k] = path
-    CI[6, k] = parent
-    CI[7, k] = event
-    CI[8, k] = born
+    r = CHILD_BASE_ROWS
+    if streams & STREAM_PARENT:
+        CI[r, k] = parent
+        r += 1
+    if streams & STREAM_EVENT:
+        CI[r, k] = event
+        r += 1
+    if streams & STREAM_BORN:
+        CI[r, k] = born
 
 
 @jit(inline="always")
@@ -198,7 +226,7 @@ EDGE_INT_ROWS = ("treat", "escape_code", "is_arc", "med_plus", "med_minus", "det
 
 @jit
 def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, TF, TI, n_flat, alpha,
-                   thr_root, W, absorbing, mc, bulk0, face0, trunc_code, eps, scale, rec, u):
+                   thr_root, W, absorbing, mc, bulk0, face0, trunc_code, eps, scale, rec, u, streams):
     """One generation after its hit search.
 
     x .. path: ray state; t, e: the hits.  TF, TI: per-edge tables (EDGE_FLOAT_ROWS,
@@ -207,7 +235,8 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
     per (medium, wavelength); alpha: absorption per medium; thr_root: truncation threshold per
     source ray.  W wavelengths; bulk0, face0, trunc_code: ledger bins; rec: write the per-ray
     columns of the ray table.  u: uniform draws for the dielectric rays of a Monte Carlo
-    generation, in ray order.  (Plain array and scalar arguments only: numba types those fast,
+    generation, in ray order.  streams: STREAM_* bits, the optional children's rows the caller
+    reads (unasked ones are not written).  (Plain array and scalar arguments only: numba types those fast,
     tuples slowly, and a generation of a small fan is over in well under a millisecond.)
 
     Everything is written in one pass over the rays into buffers kept in ray order; where the
@@ -243,7 +272,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
     # tagged by group) from column 0 up, B children (transmitted) from column m up, moved down
     # behind the A children at the end
     CF = np.empty((7, 2 * m))
-    CI = np.empty((9, 2 * m), dtype=np.int64)
+    CI = np.empty((child_int_rows(streams), 2 * m), dtype=np.int64)
     ctag = np.empty(m, dtype=np.int64)
     # detector records, in ray order: position, angle, fs, fp, optical path; detector, ray
     HF = np.empty((5, m))
@@ -394,14 +423,14 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
                     f = b_fs + b_fp
                     if f >= thr_root[root[i]] and f > 0:
                         _put_child(CF, CI, m + nbk, (hx, hy, tx, ty, b_fs, b_fp, o_end), m_to, ed, ed,
-                                   wli[i], root[i], node, i, EV_THROUGH, B_REFRACTED)
+                                   wli[i], root[i], node, i, EV_THROUGH, B_REFRACTED, streams)
                         nbk += 1
                     else:
                         nt = _book_faint(tflux, tnode, ttag, nt, f, i, G_TRANSMIT)
         if take_a:
             f = a[4] + a[5]
             if f >= thr_root[root[i]] and f > 0:
-                _put_child(CF, CI, na, a, a_med, a_last, ed, wli[i], root[i], node, i, a_ev, a_born)
+                _put_child(CF, CI, na, a, a_med, a_last, ed, wli[i], root[i], node, i, a_ev, a_born, streams)
                 ctag[na] = a_grp
                 na += 1
             else:
@@ -448,10 +477,10 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
     if na < m:
         # element by element, row by row: a column slice assignment (CF[:, a] = CF[:, b]) makes
         # numba copy the source to a fresh temporary first, a malloc and free per child
-        for row in range(7):          # destination before source: a forward copy is safe
+        for row in range(CF.shape[0]):    # destination before source: a forward copy is safe
             for j in range(nbk):
                 CF[row, na + j] = CF[row, m + j]
-        for row in range(9):
+        for row in range(CI.shape[0]):
             for j in range(nbk):
                 CI[row, na + j] = CI[row, m + j]
     nk = na + nbk

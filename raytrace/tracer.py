@@ -360,9 +360,12 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         # --- nearest hit (with the corner rules, see _corner_hits), then travel to it
         t, e, at_vertex = _corner_hits(cs, K, r, hit_fn, vertex_tol2, stats, compiled)
         if compiled:
-            step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording)
+            streams = ((kernel_step.STREAM_PARENT if recording or at_vertex is not None else 0)
+                       | (kernel_step.STREAM_EVENT if paths.enabled else 0)
+                       | (kernel_step.STREAM_BORN if recording else 0))
+            step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording, streams)
             r, next_id, seg_rows = _after_compiled_step(
-                cs, K, r, e, step, paths, path_thr, recording, record, root_offset, next_id, seg_store,
+                cs, K, r, e, step, streams, paths, path_thr, recording, record, root_offset, next_id, seg_store,
                 seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats, batch, batch_bins)
             if hit_store:
                 hit_rows = sum(len(v) for v in hit_store["root"])
@@ -680,7 +683,8 @@ def _next_generation(r, kids, thr_root, path_thr, paths, layout, K, recording, n
 
 def _child_paths_and_ids(out, r, pidx, start, ev, born, paths, path_thr, K, next_id, parent_path=None):
     """The children's path nodes (parent's path extended by the event, or "other paths" for
-    faint rays) and, when a ray table is recorded (`born` given), their ids and parents."""
+    faint rays) and, when a ray table is recorded (`born` given), their ids and parents.
+    pidx (the parents' rows) is needed only then or without parent_path."""
     if parent_path is None:
         parent_path = r["path"][pidx]
     if paths.enabled:
@@ -688,7 +692,7 @@ def _child_paths_and_ids(out, r, pidx, start, ev, born, paths, path_thr, K, next
         if bright.all():
             out["path"] = paths.extend(parent_path, start * N_EVENT_KINDS + ev, K.n_codes)
         else:
-            node = np.full(len(pidx), paths.other_node(), dtype=np.int64)
+            node = np.full(len(start), paths.other_node(), dtype=np.int64)
             b = np.flatnonzero(bright)
             node[b] = paths.extend(parent_path[b], start[b] * N_EVENT_KINDS + ev[b], K.n_codes)
             out["path"] = node
@@ -724,9 +728,11 @@ def _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen
 _NO_DRAWS = np.zeros(0)
 
 
-def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording):
+def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording, streams):
     """kernel_step.interface_step for this generation, with the Monte Carlo draws the array
-    code would take (one per ray at a dielectric face, in ray order)."""
+    code would take (one per ray at a dielectric face, in ray order).  streams: the optional
+    children's rows to write (kernel_step.STREAM_*): parent rows for a ray table or the corner
+    rules, events for path tallies, birth codes for a ray table."""
     mc = mode == MONTE_CARLO
     u = _NO_DRAWS
     if mc:
@@ -739,13 +745,13 @@ def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recor
     return timed_first_call("interface step", lambda: kernel_step.interface_step(
         *state, t, e, K.edge_float, K.edge_int, n_flat, K.alpha, thr_root, int(W), bool(K.absorbing), mc,
         int(layout.bulk0), int(layout.face0), int(layout.trunc0 + TRUNC_FLUX), float(cs.eps), float(cs.scale),
-        bool(recording), u))
+        bool(recording), u, int(streams)))
 
 
 _STEP_STATE = ("x", "y", "dx", "dy", "fs", "fp", "opl", "wli", "med", "root", "last", "path")
 
 
-def _after_compiled_step(cs, K, r, e, step, paths, path_thr, recording, record, root_offset, next_id,
+def _after_compiled_step(cs, K, r, e, step, streams, paths, path_thr, recording, record, root_offset, next_id,
                          seg_store, seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats,
                          batch, batch_bins):
     """Book what the compiled step produced: stats, detector records, ray table, ledger bins and
@@ -774,13 +780,17 @@ def _after_compiled_step(cs, K, r, e, step, paths, path_thr, recording, record, 
             paths.deposit(dcode, r["path"][dnode], dflux)
     CF, CI = children
     cx, cy, cdx, cdy, cfs, cfp, copl = CF
-    cmed, clast, start, cwli, croot, cpath, pidx, cev, cborn = CI
+    cmed, clast, start, cwli, croot, cpath = CI[:kernel_step.CHILD_BASE_ROWS]
+    # the optional rows, written only when asked for (see the trace loop)
+    rows = [kernel_step.child_row(streams, s)
+            for s in (kernel_step.STREAM_PARENT, kernel_step.STREAM_EVENT, kernel_step.STREAM_BORN)]
+    pidx, cev, cborn = (None if k is None else CI[k] for k in rows)
     out = {"x": cx, "y": cy, "dx": cdx, "dy": cdy, "fs": cfs, "fp": cfp, "med": cmed, "start": start,
            "last": clast, "opl": copl, "wli": cwli, "root": croot,
-           "corner_edge": np.full(len(pidx), -1, dtype=np.int64)}
+           "corner_edge": np.full(len(cx), -1, dtype=np.int64)}
     if at_vertex is not None:
         _corner_children(cs, out, np.flatnonzero(at_vertex[pidx]))
-    next_id = _child_paths_and_ids(out, r, pidx, start, cev, cborn if recording else None, paths, path_thr,
+    next_id = _child_paths_and_ids(out, r, pidx, start, cev, cborn, paths, path_thr,
                                    K, next_id, parent_path=cpath)
     return out, next_id, seg_rows
 
