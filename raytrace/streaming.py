@@ -128,7 +128,8 @@ class Merger:
                 self.segments.setdefault(k, []).append(v)
         self.wavelengths.append(raw.wavelengths)
         for k, v in raw.stats.items():
-            if k == "generations":
+            # the compile is shared: chunks on threads each see the same one, so take the most
+            if k in ("generations", "kernel_start_s"):
                 self.stats[k] = max(self.stats.get(k, 0), v)
             elif isinstance(v, (int, float)) and k != "elapsed_s":
                 self.stats[k] = self.stats.get(k, 0) + v
