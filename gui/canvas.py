@@ -256,6 +256,7 @@ class Canvas(QWidget):
         lay.addWidget(self.legend)
 
         self._part_items: list[QGraphicsPathItem] = []
+        self._outlines: dict = {}        # id(part) -> (part, tolerance, path, edge points)
         self._part_paths: list[QPainterPath] = []
         self._edge_polys: list[tuple[int, int, int, np.ndarray]] = []   # (part, loop, edge, points)
         self._glyph_items: list[QGraphicsPathItem] = []
@@ -596,43 +597,65 @@ class Canvas(QWidget):
                          "Ctrl+Shift+0, shows it)")
 
     def _draw_parts(self) -> None:
-        for it in self._part_items:
+        # the items of the parts drawn before are reused, in order (adding and removing plot
+        # items costs about half a millisecond each: most of redrawing the parts at an edit),
+        # and given a new outline only where the part changed
+        old_items, old_paths = self._part_items, self._part_paths
+        for it in old_items[2 * len(self.scene.parts):]:
             self.plot.removeItem(it)
         self._part_items, self._part_paths, self._edge_polys = [], [], []
         tol = 2e-4 * max(self.scene.size_hint(), 1e-6)
         handles = []
+        outlines = {}
         for i, part in enumerate(self.scene.parts):
-            path = QPainterPath()
-            path.setFillRule(Qt.OddEvenFill)
-            for loop in part.loops:
-                pts = loop.coords(tol)
-                path.moveTo(*pts[0])
-                for q in pts[1:]:
-                    path.lineTo(*q)
-                path.closeSubpath()
-            for li, loop in enumerate(part.loops):      # the outline, then each hole
-                for ei, e in enumerate(loop.edges):
-                    pts = e.flattened(tol) + [e.end]
-                    self._edge_polys.append((i, li, ei, np.asarray(pts, dtype=float)))
+            path, polys = self._part_outline(part, tol)
+            outlines[id(part)] = (part, tol, path, polys)
+            self._edge_polys += [(i, li, ei, pts) for li, ei, pts in polys]
             selected = self.selection == (edits.PART, i)
-            # the fill lies under the rays, the outline over them
-            fill = QGraphicsPathItem(path)
+            if 2 * i + 1 < len(old_items):
+                fill, item = old_items[2 * i], old_items[2 * i + 1]
+                if old_paths[i] is not path:
+                    fill.setPath(path)
+                    item.setPath(path)
+            else:
+                # the fill lies under the rays, the outline over them
+                fill, item = QGraphicsPathItem(path), QGraphicsPathItem(path)
+                fill.setPen(QPen(Qt.NoPen))
+                fill.setZValue(1)
+                item.setBrush(QBrush(Qt.NoBrush))
+                item.setZValue(12)
+                self.plot.addItem(fill)
+                self.plot.addItem(item)
             fill.setBrush(QBrush(style.material_tint(part.material)))
-            fill.setPen(QPen(Qt.NoPen))
-            fill.setZValue(1)
-            item = QGraphicsPathItem(path)
-            item.setBrush(QBrush(Qt.NoBrush))
             item.setPen(_pen(style.SELECTED if selected else style.material_outline(part.material),
                              2.4 if selected else 1.4))
-            item.setZValue(12)
             item.setToolTip(f"{part.name} ({part.material})")
-            for it in (fill, item):
-                self.plot.addItem(it)
-                self._part_items.append(it)
+            self._part_items += [fill, item]
             self._part_paths.append(path)
             if selected:
                 handles += part.outer.vertices
         self._vertex_handles = handles
+        self._outlines = outlines
+
+    def _part_outline(self, part, tol: float):
+        """(path, [(loop, edge, points)]) of a part's outline and holes.  Parts are immutable
+        and an edit replaces only the parts it changes, so the others' outlines are reused
+        (flattening arcs and building paths point by point was most of a redraw of the parts)."""
+        known = self._outlines.get(id(part))
+        if known is not None and known[0] is part and known[1] == tol:
+            return known[2], known[3]
+        path = QPainterPath()
+        path.setFillRule(Qt.OddEvenFill)
+        for loop in part.loops:
+            pts = loop.coords(tol)
+            path.moveTo(*pts[0])
+            for q in pts[1:]:
+                path.lineTo(*q)
+            path.closeSubpath()
+        polys = [(li, ei, np.asarray(e.flattened(tol) + [e.end], dtype=float))
+                 for li, loop in enumerate(part.loops)      # the outline, then each hole
+                 for ei, e in enumerate(loop.edges)]
+        return path, polys
 
     def set_problems(self, problems) -> None:
         """Mark geometry problems: the parts concerned get a red dashed outline, the areas where

@@ -188,42 +188,66 @@ def thinned_for(drawing: RayDrawing, pixel_mm: float) -> bool:
     return bool(was and pixel_mm > 0 and max(was / pixel_mm, pixel_mm / was) < RETHIN_RATIO)
 
 
-def crowding(seg, root: np.ndarray, pixel_mm: float | None = None) -> tuple[np.ndarray, np.ndarray]:
+def crowding(seg, root: np.ndarray, pixel_mm: float | None = None,
+             compiled: bool | None = None) -> tuple[np.ndarray, np.ndarray]:
     """(steps, keep) per leg: brightness steps (0..CROWD_MAX_STEPS) to fade it by, and whether
     it is drawn at all.  Opaque lines at full cover are a fill whatever their shade, so where
     the legs would cover a cell more than CROWD_CAP times over, only every 2nd, 4th... source
     ray's legs are drawn there (strides of 2^k nest, so a kept ray runs on unbroken into
-    sparser cells).  `pixel_mm`: the view's pixel size in mm (None: CROWD_VIEW_PX across)."""
+    sparser cells).  `pixel_mm`: the view's pixel size in mm (None: CROWD_VIEW_PX across).
+    `compiled`: use the compiled pass (`crowding_kernel`) or the array code; None: the compiled
+    one unless the tracer runs its numpy kernel (RAYTRACE_KERNEL=numpy: nothing compiles)."""
     x0, y0, x1, y1 = (np.asarray(seg[k], dtype=float) for k in ("x0", "y0", "x1", "y1"))
     lo_x, hi_x = min(x0.min(), x1.min()), max(x0.max(), x1.max())
     lo_y, hi_y = min(y0.min(), y1.min()), max(y0.max(), y1.max())
     extent = max(hi_x - lo_x, hi_y - lo_y, 1e-9)
     cell = extent / CROWD_CELLS
-    t = (np.arange(4) + 0.5) / 4                       # four sample points along each leg
-    px = x0[:, None] + t * (x1 - x0)[:, None]
-    py = y0[:, None] + t * (y1 - y0)[:, None]
-    ix = np.minimum(((px - lo_x) / cell).astype(np.int64), CROWD_CELLS)
-    iy = np.minimum(((py - lo_y) / cell).astype(np.int64), CROWD_CELLS)
-    flat = ix * (CROWD_CELLS + 1) + iy
-    length = np.hypot(x1 - x0, y1 - y0)
-    ink = np.bincount(flat.ravel(), weights=np.repeat(length / 4, 4), minlength=(CROWD_CELLS + 1) ** 2)
     px = pixel_mm if pixel_mm and pixel_mm > 0 else extent / CROWD_VIEW_PX
-    share = ink[flat].max(axis=1) * px / (cell * cell)
     # a beam drawn as a solid band still reads as a beam, and so do two beams crossing; only
     # legs running in many directions make an unreadable fill: count the 15-degree direction
     # bins holding at least 5 % of a cell's ink
     th = np.mod(np.arctan2(y1 - y0, x1 - x0), np.pi)
     dbin = np.minimum((th / (np.pi / CROWD_DIRECTIONS)).astype(np.int64), CROWD_DIRECTIONS - 1)
+    if compiled is None:
+        from raytrace import kernel
+        compiled = kernel.compiled()
+    if compiled:
+        from .crowding_kernel import covered_share
+        share = covered_share(x0, y0, x1, y1, dbin, lo_x, lo_y, cell, CROWD_CELLS, px,
+                              CROWD_DIRECTIONS, CROWD_TANGLE, 0.05)
+    else:
+        share = _covered_share(x0, y0, x1, y1, dbin, lo_x, lo_y, cell, px)
+    steps = np.floor(np.log(np.maximum(share, 1e-12) / CROWD_START) / np.log(3.0)) + 1
+    steps = np.clip(steps, 0, CROWD_MAX_STEPS).astype(np.int64)
+    stride = 2 ** np.ceil(np.log2(np.maximum(share / CROWD_CAP, 1.0))).astype(np.int64)
+    return steps, source_rank(root) % stride == 0
+
+
+def source_rank(root: np.ndarray) -> np.ndarray:
+    """Each leg's source ray's rank among the source rays present (0, 1, 2... in id order):
+    what np.unique(root, return_inverse=True) gives, without its sort."""
+    present = np.zeros(int(root.max()) + 1 if len(root) else 0, dtype=bool)
+    present[root] = True
+    return (np.cumsum(present) - 1)[root]
+
+
+def _covered_share(x0, y0, x1, y1, dbin, lo_x, lo_y, cell, px) -> np.ndarray:
+    """The array version of `crowding_kernel.covered_share` (the reference it is checked
+    against): four sample points per leg, their cells' ink and ink per direction by bincount."""
+    t = (np.arange(4) + 0.5) / 4                       # four sample points along each leg
+    sx = x0[:, None] + t * (x1 - x0)[:, None]
+    sy = y0[:, None] + t * (y1 - y0)[:, None]
+    ix = np.minimum(((sx - lo_x) / cell).astype(np.int64), CROWD_CELLS)
+    iy = np.minimum(((sy - lo_y) / cell).astype(np.int64), CROWD_CELLS)
+    flat = ix * (CROWD_CELLS + 1) + iy
+    length = np.hypot(x1 - x0, y1 - y0)
+    ink = np.bincount(flat.ravel(), weights=np.repeat(length / 4, 4), minlength=(CROWD_CELLS + 1) ** 2)
+    share = ink[flat].max(axis=1) * px / (cell * cell)
     key = flat * CROWD_DIRECTIONS + np.repeat(dbin, 4).reshape(flat.shape)
     by_dir = np.bincount(key.ravel(), weights=np.repeat(length / 4, 4),
                          minlength=ink.size * CROWD_DIRECTIONS).reshape(ink.size, CROWD_DIRECTIONS)
     n_dirs = (by_dir >= 0.05 * np.maximum(ink, 1e-300)[:, None]).sum(axis=1) * (ink > 0)
-    share = np.where(n_dirs[flat].max(axis=1) >= CROWD_TANGLE, share, 0.0)
-    steps = np.floor(np.log(np.maximum(share, 1e-12) / CROWD_START) / np.log(3.0)) + 1
-    steps = np.clip(steps, 0, CROWD_MAX_STEPS).astype(np.int64)
-    stride = 2 ** np.ceil(np.log2(np.maximum(share / CROWD_CAP, 1.0))).astype(np.int64)
-    rank = np.unique(root, return_inverse=True)[1].reshape(-1)
-    return steps, rank % stride == 0
+    return np.where(n_dirs[flat].max(axis=1) >= CROWD_TANGLE, share, 0.0)
 
 
 CUE_RAYS = 3          # source rays whose brightest legs carry a direction arrow
@@ -233,7 +257,7 @@ CUE_MAX = 24          # arrows drawn at most
 def _direction_cues(d: RayDrawing, seg, root: np.ndarray, level: np.ndarray) -> None:
     """Pick the brightest legs (above half their source ray's flux) of a few source rays spread
     over the fan: an arrow on each tells an incoming beam from a returning one."""
-    roots = np.unique(root)
+    roots = np.flatnonzero(np.bincount(root))          # the source rays present, sorted
     chosen = roots[np.unique(np.linspace(0, len(roots) - 1, min(CUE_RAYS, len(roots))).round().astype(int))]
     sel = np.isin(root, chosen) & (level == 0)
     # each chosen ray has its arrows at its own place along the legs, so the arrows of a

@@ -116,8 +116,8 @@ class LedgerPanel(QWidget):
                 item.setToolTip(2, f"flux {b.flux:.5g}")
                 self.rows.append((b.label, b.flux, b.flux / total, err))
             head.setExpanded(True)
-        for c in range(4):
-            self.tree.resizeColumnToContents(c)
+        # (no resizeColumnToContents: the figures' columns resize to their contents by their
+        # mode and the names' column stretches; asking again laid every row out 4 more times)
         st = result.stats
         eff = ", ".join(f"{html.escape(d.name)}: {100 * result.efficiency(d.name):.2f} % \u00b1 "
                         f"{_points(result.efficiency_error(d.name))}" for d in result.compiled.detectors)
