@@ -816,10 +816,9 @@ class Canvas(QWidget):
         self.legend.set_colour_by_wavelength(self.colour_by_wavelength)
         self.set_result(self.result)
 
-    def _ray_groups(self):
-        """(key, level, rgb, order, x, y) per group to draw, from the current drawing; order
-        (0..3) stacks the groups of one level."""
-        d = self.drawing
+    def _ray_groups(self, d: RayDrawing):
+        """(key, level, rgb, order, x, y) per group to draw of drawing `d`; order (0..3) stacks
+        the groups of one level."""
         if d.colour_by_wavelength:
             n = max(1, len(d.by_wavelength))
             return [(nm, lv, spectral_rgb(nm), len(KINDS) * i / n, x, y) for i, (nm, lv, x, y) in enumerate(d.by_wavelength)]
@@ -827,10 +826,30 @@ class Canvas(QWidget):
                 for i, k in enumerate(KINDS) if k in d.lines for lv in range(len(LEVELS))
                 if len(d.lines[k][lv][0])]
 
-    def _draw_rays(self) -> None:
+    def ray_strokes(self, d: RayDrawing):
+        """(key, level, colour, z, x, y) per group of legs the canvas draws of drawing `d`, as the
+        canvas draws them (the figure export draws the same from its own drawing)."""
         # dense fans are drawn fainter so that overlapping legs still read as separate rays
-        dim = min(1.0, max(0.4, math.sqrt(5000.0 / max(self.drawing.n_segments, 1))))
-        hide_faintest = self.drawing.n_segments > FAINT_SHOWN_BELOW
+        dim = min(1.0, max(0.4, math.sqrt(5000.0 / max(d.n_segments, 1))))
+        hide_faintest = d.n_segments > FAINT_SHOWN_BELOW
+        out = []
+        for key, lv, rgb, order, x, y in self._ray_groups(d):
+            if hide_faintest and lv == len(LEVELS) - 1:
+                continue
+            colour = _faded(rgb, max(6, LEVEL_ALPHA[lv] * dim) / 255.0)
+            # brighter legs on top whatever their kind, so a faint glint never covers the beam
+            out.append((key, lv, colour, 5 + 0.5 * (len(LEVELS) - lv) + 0.4 * order / len(KINDS), x, y))
+        return out
+
+    def drawing_for(self, pixel_mm: float) -> RayDrawing:
+        """The shown rays' drawing thinned for a view of `pixel_mm` mm per (1 px line) pixel: the
+        canvas's own when it was judged for about that size, else made anew (an exported figure
+        laid out at another scale than the screen thins as the canvas would at that zoom)."""
+        if self.result is None or thinned_for(self.drawing, pixel_mm):
+            return self.drawing
+        return scene_drawing(self.result, self.scene, self.colour_by_wavelength, pixel_mm)
+
+    def _draw_rays(self) -> None:
         thinned = self.drawing.n_thinned > 0
         self.legend.fade_note.setText("(all fade with flux; crowded fans thinned)" if thinned
                                       else "(all fade with flux)")
@@ -838,18 +857,16 @@ class Canvas(QWidget):
             f".  Where legs crowd so that they would paint a solid fill, they are drawn a step fainter "
             f"and only every 2nd, 4th... source ray is drawn there ({self.drawing.n_thinned:,} legs "
             f"not drawn); the flux ledger counts them all." if thinned else ""))
-        groups = [g for g in self._ray_groups() if not (hide_faintest and g[1] == len(LEVELS) - 1)]
+        groups = self.ray_strokes(self.drawing)
         while len(self._ray_items) < len(groups):
             item = pg.PlotCurveItem(connect="pairs", antialias=False, skipFiniteCheck=True)
             self.plot.addItem(item)
             self._ray_items.append(item)
         self.painted_segments = 0
         self.ray_groups = []
-        for item, (key, lv, rgb, order, x, y) in zip(self._ray_items, groups):
-            colour = _faded(rgb, max(6, LEVEL_ALPHA[lv] * dim) / 255.0)
+        for item, (key, lv, colour, z, x, y) in zip(self._ray_items, groups):
             item.setPen(_pen(colour, 1.0))
-            # brighter legs on top whatever their kind, so a faint glint never covers the beam
-            item.setZValue(5 + 0.5 * (len(LEVELS) - lv) + 0.4 * order / len(KINDS))
+            item.setZValue(z)
             item.setData(x, y, connect="pairs")
             self.painted_segments += len(x) // 2
             self.ray_groups.append((key, lv, colour, len(x) // 2))

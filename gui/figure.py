@@ -88,11 +88,17 @@ def _ticks(lo: float, hi: float, approx: int = 7) -> list[float]:
 def figure_svg(canvas, width: float, height: float, title: str = "", subtitle: str = "") -> str:
     """The canvas's current view as SVG text of `width` x `height` px."""
     title_h = TITLE_H if title or subtitle else 0
-    legend = _legend_items(canvas)
-    rows = _legend_rows(legend, width - 20)
+    # the legend's height sets the plot box and so the figure's scale, which sets the thinning,
+    # which the legend names: lay it out with the longer note, then with the drawing's own
+    rows = _legend_rows(_legend_items(canvas, thinned=True), width - 20)
     legend_h = LEGEND_ROW_H * len(rows) + 6
     box = (MARGIN_L, title_h + 6, width - MARGIN_L - MARGIN_R, height - title_h - 6 - MARGIN_B - legend_h)
     m = _Map(canvas.view.viewRange(), box)
+    # crowded fans are thinned for the figure's own scale (its 1-unit lines, mm per unit), as
+    # the canvas thins them for its pixels: the same at the same scale, and a figure laid out
+    # smaller or larger than the screen reads as the canvas would at that zoom
+    drawing = canvas.drawing_for(1.0 / m.s)
+    rows = _legend_rows(_legend_items(canvas, thinned=drawing.n_thinned > 0), width - 20)
     bx, by, bw, bh = box
     out = [f'<svg xmlns="http://www.w3.org/2000/svg" version="1.1" width="{_num(width)}" height="{_num(height)}" '
            f'viewBox="0 0 {_num(width)} {_num(height)}" font-family="{FONT}">',
@@ -109,12 +115,15 @@ def figure_svg(canvas, width: float, height: float, title: str = "", subtitle: s
         grid += [f"M{_num(bx)} {_num(m.y(v))}H{_num(bx + bw)}" for v in yt]
         out.append(f'<path d="{"".join(grid)}" stroke="{_hex(style.GRID_MAJOR)}" stroke-width="0.8" fill="none"/>')
     out += _parts_svg(canvas, m)
-    for item in sorted(canvas._ray_items + [canvas._cues], key=lambda it: it.zValue()):
-        if item.xData is None or not len(item.xData):
-            continue
-        pen = item.opts["pen"]
-        out.append(f'<path d="{_pairs_d(m, item.xData, item.yData)}" stroke="{_hex(pen.color())}" '
-                   f'stroke-width="{_num(max(pen.widthF(), 1.0))}" fill="none"/>')
+    strokes = [(z, "rays", colour, 1.0, x, y) for _, _, colour, z, x, y in canvas.ray_strokes(drawing)]
+    cues = canvas._cues
+    if cues.xData is not None and len(cues.xData):
+        pen = cues.opts["pen"]
+        strokes.append((cues.zValue(), "cues", pen.color(), pen.widthF(), cues.xData, cues.yData))
+    for _, kind, colour, pen_w, x, y in sorted(strokes, key=lambda s: s[0]):
+        if len(x):      # (a class per kind: someone editing the figure can pick the rays out)
+            out.append(f'<path class="{kind}" d="{_pairs_d(m, x, y)}" stroke="{_hex(colour)}" '
+                       f'stroke-width="{_num(max(pen_w, 1.0))}" fill="none"/>')
     out += _marks_svg(canvas, m)
     out += _glyphs_svg(canvas, m)
     out.append("</g>")
@@ -206,13 +215,15 @@ def _axes_svg(m: _Map, box, xt, yt) -> list[str]:
     return out
 
 
-def _legend_items(canvas) -> list[tuple[str, str, str]]:
-    """(shape, colour, text) as on the legend under the drawing."""
+def _legend_items(canvas, thinned: bool = False) -> list[tuple[str, str, str]]:
+    """(shape, colour, text) as on the legend under the drawing; `thinned`: the figure's drawing
+    left legs of crowded fans out."""
     if canvas.colour_by_wavelength:
         items = [("line", "#7f3fbf", "rays coloured by wavelength (380-780 nm)")]
     else:
         items = [("line", _hex(KIND_COLOUR[k]), KIND_LABEL[k]) for k in ("ray", "tir", "escaping")]
-    items[-1] = (*items[-1][:2], items[-1][2] + " (all fade with flux)")
+    items[-1] = (*items[-1][:2], items[-1][2] + (" (all fade with flux; crowded fans thinned)" if thinned
+                                                 else " (all fade with flux)"))
     return items + [("dot", _hex(style.HIT), "detector hit"), ("ring", _hex(style.ESCAPE_MARK), "escape (size = share)"),
                     ("arrow", _hex(style.CUE), "direction"), ("dot", _hex(style.SOURCE), "source"),
                     ("bar", _hex(style.DETECTOR), "detector")]
