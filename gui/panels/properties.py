@@ -12,7 +12,7 @@ from dataclasses import replace
 from PySide6.QtCore import Qt, QTimer, Signal
 from PySide6.QtWidgets import (QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QFrame, QGroupBox,
                                QHBoxLayout, QLabel, QLineEdit, QPlainTextEdit, QPushButton, QScrollArea,
-                               QSizePolicy, QSpinBox, QSplitter, QStackedWidget, QTableWidget,
+                               QSizePolicy, QSpinBox, QStackedWidget, QTableWidget,
                                QTableWidgetItem, QVBoxLayout, QWidget)
 
 from raytrace.catalog import CATALOG
@@ -24,6 +24,7 @@ from raytrace.shapes import PARAMETERS, ShapeParameterError
 from .. import arcs, edits
 from ..dialogs.shape import SHAPE_LABELS, param_value, param_widget
 from .fit_table import fit_columns, height_for_rows, make_fitting
+from .grip_splitter import GripSplitter
 
 
 def _dspin(lo=-1e6, hi=1e6, decimals=4, suffix=" mm", tip=""):
@@ -266,7 +267,7 @@ class PartPage(_Page):
         self.rows_label = QLabel("Vertices and faces")
         rows_lay.addWidget(self.rows_label)
         rows_lay.addWidget(self.table, 1)
-        self.split = QSplitter(Qt.Vertical)
+        self.split = GripSplitter(Qt.Vertical)
         self.split.setChildrenCollapsible(False)
         self.split.addWidget(self.fields_area)
         self.split.addWidget(rows)
