@@ -6,6 +6,7 @@ in.  All the parts arrive in one undoable step; a drawing with problems adds not
 problems are listed, each naming its entity."""
 from __future__ import annotations
 
+from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QComboBox, QDialog, QDialogButtonBox, QFormLayout, QLabel, QVBoxLayout
 
 from raytrace.catalog import CATALOG
@@ -13,17 +14,31 @@ from raytrace.dxf_io import TO_MM
 
 
 class DxfSetupDialog(QDialog):
-    def __init__(self, layers: list[str], materials: list[str], ask_units: bool, parent=None):
+    """`recorded`: {layer: material} the drawing records for layers named otherwise (an export
+    of a material whose name a layer cannot hold); each layer is preset to its recorded
+    material, else to the material it is named after."""
+
+    def __init__(self, layers: list[str], materials: list[str], ask_units: bool, parent=None,
+                 recorded: dict[str, str] | None = None):
         super().__init__(parent)
         self.setWindowTitle("Import DXF")
         lay = QVBoxLayout(self)
         lay.addWidget(QLabel("Material of each layer's parts:"))
         form = QFormLayout()
         self.combos: dict[str, QComboBox] = {}
+        recorded = recorded or {}
         for layer in layers:
             box = QComboBox()
             box.addItems(materials)
-            if layer in materials:
+            mine = recorded.get(layer)
+            if mine is not None and mine not in materials:
+                # kept as the drawing says: importing then names the material to define
+                box.insertItem(0, mine)
+                box.setItemData(0, "recorded in the drawing; not defined in this scene", Qt.ToolTipRole)
+            if mine is not None:
+                box.setCurrentText(mine)
+                box.setToolTip(f"The drawing records {mine!r} for layer {layer!r}")
+            elif layer in materials:
                 box.setCurrentText(layer)
             self.combos[layer] = box
             form.addRow(layer, box)
@@ -43,9 +58,10 @@ class DxfSetupDialog(QDialog):
                 self.units.currentText() if self.units is not None else None)
 
 
-def ask_setup(parent, layers: list[str], scene, ask_units: bool):
+def ask_setup(parent, layers: list[str], scene, ask_units: bool, recorded: dict[str, str] | None = None):
     """({layer: material}, units or None), or None when cancelled."""
-    dlg = DxfSetupDialog(layers, list(CATALOG) + [m for m in scene.materials if m not in CATALOG], ask_units, parent)
+    dlg = DxfSetupDialog(layers, list(CATALOG) + [m for m in scene.materials if m not in CATALOG], ask_units,
+                         parent, recorded)
     return dlg.choice() if dlg.exec() else None
 
 

@@ -410,7 +410,7 @@ class MainWindow(QMainWindow):
         except SceneError as exc:
             lines = [str(p) for p in exc.problems]
             text = f"{path} has {len(lines)} problem(s):\n" + "\n".join(lines[:20])
-            if any("a DXF drawing, not a scene file" in line for line in lines):
+            if any("DXF drawing, not a scene file" in line for line in lines):    # ASCII or binary
                 text += "\n\nIn this app, File > Import DXF... adds the drawing's contours to the scene as parts."
             self.show_error("Cannot open the scene", text)
             return False
@@ -605,20 +605,20 @@ class MainWindow(QMainWindow):
         path, _ = QFileDialog.getOpenFileName(self, "Import a DXF drawing", str(self._dir()), "DXF drawings (*.dxf)")
         return path
 
-    def ask_dxf_setup(self, layers, ask_units):
+    def ask_dxf_setup(self, layers, ask_units, recorded=None):
         from .dxf_import import ask_setup
-        return ask_setup(self, layers, self.doc.scene, ask_units)
+        return ask_setup(self, layers, self.doc.scene, ask_units, recorded)
 
     def import_dxf(self, path: str | None = None) -> bool:
         """File > Import DXF: the drawing's parts join the scene in one undoable step."""
-        from raytrace.dxf_io import dxf_layers
+        from raytrace.dxf_io import dxf_layers, recorded_materials
         from .dxf_import import import_parts
         path = path or self.ask_dxf_path()
         if not path:
             return False
         try:
             layers, units_stated = dxf_layers(path)
-            setup = self.ask_dxf_setup(layers, not units_stated)
+            setup = self.ask_dxf_setup(layers, not units_stated, recorded_materials(path))
             if setup is None:
                 return False
             scene, count = import_parts(self.doc.scene, path, *setup)

@@ -114,6 +114,22 @@ def dxf_layers(path: str | os.PathLike) -> tuple[list[str], bool]:
     return layers, doc.header.get("$INSUNITS", 0) in INSUNITS_TO_MM
 
 
+def recorded_materials(path: str | os.PathLike) -> dict[str, str]:
+    """{layer: material} that this program's export recorded (XDATA) where a layer's name could
+    not be the material's own ("glass/A" on layer "glass_A"): what an import takes for a layer
+    when no mapping is given, and what a user asked for the layers' materials should be shown."""
+    path = os.fspath(path)
+    doc = _read(path, Problems(file=path))
+    out: dict[str, str] = {}
+    for e in doc.modelspace():
+        layer = e.dxf.get("layer", "0")
+        if layer not in out and e.dxftype() not in SKIPPED:
+            material = _meta(e).get("material")
+            if isinstance(material, str) and material:
+                out[layer] = material
+    return out
+
+
 def _read(path: str, problems: Problems):
     import ezdxf
     try:

@@ -71,16 +71,30 @@ def load_scene(path: str | os.PathLike, check_shapes: bool = True) -> Scene:
     except _NotAScene as exc:
         problems.add("$", f"<{exc}>", exc.expected)
         raise SceneError(problems.items)
-    except (OSError, UnicodeDecodeError) as exc:
+    except _BinaryDxf:
+        _not_a_drawing(path, problems, "a binary DXF drawing")
+    except UnicodeDecodeError as exc:
+        if path.suffix.lower() == ".dxf":         # an ASCII drawing in a legacy code page
+            _not_a_drawing(path, problems, "a DXF drawing")
+        problems.add("$", f"<unreadable file: {exc}>", "a readable UTF-8 JSON file")
+        raise SceneError(problems.items)
+    except OSError as exc:
         problems.add("$", f"<unreadable file: {exc}>", "a readable UTF-8 JSON file")
         raise SceneError(problems.items)
     if path.suffix.lower() == ".dxf" and not text.lstrip().startswith("{"):
-        # a drawing given where a scene belongs: say how to turn it into one
-        problems.add("$", "<a DXF drawing, not a scene file>",
-                     f"a scene file (JSON); make one from the drawing with: raytrace import-dxf {path} "
-                     f"-o {path.with_suffix('.json').name}")
-        raise SceneError(problems.items)
+        _not_a_drawing(path, problems, "a DXF drawing")
     return scene_from_text(text, problems, check_shapes)
+
+
+BINARY_DXF = b"AutoCAD Binary DXF"     # how every binary DXF file begins (its sentinel)
+
+
+def _not_a_drawing(path: Path, problems: Problems, what: str):
+    """A drawing given where a scene belongs: say what it is and how to turn it into a scene."""
+    problems.add("$", f"<{what}, not a scene file>",
+                 f"a scene file (JSON); make one from the drawing with: raytrace import-dxf {path} "
+                 f"-o {path.with_suffix('.json').name}")
+    raise SceneError(problems.items)
 
 
 class _NotAScene(OSError):
@@ -101,7 +115,14 @@ def read_scene_text(path: Path) -> str:
     if len(data) > MAX_SCENE_BYTES:
         size = f"{MAX_SCENE_BYTES / 2**20:.3g} MB"
         raise _NotAScene(f"a file of more than {size}", f"a scene file of at most {size}")
+    if data.startswith(BINARY_DXF):
+        # not text at all: decoding would only say "invalid start byte"
+        raise _BinaryDxf()
     return data.decode("utf-8-sig")   # -sig: accept the BOM some editors write
+
+
+class _BinaryDxf(OSError):
+    """A binary DXF drawing where a scene's text was expected."""
 
 
 def scene_from_text(text: str, problems: Problems | None = None, check_shapes: bool = True) -> Scene:

@@ -431,6 +431,20 @@ def test_an_arc_centred_on_its_own_start_or_end_gets_one_clear_message(tmp_path,
     assert "zero length" not in lines[0]
 
 
+def test_a_binary_dxf_given_as_a_scene_says_what_it_is_not_a_decoding_error(tmp_path, capsys):
+    """The bundled drawing saved as binary DXF by ezdxf (the reference DXF library): `raytrace
+    check` said "unreadable file: 'utf-8' codec can't decode byte"; now it names a binary DXF
+    drawing and the import command, whatever the file's suffix."""
+    import ezdxf
+    for name in ("pipe.dxf", "pipe.json"):
+        binary = tmp_path / name
+        ezdxf.readfile(SAMPLES / "light-pipe.dxf").saveas(binary, fmt="bin")
+        assert main(["check", str(binary)]) == 1
+        out = capsys.readouterr().out
+        assert f"error: {binary}: $: found <a binary DXF drawing, not a scene file>" in out
+        assert f"raytrace import-dxf {binary} -o pipe.json" in out and "codec" not in out
+
+
 def test_a_dxf_drawing_given_as_a_scene_says_how_to_import_it(capsys):
     """`raytrace check` (or trace) on the bundled DXF drawing: not 'malformed JSON' but what the
     file is and the import command that makes a scene of it."""

@@ -115,12 +115,12 @@ def test_import_dxf_from_the_file_menu_adds_parts_in_one_undo_step(qtbot, win):
     asked = []
     win.ask_dxf_path = lambda: str(PIPE_DXF)
 
-    def setup(layers, ask_units):
-        asked.append((layers, ask_units))
+    def setup(layers, ask_units, recorded=None):
+        asked.append((layers, ask_units, recorded))
         return {"guide": "PMMA", "panel window": "polycarbonate"}, None
     win.ask_dxf_setup = setup
     file_action(win, "Import &DXF...").trigger()
-    assert asked == [(["guide", "panel window"], False)]
+    assert asked == [(["guide", "panel window"], False, {})]      # (the sample records no materials)
     scene = win.doc.scene
     assert [(p.name, p.material) for p in scene.parts] == [("guide", "PMMA"), ("panel window", "polycarbonate")]
     assert win.doc.undo_stack.count() == 1 and win.doc.modified
@@ -139,7 +139,7 @@ def test_import_dxf_with_problems_changes_nothing(qtbot, win, tmp_path):
     win.open_file(str(WINDOW))
     before = scene_to_dict(win.doc.scene)
     win.ask_dxf_path = lambda: str(bad)
-    win.ask_dxf_setup = lambda layers, ask_units: ({"PMMA": "PMMA"}, "mm" if ask_units else None)
+    win.ask_dxf_setup = lambda layers, ask_units, recorded=None: ({"PMMA": "PMMA"}, "mm" if ask_units else None)
     assert not win.import_dxf()
     assert scene_to_dict(win.doc.scene) == before and win.doc.undo_stack.count() == 0
     assert len(win.errors) == 1 and "open contour" in win.errors[0] and "LINE (handle" in win.errors[0]
@@ -260,7 +260,7 @@ def test_import_of_one_part_says_1_part(qtbot, win, tmp_path):
     doc.saveas(one)
     win.new_scene()
     win.ask_dxf_path = lambda: str(one)
-    win.ask_dxf_setup = lambda layers, ask_units: ({"PMMA": "PMMA"}, None)
+    win.ask_dxf_setup = lambda layers, ask_units, recorded=None: ({"PMMA": "PMMA"}, None)
     assert win.import_dxf()
     assert win.statusBar().currentMessage() == f"Imported 1 part from {one}"
     assert win.doc.undo_stack.text(0) == "import 1 part from one.dxf"
