@@ -151,17 +151,19 @@ class ScenePage(_Page):
         outer.addLayout(form)
         outer.addStretch(1)      # spare height below the fields, not between them
         form.addRow(QLabel("<b>Scene</b> (nothing selected)"))
+        # the hint first: it is what a new user needs, and in a 700 px window the fields below
+        # scroll, where a last row of text showed only its top pixels
+        hint = QLabel("Click a part, source or detector in the drawing to edit it here; the tools "
+                      "on the left add new ones. Hover a face to see its name.")
+        hint.setWordWrap(True)
+        hint.setStyleSheet("color: #555")
+        form.addRow(hint)
         form.addRow("Name", self.name)
         form.addRow("Purpose", self.story)
         form.addRow("Surrounding medium", self.ambient)
         form.addRow("Random seed", self.seed)
         form.addRow("Own materials", self.materials)
         form.addRow(define)
-        hint = QLabel("Click a part, source or detector in the drawing to edit it here; the tools "
-                      "on the left add new ones. Hover a face to see its name.")
-        hint.setWordWrap(True)
-        hint.setStyleSheet("color: #555")
-        form.addRow(hint)
         self.name.editingFinished.connect(lambda: self._fields(name=self.name.text()))
         self.story.editingFinished.connect(lambda: self._fields(story=self.story.text()))
         self.ambient.activated.connect(lambda _i: self._fields(ambient=self.ambient.currentText()))
