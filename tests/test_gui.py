@@ -629,8 +629,16 @@ def test_escape_markers_add_up_to_the_ledger(qtbot, win):
 
 
 def test_profile_panel_shows_the_detector_report(qtbot, win):
+    from PySide6.QtCore import Qt
     from raytrace.detectors import detector_report
     result = open_sample(qtbot, win, LIGHT_PIPE)
+    win.show()
+    qtbot.waitExposed(win)
+    assert not win.profiles.isVisible()                 # behind the Flux ledger tab
+    tabs = win.result_tabs
+    qtbot.mouseClick(tabs.tabBar(), Qt.LeftButton,
+                     pos=tabs.tabBar().tabRect(tabs.indexOf(win.profiles)).center())   # the Profiles tab
+    assert win.profiles.isVisible()
     rep = win.profiles.report
     ref = detector_report(result, "viewer side")
     assert rep.name == "viewer side"
@@ -639,6 +647,18 @@ def test_profile_panel_shows_the_detector_report(qtbot, win):
     bars = [i for i in win.profiles.irr.listDataItems() + win.profiles.irr.getPlotItem().items
             if i.__class__.__name__ == "BarGraphItem"]
     assert bars
+    # back to the ledger, an edit, then the Profiles tab again: the profiles of the new trace
+    # (drawn when the tab shows, not while it is hidden)
+    qtbot.mouseClick(tabs.tabBar(), Qt.LeftButton, pos=tabs.tabBar().tabRect(tabs.indexOf(win.ledger)).center())
+    assert not win.profiles.isVisible()
+    s = win.doc.scene
+    win.doc.apply(edits.replace_part(s, 1, edits.move_part(s.parts[1], 0.3, 0.0)), "move")
+    moved = wait_traced(qtbot, win)
+    assert moved is not result and win.profiles.report is rep          # not redrawn while hidden
+    qtbot.mouseClick(tabs.tabBar(), Qt.LeftButton, pos=tabs.tabBar().tabRect(tabs.indexOf(win.profiles)).center())
+    ref = detector_report(moved, "viewer side")
+    assert win.profiles.report is not rep
+    assert list(win.profiles.report.irradiance.flux) == list(ref.irradiance.flux)
 
 
 def test_close_asks_before_losing_changes(qtbot, win):
