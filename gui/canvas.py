@@ -718,7 +718,10 @@ class Canvas(QWidget):
                            False, Qt.SolidLine if det.absorbing else Qt.DashLine)
             handles += [det.start, det.end]
         if handles:
-            self._handles.setData([h[0] for h in handles], [h[1] for h in handles])
+            n_vertex = len(getattr(self, "_vertex_handles", []))
+            sizes = np.full(len(handles), float(style.HANDLE_PX))
+            sizes[:n_vertex] = vertex_handle_px(self._vertex_handles, px)
+            self._handles.setData([h[0] for h in handles], [h[1] for h in handles], size=sizes)
         else:
             self._handles.setData([], [])
 
@@ -910,6 +913,21 @@ class Canvas(QWidget):
 
 
 # ---------------------------------------------------------------------- glyph shapes
+
+HANDLE_MIN_PX = 5       # vertex handles shrink to this where vertices crowd (a prism film's teeth)
+
+
+def vertex_handle_px(vertices, pixel_mm: float) -> np.ndarray:
+    """Size in px of each vertex handle of an outline: HANDLE_PX, less where the next vertex
+    along the outline either way is nearer than twice that, so the handles of a fine outline
+    cover at most about half of each edge and its shape still shows (down to HANDLE_MIN_PX)."""
+    v = np.asarray(vertices, dtype=float).reshape(-1, 2)
+    if len(v) < 2 or not pixel_mm > 0:
+        return np.full(len(v), float(style.HANDLE_PX))
+    step = np.hypot(*(np.roll(v, -1, axis=0) - v).T) / pixel_mm      # to the next vertex, in px
+    nearest = np.minimum(step, np.roll(step, 1))                     # ... or to the one before
+    return np.clip(0.5 * nearest, HANDLE_MIN_PX, style.HANDLE_PX)
+
 
 def _source_path(canvas: Canvas, src, g: float) -> QPainterPath:
     """Our own source glyphs: a beam is a bar across its width with an arrow; an emitter is a

@@ -89,3 +89,34 @@ def test_the_ledger_summary_takes_two_lines_at_1024_by_700(qtbot, win, sample):
     n_detectors = len(win.doc.scene.detectors)
     assert lines == 2 if n_detectors == 1 else lines <= 1 + n_detectors, (label.text(), label.height(), line)
     assert label.text().count("<br>") == 1
+
+
+def test_vertex_handles_of_a_fine_outline_leave_its_shape_visible(qtbot, win):
+    """The prism film's 50 vertices 0.35 mm apart: selected at 1024 x 700 (about 11 px apart on
+    screen), full-size 9 px handles covered the teeth; now each handle is at most half the
+    on-screen distance to its neighbours (at least 5 px), and zoomed in they grow back."""
+    from PySide6.QtCore import Qt
+    import gui_events
+    from gui import style
+    shown(qtbot, win, (1024, 700))
+    assert win.open_file(str(next(p for p in SAMPLES if p.stem == "microprism-strip")))
+    wait_traced(qtbot, win)
+    c = win.canvas
+    gui_events.click(qtbot, c, (-5.0, 1.2))                 # on the film, beyond the backlight
+    assert c.selection == (edits.PART, 0)
+    verts = c.scene.parts[0].outer.vertices
+
+    def sizes_and_gaps():
+        sizes = [p.size() for p in c._handles.points()][:len(verts)]
+        pts = [gui_events.widget_point(c, v) for v in verts]
+        gaps = [min((pts[k] - pts[k - 1]).manhattanLength(), (pts[(k + 1) % len(pts)] - pts[k]).manhattanLength())
+                for k in range(len(pts))]
+        return sizes, gaps
+    sizes, gaps = sizes_and_gaps()
+    assert min(gaps) < 2 * style.HANDLE_PX            # crowded at this zoom
+    assert all(s <= max(0.5 * g * 1.01, 5) + 1e-9 for s, g in zip(sizes, gaps)), (sizes, gaps)
+    c.setFocus()
+    for _ in range(6):
+        gui_events.key(Qt.Key_Equal, Qt.ControlModifier)   # zoom in 3.8x
+    sizes, gaps = sizes_and_gaps()
+    assert min(gaps) > 2 * style.HANDLE_PX and all(s == style.HANDLE_PX for s in sizes)
