@@ -1,7 +1,8 @@
 """File > Import DXF: add the closed contours of a DXF drawing to the scene as parts.
 
 Before importing, a small dialog asks what each layer is made of (a layer named after a known
-material is preset to it) and, when the file does not state its units, which units it was drawn
+material is preset to it, a layer this program's export renamed to the material the drawing
+records, any other layer to nothing: OK waits until each has one) and, when the file does not state its units, which units it was drawn
 in.  All the parts arrive in one undoable step; a drawing with problems adds nothing and the
 problems are listed, each naming its entity."""
 from __future__ import annotations
@@ -11,6 +12,9 @@ from PySide6.QtWidgets import QComboBox, QDialog, QDialogButtonBox, QFormLayout,
 
 from raytrace.catalog import CATALOG
 from raytrace.dxf_io import TO_MM
+
+
+CHOOSE = "(choose a material)"
 
 
 class DxfSetupDialog(QDialog):
@@ -40,6 +44,13 @@ class DxfSetupDialog(QDialog):
                 box.setToolTip(f"The drawing records {mine!r} for layer {layer!r}")
             elif layer in materials:
                 box.setCurrentText(layer)
+            else:
+                # nothing to go by: the user chooses (the first catalog entry, air, was preset,
+                # and a part of air does nothing to the rays)
+                box.insertItem(0, CHOOSE)
+                box.setCurrentIndex(0)
+                box.setToolTip(f"Layer {layer!r} names no material: choose what its parts are made of")
+            box.currentIndexChanged.connect(lambda _i: self._update_ok())
             self.combos[layer] = box
             form.addRow(layer, box)
         self.units = None
@@ -52,6 +63,17 @@ class DxfSetupDialog(QDialog):
         buttons.accepted.connect(self.accept)
         buttons.rejected.connect(self.reject)
         lay.addWidget(buttons)
+        self.ok = buttons.button(QDialogButtonBox.Ok)
+        self._update_ok()
+
+    def _update_ok(self) -> None:
+        missing = [layer for layer, box in self.combos.items() if box.currentText() == CHOOSE]
+        self.ok.setEnabled(not missing)
+        self.ok.setToolTip("Choose a material for " + ", ".join(repr(m) for m in missing) if missing else "")
+
+    def accept(self) -> None:
+        if self.ok.isEnabled():          # Enter with a layer still to choose does nothing
+            super().accept()
 
     def choice(self) -> tuple[dict[str, str], str | None]:
         return ({layer: box.currentText() for layer, box in self.combos.items()},

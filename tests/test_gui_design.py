@@ -146,14 +146,16 @@ def test_import_dxf_with_problems_changes_nothing(qtbot, win, tmp_path):
 
 
 def test_import_dxf_dialog_presets_known_materials_and_asks_units(qtbot):
-    from gui.dxf_import import DxfSetupDialog
+    from gui.dxf_import import CHOOSE, DxfSetupDialog
     dlg = DxfSetupDialog(["PMMA", "glass layer"], ["air", "PMMA", "water"], ask_units=True)
     qtbot.addWidget(dlg)
     mapping, units = dlg.choice()
-    assert mapping == {"PMMA": "PMMA", "glass layer": "air"} and units == "mm"
+    # a layer that names no material is not preset (it was: to air, the list's first entry)
+    assert mapping == {"PMMA": "PMMA", "glass layer": CHOOSE} and units == "mm"
+    assert not dlg.ok.isEnabled()
     dlg.combos["glass layer"].setCurrentText("water")
     dlg.units.setCurrentText("in")
-    assert dlg.choice() == ({"PMMA": "PMMA", "glass layer": "water"}, "in")
+    assert dlg.choice() == ({"PMMA": "PMMA", "glass layer": "water"}, "in") and dlg.ok.isEnabled()
 
 
 def test_optimize_result_table_and_apply_to_scene_with_undo(qtbot, win, tmp_path):

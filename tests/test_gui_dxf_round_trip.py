@@ -108,3 +108,34 @@ def test_opening_a_binary_dxf_says_what_it_is_and_how_to_import_it(win, tmp_path
         {layer: "PMMA" for layer in layers}, "mm" if ask_units else None)
     assert win.import_dxf(), getattr(win, "last_error", "")
     assert len(win.doc.scene.parts) == 2
+
+
+def test_a_layer_that_names_no_material_waits_for_the_users_choice(qtbot, win):
+    """The bundled drawing's layers "guide" and "panel window" name no material: the dialog
+    preset both to air (the catalog's first entry), and Enter imported two parts of air that do
+    nothing to the rays.  Now both wait for a choice: Enter does nothing, OK is disabled until
+    each layer has a material, chosen here by typing its name into the list as a user does."""
+    win.new_scene()
+    win.ask_dxf_path = lambda: str(SAMPLES / "light-pipe.dxf")
+    state = {}
+
+    def act():
+        dlg = QApplication.activeModalWidget()
+        if dlg is None:
+            QTimer.singleShot(20, act)
+            return
+        state["ok_before"] = dlg.ok.isEnabled()
+        QTest.keyClick(dlg, Qt.Key_Return)              # nothing chosen yet: stays open
+        state["open_after_enter"] = dlg.isVisible()
+        for layer, material in (("guide", "PMMA"), ("panel window", "polycarbonate")):
+            box = dlg.combos[layer]
+            box.setFocus()
+            QTest.keyClicks(box, material)              # a closed list jumps to the typed item
+        state["chosen"] = {layer: box.currentText() for layer, box in dlg.combos.items()}
+        state["ok_after"] = dlg.ok.isEnabled()
+        QTest.keyClick(dlg, Qt.Key_Return)
+    QTimer.singleShot(20, act)
+    assert win.import_dxf(), getattr(win, "last_error", "")
+    assert state["ok_before"] is False and state["open_after_enter"] is True
+    assert state["chosen"] == {"guide": "PMMA", "panel window": "polycarbonate"} and state["ok_after"]
+    assert [(p.name, p.material) for p in win.doc.scene.parts] == [("guide", "PMMA"), ("panel window", "polycarbonate")]
