@@ -644,6 +644,11 @@ def test_profile_panel_shows_the_detector_report(qtbot, win):
     assert rep.name == "viewer side"
     assert list(rep.irradiance.flux) == list(ref.irradiance.flux)
     assert list(rep.angular.flux) == list(ref.angular.flux)
+    # the report's own line, a phrase a line, with the ledger's ± and no break inside a figure
+    shown = win.profiles.info.text()
+    assert shown.replace("\u00a0", " ").replace("\u2060", "").replace("\u00b1", "+-").split("\n") \
+        == ref.summary_line().split("; ")
+    assert "\u00b1" in shown and "+-" not in shown
     bars = [i for i in win.profiles.irr.listDataItems() + win.profiles.irr.getPlotItem().items
             if i.__class__.__name__ == "BarGraphItem"]
     assert bars

@@ -1,6 +1,8 @@
 """Detector profiles: irradiance along the detector and the angular distribution of arrivals."""
 from __future__ import annotations
 
+import re
+
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtWidgets import QComboBox, QHBoxLayout, QLabel, QVBoxLayout, QWidget
@@ -80,4 +82,9 @@ class ProfilePanel(QWidget):
         for plot, prof in ((self.irr, r.irradiance), (self.ang, r.angular)):
             plot.addItem(pg.BarGraphItem(x=prof.centers, height=prof.density,
                                          width=float(np.diff(prof.edges).mean()), brush=brush, pen=None))
-        self.info.setText(r.summary_line())
+        # the report's figures one phrase a line (wrapped anywhere they read as a jumble), a
+        # figure kept on the line of its name (no-break space before it), with the ± the
+        # ledger shows where the command line writes +-
+        lines = (re.sub(r" (?=[-+\d%\u00b1])", "\u00a0", part.replace("+-", "\u00b1")).replace("/", "/\u2060")
+                 for part in r.summary_line().split("; "))      # (U+2060: no break after "max/")
+        self.info.setText("\n".join(lines))
