@@ -321,6 +321,10 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
              "medium_mismatches": 0, "tir_events": 0, "source_rays": n}
     budget = (limits.max_memory_mb if limits.memory_share_mb is None else limits.memory_share_mb) * 1e6
     vertex_tol2 = (VERTEX_TOL * cs.eps) ** 2
+    # the optional rows the compiled step writes (kernel_step.CHILD_STREAMS): a ray table reads
+    # the parent rows, birth codes and its per-ray columns, the path tallies the events
+    step_streams = ((kernel_step.STREAM_PARENT | kernel_step.STREAM_TABLE if recording else 0)
+                    | (kernel_step.STREAM_EVENT if paths.enabled else 0))
     gen = 0
     seg_rows = hit_rows = 0
 
@@ -360,15 +364,13 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         # --- nearest hit (with the corner rules, see _corner_hits), then travel to it
         t, e, at_vertex = _corner_hits(cs, K, r, hit_fn, vertex_tol2, stats, compiled)
         if compiled:
-            streams = ((kernel_step.STREAM_PARENT if recording or at_vertex is not None else 0)
-                       | (kernel_step.STREAM_EVENT if paths.enabled else 0)
-                       | (kernel_step.STREAM_BORN if recording else 0))
-            step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording, streams)
-            r, next_id, seg_rows = _after_compiled_step(
+            # the corner rules read the children's parent rows too
+            streams = step_streams | (kernel_step.STREAM_PARENT if at_vertex is not None else 0)
+            step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, streams)
+            r, next_id, seg_rows, new_hits = _after_compiled_step(
                 cs, K, r, e, step, streams, paths, path_thr, recording, record, root_offset, next_id, seg_store,
                 seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats, batch, batch_bins)
-            if hit_store:
-                hit_rows = sum(len(v) for v in hit_store["root"])
+            hit_rows += new_hits
             gen += 1
             continue
         # --- the reference array code of the step that kernel_step.interface_step compiles
@@ -728,11 +730,11 @@ def _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen
 _NO_DRAWS = np.zeros(0)
 
 
-def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording, streams):
+def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, streams):
     """kernel_step.interface_step for this generation, with the Monte Carlo draws the array
     code would take (one per ray at a dielectric face, in ray order).  streams: the optional
-    children's rows to write (kernel_step.STREAM_*): parent rows for a ray table or the corner
-    rules, events for path tallies, birth codes for a ray table."""
+    rows to write (kernel_step.STREAM_*): parent rows for a ray table or the corner rules,
+    events for path tallies, birth codes and the per-ray columns for a ray table."""
     mc = mode == MONTE_CARLO
     u = _NO_DRAWS
     if mc:
@@ -745,7 +747,7 @@ def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recor
     return timed_first_call("interface step", lambda: kernel_step.interface_step(
         *state, t, e, K.edge_float, K.edge_int, n_flat, K.alpha, thr_root, int(W), bool(K.absorbing), mc,
         int(layout.bulk0), int(layout.face0), int(layout.trunc0 + TRUNC_FLUX), float(cs.eps), float(cs.scale),
-        bool(recording), u, int(streams)))
+        u, int(streams)))
 
 
 _STEP_STATE = ("x", "y", "dx", "dy", "fs", "fp", "opl", "wli", "med", "root", "last", "path")
@@ -755,12 +757,14 @@ def _after_compiled_step(cs, K, r, e, step, streams, paths, path_thr, recording,
                          seg_store, seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats,
                          batch, batch_bins):
     """Book what the compiled step produced: stats, detector records, ray table, ledger bins and
-    path deposits; returns the next generation."""
+    path deposits; returns the next generation, next_id, the ray-table rows and the detector
+    records kept (for the memory check)."""
     (end, ex, ey, opl), (dcode, dflux, dnode), children, records, counts = step
     stats["tir_events"] += int(counts[0])
     stats["medium_mismatches"] += int(counts[1])
     stats["grazing_hits"] += int(counts[2])
     HF, HI, front = records
+    kept_hits = 0
     if len(front):
         pos, angle, hfs, hfp, hopl = HF
         det, row, hwli, hpath, hroot = HI
@@ -771,6 +775,7 @@ def _after_compiled_step(cs, K, r, e, step, streams, paths, path_thr, recording,
                          ("flux_s", hfs), ("flux_p", hfp), ("wavelength_nm", wavelengths[hwli]),
                          ("optical_path", hopl), ("path", hpath), ("root", hroot + root_offset)):
                 hit_store.setdefault(k, []).append(v)
+            kept_hits = len(front)
     if seg_store is not None:
         seg_rows += _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen)
     if len(dcode):          # dnode: the row of the ray each deposit comes from
@@ -779,20 +784,19 @@ def _after_compiled_step(cs, K, r, e, step, streams, paths, path_thr, recording,
         if paths.enabled:
             paths.deposit(dcode, r["path"][dnode], dflux)
     CF, CI = children
-    cx, cy, cdx, cdy, cfs, cfp, copl = CF
-    cmed, clast, start, cwli, croot, cpath = CI[:kernel_step.CHILD_BASE_ROWS]
-    # the optional rows, written only when asked for (see the trace loop)
-    rows = [kernel_step.child_row(streams, s)
-            for s in (kernel_step.STREAM_PARENT, kernel_step.STREAM_EVENT, kernel_step.STREAM_BORN)]
-    pidx, cev, cborn = (None if k is None else CI[k] for k in rows)
-    out = {"x": cx, "y": cy, "dx": cdx, "dy": cdy, "fs": cfs, "fp": cfp, "med": cmed, "start": start,
-           "last": clast, "opl": copl, "wli": cwli, "root": croot,
-           "corner_edge": np.full(len(cx), -1, dtype=np.int64)}
+    # the children's rows are named as the ray state's (kernel_step.CHILD_*_ROWS); of the
+    # optional ones, those asked for (see the trace loop)
+    out = dict(zip(kernel_step.CHILD_FLOAT_ROWS, CF))
+    out.update(zip(kernel_step.CHILD_INT_ROWS, CI))
+    rows = kernel_step.CHILD_LAYOUTS[streams]
+    pidx, cev, cborn = (CI[rows[k]] if k in rows else None for k in ("parent", "event", "born"))
+    start, cpath = out["start"], out["path"]
+    out["corner_edge"] = np.full(len(start), -1, dtype=np.int64)
     if at_vertex is not None:
         _corner_children(cs, out, np.flatnonzero(at_vertex[pidx]))
     next_id = _child_paths_and_ids(out, r, pidx, start, cev, cborn, paths, path_thr,
                                    K, next_id, parent_path=cpath)
-    return out, next_id, seg_rows
+    return out, next_id, seg_rows, kept_hits
 
 
 def _vertex_groups(cs: CompiledScene):
