@@ -712,14 +712,18 @@ def _child_paths_and_ids(out, r, pidx, start, ev, born, paths, path_thr, K, next
 def _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen) -> int:
     """Append this generation's segments of the recorded source rays to the ray table; returns
     the number of rows added."""
-    want = record.wants(r["root"] + root_offset)
-    if want is None or not want.any():
+    root = r["root"] + root_offset
+    want = record.wants(root)
+    if want is None:
+        return 0
+    every = bool(want.all())        # the usual case (a GUI fan, record="all"): no selection
+    if not every and not want.any():
         return 0
     cols = {"x": r["x"], "y": r["y"], "ex": ex, "ey": ey, "dx": r["dx"], "dy": r["dy"], "fs": r["fs"],
-            "fp": r["fp"], "med": r["med"], "opl": opl, "root": r["root"] + root_offset,
+            "fp": r["fp"], "med": r["med"], "opl": opl, "root": root,
             "rid": r["rid"], "parent": r["parent"], "born": r["born"], "end": end,
             "edge": e, "wli": r["wli"]}
-    if not want.all():
+    if not every:
         cols = {k: v[want] for k, v in cols.items()}
     cols["gen"] = np.full(len(cols["x"]), gen, dtype=np.int64)
     for k, v in cols.items():
