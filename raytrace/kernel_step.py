@@ -134,12 +134,14 @@ def mirror_direction(dx, dy, nx, ny):
 # The children's rows, stated here once.  CF holds CHILD_FLOAT_ROWS; CI holds CHILD_INT_ROWS, then
 # those of CHILD_STREAMS that the `streams` bits ask for, in that order (the kernel writes only
 # those): the parent's row (for a ray table and the corner rules), the event (for the path
-# tallies) and the birth code (for a ray table; STREAM_TABLE also asks for the per-ray columns
-# of the ray table: end code, end point, optical path).
+# tallies), the birth code (for a ray table; STREAM_TABLE also asks for the per-ray columns of
+# the ray table: end code, end point, optical path) and the last edge that acted (it differs
+# from the start edge only for a ray that passed a monitor detector; without one the caller
+# takes the start row for it).
 CHILD_FLOAT_ROWS = ("x", "y", "dx", "dy", "fs", "fp", "opl")
-CHILD_INT_ROWS = ("med", "last", "start", "wli", "root", "path")
-STREAM_PARENT, STREAM_EVENT, STREAM_TABLE = 1, 2, 4
-CHILD_STREAMS = ((STREAM_PARENT, "parent"), (STREAM_EVENT, "event"), (STREAM_TABLE, "born"))
+CHILD_INT_ROWS = ("med", "start", "wli", "root", "path")
+STREAM_PARENT, STREAM_EVENT, STREAM_TABLE, STREAM_LAST = 1, 2, 4, 8
+CHILD_STREAMS = ((STREAM_PARENT, "parent"), (STREAM_EVENT, "event"), (STREAM_TABLE, "born"), (STREAM_LAST, "last"))
 N_CHILD_INTS = len(CHILD_INT_ROWS)
 
 
@@ -155,22 +157,21 @@ CHILD_LAYOUTS = tuple(child_layout(s) for s in range(1 << len(CHILD_STREAMS)))  
 @jit
 def child_int_rows(streams):
     """Rows of the children's integer block for these `streams` (one per bit set)."""
-    return N_CHILD_INTS + (streams & 1) + ((streams >> 1) & 1) + ((streams >> 2) & 1)
+    return N_CHILD_INTS + (streams & 1) + ((streams >> 1) & 1) + ((streams >> 2) & 1) + ((streams >> 3) & 1)
 
 
 @jit
-def _put_child(CF, CI, k, f, med, last, start, wli, root, path, parent, event, born, streams):
-    """Write child k: f, its CHILD_FLOAT_ROWS; med .. path, its CHILD_INT_ROWS; parent, event,
-    born: its CHILD_STREAMS, of which only those `streams` asks for are written.  (Scalars: with
+def _put_child(CF, CI, k, f, med, start, wli, root, path, parent, event, born, last, streams):
+    """Write child k: f, its CHILD_FLOAT_ROWS; med .. path, its CHILD_INT_ROWS; parent .. last:
+    its CHILD_STREAMS, of which only those `streams` asks for are written.  (Scalars: with
     the integers passed as tuples and written in a loop the step measured 3-7 % slower.)"""
     for r in range(len(CHILD_FLOAT_ROWS)):
         CF[r, k] = f[r]
     CI[0, k] = med
-    CI[1, k] = last
-    CI[2, k] = start
-    CI[3, k] = wli
-    CI[4, k] = root
-    CI[5, k] = path
+    CI[1, k] = start
+    CI[2, k] = wli
+    CI[3, k] = root
+    CI[4, k] = path
     r = N_CHILD_INTS
     if streams & STREAM_PARENT:
         CI[r, k] = parent
@@ -180,6 +181,9 @@ def _put_child(CF, CI, k, f, med, last, start, wli, root, path, parent, event, b
         r += 1
     if streams & STREAM_TABLE:
         CI[r, k] = born
+        r += 1
+    if streams & STREAM_LAST:
+        CI[r, k] = last
 
 
 @jit(inline="always")
@@ -431,15 +435,15 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
                 if take_b:
                     f = b_fs + b_fp
                     if f >= thr_root[root[i]] and f > 0:
-                        _put_child(CF, CI, m + nbk, (hx, hy, tx, ty, b_fs, b_fp, o_end), m_to, ed, ed,
-                                   wli[i], root[i], node, i, EV_THROUGH, B_REFRACTED, streams)
+                        _put_child(CF, CI, m + nbk, (hx, hy, tx, ty, b_fs, b_fp, o_end), m_to, ed,
+                                   wli[i], root[i], node, i, EV_THROUGH, B_REFRACTED, ed, streams)
                         nbk += 1
                     else:
                         nt = _book_faint(tflux, tnode, ttag, nt, f, i, G_TRANSMIT)
         if take_a:
             f = a[4] + a[5]
             if f >= thr_root[root[i]] and f > 0:
-                _put_child(CF, CI, na, a, a_med, a_last, ed, wli[i], root[i], node, i, a_ev, a_born, streams)
+                _put_child(CF, CI, na, a, a_med, ed, wli[i], root[i], node, i, a_ev, a_born, a_last, streams)
                 ctag[na] = a_grp
                 na += 1
             else:

@@ -322,9 +322,11 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     budget = (limits.max_memory_mb if limits.memory_share_mb is None else limits.memory_share_mb) * 1e6
     vertex_tol2 = (VERTEX_TOL * cs.eps) ** 2
     # the optional rows the compiled step writes (kernel_step.CHILD_STREAMS): a ray table reads
-    # the parent rows, birth codes and its per-ray columns, the path tallies the events
+    # the parent rows, birth codes and its per-ray columns, the path tallies the events; the
+    # last edge differs from the start edge only past a monitor detector
     step_streams = ((kernel_step.STREAM_PARENT | kernel_step.STREAM_TABLE if recording else 0)
-                    | (kernel_step.STREAM_EVENT if paths.enabled else 0))
+                    | (kernel_step.STREAM_EVENT if paths.enabled else 0)
+                    | (kernel_step.STREAM_LAST if K.has[T_DETECT_MONITOR] else 0))
     gen = 0
     seg_rows = hit_rows = 0
 
@@ -793,8 +795,9 @@ def _after_compiled_step(cs, K, r, e, step, streams, paths, path_thr, recording,
     out = dict(zip(kernel_step.CHILD_FLOAT_ROWS, CF))
     out.update(zip(kernel_step.CHILD_INT_ROWS, CI))
     rows = kernel_step.CHILD_LAYOUTS[streams]
-    pidx, cev, cborn = (CI[rows[k]] if k in rows else None for k in ("parent", "event", "born"))
+    pidx, cev, cborn, clast = (CI[rows[k]] if k in rows else None for k in ("parent", "event", "born", "last"))
     start, cpath = out["start"], out["path"]
+    out["last"] = start if clast is None else clast     # as the array code: one array for both
     out["corner_edge"] = np.full(len(start), -1, dtype=np.int64)
     if at_vertex is not None:
         _corner_children(cs, out, np.flatnonzero(at_vertex[pidx]))
