@@ -133,15 +133,17 @@ def mirror_direction(dx, dy, nx, ny):
 
 # The children's rows, stated here once.  CF holds CHILD_FLOAT_ROWS; CI holds CHILD_INT_ROWS, then
 # those of CHILD_STREAMS that the `streams` bits ask for, in that order (the kernel writes only
-# those): the parent's row (for a ray table and the corner rules), the event (for the path
-# tallies), the birth code (for a ray table; STREAM_TABLE also asks for the per-ray columns of
-# the ray table: end code, end point, optical path) and the last edge that acted (it differs
-# from the start edge only for a ray that passed a monitor detector; without one the caller
-# takes the start row for it).
+# those): the parent's row (for a ray table and the corner rules), the path node and the event
+# (for the path tallies), the birth code (for a ray table; STREAM_TABLE also asks for the
+# per-ray columns of the ray table: end code, end point, optical path) and the last edge that
+# acted (it differs from the start edge only for a ray that passed a monitor detector; without
+# one the caller takes the start row for it).  Without path tallies every ray's path is its
+# source's, so no path row is carried: the step's `path` is then per source ray.
 CHILD_FLOAT_ROWS = ("x", "y", "dx", "dy", "fs", "fp", "opl")
-CHILD_INT_ROWS = ("med", "start", "wli", "root", "path")
-STREAM_PARENT, STREAM_EVENT, STREAM_TABLE, STREAM_LAST = 1, 2, 4, 8
-CHILD_STREAMS = ((STREAM_PARENT, "parent"), (STREAM_EVENT, "event"), (STREAM_TABLE, "born"), (STREAM_LAST, "last"))
+CHILD_INT_ROWS = ("med", "start", "wli", "root")
+STREAM_PARENT, STREAM_PATHS, STREAM_TABLE, STREAM_LAST = 1, 2, 4, 8
+CHILD_STREAMS = ((STREAM_PARENT, "parent"), (STREAM_PATHS, "path"), (STREAM_PATHS, "event"), (STREAM_TABLE, "born"),
+                 (STREAM_LAST, "last"))
 N_CHILD_INTS = len(CHILD_INT_ROWS)
 
 
@@ -157,12 +159,12 @@ CHILD_LAYOUTS = tuple(child_layout(s) for s in range(1 << len(CHILD_STREAMS)))  
 @jit
 def child_int_rows(streams):
     """Rows of the children's integer block for these `streams` (one per bit set)."""
-    return N_CHILD_INTS + (streams & 1) + ((streams >> 1) & 1) + ((streams >> 2) & 1) + ((streams >> 3) & 1)
+    return N_CHILD_INTS + (streams & 1) + 2 * ((streams >> 1) & 1) + ((streams >> 2) & 1) + ((streams >> 3) & 1)
 
 
 @jit
-def _put_child(CF, CI, k, f, med, start, wli, root, path, parent, event, born, last, streams):
-    """Write child k: f, its CHILD_FLOAT_ROWS; med .. path, its CHILD_INT_ROWS; parent .. last:
+def _put_child(CF, CI, k, f, med, start, wli, root, parent, path, event, born, last, streams):
+    """Write child k: f, its CHILD_FLOAT_ROWS; med .. root, its CHILD_INT_ROWS; parent .. last:
     its CHILD_STREAMS, of which only those `streams` asks for are written.  (Scalars: with
     the integers passed as tuples and written in a loop the step measured 3-7 % slower.)"""
     for r in range(len(CHILD_FLOAT_ROWS)):
@@ -171,14 +173,14 @@ def _put_child(CF, CI, k, f, med, start, wli, root, path, parent, event, born, l
     CI[1, k] = start
     CI[2, k] = wli
     CI[3, k] = root
-    CI[4, k] = path
     r = N_CHILD_INTS
     if streams & STREAM_PARENT:
         CI[r, k] = parent
         r += 1
-    if streams & STREAM_EVENT:
-        CI[r, k] = event
-        r += 1
+    if streams & STREAM_PATHS:
+        CI[r, k] = path
+        CI[r + 1, k] = event
+        r += 2
     if streams & STREAM_TABLE:
         CI[r, k] = born
         r += 1
@@ -241,7 +243,8 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
                    thr_root, W, absorbing, mc, bulk0, face0, trunc_code, eps, scale, u, streams):
     """One generation after its hit search.
 
-    x .. path: ray state; t, e: the hits.  TF, TI: per-edge tables (EDGE_FLOAT_ROWS,
+    x .. path: ray state (path: per ray with STREAM_PATHS, else per source ray, read by root);
+    t, e: the hits.  TF, TI: per-edge tables (EDGE_FLOAT_ROWS,
     EDGE_INT_ROWS): normal (lines), arc centre, mirror reflectance, detector start, extent and
     length; treatment, escape bin, arc flag, media on both sides, detector id.  n_flat: index
     per (medium, wavelength); alpha: absorption per medium; thr_root: truncation threshold per
@@ -263,6 +266,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
     ne = len(treat_t) - 1
     back = 2.0 * eps
     rec = (streams & STREAM_TABLE) != 0
+    by_ray = (streams & STREAM_PATHS) != 0     # path per ray (path tallies), else per source ray
     mr = m if rec else 0
     end = np.empty(mr, dtype=np.int64)         # per ray, for the ray table only
     ex = np.empty(mr)
@@ -303,7 +307,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
         f_p = fp[i]
         ddx = dx[i]
         ddy = dy[i]
-        node = path[i]
+        node = path[i] if by_ray else -1      # (not written without path tallies)
         e_code = E_ESCAPED
         esc_live = esc
         if absorbing:
@@ -436,14 +440,14 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
                     f = b_fs + b_fp
                     if f >= thr_root[root[i]] and f > 0:
                         _put_child(CF, CI, m + nbk, (hx, hy, tx, ty, b_fs, b_fp, o_end), m_to, ed,
-                                   wli[i], root[i], node, i, EV_THROUGH, B_REFRACTED, ed, streams)
+                                   wli[i], root[i], i, node, EV_THROUGH, B_REFRACTED, ed, streams)
                         nbk += 1
                     else:
                         nt = _book_faint(tflux, tnode, ttag, nt, f, i, G_TRANSMIT)
         if take_a:
             f = a[4] + a[5]
             if f >= thr_root[root[i]] and f > 0:
-                _put_child(CF, CI, na, a, a_med, ed, wli[i], root[i], node, i, a_ev, a_born, a_last, streams)
+                _put_child(CF, CI, na, a, a_med, ed, wli[i], root[i], i, node, a_ev, a_born, a_last, streams)
                 ctag[na] = a_grp
                 na += 1
             else:
@@ -500,7 +504,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
     for j in range(nh):
         i = HI[1, j]
         HI[2, j] = wli[i]
-        HI[3, j] = path[i]
+        HI[3, j] = path[i] if by_ray else path[root[i]]
         HI[4, j] = root[i]
     counts = np.array([n_tir, n_mismatch, n_graze, k_u], dtype=np.int64)
     return (end, ex, ey, opl_end), (dcode, dflux, dnode), (CF[:, :nk], CI[:, :nk]), \

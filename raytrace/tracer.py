@@ -322,11 +322,14 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     budget = (limits.max_memory_mb if limits.memory_share_mb is None else limits.memory_share_mb) * 1e6
     vertex_tol2 = (VERTEX_TOL * cs.eps) ** 2
     # the optional rows the compiled step writes (kernel_step.CHILD_STREAMS): a ray table reads
-    # the parent rows, birth codes and its per-ray columns, the path tallies the events; the
-    # last edge differs from the start edge only past a monitor detector
+    # the parent rows, birth codes and its per-ray columns, the path tallies the path nodes and
+    # events; the last edge differs from the start edge only past a monitor detector.  Without
+    # path tallies a ray's path is its source's: the compiled step reads it per source ray
+    # (`source_path`) and the rays carry none.
     step_streams = ((kernel_step.STREAM_PARENT | kernel_step.STREAM_TABLE if recording else 0)
-                    | (kernel_step.STREAM_EVENT if paths.enabled else 0)
+                    | (kernel_step.STREAM_PATHS if paths.enabled else 0)
                     | (kernel_step.STREAM_LAST if K.has[T_DETECT_MONITOR] else 0))
+    source_path = r.pop("path") if compiled and not paths.enabled else None
     gen = 0
     seg_rows = hit_rows = 0
 
@@ -368,7 +371,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         if compiled:
             # the corner rules read the children's parent rows too
             streams = step_streams | (kernel_step.STREAM_PARENT if at_vertex is not None else 0)
-            step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, streams)
+            step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, streams, source_path)
             r, next_id, seg_rows, new_hits = _after_compiled_step(
                 cs, K, r, e, step, streams, paths, path_thr, recording, record, root_offset, next_id, seg_store,
                 seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats, batch, batch_bins)
@@ -689,9 +692,9 @@ def _child_paths_and_ids(out, r, pidx, start, ev, born, paths, path_thr, K, next
     """The children's path nodes (parent's path extended by the event, or "other paths" for
     faint rays) and, when a ray table is recorded (`born` given), their ids and parents.
     pidx (the parents' rows) is needed only then or without parent_path."""
-    if parent_path is None:
-        parent_path = r["path"][pidx]
     if paths.enabled:
+        if parent_path is None:
+            parent_path = r["path"][pidx]
         bright = (out["fs"] + out["fp"]) >= path_thr[out["root"]]
         if bright.all():
             out["path"] = paths.extend(parent_path, start * N_EVENT_KINDS + ev, K.n_codes)
@@ -700,8 +703,8 @@ def _child_paths_and_ids(out, r, pidx, start, ev, born, paths, path_thr, K, next
             b = np.flatnonzero(bright)
             node[b] = paths.extend(parent_path[b], start[b] * N_EVENT_KINDS + ev[b], K.n_codes)
             out["path"] = node
-    else:
-        out["path"] = parent_path
+    elif "path" in r:       # (the compiled kernel keeps no path per ray without path tallies)
+        out["path"] = r["path"][pidx] if parent_path is None else parent_path
     if born is not None:
         k = len(pidx)
         out["rid"] = np.arange(next_id, next_id + k, dtype=np.int64)
@@ -736,11 +739,12 @@ def _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen
 _NO_DRAWS = np.zeros(0)
 
 
-def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, streams):
+def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, streams, source_path=None):
     """kernel_step.interface_step for this generation, with the Monte Carlo draws the array
     code would take (one per ray at a dielectric face, in ray order).  streams: the optional
     rows to write (kernel_step.STREAM_*): parent rows for a ray table or the corner rules,
-    events for path tallies, birth codes and the per-ray columns for a ray table."""
+    path nodes and events for path tallies, birth codes and the per-ray columns for a ray table.
+    source_path: each source ray's path when the rays carry none (no path tallies)."""
     mc = mode == MONTE_CARLO
     u = _NO_DRAWS
     if mc:
@@ -749,7 +753,8 @@ def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, strea
         if n_di:
             u = rng.random(n_di)
     c = np.ascontiguousarray
-    state = [c(r[k]) for k in _STEP_STATE]
+    state = [c(r[k]) for k in _STEP_STATE[:-1]]
+    state.append(c(r["path"]) if source_path is None else source_path)
     return timed_first_call("interface step", lambda: kernel_step.interface_step(
         *state, t, e, K.edge_float, K.edge_int, n_flat, K.alpha, thr_root, int(W), bool(K.absorbing), mc,
         int(layout.bulk0), int(layout.face0), int(layout.trunc0 + TRUNC_FLUX), float(cs.eps), float(cs.scale),
@@ -795,8 +800,9 @@ def _after_compiled_step(cs, K, r, e, step, streams, paths, path_thr, recording,
     out = dict(zip(kernel_step.CHILD_FLOAT_ROWS, CF))
     out.update(zip(kernel_step.CHILD_INT_ROWS, CI))
     rows = kernel_step.CHILD_LAYOUTS[streams]
-    pidx, cev, cborn, clast = (CI[rows[k]] if k in rows else None for k in ("parent", "event", "born", "last"))
-    start, cpath = out["start"], out["path"]
+    pidx, cpath, cev, cborn, clast = (CI[rows[k]] if k in rows else None
+                                      for k in ("parent", "path", "event", "born", "last"))
+    start = out["start"]
     out["last"] = start if clast is None else clast     # as the array code: one array for both
     out["corner_edge"] = np.full(len(start), -1, dtype=np.int64)
     if at_vertex is not None:
@@ -985,7 +991,8 @@ def _truncate(r, mask, code, bins, paths, seg_store, record, root_offset, gen, w
     bins[code] += f.sum()
     per_batch = np.bincount(batch[r["root"][mask]], weights=f, minlength=SUB_BATCHES)
     batch_bins[code::len(bins)] += per_batch
-    paths.deposit(np.full(len(f), code), r["path"][mask], f)
+    if paths.enabled:
+        paths.deposit(np.full(len(f), code), r["path"][mask], f)
     if seg_store is not None:
         root = r["root"][mask] + root_offset
         want = record.wants(root)
