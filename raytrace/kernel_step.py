@@ -137,13 +137,14 @@ def mirror_direction(dx, dy, nx, ny):
 # (for the path tallies), the birth code (for a ray table; STREAM_TABLE also asks for the
 # per-ray columns of the ray table: end code, end point, optical path) and the last edge that
 # acted (it differs from the start edge only for a ray that passed a monitor detector; without
-# one the caller takes the start row for it).  Without path tallies every ray's path is its
-# source's, so no path row is carried: the step's `path` is then per source ray.
+# one the caller takes the start row for it), and the wavelength's index (only when the trace
+# has more than one wavelength; else it is 0 and not read).  Without path tallies every ray's
+# path is its source's, so no path row is carried: the step's `path` is then per source ray.
 CHILD_FLOAT_ROWS = ("x", "y", "dx", "dy", "fs", "fp", "opl")
-CHILD_INT_ROWS = ("med", "start", "wli", "root")
-STREAM_PARENT, STREAM_PATHS, STREAM_TABLE, STREAM_LAST = 1, 2, 4, 8
+CHILD_INT_ROWS = ("med", "start", "root")
+STREAM_PARENT, STREAM_PATHS, STREAM_TABLE, STREAM_LAST, STREAM_WAVES = 1, 2, 4, 8, 16
 CHILD_STREAMS = ((STREAM_PARENT, "parent"), (STREAM_PATHS, "path"), (STREAM_PATHS, "event"), (STREAM_TABLE, "born"),
-                 (STREAM_LAST, "last"))
+                 (STREAM_LAST, "last"), (STREAM_WAVES, "wli"))
 N_CHILD_INTS = len(CHILD_INT_ROWS)
 
 
@@ -159,20 +160,20 @@ CHILD_LAYOUTS = tuple(child_layout(s) for s in range(1 << len(CHILD_STREAMS)))  
 @jit
 def child_int_rows(streams):
     """Rows of the children's integer block for these `streams` (one per bit set)."""
-    return N_CHILD_INTS + (streams & 1) + 2 * ((streams >> 1) & 1) + ((streams >> 2) & 1) + ((streams >> 3) & 1)
+    return (N_CHILD_INTS + (streams & 1) + 2 * ((streams >> 1) & 1) + ((streams >> 2) & 1) + ((streams >> 3) & 1)
+            + ((streams >> 4) & 1))
 
 
 @jit
-def _put_child(CF, CI, k, f, med, start, wli, root, parent, path, event, born, last, streams):
-    """Write child k: f, its CHILD_FLOAT_ROWS; med .. root, its CHILD_INT_ROWS; parent .. last:
+def _put_child(CF, CI, k, f, med, start, root, parent, path, event, born, last, wli, streams):
+    """Write child k: f, its CHILD_FLOAT_ROWS; med .. root, its CHILD_INT_ROWS; parent .. wli:
     its CHILD_STREAMS, of which only those `streams` asks for are written.  (Scalars: with
     the integers passed as tuples and written in a loop the step measured 3-7 % slower.)"""
     for r in range(len(CHILD_FLOAT_ROWS)):
         CF[r, k] = f[r]
     CI[0, k] = med
     CI[1, k] = start
-    CI[2, k] = wli
-    CI[3, k] = root
+    CI[2, k] = root
     r = N_CHILD_INTS
     if streams & STREAM_PARENT:
         CI[r, k] = parent
@@ -186,6 +187,9 @@ def _put_child(CF, CI, k, f, med, start, wli, root, parent, path, event, born, l
         r += 1
     if streams & STREAM_LAST:
         CI[r, k] = last
+        r += 1
+    if streams & STREAM_WAVES:
+        CI[r, k] = wli
 
 
 @jit(inline="always")
@@ -326,7 +330,8 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
             esc_live = esc and keep > 0
             if esc and not esc_live:
                 e_code = E_ABSORBED
-        n_here = n_flat[mi * W + wli[i]] if W > 1 else n_flat[mi]
+        wl = wli[i] if W > 1 else 0          # one wavelength: 0, and the children carry no row of it
+        n_here = n_flat[mi * W + wl] if W > 1 else n_flat[mi]
         o_end = opl[i] + n_here * L
         hx = x[i] + L * ddx
         hy = y[i] + L * ddy
@@ -403,7 +408,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
             else:
                 # dielectric: Snell, TIR, Fresnel s/p
                 m_from, m_to, ci, tir, Rs, Rp, rx, ry, tx, ty = dielectric(
-                    ddx, ddy, nx, ny, med_plus[ee], med_minus[ee], mi, wli[i], W, n_flat, tt == T_AR)
+                    ddx, ddy, nx, ny, med_plus[ee], med_minus[ee], mi, wl, W, n_flat, tt == T_AR)
                 if tir:
                     n_tir += 1
                 if m_from != mi:
@@ -440,14 +445,14 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
                     f = b_fs + b_fp
                     if f >= thr_root[root[i]] and f > 0:
                         _put_child(CF, CI, m + nbk, (hx, hy, tx, ty, b_fs, b_fp, o_end), m_to, ed,
-                                   wli[i], root[i], i, node, EV_THROUGH, B_REFRACTED, ed, streams)
+                                   root[i], i, node, EV_THROUGH, B_REFRACTED, ed, wl, streams)
                         nbk += 1
                     else:
                         nt = _book_faint(tflux, tnode, ttag, nt, f, i, G_TRANSMIT)
         if take_a:
             f = a[4] + a[5]
             if f >= thr_root[root[i]] and f > 0:
-                _put_child(CF, CI, na, a, a_med, ed, wli[i], root[i], i, node, a_ev, a_born, a_last, streams)
+                _put_child(CF, CI, na, a, a_med, ed, root[i], i, node, a_ev, a_born, a_last, wl, streams)
                 ctag[na] = a_grp
                 na += 1
             else:
@@ -503,7 +508,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
     nk = na + nbk
     for j in range(nh):
         i = HI[1, j]
-        HI[2, j] = wli[i]
+        HI[2, j] = wli[i] if W > 1 else 0
         HI[3, j] = path[i] if by_ray else path[root[i]]
         HI[4, j] = root[i]
     counts = np.array([n_tir, n_mismatch, n_graze, k_u], dtype=np.int64)

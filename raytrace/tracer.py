@@ -323,12 +323,14 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     vertex_tol2 = (VERTEX_TOL * cs.eps) ** 2
     # the optional rows the compiled step writes (kernel_step.CHILD_STREAMS): a ray table reads
     # the parent rows, birth codes and its per-ray columns, the path tallies the path nodes and
-    # events; the last edge differs from the start edge only past a monitor detector.  Without
+    # events; the last edge differs from the start edge only past a monitor detector, the
+    # wavelength index from 0 only with several wavelengths.  Without
     # path tallies a ray's path is its source's: the compiled step reads it per source ray
     # (`source_path`) and the rays carry none.
     step_streams = ((kernel_step.STREAM_PARENT | kernel_step.STREAM_TABLE if recording else 0)
                     | (kernel_step.STREAM_PATHS if paths.enabled else 0)
-                    | (kernel_step.STREAM_LAST if K.has[T_DETECT_MONITOR] else 0))
+                    | (kernel_step.STREAM_LAST if K.has[T_DETECT_MONITOR] else 0)
+                    | (kernel_step.STREAM_WAVES if W > 1 else 0))
     source_path = r.pop("path") if compiled and not paths.enabled else None
     gen = 0
     seg_rows = hit_rows = 0
@@ -800,10 +802,11 @@ def _after_compiled_step(cs, K, r, e, step, streams, paths, path_thr, recording,
     out = dict(zip(kernel_step.CHILD_FLOAT_ROWS, CF))
     out.update(zip(kernel_step.CHILD_INT_ROWS, CI))
     rows = kernel_step.CHILD_LAYOUTS[streams]
-    pidx, cpath, cev, cborn, clast = (CI[rows[k]] if k in rows else None
-                                      for k in ("parent", "path", "event", "born", "last"))
+    pidx, cpath, cev, cborn, clast, cwli = (CI[rows[k]] if k in rows else None
+                                            for k in ("parent", "path", "event", "born", "last", "wli"))
     start = out["start"]
     out["last"] = start if clast is None else clast     # as the array code: one array for both
+    out["wli"] = np.zeros(len(start), dtype=np.int64) if cwli is None else cwli
     out["corner_edge"] = np.full(len(start), -1, dtype=np.int64)
     if at_vertex is not None:
         _corner_children(cs, out, np.flatnonzero(at_vertex[pidx]))
