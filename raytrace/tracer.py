@@ -373,10 +373,11 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         if compiled:
             # the corner rules read the children's parent rows too
             streams = step_streams | (kernel_step.STREAM_PARENT if at_vertex is not None else 0)
-            step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, streams, source_path)
+            step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, streams, bins, batch_bins,
+                                  batch, source_path)
             r, next_id, seg_rows, new_hits = _after_compiled_step(
                 cs, K, r, e, step, streams, paths, path_thr, recording, record, root_offset, next_id, seg_store,
-                seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats, batch, batch_bins)
+                seg_rows, hit_store, hist, wavelengths, at_vertex, gen, stats)
             hit_rows += new_hits
             gen += 1
             continue
@@ -741,12 +742,15 @@ def _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen
 _NO_DRAWS = np.zeros(0)
 
 
-def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, streams, source_path=None):
+def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, streams, bins, batch_bins, batch,
+                   source_path=None):
     """kernel_step.interface_step for this generation, with the Monte Carlo draws the array
     code would take (one per ray at a dielectric face, in ray order).  streams: the optional
     rows to write (kernel_step.STREAM_*): parent rows for a ray table or the corner rules,
     path nodes and events for path tallies, birth codes and the per-ray columns for a ray table.
-    source_path: each source ray's path when the rays carry none (no path tallies)."""
+    The generation's deposits go into `bins` and `batch_bins` (per sub-batch `batch` of each
+    source ray) in the step.  source_path: each source ray's path when the rays carry none (no
+    path tallies)."""
     mc = mode == MONTE_CARLO
     u = _NO_DRAWS
     if mc:
@@ -760,42 +764,41 @@ def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, strea
     return timed_first_call("interface step", lambda: kernel_step.interface_step(
         *state, t, e, K.edge_float, K.edge_int, n_flat, K.alpha, thr_root, int(W), bool(K.absorbing), mc,
         int(layout.bulk0), int(layout.face0), int(layout.trunc0 + TRUNC_FLUX), float(cs.eps), float(cs.scale),
-        u, int(streams)))
+        u, bins, batch_bins, batch, int(streams)))
 
 
 _STEP_STATE = ("x", "y", "dx", "dy", "fs", "fp", "opl", "wli", "med", "root", "last", "path")
 
 
 def _after_compiled_step(cs, K, r, e, step, streams, paths, path_thr, recording, record, root_offset, next_id,
-                         seg_store, seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats,
-                         batch, batch_bins):
-    """Book what the compiled step produced: stats, detector records, ray table, ledger bins and
-    path deposits; returns the next generation, next_id, the ray-table rows and the detector
+                         seg_store, seg_rows, hit_store, hist, wavelengths, at_vertex, gen, stats):
+    """Book what the compiled step produced (it has added the ledger deposits itself): stats,
+    detector records, ray table and path deposits; returns the next generation, next_id, the ray-table rows and the detector
     records kept (for the memory check)."""
-    (end, ex, ey, opl), (dcode, dflux, dnode), children, records, counts = step
-    stats["tir_events"] += int(counts[0])
-    stats["medium_mismatches"] += int(counts[1])
-    stats["grazing_hits"] += int(counts[2])
-    HF, HI, front = records
+    (end, PF), (DI, dflux), children, (HF, HI), counts = step
+    n_tir, n_mismatch, n_graze, _ = counts.tolist()
+    stats["tir_events"] += n_tir
+    stats["medium_mismatches"] += n_mismatch
+    stats["grazing_hits"] += n_graze
     kept_hits = 0
-    if len(front):
+    if HI.shape[1]:
         pos, angle, hfs, hfp, hopl = HF
-        det, row, hwli, hpath, hroot = HI
+        det, row, hwli, hpath, hroot, hfront = HI
         if hist is not None:
             hist.add(det, pos, angle, hfs, hfp, hroot + root_offset, r["dx"][row], r["dy"][row])
         else:
-            for k, v in (("detector", det), ("position", pos), ("angle_deg", angle), ("front", front),
+            for k, v in (("detector", det), ("position", pos), ("angle_deg", angle), ("front", hfront.astype(bool)),
                          ("flux_s", hfs), ("flux_p", hfp), ("wavelength_nm", wavelengths[hwli]),
                          ("optical_path", hopl), ("path", hpath), ("root", hroot + root_offset)):
                 hit_store.setdefault(k, []).append(v)
-            kept_hits = len(front)
+            kept_hits = HI.shape[1]
     if seg_store is not None:
+        ex, ey, opl = PF
         seg_rows += _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen)
-    if len(dcode):          # dnode: the row of the ray each deposit comes from
-        timed_first_call("ledger deposits", lambda: kernel_step.book_deposits(
-            bins, batch_bins, dcode, dflux, dnode, r["root"], batch))
-        if paths.enabled:
-            paths.deposit(dcode, r["path"][dnode], dflux)
+    # the step has added the deposits to the ledger bins (kernel_step.book_deposits); the path
+    # tallies book them by the path of the ray each comes from (row DI[1])
+    if paths.enabled and len(dflux):
+        paths.deposit(DI[0], r["path"][DI[1]], dflux)
     CF, CI = children
     # the children's rows are named as the ray state's (kernel_step.CHILD_*_ROWS); of the
     # optional ones, those asked for (see the trace loop)
