@@ -809,13 +809,26 @@ def _after_compiled_step(cs, K, r, e, step, streams, paths, path_thr, recording,
                                             for k in ("parent", "path", "event", "born", "last", "wli"))
     start = out["start"]
     out["last"] = start if clast is None else clast     # as the array code: one array for both
-    out["wli"] = np.zeros(len(start), dtype=np.int64) if cwli is None else cwli
+    out["wli"] = _zero_rows(len(start)) if cwli is None else cwli
     out["corner_edge"] = np.full(len(start), -1, dtype=np.int64)
     if at_vertex is not None:
         _corner_children(cs, out, np.flatnonzero(at_vertex[pidx]))
     next_id = _child_paths_and_ids(out, r, pidx, start, cev, cborn, paths, path_thr,
                                    K, next_id, parent_path=cpath)
     return out, next_id, seg_rows, kept_hits
+
+
+_ZERO_ROWS = np.zeros(0, dtype=np.int64)
+
+
+def _zero_rows(n: int) -> np.ndarray:
+    """n zeros (the wavelength index of a one-wavelength trace): a view of one shared array, so
+    no generation clears memory for it; nothing writes into a ray's wavelength index."""
+    global _ZERO_ROWS
+    z = _ZERO_ROWS
+    if len(z) < n:      # (threads racing here each make a big enough one: harmless)
+        z = _ZERO_ROWS = np.zeros(max(n, 2 * len(z)), dtype=np.int64)
+    return z[:n]
 
 
 def _vertex_groups(cs: CompiledScene):
