@@ -810,7 +810,7 @@ def _after_compiled_step(cs, K, r, e, step, streams, paths, path_thr, recording,
     start = out["start"]
     out["last"] = start if clast is None else clast     # as the array code: one array for both
     out["wli"] = _zero_rows(len(start)) if cwli is None else cwli
-    out["corner_edge"] = np.full(len(start), -1, dtype=np.int64)
+    # (no "corner_edge" row: _corner_children adds one when a child gets a corner edge)
     if at_vertex is not None:
         _corner_children(cs, out, np.flatnonzero(at_vertex[pidx]))
     next_id = _child_paths_and_ids(out, r, pidx, start, cev, cborn, paths, path_thr,
@@ -819,6 +819,7 @@ def _after_compiled_step(cs, K, r, e, step, streams, paths, path_thr, recording,
 
 
 _ZERO_ROWS = np.zeros(0, dtype=np.int64)
+_NO_ROWS = np.zeros(0, dtype=np.int64)
 
 
 def _zero_rows(n: int) -> np.ndarray:
@@ -894,7 +895,8 @@ def _corner_hits(cs, K, r, hit_fn, tol2, stats, compiled=False):
     by _corner_children."""
     x, y, dx, dy, med = r["x"], r["y"], r["dx"], r["dy"], r["med"]
     t, e = _first_hit(cs, K, x, y, dx, dy, r["start"], hit_fn)
-    forced = np.flatnonzero(r["corner_edge"] >= 0)
+    corner_edge = r.get("corner_edge")      # None: no ray has one (compiled kernel)
+    forced = _NO_ROWS if corner_edge is None else np.flatnonzero(corner_edge >= 0)
     if compiled:        # the same test as _near_vertex, in one compiled pass
         idx = kernel_step.vertex_candidates(x, y, dx, dy, t, e, K.x0, K.y0, K.x1, K.y1, K.treat, tol2)
         if len(forced) == 0 and len(idx) == 0:
@@ -911,7 +913,7 @@ def _corner_hits(cs, K, r, hit_fn, tol2, stats, compiled=False):
     t, e = t.copy(), e.copy()
     if len(forced):
         t[forced] = 0.0
-        e[forced] = r["corner_edge"][forced]
+        e[forced] = corner_edge[forced]
         at_vertex[forced] = True
         idx = np.setdiff1d(idx, forced, assume_unique=True)
     step = CORNER_PROBE * cs.eps
@@ -1001,7 +1003,10 @@ def _corner_children(cs, out, rows) -> None:
     rr = rows[off]
     edge, fitted = _corner_edge(cs, hx[off], hy[off], dx[off], dy[off], out["med"][rr], probe[off],
                                 out["start"][rr], own="skip")
-    out["corner_edge"][rr[fitted]] = edge[fitted]
+    if fitted.any():
+        if "corner_edge" not in out:        # (the compiled kernel's children come without one)
+            out["corner_edge"] = np.full(len(out["x"]), -1, dtype=np.int64)
+        out["corner_edge"][rr[fitted]] = edge[fitted]
     out["med"][rr[~fitted]] = probe[off][~fitted]
 
 
