@@ -720,13 +720,14 @@ def _child_paths_and_ids(out, r, pidx, start, ev, born, paths, path_thr, K, next
 def _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen) -> int:
     """Append this generation's segments of the recorded source rays to the ray table; returns
     the number of rows added."""
-    root = r["root"] + root_offset
+    root = r["root"] + root_offset if root_offset else r["root"]
     want = record.wants(root)
     if want is None:
         return 0
-    every = bool(want.all())        # the usual case (a GUI fan, record="all"): no selection
-    if not every and not want.any():
+    n_want = np.count_nonzero(want)     # (one pass, where all() and any() took two)
+    if n_want == 0:
         return 0
+    every = n_want == len(want)         # the usual case (a GUI fan, record="all"): no selection
     cols = {"x": r["x"], "y": r["y"], "ex": ex, "ey": ey, "dx": r["dx"], "dy": r["dy"], "fs": r["fs"],
             "fp": r["fp"], "med": r["med"], "opl": opl, "root": root,
             "rid": r["rid"], "parent": r["parent"], "born": r["born"], "end": end,
