@@ -6,8 +6,10 @@ It mirrors the array code of `tracer.trace_rays` / `tracer._interfaces` /
 `tracer._next_generation` operation for operation, and writes its outputs in the order that
 code produces them: ledger deposits (bulk, escapes, detectors, absorbing faces, mirrors, then
 the children too faint to go on) and children (passed detectors, mirrors, reflected,
-transmitted, each in ray order).  So the ledger sums in the same order, the Monte Carlo draws go
-to the same rays, and the next generation is the same arrays.
+transmitted, each in ray order), and adds the deposits to the ledger bins in that order
+(`book_deposits`).  So the ledger sums in the same order, the Monte Carlo draws go to the same
+rays, and the next generation is the same arrays.  The children carry only the rows the trace
+reads (CHILD_STREAMS).
 
 Vertex and corner hits are not resolved here: the tracer resolves them between the hit search
 and this step (`tracer._corner_hits`, the corner rules, shared by both kernels), and
