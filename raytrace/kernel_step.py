@@ -6,8 +6,10 @@ It mirrors the array code of `tracer.trace_rays` / `tracer._interfaces` /
 `tracer._next_generation` operation for operation, and writes its outputs in the order that
 code produces them: ledger deposits (bulk, escapes, detectors, absorbing faces, mirrors, then
 the children too faint to go on) and children (passed detectors, mirrors, reflected,
-transmitted, each in ray order).  So the ledger sums in the same order, the Monte Carlo draws go
-to the same rays, and the next generation is the same arrays.
+transmitted, each in ray order), and adds the deposits to the ledger bins in that order
+(`book_deposits`).  So the ledger sums in the same order, the Monte Carlo draws go to the same
+rays, and the next generation is the same arrays.  The children carry only the rows the trace
+reads (CHILD_STREAMS).
 
 Vertex and corner hits are not resolved here: the tracer resolves them between the hit search
 and this step (`tracer._corner_hits`, the corner rules, shared by both kernels), and
@@ -66,7 +68,8 @@ def dielectric(dx, dy, nx, ny, mp, mm, med, wli, W, n_flat, anti_reflection):
     """A ray meeting a bare (or anti-reflection coated) interface, as tracer._interfaces and
     fresnel.py compute it: (medium before, medium after, cos of incidence, TIR, R_s, R_p,
     reflected direction, transmitted direction).  Snell and TIR: Hecht, Optics, sec. 4.4 and
-    4.7; Fresnel power reflectances: sec. 4.6."""
+    4.7; Fresnel power reflectances: sec. 4.6.  Under TIR the transmitted direction is (0, 0)
+    and not computed (nothing is transmitted; about 45 % of the light pipe's events)."""
     cos_raw = dx * nx + dy * ny
     from_plus = cos_raw < 0                      # travelling against the normal
     if abs(cos_raw) < GRAZING_COS:
@@ -86,6 +89,12 @@ def dielectric(dx, dy, nx, ny, mp, mm, med, wli, W, n_flat, anti_reflection):
     ratio = n1 / n2
     sin2_t = ratio * ratio * max(0.0, 1.0 - ci * ci)
     tir = sin2_t > 1.0
+    two_ci = 2 * ci
+    rx, ry = _unit(dx + two_ci * bnx, dy + two_ci * bny)
+    if tir:
+        # all of it reflects: no transmitted direction, no s/p amplitude ratios (the array code
+        # computes them and drops them: R_s = R_p = 1 replaces them)
+        return m_from, m_to, ci, tir, 1.0, 1.0, rx, ry, 0.0, 0.0
     cos_t = math.sqrt(max(0.0, 1.0 - sin2_t))
     a = n1 * ci
     b = n2 * cos_t
@@ -93,13 +102,11 @@ def dielectric(dx, dy, nx, ny, mp, mm, med, wli, W, n_flat, anti_reflection):
     d = n1 * cos_t
     rs = (a - b) / (a + b) if a + b > 0 else 1.0
     rp = (c - d) / (c + d) if c + d > 0 else 1.0
-    Rs = 1.0 if tir else rs * rs
-    Rp = 1.0 if tir else rp * rp
-    if anti_reflection and not tir:
+    Rs = rs * rs
+    Rp = rp * rp
+    if anti_reflection:
         Rs = 0.0
         Rp = 0.0
-    two_ci = 2 * ci
-    rx, ry = _unit(dx + two_ci * bnx, dy + two_ci * bny)
     eta = n1 / n2
     k = eta * ci - cos_t
     tx, ty = _unit(eta * dx + k * bnx, eta * dy + k * bny)
@@ -126,52 +133,65 @@ def mirror_direction(dx, dy, nx, ny):
     return _unit(dx - 2 * dot * nx, dy - 2 * dot * ny)
 
 
+# The children's rows, stated here once.  CF holds CHILD_FLOAT_ROWS; CI holds CHILD_INT_ROWS, then
+# those of CHILD_STREAMS that the `streams` bits ask for, in that order (the kernel writes only
+# those): the parent's row (for a ray table and the corner rules), the path node and the event
+# (for the path tallies), the birth code (for a ray table; STREAM_TABLE also asks for the
+# per-ray columns of the ray table: end code, end point, optical path) and the last edge that
+# acted (it differs from the start edge only for a ray that passed a monitor detector; without
+# one the caller takes the start row for it), and the wavelength's index (only when the trace
+# has more than one wavelength; else it is 0 and not read).  Without path tallies every ray's
+# path is its source's, so no path row is carried: the step's `path` is then per source ray.
 CHILD_FLOAT_ROWS = ("x", "y", "dx", "dy", "fs", "fp", "opl")
-CHILD_INT_ROWS = ("med", "last", "start", "wli", "root", "path", "parent row", "event", "born")
+CHILD_INT_ROWS = ("med", "start", "root")
+STREAM_PARENT, STREAM_PATHS, STREAM_TABLE, STREAM_LAST, STREAM_WAVES = 1, 2, 4, 8, 16
+CHILD_STREAMS = ((STREAM_PARENT, "parent"), (STREAM_PATHS, "path"), (STREAM_PATHS, "event"), (STREAM_TABLE, "born"),
+                 (STREAM_LAST, "last"), (STREAM_WAVES, "wli"))
+N_CHILD_INTS = len(CHILD_INT_ROWS)
 
 
-# optional integer rows of the children, asked for by `streams` bits and kept in this order
-# after the first six of CHILD_INT_ROWS: the parent's row (for a ray table and the corner rules),
-# the event (for the path tallies) and the birth code (for the ray table); the kernel writes only
-# the rows asked for
-STREAM_PARENT, STREAM_EVENT, STREAM_BORN = 1, 2, 4
-CHILD_BASE_ROWS = 6
+def child_layout(streams: int) -> dict[str, int]:
+    """Row in CI of each integer field of the children written for these `streams`."""
+    names = CHILD_INT_ROWS + tuple(name for bit, name in CHILD_STREAMS if streams & bit)
+    return {name: row for row, name in enumerate(names)}
+
+
+CHILD_LAYOUTS = tuple(child_layout(s) for s in range(1 << len(CHILD_STREAMS)))    # by `streams`
 
 
 @jit
 def child_int_rows(streams):
-    """Rows of the children's integer block for these `streams`."""
-    return CHILD_BASE_ROWS + (streams & 1) + ((streams >> 1) & 1) + ((streams >> 2) & 1)
-
-
-def child_row(streams: int, stream: int) -> int | None:
-    """Row of one optional stream in the children's integer block, None when not written."""
-    if not streams & stream:
-        return None
-    return CHILD_BASE_ROWS + sum(1 for s in (STREAM_PARENT, STREAM_EVENT) if s < stream and streams & s)
+    """Rows of the children's integer block for these `streams` (one per bit set)."""
+    return (N_CHILD_INTS + (streams & 1) + 2 * ((streams >> 1) & 1) + ((streams >> 2) & 1) + ((streams >> 3) & 1)
+            + ((streams >> 4) & 1))
 
 
 @jit
-def _put_child(CF, CI, k, f, med, last, start, wli, root, path, parent, event, born, streams):
-    """Write child k: f = (x, y, dx, dy, fs, fp, optical path), then its integers (the first six
-    of CHILD_INT_ROWS and the optional ones `streams` asks for)."""
-    for r in range(7):
+def _put_child(CF, CI, k, f, med, start, root, parent, path, event, born, last, wli, streams):
+    """Write child k: f, its CHILD_FLOAT_ROWS; med .. root, its CHILD_INT_ROWS; parent .. wli:
+    its CHILD_STREAMS, of which only those `streams` asks for are written.  (Scalars: with
+    the integers passed as tuples and written in a loop the step measured 3-7 % slower.)"""
+    for r in range(len(CHILD_FLOAT_ROWS)):
         CF[r, k] = f[r]
     CI[0, k] = med
-    CI[1, k] = last
-    CI[2, k] = start
-    CI[3, k] = wli
-    CI[4, k] = root
-    CI[5, k] = path
-    r = CHILD_BASE_ROWS
+    CI[1, k] = start
+    CI[2, k] = root
+    r = N_CHILD_INTS
     if streams & STREAM_PARENT:
         CI[r, k] = parent
         r += 1
-    if streams & STREAM_EVENT:
-        CI[r, k] = event
-        r += 1
-    if streams & STREAM_BORN:
+    if streams & STREAM_PATHS:
+        CI[r, k] = path
+        CI[r + 1, k] = event
+        r += 2
+    if streams & STREAM_TABLE:
         CI[r, k] = born
+        r += 1
+    if streams & STREAM_LAST:
+        CI[r, k] = last
+        r += 1
+    if streams & STREAM_WAVES:
+        CI[r, k] = wli
 
 
 @jit(inline="always")
@@ -226,23 +246,34 @@ EDGE_INT_ROWS = ("treat", "escape_code", "is_arc", "med_plus", "med_minus", "det
 
 @jit
 def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, TF, TI, n_flat, alpha,
-                   thr_root, W, absorbing, mc, bulk0, face0, trunc_code, eps, scale, rec, u, streams):
+                   thr_root, W, absorbing, mc, bulk0, face0, trunc_code, eps, scale, u, bins, batch_bins, batch,
+                   streams):
     """One generation after its hit search.
 
-    x .. path: ray state; t, e: the hits.  TF, TI: per-edge tables (EDGE_FLOAT_ROWS,
+    x .. path: ray state (path: per ray with STREAM_PATHS, else per source ray, read by root);
+    t, e: the hits.  TF, TI: per-edge tables (EDGE_FLOAT_ROWS,
     EDGE_INT_ROWS): normal (lines), arc centre, mirror reflectance, detector start, extent and
     length; treatment, escape bin, arc flag, media on both sides, detector id.  n_flat: index
     per (medium, wavelength); alpha: absorption per medium; thr_root: truncation threshold per
-    source ray.  W wavelengths; bulk0, face0, trunc_code: ledger bins; rec: write the per-ray
-    columns of the ray table.  u: uniform draws for the dielectric rays of a Monte Carlo
-    generation, in ray order.  streams: STREAM_* bits, the optional children's rows the caller
-    reads (unasked ones are not written).  (Plain array and scalar arguments only: numba types those fast,
+    source ray.  W wavelengths; bulk0, face0, trunc_code: ledger bins.  u: uniform draws for the
+    dielectric rays of a Monte Carlo generation, in ray order.  bins, batch_bins, batch: the
+    ledger and its sub-batch bins, to which the generation's deposits are added
+    (`book_deposits`), and each source ray's sub-batch.  streams: STREAM_* bits, the
+    optional rows the caller reads (CHILD_STREAMS; STREAM_TABLE: also the per-ray columns of the
+    ray table); unasked ones are not written.  (Plain array and scalar arguments only: numba types those fast,
     tuples slowly, and a generation of a small fan is over in well under a millisecond.)
 
     Everything is written in one pass over the rays into buffers kept in ray order; where the
     array code orders a list by kind first (deposits: bulk, escapes, detectors, absorbing faces,
     mirrors, faint children; children: passed, mirror, reflected, transmitted) the buffers are
     put in that order at the end with a stable counting sort.
+
+    Returns (end codes, PF: end points and optical paths) of the rays for a ray table; (DI:
+    deposit codes and rows, fluxes), already added to the bins, for the path tallies; the
+    children (CF, CI); the detector records (HF: position, angle, fs, fp, optical path; HI:
+    detector, ray row, wavelength index, path, source ray, front 1/0); counts (TIR, medium
+    mismatches, grazing hits, draws used).  Few arrays, since each returned one costs about
+    0.3 us to hand back to Python.
     """
     enx, eny, ecx, ecy, refl_t = TF[0], TF[1], TF[2], TF[3], TF[4]
     dsx, dsy, dex, dey, dlen = TF[5], TF[6], TF[7], TF[8], TF[9]
@@ -250,11 +281,12 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
     m = len(x)
     ne = len(treat_t) - 1
     back = 2.0 * eps
+    rec = (streams & STREAM_TABLE) != 0
+    by_ray = (streams & STREAM_PATHS) != 0     # path per ray (path tallies), else per source ray
     mr = m if rec else 0
     end = np.empty(mr, dtype=np.int64)         # per ray, for the ray table only
-    ex = np.empty(mr)
-    ey = np.empty(mr)
-    opl_end = np.empty(mr)
+    PF = np.empty((3, mr))                     # end point x, y and optical path
+    ex, ey, opl_end = PF[0], PF[1], PF[2]
     # deposits (code, flux, the ray's row): bulk (ray order), face-kind ones (escape / detector /
     # absorber / mirror, tagged)
     bcode = np.empty(m, dtype=np.int64)
@@ -271,13 +303,12 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
     # children: rows CHILD_FLOAT_ROWS / CHILD_INT_ROWS; A children (passed, mirror, reflected,
     # tagged by group) from column 0 up, B children (transmitted) from column m up, moved down
     # behind the A children at the end
-    CF = np.empty((7, 2 * m))
+    CF = np.empty((len(CHILD_FLOAT_ROWS), 2 * m))
     CI = np.empty((child_int_rows(streams), 2 * m), dtype=np.int64)
     ctag = np.empty(m, dtype=np.int64)
     # detector records, in ray order: position, angle, fs, fp, optical path; detector, ray
     HF = np.empty((5, m))
-    HI = np.empty((5, m), dtype=np.int64)
-    hfront = np.empty(m, dtype=np.bool_)
+    HI = np.empty((6, m), dtype=np.int64)
     nb = nf = nt = na = nbk = nh = 0
     n_tir = n_mismatch = n_graze = k_u = 0
     for i in range(m):
@@ -290,7 +321,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
         f_p = fp[i]
         ddx = dx[i]
         ddy = dy[i]
-        node = path[i]
+        node = path[i] if by_ray else -1      # (not written without path tallies)
         e_code = E_ESCAPED
         esc_live = esc
         if absorbing:
@@ -309,7 +340,8 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
             esc_live = esc and keep > 0
             if esc and not esc_live:
                 e_code = E_ABSORBED
-        n_here = n_flat[mi * W + wli[i]] if W > 1 else n_flat[mi]
+        wl = wli[i] if W > 1 else 0          # one wavelength: 0, and the children carry no row of it
+        n_here = n_flat[mi * W + wl] if W > 1 else n_flat[mi]
         o_end = opl[i] + n_here * L
         hx = x[i] + L * ddx
         hy = y[i] + L * ddy
@@ -346,7 +378,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
             HF[4, nh] = o_end
             HI[0, nh] = det_id[ee]
             HI[1, nh] = i
-            hfront[nh] = cosn >= 0
+            HI[5, nh] = 1 if cosn >= 0 else 0
             nh += 1
             if tt == T_DETECT_ABSORB:
                 e_code = E_DETECTED
@@ -386,7 +418,7 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
             else:
                 # dielectric: Snell, TIR, Fresnel s/p
                 m_from, m_to, ci, tir, Rs, Rp, rx, ry, tx, ty = dielectric(
-                    ddx, ddy, nx, ny, med_plus[ee], med_minus[ee], mi, wli[i], W, n_flat, tt == T_AR)
+                    ddx, ddy, nx, ny, med_plus[ee], med_minus[ee], mi, wl, W, n_flat, tt == T_AR)
                 if tir:
                     n_tir += 1
                 if m_from != mi:
@@ -422,15 +454,15 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
                 if take_b:
                     f = b_fs + b_fp
                     if f >= thr_root[root[i]] and f > 0:
-                        _put_child(CF, CI, m + nbk, (hx, hy, tx, ty, b_fs, b_fp, o_end), m_to, ed, ed,
-                                   wli[i], root[i], node, i, EV_THROUGH, B_REFRACTED, streams)
+                        _put_child(CF, CI, m + nbk, (hx, hy, tx, ty, b_fs, b_fp, o_end), m_to, ed,
+                                   root[i], i, node, EV_THROUGH, B_REFRACTED, ed, wl, streams)
                         nbk += 1
                     else:
                         nt = _book_faint(tflux, tnode, ttag, nt, f, i, G_TRANSMIT)
         if take_a:
             f = a[4] + a[5]
             if f >= thr_root[root[i]] and f > 0:
-                _put_child(CF, CI, na, a, a_med, a_last, ed, wli[i], root[i], node, i, a_ev, a_born, streams)
+                _put_child(CF, CI, na, a, a_med, ed, root[i], i, node, a_ev, a_born, a_last, wl, streams)
                 ctag[na] = a_grp
                 na += 1
             else:
@@ -440,9 +472,9 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
 
     # deposits in the array code's order
     nd = nb + nf + nt
-    dcode = np.empty(nd, dtype=np.int64)
+    DI = np.empty((2, nd), dtype=np.int64)
+    dcode, dnode = DI[0], DI[1]
     dflux = np.empty(nd)
-    dnode = np.empty(nd, dtype=np.int64)
     dcode[:nb] = bcode[:nb]
     dflux[:nb] = bflux[:nb]
     dnode[:nb] = bnode[:nb]
@@ -458,6 +490,8 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
         dcode[k] = trunc_code
         dflux[k] = tflux[j]
         dnode[k] = tnode[j]
+    if nd:
+        book_deposits(bins, batch_bins, dcode, dflux, dnode, root, batch)
     # children: A by group (passed, mirror, reflected), then B
     sorted_a = True
     for j in range(1, na):
@@ -486,9 +520,8 @@ def interface_step(x, y, dx, dy, fs, fp, opl, wli, med, root, last, path, t, e, 
     nk = na + nbk
     for j in range(nh):
         i = HI[1, j]
-        HI[2, j] = wli[i]
-        HI[3, j] = path[i]
+        HI[2, j] = wli[i] if W > 1 else 0
+        HI[3, j] = path[i] if by_ray else path[root[i]]
         HI[4, j] = root[i]
     counts = np.array([n_tir, n_mismatch, n_graze, k_u], dtype=np.int64)
-    return (end, ex, ey, opl_end), (dcode, dflux, dnode), (CF[:, :nk], CI[:, :nk]), \
-        (HF[:, :nh], HI[:, :nh], hfront[:nh]), counts
+    return (end, PF), (DI, dflux), (CF[:, :nk], CI[:, :nk]), (HF[:, :nh], HI[:, :nh]), counts

@@ -321,6 +321,17 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
              "medium_mismatches": 0, "tir_events": 0, "source_rays": n}
     budget = (limits.max_memory_mb if limits.memory_share_mb is None else limits.memory_share_mb) * 1e6
     vertex_tol2 = (VERTEX_TOL * cs.eps) ** 2
+    # the optional rows the compiled step writes (kernel_step.CHILD_STREAMS): a ray table reads
+    # the parent rows, birth codes and its per-ray columns, the path tallies the path nodes and
+    # events; the last edge differs from the start edge only past a monitor detector, the
+    # wavelength index from 0 only with several wavelengths.  Without
+    # path tallies a ray's path is its source's: the compiled step reads it per source ray
+    # (`source_path`) and the rays carry none.
+    step_streams = ((kernel_step.STREAM_PARENT | kernel_step.STREAM_TABLE if recording else 0)
+                    | (kernel_step.STREAM_PATHS if paths.enabled else 0)
+                    | (kernel_step.STREAM_LAST if K.has[T_DETECT_MONITOR] else 0)
+                    | (kernel_step.STREAM_WAVES if W > 1 else 0))
+    source_path = r.pop("path") if compiled and not paths.enabled else None
     gen = 0
     seg_rows = hit_rows = 0
 
@@ -360,15 +371,14 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         # --- nearest hit (with the corner rules, see _corner_hits), then travel to it
         t, e, at_vertex = _corner_hits(cs, K, r, hit_fn, vertex_tol2, stats, compiled)
         if compiled:
-            streams = ((kernel_step.STREAM_PARENT if recording or at_vertex is not None else 0)
-                       | (kernel_step.STREAM_EVENT if paths.enabled else 0)
-                       | (kernel_step.STREAM_BORN if recording else 0))
-            step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording, streams)
-            r, next_id, seg_rows = _after_compiled_step(
+            # the corner rules read the children's parent rows too
+            streams = step_streams | (kernel_step.STREAM_PARENT if at_vertex is not None else 0)
+            step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, streams, bins, batch_bins,
+                                  batch, source_path)
+            r, next_id, seg_rows, new_hits = _after_compiled_step(
                 cs, K, r, e, step, streams, paths, path_thr, recording, record, root_offset, next_id, seg_store,
-                seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats, batch, batch_bins)
-            if hit_store:
-                hit_rows = sum(len(v) for v in hit_store["root"])
+                seg_rows, hit_store, hist, wavelengths, at_vertex, gen, stats)
+            hit_rows += new_hits
             gen += 1
             continue
         # --- the reference array code of the step that kernel_step.interface_step compiles
@@ -685,9 +695,9 @@ def _child_paths_and_ids(out, r, pidx, start, ev, born, paths, path_thr, K, next
     """The children's path nodes (parent's path extended by the event, or "other paths" for
     faint rays) and, when a ray table is recorded (`born` given), their ids and parents.
     pidx (the parents' rows) is needed only then or without parent_path."""
-    if parent_path is None:
-        parent_path = r["path"][pidx]
     if paths.enabled:
+        if parent_path is None:
+            parent_path = r["path"][pidx]
         bright = (out["fs"] + out["fp"]) >= path_thr[out["root"]]
         if bright.all():
             out["path"] = paths.extend(parent_path, start * N_EVENT_KINDS + ev, K.n_codes)
@@ -696,8 +706,8 @@ def _child_paths_and_ids(out, r, pidx, start, ev, born, paths, path_thr, K, next
             b = np.flatnonzero(bright)
             node[b] = paths.extend(parent_path[b], start[b] * N_EVENT_KINDS + ev[b], K.n_codes)
             out["path"] = node
-    else:
-        out["path"] = parent_path
+    elif "path" in r:       # (the compiled kernel keeps no path per ray without path tallies)
+        out["path"] = r["path"][pidx] if parent_path is None else parent_path
     if born is not None:
         k = len(pidx)
         out["rid"] = np.arange(next_id, next_id + k, dtype=np.int64)
@@ -710,14 +720,19 @@ def _child_paths_and_ids(out, r, pidx, start, ev, born, paths, path_thr, K, next
 def _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen) -> int:
     """Append this generation's segments of the recorded source rays to the ray table; returns
     the number of rows added."""
-    want = record.wants(r["root"] + root_offset)
-    if want is None or not want.any():
+    root = r["root"] + root_offset if root_offset else r["root"]
+    want = record.wants(root)
+    if want is None:
         return 0
+    n_want = np.count_nonzero(want)     # (one pass, where all() and any() took two)
+    if n_want == 0:
+        return 0
+    every = n_want == len(want)         # the usual case (a GUI fan, record="all"): no selection
     cols = {"x": r["x"], "y": r["y"], "ex": ex, "ey": ey, "dx": r["dx"], "dy": r["dy"], "fs": r["fs"],
-            "fp": r["fp"], "med": r["med"], "opl": opl, "root": r["root"] + root_offset,
+            "fp": r["fp"], "med": r["med"], "opl": opl, "root": root,
             "rid": r["rid"], "parent": r["parent"], "born": r["born"], "end": end,
             "edge": e, "wli": r["wli"]}
-    if not want.all():
+    if not every:
         cols = {k: v[want] for k, v in cols.items()}
     cols["gen"] = np.full(len(cols["x"]), gen, dtype=np.int64)
     for k, v in cols.items():
@@ -728,11 +743,15 @@ def _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen
 _NO_DRAWS = np.zeros(0)
 
 
-def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recording, streams):
+def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, streams, bins, batch_bins, batch,
+                   source_path=None):
     """kernel_step.interface_step for this generation, with the Monte Carlo draws the array
     code would take (one per ray at a dielectric face, in ray order).  streams: the optional
-    children's rows to write (kernel_step.STREAM_*): parent rows for a ray table or the corner
-    rules, events for path tallies, birth codes for a ray table."""
+    rows to write (kernel_step.STREAM_*): parent rows for a ray table or the corner rules,
+    path nodes and events for path tallies, birth codes and the per-ray columns for a ray table.
+    The generation's deposits go into `bins` and `batch_bins` (per sub-batch `batch` of each
+    source ray) in the step.  source_path: each source ray's path when the rays carry none (no
+    path tallies)."""
     mc = mode == MONTE_CARLO
     u = _NO_DRAWS
     if mc:
@@ -741,58 +760,77 @@ def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, recor
         if n_di:
             u = rng.random(n_di)
     c = np.ascontiguousarray
-    state = [c(r[k]) for k in _STEP_STATE]
+    state = [c(r[k]) for k in _STEP_STATE[:-1]]
+    state.append(c(r["path"]) if source_path is None else source_path)
     return timed_first_call("interface step", lambda: kernel_step.interface_step(
         *state, t, e, K.edge_float, K.edge_int, n_flat, K.alpha, thr_root, int(W), bool(K.absorbing), mc,
         int(layout.bulk0), int(layout.face0), int(layout.trunc0 + TRUNC_FLUX), float(cs.eps), float(cs.scale),
-        bool(recording), u, int(streams)))
+        u, bins, batch_bins, batch, int(streams)))
 
 
 _STEP_STATE = ("x", "y", "dx", "dy", "fs", "fp", "opl", "wli", "med", "root", "last", "path")
 
 
 def _after_compiled_step(cs, K, r, e, step, streams, paths, path_thr, recording, record, root_offset, next_id,
-                         seg_store, seg_rows, hit_store, hist, wavelengths, at_vertex, bins, gen, stats,
-                         batch, batch_bins):
-    """Book what the compiled step produced: stats, detector records, ray table, ledger bins and
-    path deposits; returns the next generation."""
-    (end, ex, ey, opl), (dcode, dflux, dnode), children, records, counts = step
-    stats["tir_events"] += int(counts[0])
-    stats["medium_mismatches"] += int(counts[1])
-    stats["grazing_hits"] += int(counts[2])
-    HF, HI, front = records
-    if len(front):
+                         seg_store, seg_rows, hit_store, hist, wavelengths, at_vertex, gen, stats):
+    """Book what the compiled step produced (it has added the ledger deposits itself): stats,
+    detector records, ray table and path deposits; returns the next generation, next_id, the ray-table rows and the detector
+    records kept (for the memory check)."""
+    (end, PF), (DI, dflux), children, (HF, HI), counts = step
+    n_tir, n_mismatch, n_graze, _ = counts.tolist()
+    stats["tir_events"] += n_tir
+    stats["medium_mismatches"] += n_mismatch
+    stats["grazing_hits"] += n_graze
+    kept_hits = 0
+    if HI.shape[1]:
         pos, angle, hfs, hfp, hopl = HF
-        det, row, hwli, hpath, hroot = HI
+        det, row, hwli, hpath, hroot, hfront = HI
         if hist is not None:
             hist.add(det, pos, angle, hfs, hfp, hroot + root_offset, r["dx"][row], r["dy"][row])
         else:
-            for k, v in (("detector", det), ("position", pos), ("angle_deg", angle), ("front", front),
+            for k, v in (("detector", det), ("position", pos), ("angle_deg", angle), ("front", hfront.astype(bool)),
                          ("flux_s", hfs), ("flux_p", hfp), ("wavelength_nm", wavelengths[hwli]),
                          ("optical_path", hopl), ("path", hpath), ("root", hroot + root_offset)):
                 hit_store.setdefault(k, []).append(v)
+            kept_hits = HI.shape[1]
     if seg_store is not None:
+        ex, ey, opl = PF
         seg_rows += _record_segments(seg_store, record, r, root_offset, ex, ey, opl, end, e, gen)
-    if len(dcode):          # dnode: the row of the ray each deposit comes from
-        timed_first_call("ledger deposits", lambda: kernel_step.book_deposits(
-            bins, batch_bins, dcode, dflux, dnode, r["root"], batch))
-        if paths.enabled:
-            paths.deposit(dcode, r["path"][dnode], dflux)
+    # the step has added the deposits to the ledger bins (kernel_step.book_deposits); the path
+    # tallies book them by the path of the ray each comes from (row DI[1])
+    if paths.enabled and len(dflux):
+        paths.deposit(DI[0], r["path"][DI[1]], dflux)
     CF, CI = children
-    cx, cy, cdx, cdy, cfs, cfp, copl = CF
-    cmed, clast, start, cwli, croot, cpath = CI[:kernel_step.CHILD_BASE_ROWS]
-    # the optional rows, written only when asked for (see the trace loop)
-    rows = [kernel_step.child_row(streams, s)
-            for s in (kernel_step.STREAM_PARENT, kernel_step.STREAM_EVENT, kernel_step.STREAM_BORN)]
-    pidx, cev, cborn = (None if k is None else CI[k] for k in rows)
-    out = {"x": cx, "y": cy, "dx": cdx, "dy": cdy, "fs": cfs, "fp": cfp, "med": cmed, "start": start,
-           "last": clast, "opl": copl, "wli": cwli, "root": croot,
-           "corner_edge": np.full(len(cx), -1, dtype=np.int64)}
+    # the children's rows are named as the ray state's (kernel_step.CHILD_*_ROWS); of the
+    # optional ones, those asked for (see the trace loop)
+    out = dict(zip(kernel_step.CHILD_FLOAT_ROWS, CF))
+    out.update(zip(kernel_step.CHILD_INT_ROWS, CI))
+    rows = kernel_step.CHILD_LAYOUTS[streams]
+    pidx, cpath, cev, cborn, clast, cwli = (CI[rows[k]] if k in rows else None
+                                            for k in ("parent", "path", "event", "born", "last", "wli"))
+    start = out["start"]
+    out["last"] = start if clast is None else clast     # as the array code: one array for both
+    out["wli"] = _zero_rows(len(start)) if cwli is None else cwli
+    # (no "corner_edge" row: _corner_children adds one when a child gets a corner edge)
     if at_vertex is not None:
         _corner_children(cs, out, np.flatnonzero(at_vertex[pidx]))
     next_id = _child_paths_and_ids(out, r, pidx, start, cev, cborn, paths, path_thr,
                                    K, next_id, parent_path=cpath)
-    return out, next_id, seg_rows
+    return out, next_id, seg_rows, kept_hits
+
+
+_ZERO_ROWS = np.zeros(0, dtype=np.int64)
+_NO_ROWS = np.zeros(0, dtype=np.int64)
+
+
+def _zero_rows(n: int) -> np.ndarray:
+    """n zeros (the wavelength index of a one-wavelength trace): a view of one shared array, so
+    no generation clears memory for it; nothing writes into a ray's wavelength index."""
+    global _ZERO_ROWS
+    z = _ZERO_ROWS
+    if len(z) < n:      # (threads racing here each make a big enough one: harmless)
+        z = _ZERO_ROWS = np.zeros(max(n, 2 * len(z)), dtype=np.int64)
+    return z[:n]
 
 
 def _vertex_groups(cs: CompiledScene):
@@ -858,7 +896,8 @@ def _corner_hits(cs, K, r, hit_fn, tol2, stats, compiled=False):
     by _corner_children."""
     x, y, dx, dy, med = r["x"], r["y"], r["dx"], r["dy"], r["med"]
     t, e = _first_hit(cs, K, x, y, dx, dy, r["start"], hit_fn)
-    forced = np.flatnonzero(r["corner_edge"] >= 0)
+    corner_edge = r.get("corner_edge")      # None: no ray has one (compiled kernel)
+    forced = _NO_ROWS if corner_edge is None else np.flatnonzero(corner_edge >= 0)
     if compiled:        # the same test as _near_vertex, in one compiled pass
         idx = kernel_step.vertex_candidates(x, y, dx, dy, t, e, K.x0, K.y0, K.x1, K.y1, K.treat, tol2)
         if len(forced) == 0 and len(idx) == 0:
@@ -875,7 +914,7 @@ def _corner_hits(cs, K, r, hit_fn, tol2, stats, compiled=False):
     t, e = t.copy(), e.copy()
     if len(forced):
         t[forced] = 0.0
-        e[forced] = r["corner_edge"][forced]
+        e[forced] = corner_edge[forced]
         at_vertex[forced] = True
         idx = np.setdiff1d(idx, forced, assume_unique=True)
     step = CORNER_PROBE * cs.eps
@@ -965,7 +1004,10 @@ def _corner_children(cs, out, rows) -> None:
     rr = rows[off]
     edge, fitted = _corner_edge(cs, hx[off], hy[off], dx[off], dy[off], out["med"][rr], probe[off],
                                 out["start"][rr], own="skip")
-    out["corner_edge"][rr[fitted]] = edge[fitted]
+    if fitted.any():
+        if "corner_edge" not in out:        # (the compiled kernel's children come without one)
+            out["corner_edge"] = np.full(len(out["x"]), -1, dtype=np.int64)
+        out["corner_edge"][rr[fitted]] = edge[fitted]
     out["med"][rr[~fitted]] = probe[off][~fitted]
 
 
@@ -974,7 +1016,8 @@ def _truncate(r, mask, code, bins, paths, seg_store, record, root_offset, gen, w
     bins[code] += f.sum()
     per_batch = np.bincount(batch[r["root"][mask]], weights=f, minlength=SUB_BATCHES)
     batch_bins[code::len(bins)] += per_batch
-    paths.deposit(np.full(len(f), code), r["path"][mask], f)
+    if paths.enabled:
+        paths.deposit(np.full(len(f), code), r["path"][mask], f)
     if seg_store is not None:
         root = r["root"][mask] + root_offset
         want = record.wants(root)
