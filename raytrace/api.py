@@ -8,6 +8,7 @@ import numpy as np
 from .compile import CompiledScene, compile_scene
 from .catalog import valid_range_nm
 from .errors import BudgetExceeded, Problems, memory_limit_text
+from .heap import keep_freed_memory
 from .ledger import Ledger
 from .results import TraceResult
 from .scene import Scene
@@ -59,6 +60,11 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
         limits.route_flux_floor = float(route_flux_floor)
     cs = compiled or compile_scene(scene)
     check_profile_memory(scene, limits.max_memory_mb, workers)
+    chunk_size = int(chunk_size) if chunk_size else default_chunk(mode)
+    if (rays if start is None else len(start)) > chunk_size:
+        # a long trace: its sampling, generations and chunks reuse the memory they free
+        # (set before sampling: its temporaries then stay in the heap for the chunks)
+        keep_freed_memory()
     if start is None:
         need = rays * BYTES_PER_START_RAY
         if need > limits.max_memory_mb * 1e6:
@@ -78,7 +84,6 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
     if hits not in ("auto", "keep", "histogram"):
         raise ValueError(f"hits: expected one of auto, keep, histogram, found {hits!r}")
     keep_hits = hits == "keep" or (hits == "auto" and len(start) <= KEEP_HITS_MAX_RAYS)
-    chunk_size = int(chunk_size) if chunk_size else default_chunk(mode)
     raw = trace_chunked(cs, start, mode, limits, seed, recording, track_paths, len(scene.sources),
                         chunk_size=chunk_size, workers=max(1, int(workers)),
                         keep_hits=keep_hits, accel=accel, progress=progress)

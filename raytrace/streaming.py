@@ -218,12 +218,14 @@ def trace_chunked(cs: CompiledScene, start: StartRays, mode: str, limits: Limits
     else:
         results = (run_chunk(cs, start, job, mode, record, track_paths, n_sources, keep_hits, accel)
                    for job in jobs)
-    for job, raw in zip(jobs, results):
-        merger.add(raw, job.hi - job.lo, job.lo)
-        if progress is not None:
-            progress({**merger.stats, "chunks_done": merger.chunks, "chunks": len(jobs)})
-    out = merger.result()
-    if workers > 1:
-        from .tracer import release_free_memory
-        release_free_memory()     # the chunks' pieces, now joined: keep only the result
-    return out
+    try:
+        for job, raw in zip(jobs, results):
+            merger.add(raw, job.hi - job.lo, job.lo)
+            del raw               # its pieces now belong to the merger, which frees them as it joins
+            if progress is not None:
+                progress({**merger.stats, "chunks_done": merger.chunks, "chunks": len(jobs)})
+        return merger.result()
+    finally:
+        # at once, also when the merge or the progress callback (a cancel) raised: a pool stops
+        # its pending chunks, and a threaded one hands the freed memory back (run_parallel)
+        results.close()

@@ -208,49 +208,13 @@ def _scene_arrays(cs: CompiledScene) -> _SceneArrays:
     return cache["tracer"]
 
 
-_TUNED = False
-
-
-def tune_allocator() -> None:
-    """Keep freed memory in the process instead of handing it back to the system at once.
-
-    A generation allocates and frees many arrays of a few hundred kB to a few MB; with glibc's
-    defaults each is a fresh mapping whose pages fault in again on first touch, which costs as
-    much as the arithmetic on a virtual machine.  Raising the mmap and trim thresholds
-    (mallopt, glibc only; elsewhere nothing happens) makes repeated traces reuse the memory.
-    One malloc arena for all threads: chunks traced on threads (`parallel`) then reuse each
-    other's freed generation arrays instead of each growing its own arena page by page (on the
-    1e6-ray light pipe on 2 threads: about 40 % fewer page faults, a third less system time)."""
-    global _TUNED
-    if _TUNED:
-        return
-    _TUNED = True
-    try:
-        import ctypes
-        import sys
-        if sys.platform.startswith("linux"):
-            libc = ctypes.CDLL("libc.so.6")
-            libc.mallopt(-3, 32 * 1024 * 1024)    # M_MMAP_THRESHOLD: the largest glibc allows
-            libc.mallopt(-1, 128 * 1024 * 1024)   # M_TRIM_THRESHOLD
-            libc.mallopt(-8, 1)                   # M_ARENA_MAX
-    except (OSError, AttributeError):
-        pass
-
-
-def release_free_memory() -> None:
-    """Hand the heap's freed pages back to the system (glibc malloc_trim; elsewhere nothing).
-
-    A threaded trace runs in this process, so what earlier traces freed but the raised trim
-    threshold kept (and the gaps between kept results) would add to the next one's peak: the
-    1e7-ray window right after the 1e6-ray light pipe in one bench process peaked at 2,010 MB
-    without this (after each threaded trace and before the next), 1,710 MB with it."""
-    try:
-        import ctypes
-        import sys
-        if sys.platform.startswith("linux"):
-            ctypes.CDLL("libc.so.6").malloc_trim(0)
-    except (OSError, AttributeError):
-        pass
+def prepare_scene(cs: CompiledScene, accel: str = "auto") -> None:
+    """Build the lookups a trace caches on the compiled scene (the nearest-hit method and its
+    grid, the tracer's edge tables, the corner rules' vertex groups) before threads share the
+    scene: each is otherwise built on first use, and two chunk threads could build one at once."""
+    hit_function(cs, accel)
+    _scene_arrays(cs)
+    _vertex_groups(cs)
 
 
 def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
@@ -273,7 +237,6 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     hit_fn = hit_fn or hit_function(cs, accel)
     compiled = kernel.compiled()
     compile_before = sum(kernel.COMPILE_SECONDS.values())
-    tune_allocator()
     rng = np.random.default_rng(seed)
     t0 = time.perf_counter()
     K = _scene_arrays(cs)
