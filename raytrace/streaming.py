@@ -25,11 +25,12 @@ from .tracer import (MAX_PATH_NODES, N_EVENT_KINDS, RawTrace, Recording, Limits,
 
 # Source rays per chunk, so that the arrays of a generation stay in the CPU cache.  A branching
 # trace's figures do not depend on the chunk size (only the order of the ledger's sums, in the
-# last bit), so it takes the size that is fastest: one worker on the light pipe costs 74 ns of
-# CPU per event at 5,000-20,000 rays against 88 at 50,000 and 111 at 100,000, and two threads
-# on 1e6 rays fault in fewer fresh pages (see DEVELOPERS.md, "Streaming").  A Monte Carlo
-# trace draws its random numbers per chunk (seed [seed, chunk index]), so its chunk size is part
-# of its result: it stays at 50,000, which the published figures and tests were traced with.
+# last bit; its detector records and path nodes do come in chunk order), so it takes the size
+# that is fastest: one worker on the light pipe costs 74 ns of CPU per event at 5,000-20,000
+# rays against 88 at 50,000 and 111 at 100,000, and two threads on 1e6 rays fault in fewer
+# fresh pages (see DEVELOPERS.md, "Streaming").  A Monte Carlo trace draws its random numbers
+# per chunk (seed [seed, chunk index]), so its chunk size is part of its result: it stays at
+# 50,000, which the published figures and tests were traced with.
 BRANCHING_CHUNK = 20_000
 MONTE_CARLO_CHUNK = 50_000
 DEFAULT_CHUNK = MONTE_CARLO_CHUNK     # the Monte Carlo default, kept for callers of the old name
