@@ -95,9 +95,9 @@ class GrowingColumn:
         self.n = 0
 
     def extend(self, pieces: list[np.ndarray], expected_total: int) -> None:
-        add = sum(len(p) for p in pieces)
         if not pieces:
             return
+        add = sum(len(p) for p in pieces)
         if self.data is None:
             dtype = np.result_type(*pieces)
             self.data = np.empty(max(add, int(expected_total * self.MARGIN)), dtype=dtype)
