@@ -8,11 +8,12 @@ import numpy as np
 from .compile import CompiledScene, compile_scene
 from .catalog import valid_range_nm
 from .errors import BudgetExceeded, Problems, memory_limit_text
+from .heap import keep_freed_memory
 from .ledger import Ledger
 from .results import TraceResult
 from .scene import Scene
 from .sources import StartRays, band_span_nm, band_warnings, sample_sources
-from .streaming import DEFAULT_CHUNK, trace_chunked
+from .streaming import default_chunk, trace_chunked
 from .tracer import Limits, Recording
 
 # Above this many source rays, detector hits are binned into histograms by default rather
@@ -36,8 +37,8 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
         `record_count`; with even sampling that is one end of a fan).
     sampling: "even" or "random" overrides each source's own sampling style.
     workers: processes to trace on (chunks spread over a pool); the result does not depend on it.
-    chunk_size: source rays traced together (default 50,000); the ledger of a Monte Carlo trace
-        depends on it through the per-chunk seeds, never on `workers`.
+    chunk_size: source rays traced together (default 20,000 branching, 50,000 Monte Carlo); the
+        ledger of a Monte Carlo trace depends on it through the per-chunk seeds, never on `workers`.
     max_memory_mb: memory the trace's arrays may use (default: the scene's trace.max_memory_mb,
         4096); the trace stops with BudgetExceeded before it would go past it.
     accel: nearest-hit method, "auto" (default), "plain", "sweep" or "grid"; all give the same result.
@@ -59,6 +60,11 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
         limits.route_flux_floor = float(route_flux_floor)
     cs = compiled or compile_scene(scene)
     check_profile_memory(scene, limits.max_memory_mb, workers)
+    chunk_size = int(chunk_size) if chunk_size else default_chunk(mode)
+    if (rays if start is None else len(start)) > chunk_size:
+        # a long trace: its sampling, generations and chunks reuse the memory they free
+        # (set before sampling: its temporaries then stay in the heap for the chunks)
+        keep_freed_memory()
     if start is None:
         need = rays * BYTES_PER_START_RAY
         if need > limits.max_memory_mb * 1e6:
@@ -79,7 +85,7 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
         raise ValueError(f"hits: expected one of auto, keep, histogram, found {hits!r}")
     keep_hits = hits == "keep" or (hits == "auto" and len(start) <= KEEP_HITS_MAX_RAYS)
     raw = trace_chunked(cs, start, mode, limits, seed, recording, track_paths, len(scene.sources),
-                        chunk_size=chunk_size or DEFAULT_CHUNK, workers=max(1, int(workers)),
+                        chunk_size=chunk_size, workers=max(1, int(workers)),
                         keep_hits=keep_hits, accel=accel, progress=progress)
     ledger = Ledger(cs, raw.bins, raw.source_flux, batch_bins=raw.batch_bins, batch_flux=raw.batch_flux)
     limit_settings = asdict(limits)
@@ -88,7 +94,7 @@ def trace(scene: Scene, rays: int | None = None, mode: str | None = None, seed: 
                 "sampling": sampling or "per source", "source_names": [src.name for src in scene.sources],
                 "source_samplings": [sampling or src.sampling for src in scene.sources],
                 "source_positions": [list(src.position) for src in scene.sources],
-                "workers": max(1, int(workers)), "chunk_size": chunk_size or DEFAULT_CHUNK,
+                "workers": max(1, int(workers)), "chunk_size": chunk_size,
                 "hits": "keep" if keep_hits else "histogram",
                 "record": {"mode": recording.mode, "count": recording.count},
                 # detectors give per-wavelength figures only for line spectra

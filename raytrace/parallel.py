@@ -15,9 +15,9 @@ import multiprocessing as mp
 import os
 from concurrent.futures import ProcessPoolExecutor, ThreadPoolExecutor
 
-from . import kernel
-from .accel import hit_function
+from . import heap, kernel
 from .streaming import run_chunk
+from .tracer import prepare_scene
 
 _STATE: dict = {}
 
@@ -83,14 +83,19 @@ def run_parallel(cs, start, jobs, mode, record, track_paths, n_sources, keep_hit
     if pool not in POOLS:
         raise ValueError(f"pool: expected one of {', '.join(POOLS)}, found {pool!r}")
     args = (mode, record, track_paths, n_sources, keep_hits, accel)
-    hit_function(cs, accel)            # build the grid once, before the workers start
+    prepare_scene(cs, accel)           # the scene's lookups, built once before the workers start
     n_workers = min(capped_workers(workers), len(jobs))
     if pool == "threads":
-        from .tracer import release_free_memory, tune_allocator
-        tune_allocator()               # one malloc arena, set before the threads first allocate
-        release_free_memory()          # what earlier traces freed does not count against this one
-        with ThreadPoolExecutor(max_workers=n_workers, thread_name_prefix="raytrace-chunk") as ex:
-            yield from ex.map(lambda job: run_chunk(cs, start, job, *args), jobs)
+        heap.one_arena()               # set before the threads first allocate
+        heap.release_free_memory()     # what earlier traces freed does not count against this one
+        try:
+            with ThreadPoolExecutor(max_workers=n_workers, thread_name_prefix="raytrace-chunk") as ex:
+                yield from ex.map(lambda job: run_chunk(cs, start, job, *args), jobs)
+        finally:
+            # closed by trace_chunked once the chunks are merged, or when the trace stops early
+            # (an error, a cancel from the progress callback): the pending chunks are cancelled
+            # (Executor.map) and the running ones finished before the memory is handed back
+            heap.release_free_memory()
         return
     methods = mp.get_all_start_methods()
     if "fork" in methods:
@@ -100,7 +105,9 @@ def run_parallel(cs, start, jobs, mode, record, track_paths, n_sources, keep_hit
     else:
         ctx = mp.get_context("spawn")
         init, initargs = _init_worker, (cs, start, args)
-    with ProcessPoolExecutor(max_workers=n_workers, mp_context=ctx, initializer=init,
-                             initargs=initargs) as ex:
-        yield from ex.map(_work, jobs)
-    _STATE.clear()
+    try:
+        with ProcessPoolExecutor(max_workers=n_workers, mp_context=ctx, initializer=init,
+                                 initargs=initargs) as ex:
+            yield from ex.map(_work, jobs)
+    finally:
+        _STATE.clear()

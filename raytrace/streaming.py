@@ -23,7 +23,23 @@ from .sources import StartRays
 from .tracer import (MAX_PATH_NODES, N_EVENT_KINDS, RawTrace, Recording, Limits, merge_histograms,
                      trace_rays)
 
-DEFAULT_CHUNK = 50_000        # source rays per chunk: arrays of a generation stay in the CPU cache
+# Source rays per chunk, so that the arrays of a generation stay in the CPU cache.  A branching
+# trace's figures do not depend on the chunk size (only the order of the ledger's sums, in the
+# last bit; its detector records and path nodes do come in chunk order), so it takes the size
+# that is fastest: one worker on the light pipe costs 74 ns of CPU per event at 5,000-20,000
+# rays against 88 at 50,000 and 111 at 100,000, and two threads on 1e6 rays fault in fewer
+# fresh pages (see DEVELOPERS.md, "Streaming").  A Monte Carlo trace draws its random numbers
+# per chunk (seed [seed, chunk index]), so its chunk size is part of its result: it stays at
+# 50,000, which the published figures and tests were traced with.
+BRANCHING_CHUNK = 20_000
+MONTE_CARLO_CHUNK = 50_000
+DEFAULT_CHUNK = MONTE_CARLO_CHUNK     # the Monte Carlo default, kept for callers of the old name
+
+
+def default_chunk(mode: str) -> int:
+    """Source rays per chunk when the caller does not say: see BRANCHING_CHUNK."""
+    from .tracer import MONTE_CARLO
+    return MONTE_CARLO_CHUNK if mode == MONTE_CARLO else BRANCHING_CHUNK
 
 
 @dataclass
@@ -59,15 +75,57 @@ def run_chunk(cs: CompiledScene, start: StartRays, job: ChunkJob, mode: str, rec
         rec = Recording()           # no ray of this chunk is wanted in the table
     return trace_rays(cs, sub, mode=mode, limits=job.limits, seed=job.seed, record=rec,
                       track_paths=track_paths, n_sources=n_sources, accel=accel,
-                      root_offset=job.lo, keep_hits=keep_hits)
+                      root_offset=job.lo, keep_hits=keep_hits, join_hits=False)
+
+
+class GrowingColumn:
+    """One field of the detector records, written once, in place, as the chunks arrive.
+
+    Joining pieces at the end writes every record a second time into fresh memory, and on a
+    virtual machine a fresh page costs more than the copy: joining the 1e6-ray light pipe's
+    4.1 M records took 0.7 s, in the one thread, after the chunks were done.  Here the array
+    is sized from the first chunks' records per source ray (an estimate, with a margin; the
+    pages past the end are never touched) and grown by realloc when that falls short, which
+    for a large array moves the pages instead of copying them; at the end it is cut to length."""
+
+    MARGIN = 1.05
+
+    def __init__(self):
+        self.data: np.ndarray | None = None
+        self.n = 0
+
+    def extend(self, pieces: list[np.ndarray], expected_total: int) -> None:
+        if not pieces:
+            return
+        add = sum(len(p) for p in pieces)
+        if self.data is None:
+            dtype = np.result_type(*pieces)
+            self.data = np.empty(max(add, int(expected_total * self.MARGIN)), dtype=dtype)
+        elif any(p.dtype != self.data.dtype for p in pieces):      # never seen; as concatenate would
+            self.data = self.data[:self.n].astype(np.result_type(self.data, *pieces))
+        if self.n + add > len(self.data):
+            self.data.resize(max(self.n + add, int(expected_total * self.MARGIN), 2 * len(self.data)),
+                             refcheck=False)        # no views of it exist until result()
+        for p in pieces:
+            self.data[self.n:self.n + len(p)] = p
+            self.n += len(p)
+
+    def result(self) -> np.ndarray:
+        if self.data is None:
+            return np.zeros(0)
+        self.data.resize(self.n, refcheck=False)
+        out, self.data = self.data, None
+        return out
 
 
 class Merger:
     """Adds chunk results in chunk order."""
 
     def __init__(self, cs: CompiledScene, n_sources: int, track_paths: bool, max_memory_mb: float = 4096.0,
-                 kept_mb: float | None = None):
+                 kept_mb: float | None = None, n_rays: int = 0):
         self.cs = cs
+        self.n_rays = n_rays          # source rays of the whole trace: sizes the detector records
+        self.rays_done = 0
         self.max_memory_mb = max_memory_mb
         self.kept_mb = max_memory_mb if kept_mb is None else kept_mb   # what merged results may use
         self.kept_bytes = 0
@@ -77,7 +135,7 @@ class Merger:
         self.batch_bins = None       # per sub-batch of source rays (uncertainty)
         self.batch_flux = None
         self.source_flux = 0.0
-        self.hits: dict[str, list[np.ndarray]] = {}
+        self.hits: dict[str, GrowingColumn] = {}
         self.segments: dict[str, list[np.ndarray]] | None = None
         self.histograms = None
         self.wavelengths: list[np.ndarray] = []
@@ -90,7 +148,7 @@ class Merger:
         from .errors import BudgetExceeded, memory_limit_text
         from .tracer import BYTES_PER_HIT, BYTES_PER_SEGMENT_ROW, KEPT_COPIES
         self.chunks += 1
-        self.kept_bytes += BYTES_PER_HIT * len(raw.hits.get("root", ())) + \
+        self.kept_bytes += BYTES_PER_HIT * sum(len(v) for v in raw.hits.get("root", ())) + \
             BYTES_PER_SEGMENT_ROW * (len(raw.segments["ray_id"]) if raw.segments is not None else 0)
         need = KEPT_COPIES * self.kept_bytes      # the pieces and, at the end, their joined copy
         if need > self.kept_mb * 1e6:
@@ -109,10 +167,19 @@ class Merger:
             b, node, f = _flux_arrays(raw.path_flux)
             if len(b):
                 self.trie.deposit(b, remap[node], f)
-        for k, v in raw.hits.items():
+        # a chunk hands over its per-generation pieces (run_chunk: join_hits=False), written
+        # straight into the merged records instead of joined per chunk and then again here
+        # (4.1 M records, 330 MB, on the 1e6-ray light pipe: each join fills fresh memory)
+        self.rays_done += n_source_rays
+        for k, pieces in raw.hits.items():
             if k == "path" and remap is not None:
-                v = remap[v]
-            self.hits.setdefault(k, []).append(v)
+                pieces = [remap[v] for v in pieces]
+            column = self.hits.setdefault(k, GrowingColumn())
+            rows = column.n + sum(len(p) for p in pieces)
+            # the whole trace's records at this chunk's rate, at most what the memory limit allows
+            expected = min(rows * self.n_rays // max(self.rays_done, 1),
+                           int(self.kept_mb * 1e6 / (KEPT_COPIES * BYTES_PER_HIT)))
+            column.extend(pieces, expected)
         self.histograms = merge_histograms(self.histograms, raw.histograms)
         if raw.segments is not None:
             if self.segments is None:
@@ -143,9 +210,10 @@ class Merger:
         segments = None
         if self.segments is not None:
             segments = {k: np.concatenate(v) for k, v in self.segments.items()}
+        hits = {k: column.result() for k, column in self.hits.items()}
+        self.hits = {}
         return RawTrace(
-            bins=self.bins, source_flux=self.source_flux, segments=segments,
-            hits={k: np.concatenate(v) for k, v in self.hits.items()},
+            bins=self.bins, source_flux=self.source_flux, segments=segments, hits=hits,
             path_parent=self.trie.parent.copy(), path_code=self.trie.code.copy(),
             path_flux=self.trie.flux_dict() if self.trie.enabled else {}, wavelengths=wl, stats=stats,
             histograms=self.histograms, batch_bins=self.batch_bins, batch_flux=self.batch_flux)
@@ -191,19 +259,22 @@ def trace_chunked(cs: CompiledScene, start: StartRays, mode: str, limits: Limits
     share = max(free_mb, 0.0) / (2 * running)     # half for the chunks in flight, half for the merged
     for job in jobs:
         job.limits = replace(job.limits, memory_share_mb=share)
-    merger = Merger(cs, n_sources, track_paths, limits.max_memory_mb, kept_mb=max(free_mb, 0.0) / 2)
+    merger = Merger(cs, n_sources, track_paths, limits.max_memory_mb, kept_mb=max(free_mb, 0.0) / 2,
+                    n_rays=len(start))
     if workers > 1 and len(jobs) > 1:
         from .parallel import run_parallel
         results = run_parallel(cs, start, jobs, mode, record, track_paths, n_sources, keep_hits, accel, workers)
     else:
         results = (run_chunk(cs, start, job, mode, record, track_paths, n_sources, keep_hits, accel)
                    for job in jobs)
-    for job, raw in zip(jobs, results):
-        merger.add(raw, job.hi - job.lo, job.lo)
-        if progress is not None:
-            progress({**merger.stats, "chunks_done": merger.chunks, "chunks": len(jobs)})
-    out = merger.result()
-    if workers > 1:
-        from .tracer import release_free_memory
-        release_free_memory()     # the chunks' pieces, now joined: keep only the result
-    return out
+    try:
+        for job, raw in zip(jobs, results):
+            merger.add(raw, job.hi - job.lo, job.lo)
+            del raw               # its pieces are copied into the merged records: free them now
+            if progress is not None:
+                progress({**merger.stats, "chunks_done": merger.chunks, "chunks": len(jobs)})
+        return merger.result()
+    finally:
+        # at once, also when the merge or the progress callback (a cancel) raised: a pool stops
+        # its pending chunks, and a threaded one hands the freed memory back (run_parallel)
+        results.close()

@@ -208,63 +208,28 @@ def _scene_arrays(cs: CompiledScene) -> _SceneArrays:
     return cache["tracer"]
 
 
-_TUNED = False
-
-
-def tune_allocator() -> None:
-    """Keep freed memory in the process instead of handing it back to the system at once.
-
-    A generation allocates and frees many arrays of a few hundred kB to a few MB; with glibc's
-    defaults each is a fresh mapping whose pages fault in again on first touch, which costs as
-    much as the arithmetic on a virtual machine.  Raising the mmap and trim thresholds
-    (mallopt, glibc only; elsewhere nothing happens) makes repeated traces reuse the memory.
-    One malloc arena for all threads: chunks traced on threads (`parallel`) then reuse each
-    other's freed generation arrays instead of each growing its own arena page by page (on the
-    1e6-ray light pipe on 2 threads: about 40 % fewer page faults, a third less system time)."""
-    global _TUNED
-    if _TUNED:
-        return
-    _TUNED = True
-    try:
-        import ctypes
-        import sys
-        if sys.platform.startswith("linux"):
-            libc = ctypes.CDLL("libc.so.6")
-            libc.mallopt(-3, 32 * 1024 * 1024)    # M_MMAP_THRESHOLD: the largest glibc allows
-            libc.mallopt(-1, 128 * 1024 * 1024)   # M_TRIM_THRESHOLD
-            libc.mallopt(-8, 1)                   # M_ARENA_MAX
-    except (OSError, AttributeError):
-        pass
-
-
-def release_free_memory() -> None:
-    """Hand the heap's freed pages back to the system (glibc malloc_trim; elsewhere nothing).
-
-    A threaded trace runs in this process, so what earlier traces freed but the raised trim
-    threshold kept (and the gaps between kept results) would add to the next one's peak: the
-    1e7-ray window right after the 1e6-ray light pipe in one bench process peaked at 2,010 MB
-    without this (after each threaded trace and before the next), 1,710 MB with it."""
-    try:
-        import ctypes
-        import sys
-        if sys.platform.startswith("linux"):
-            ctypes.CDLL("libc.so.6").malloc_trim(0)
-    except (OSError, AttributeError):
-        pass
+def prepare_scene(cs: CompiledScene, accel: str = "auto") -> None:
+    """Build the lookups a trace caches on the compiled scene (the nearest-hit method and its
+    grid, the tracer's edge tables, the corner rules' vertex groups) before threads share the
+    scene: each is otherwise built on first use, and two chunk threads could build one at once."""
+    hit_function(cs, accel)
+    _scene_arrays(cs)
+    _vertex_groups(cs)
 
 
 def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
                limits: Limits | None = None, seed: int | list[int] = 1, record: Recording | None = None,
                track_paths: bool = True, hit_fn=None, n_sources: int | None = None,
                progress=None, accel: str = "auto", root_offset: int = 0,
-               keep_hits: bool = True) -> RawTrace:
+               keep_hits: bool = True, join_hits: bool = True) -> RawTrace:
     """Trace `start` rays through the compiled scene and return the raw tallies.
 
     hit_fn: a nearest-hit function (default: the fastest exact method for the scene, see
     `accel.hit_function`; `intersect.nearest_hit` is the plain reference).  root_offset: the
     index of start[0] among all source rays of a chunked trace (recording and hit records use
     global source-ray numbers).  keep_hits=False bins detector hits into histograms instead
-    of keeping one record per hit."""
+    of keeping one record per hit.  join_hits=False returns each detector-record field as its
+    list of per-generation pieces (`streaming.Merger` joins all chunks' pieces at once)."""
     if mode not in MODES:
         raise ValueError(f"mode: expected one of {', '.join(MODES)}, found {mode!r}")
     limits = limits or Limits()
@@ -272,7 +237,6 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     hit_fn = hit_fn or hit_function(cs, accel)
     compiled = kernel.compiled()
     compile_before = sum(kernel.COMPILE_SECONDS.values())
-    tune_allocator()
     rng = np.random.default_rng(seed)
     t0 = time.perf_counter()
     K = _scene_arrays(cs)
@@ -315,7 +279,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     batch_bins = np.zeros(SUB_BATCHES * layout.size)
     next_id = n + root_offset
     seg_store: dict[str, list[np.ndarray]] | None = {} if recording else None
-    hit_store: dict[str, list[np.ndarray]] = {}
+    hit_store = _OwnedPieces()          # field -> per-generation pieces of the detector records
     hist = _Histograms(cs) if not keep_hits else None
     stats = {"segments": 0, "generations": 0, "vertex_hits": 0, "grazing_hits": 0,
              "medium_mismatches": 0, "tir_events": 0, "source_rays": n}
@@ -514,11 +478,30 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         segments = None
     return RawTrace(
         bins=bins, source_flux=source_flux, segments=segments,
-        hits={k: np.concatenate(v) for k, v in hit_store.items()},
+        hits={k: np.concatenate(v) if join_hits else list(v) for k, v in hit_store.items()},
         path_parent=paths.parent.copy(), path_code=paths.code.copy(),
         path_flux=paths.flux_dict() if paths.enabled else {}, wavelengths=wavelengths, stats=stats,
         histograms=hist.to_dict() if hist is not None else None,
         batch_bins=batch_bins.reshape(SUB_BATCHES, layout.size), batch_flux=batch_flux)
+
+
+class _OwnList(list):
+    """Pieces that own their memory: a view is copied as it is added.  The compiled step's
+    detector records are rows of buffers sized for all the generation's live rays (16 times
+    the records on the light pipe); kept as views until the merge, every generation's whole
+    buffers would stay alive (3.9 GB instead of 1.0 GB on the 1e6-ray light pipe)."""
+
+    def append(self, v) -> None:
+        super().append(v.copy() if isinstance(v, np.ndarray) and v.base is not None else v)
+
+
+class _OwnedPieces(dict):
+    """field -> _OwnList: `store.setdefault(k, []).append(v)` keeps a compact copy of `v`."""
+
+    def setdefault(self, key, default=None):
+        if key not in self:
+            self[key] = _OwnList()
+        return self[key]
 
 
 def _share_text(limits: Limits) -> str:

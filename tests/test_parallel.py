@@ -4,6 +4,8 @@ common practice: chunk seeds come from (trace seed, chunk index) and chunks are 
 chunk order, so the number of workers cannot change anything: ledgers, detector hits, path
 tries and ray tables are compared for exact equality.
 """
+import multiprocessing
+import threading
 from pathlib import Path
 
 import numpy as np
@@ -51,15 +53,32 @@ def pool(request, monkeypatch):
     return request.param
 
 
+def chunk_threads() -> list[threading.Thread]:
+    return [t for t in threading.enumerate() if t.name.startswith("raytrace-chunk")]
+
+
+def pool_watch(seen: list):
+    """A progress callback (called in this thread after each merged chunk) noting the worker
+    processes and chunk threads alive at that moment."""
+    return lambda stats: seen.append((len(multiprocessing.active_children()), len(chunk_threads())))
+
+
 @pytest.mark.parametrize("pool", ["threads", "processes"], indirect=True)
 @pytest.mark.parametrize("mode", ["branching", "monte_carlo"])
 def test_thread_and_process_pools_equal_one_worker(mode, pool):
     """Both pool kinds, with the compiled kernel, against one worker: the same ledger, the same
-    detector records and the same tallies."""
+    detector records and the same tallies; and the pool asked for is the one that ran."""
     scene = load_scene(SAMPLES["light-pipe-90"])
+    seen = []
     with kernel.using("numba"):
         one = trace(scene, rays=3000, mode=mode, chunk_size=400, workers=1, seed=4)
-        two = trace(scene, rays=3000, mode=mode, chunk_size=400, workers=2, seed=4)
+        two = trace(scene, rays=3000, mode=mode, chunk_size=400, workers=2, seed=4, progress=pool_watch(seen))
+    assert len(seen) == 8       # one call per chunk
+    if pool == "threads":
+        assert all(procs == 0 and threads >= 1 for procs, threads in seen), seen
+    else:
+        assert all(procs >= 1 and threads == 0 for procs, threads in seen), seen
+    assert not chunk_threads() and not multiprocessing.active_children()   # all ended with the trace
     np.testing.assert_array_equal(one.ledger.bins, two.ledger.bins)
     assert sorted(one.raw.hits) == sorted(two.raw.hits) and len(one.raw.hits["root"]) > 0
     for k in one.raw.hits:
@@ -105,4 +124,72 @@ def test_threaded_compiled_chunks_match_the_array_reference(name, mode):
         else:
             np.testing.assert_array_equal(b, a, err_msg=k)
     np.testing.assert_array_equal(got.raw.path_code, ref.raw.path_code)
-    assert dict(got.raw.path_flux).keys() == dict(ref.raw.path_flux).keys()
+    pg, pr = dict(got.raw.path_flux), dict(ref.raw.path_flux)
+    assert pg.keys() == pr.keys() and len(pr) > 0
+    for key in pr:
+        assert pg[key] == pytest.approx(pr[key], rel=1e-12, abs=0), key
+
+
+class Stop(Exception):
+    """What a caller's progress callback raises to cancel a trace (as the desktop app does)."""
+
+
+@pytest.mark.parametrize("pool", ["threads", "processes"], indirect=True)
+def test_a_cancelled_parallel_trace_stops_its_workers(pool):
+    """A progress callback that raises stops the trace at once: the exception reaches the
+    caller, and no chunk thread or worker process is left tracing the remaining chunks
+    behind its back, even while the caller still holds the exception (and its traceback)."""
+    scene = load_scene(SAMPLES["light-pipe-90"])
+    seen = []
+
+    def progress(stats):
+        pool_watch(seen)(stats)
+        if stats["chunks_done"] >= 2:
+            raise Stop
+
+    with kernel.using("numba"):
+        with pytest.raises(Stop) as info:
+            trace(scene, rays=60_000, chunk_size=1000, workers=2, progress=progress)
+    assert len(seen) == 2 and all(procs + threads >= 1 for procs, threads in seen), seen
+    assert info.value.__traceback__ is not None
+    assert not chunk_threads() and not multiprocessing.active_children()
+
+
+def test_heap_settings_only_for_the_traces_that_gain_from_them():
+    """glibc cannot take its heap settings back, so a short one-worker trace (the desktop
+    app's) changes none; a trace of more than one chunk keeps freed memory; a threaded one
+    also gets the one arena (raytrace/heap.py).  In a fresh process, so no earlier test counts."""
+    import subprocess
+    import sys
+    code = "\n".join([
+        "from raytrace import heap, kernel, trace",
+        "from raytrace.scene_io import load_scene",
+        f"scene = load_scene({str(SAMPLES['light-pipe-90'])!r})",
+        "print(heap._libc() is not None)",
+        "with kernel.using('numba'):",
+        "    trace(scene, rays=2000, workers=1); print(sorted(heap._done))",
+        "    trace(scene, rays=3000, chunk_size=1000, workers=1); print(sorted(heap._done))",
+        "    trace(scene, rays=3000, chunk_size=1000, workers=2); print(sorted(heap._done))"])
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout.split("\n")
+    if out[0] != "True":
+        pytest.skip("not glibc: the heap settings do nothing here")
+    assert out[1:4] == ["[]", "['thresholds']", "['arena', 'thresholds']"]
+
+
+def test_scene_lookups_are_built_before_the_chunk_threads_start(monkeypatch):
+    """The lookups a trace caches on the compiled scene are built once, before the threads
+    share it, not by whichever chunk thread comes first (two could build one at once)."""
+    from raytrace.compile import compile_scene
+    scene = load_scene(SAMPLES["light-pipe-90"])
+    cs = compile_scene(scene)
+    seen = []
+    original = parallel.run_chunk
+
+    def spy(cs_, *args):
+        seen.append(set(cs_.__dict__.get("_accel_cache", {})))
+        return original(cs_, *args)
+
+    monkeypatch.setattr(parallel, "run_chunk", spy)
+    with kernel.using("numba"):
+        trace(scene, rays=3000, chunk_size=1000, workers=2, compiled=cs)
+    assert len(seen) == 3 and all({"tracer", "vertex_groups"} <= keys for keys in seen), seen

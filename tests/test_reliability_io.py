@@ -390,6 +390,46 @@ def test_sigterm_to_the_parent_ends_the_pool_workers(scene_file, tmp_path, comma
                 os.kill(k, signal.SIGKILL)
 
 
+@pytest.mark.skipif(not Path("/proc/self/task").exists(), reason="reads the process's threads from /proc")
+@pytest.mark.parametrize("sig", ["SIGINT", "SIGTERM"])
+def test_a_threaded_trace_stops_on_a_signal(tmp_path, sig):
+    """The compiled kernel traces chunks on threads of the one process: Ctrl-C (SIGINT) stops it
+    with exit status 130 and "interrupted", no traceback, once the running chunks end; SIGTERM
+    ends it at once (Python's default action, status -15).  Either way nothing is written."""
+    import signal
+    import subprocess
+    import time
+    if len(os.sched_getaffinity(0)) < 2:
+        pytest.skip("needs two usable CPUs for two chunk threads")
+    out = tmp_path / "t.json"
+    proc = subprocess.Popen([sys.executable, "-m", "raytrace.cli", "trace", str(SAMPLES / "light-pipe-90.json"),
+                             "--rays", "3000000", "--workers", "2", "--json", str(out), "--quiet"],
+                            stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True,
+                            # one thread per maths library: the only others are the chunk threads
+                            env={**os.environ, "RAYTRACE_KERNEL": "numba", "OPENBLAS_NUM_THREADS": "1",
+                                 "OMP_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"})
+    try:
+        deadline = time.monotonic() + 120
+        threads = 0
+        while time.monotonic() < deadline and threads < 3 and proc.poll() is None:
+            time.sleep(0.2)
+            threads = len(list(Path(f"/proc/{proc.pid}/task").iterdir()))
+        assert threads >= 3, "the chunk threads did not start"     # the main thread and two chunk threads
+        time.sleep(0.5)
+        proc.send_signal(getattr(signal, sig))
+        _, err = proc.communicate(timeout=60)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+            proc.wait()
+    if sig == "SIGINT":
+        assert proc.returncode == 130, err
+        assert "interrupted" in err and "Traceback" not in err, err
+    else:
+        assert proc.returncode == -signal.SIGTERM, err
+    assert not out.exists()
+
+
 # ----------------------------------------------------------------------------- 8: memory limit
 
 PIPE = SAMPLES / "light-pipe-90.json"

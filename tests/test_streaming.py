@@ -100,3 +100,22 @@ def test_monte_carlo_chunked_is_repeatable_and_close_to_one_chunk():
         p = c.efficiency(det.name)
         se = np.sqrt(max(p * (1 - p), 1e-6) / 20000)
         assert abs(a.efficiency(det.name) - p) < 4 * se
+
+
+@pytest.mark.parametrize("expected", [0, 10, 1000, 10**6])
+@pytest.mark.parametrize("dtype", [np.float64, np.int64, np.bool_])
+def test_growing_column_equals_numpy_concatenate(expected, dtype):
+    """The merged detector records are written in place (streaming.GrowingColumn), sized from an
+    estimate that may be too low (grown by realloc) or too high (cut at the end): the result is
+    np.concatenate's, the same values, order, dtype and length.  Seed 2, 40 pieces of 0-400 rows."""
+    from raytrace.streaming import GrowingColumn
+    rng = np.random.default_rng(2)
+    chunks = [[(rng.random(rng.integers(0, 400)) * 1000).astype(dtype) for _ in range(rng.integers(1, 5))]
+              for _ in range(10)]
+    column = GrowingColumn()
+    for pieces in chunks:
+        column.extend(pieces, expected)
+    got = column.result()
+    want = np.concatenate([p for pieces in chunks for p in pieces])
+    assert got.dtype == want.dtype and got.flags.owndata
+    np.testing.assert_array_equal(got, want)
