@@ -277,6 +277,9 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
     batch = sub_batch(np.arange(n, dtype=np.int64) + root_offset)     # of each source ray
     batch_flux = np.bincount(batch, weights=flux0, minlength=SUB_BATCHES)
     batch_bins = np.zeros(SUB_BATCHES * layout.size)
+    # the compiled step's ledger work arrays (kernel_step.book_deposits), zeroed once per trace
+    ledger_work = (np.zeros(len(bins) + len(batch_bins)), np.zeros(len(bins) + len(batch_bins), dtype=bool)) \
+        if compiled else None
     next_id = n + root_offset
     seg_store: dict[str, list[np.ndarray]] | None = {} if recording else None
     hit_store = _OwnedPieces()          # field -> per-generation pieces of the detector records
@@ -338,7 +341,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
             # the corner rules read the children's parent rows too
             streams = step_streams | (kernel_step.STREAM_PARENT if at_vertex is not None else 0)
             step = _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, streams, bins, batch_bins,
-                                  batch, source_path)
+                                  batch, ledger_work, source_path)
             r, next_id, seg_rows, new_hits = _after_compiled_step(
                 cs, K, r, e, step, streams, paths, path_thr, recording, record, root_offset, next_id, seg_store,
                 seg_rows, hit_store, hist, wavelengths, at_vertex, gen, stats)
@@ -727,14 +730,14 @@ _NO_DRAWS = np.zeros(0)
 
 
 def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, streams, bins, batch_bins, batch,
-                   source_path=None):
+                   ledger_work, source_path=None):
     """kernel_step.interface_step for this generation, with the Monte Carlo draws the array
     code would take (one per ray at a dielectric face, in ray order).  streams: the optional
     rows to write (kernel_step.STREAM_*): parent rows for a ray table or the corner rules,
     path nodes and events for path tallies, birth codes and the per-ray columns for a ray table.
     The generation's deposits go into `bins` and `batch_bins` (per sub-batch `batch` of each
-    source ray) in the step.  source_path: each source ray's path when the rays carry none (no
-    path tallies)."""
+    source ray) in the step, with ledger_work's zeroed arrays.  source_path: each source ray's
+    path when the rays carry none (no path tallies)."""
     mc = mode == MONTE_CARLO
     u = _NO_DRAWS
     if mc:
@@ -748,7 +751,7 @@ def _compiled_step(cs, K, r, t, e, n_flat, W, thr_root, mode, rng, layout, strea
     return timed_first_call("interface step", lambda: kernel_step.interface_step(
         *state, t, e, K.edge_float, K.edge_int, n_flat, K.alpha, thr_root, int(W), bool(K.absorbing), mc,
         int(layout.bulk0), int(layout.face0), int(layout.trunc0 + TRUNC_FLUX), float(cs.eps), float(cs.scale),
-        u, bins, batch_bins, batch, int(streams)))
+        u, bins, batch_bins, batch, *ledger_work, int(streams)))
 
 
 _STEP_STATE = ("x", "y", "dx", "dy", "fs", "fp", "opl", "wli", "med", "root", "last", "path")
