@@ -43,7 +43,9 @@ def _accept_next_dialog(qtbot, seen: dict):
     QTimer.singleShot(20, act)
 
 
-def test_a_renamed_layers_material_survives_export_and_import(qtbot, win, tmp_path):
+def _export_frosted_light_pipe(win, tmp_path):
+    """The light pipe with its guide in a user material whose name is no valid DXF layer name,
+    opened and exported as DXF through the window (File > Export cross-section as DXF)."""
     data = json.loads((SAMPLES / "light-pipe-90.json").read_text())
     data["materials"] = {"PMMA/frosted": {"model": "constant", "n": 1.49}}
     data["parts"][0]["material"] = "PMMA/frosted"
@@ -52,7 +54,12 @@ def test_a_renamed_layers_material_survives_export_and_import(qtbot, win, tmp_pa
     assert win.open_file(str(scene_file))
     out = tmp_path / "frosted.dxf"
     win.ask_save_path = lambda *a, **k: str(out)
-    assert win.export_dxf()                                 # File > Export cross-section as DXF
+    assert win.export_dxf()
+    return out
+
+
+def test_a_renamed_layers_material_survives_export_and_import(qtbot, win, tmp_path):
+    out = _export_frosted_light_pipe(win, tmp_path)
     names = {p.name: p.material for p in win.doc.scene.parts}
     # the same scene without its parts, then File > Import DXF of the drawing
     delete = next(a for m in win.menuBar().actions() if m.menu() for a in m.menu().actions()
@@ -70,15 +77,7 @@ def test_a_renamed_layers_material_survives_export_and_import(qtbot, win, tmp_pa
 
 
 def test_a_recorded_material_the_scene_does_not_define_is_named_on_import(qtbot, win, tmp_path):
-    data = json.loads((SAMPLES / "light-pipe-90.json").read_text())
-    data["materials"] = {"PMMA/frosted": {"model": "constant", "n": 1.49}}
-    data["parts"][0]["material"] = "PMMA/frosted"
-    scene_file = tmp_path / "frosted.json"
-    scene_file.write_text(json.dumps(data))
-    assert win.open_file(str(scene_file))
-    out = tmp_path / "frosted.dxf"
-    win.ask_save_path = lambda *a, **k: str(out)
-    assert win.export_dxf()
+    out = _export_frosted_light_pipe(win, tmp_path)
     win.new_scene()                                          # a scene without that material
     win.ask_dxf_path = lambda: str(out)
     seen: dict = {}
