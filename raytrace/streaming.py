@@ -86,7 +86,10 @@ class GrowingColumn:
     4.1 M records took 0.7 s, in the one thread, after the chunks were done.  Here the array
     is sized from the first chunks' records per source ray (an estimate, with a margin; the
     pages past the end are never touched) and grown by realloc when that falls short, which
-    for a large array moves the pages instead of copying them; at the end it is cut to length."""
+    for a large array moves the pages instead of copying them, but numpy's resize zero-fills
+    what it adds (80 MB in about 70 ms), so after a growth the slack is resident until the
+    end, where the array is cut to length.  (No growth on the light pipe, the window or the
+    prism film at 200,000 rays: their first chunk's rate holds.)"""
 
     MARGIN = 1.05
 
