@@ -167,7 +167,10 @@ def _describe(e) -> str:
 def _meta(e) -> dict:
     try:
         if e.has_xdata(APP):
-            return json.loads(next(v for code, v in e.get_xdata(APP) if code == 1000))
+            meta = json.loads(next(v for code, v in e.get_xdata(APP) if code == 1000))
+            # (the export writes an object; other JSON there, from an edited drawing, is
+            # ignored as unreadable JSON is)
+            return meta if isinstance(meta, dict) else {}
     except (StopIteration, ValueError, TypeError):
         pass
     return {}

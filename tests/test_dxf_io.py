@@ -328,3 +328,21 @@ def test_export_and_import_refuse_to_write_over_their_own_input(tmp_path, capsys
         err = capsys.readouterr().err
         assert words in err and "writing it would destroy the other" in err
     assert scene.read_bytes() == PIPE_JSON.read_bytes() and drawn.read_bytes() == PIPE_DXF.read_bytes()
+
+
+@pytest.mark.parametrize("record", ['["glass"]', '"glass"', "3"])
+def test_our_xdata_that_is_not_a_record_is_ignored_like_unreadable_xdata(tmp_path, record):
+    """The export writes a JSON object under the app id; an edited drawing may carry other
+    JSON there (a list, a string, a number).  It is ignored as unreadable JSON is: the layer
+    names the material (no AttributeError traceback from the import or from the GUI's preset
+    of each layer's material, `recorded_materials`)."""
+    from raytrace.dxf_io import APP, recorded_materials
+
+    def draw(msp):
+        msp.doc.appids.add(APP)
+        e = msp.add_lwpolyline([(0, 0), (4, 0), (4, 4), (0, 4)], close=True, dxfattribs={"layer": "PMMA"})
+        e.set_xdata(APP, [(1000, record)])
+    path = drawing(tmp_path, draw)
+    assert recorded_materials(path) == {}
+    scene = import_dxf(path)
+    assert [(p.name, p.material) for p in scene.parts] == [("PMMA", "PMMA")]

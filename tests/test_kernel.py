@@ -212,3 +212,21 @@ def test_corner_rays_same_with_both_kernels(data, shape, treatment):
         # without a ray table the corner rules alone ask the compiled step for the parent rows
         a, b = both(scene, start=_start(rays), mode=mode, record="none", track_paths=False)
         assert_same(a, b)
+
+
+@pytest.mark.parametrize("mode", ["branching", "monte_carlo"])
+def test_a_monitor_detector_same_with_both_kernels_whatever_is_recorded(mode):
+    """No sample has a monitoring detector, yet it is the only case where a child's last edge
+    (the one its escape is booked to) differs from its start edge, and the compiled step then
+    writes a last-edge row it otherwise leaves out (kernel_step.STREAM_LAST).  A monitor across
+    the light pipe's straight entry section, most rays crossing it: with and without ray table
+    and path tallies, the ledger (escapes per face included), the detector records and the
+    counters are the numpy reference's."""
+    from raytrace.scene import Detector
+    scene = load_scene(next(p for p in SAMPLES if p.stem == "light-pipe-90"))
+    scene.detectors = list(scene.detectors) + [Detector("monitor", (5.0, -2.5), (5.0, 2.5), absorbing=False)]
+    for record, paths in (("none", False), ("none", True), ("all", False), ("all", True)):
+        a, b = both(scene, rays=300, mode=mode, record=record, track_paths=paths)
+        assert a.stats["segments"] > 600
+        assert np.count_nonzero(a.raw.hits["detector"] == 1) > 200      # the monitor: most rays
+        assert_same(a, b)

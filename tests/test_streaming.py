@@ -119,3 +119,33 @@ def test_growing_column_equals_numpy_concatenate(expected, dtype):
     want = np.concatenate([p for pieces in chunks for p in pieces])
     assert got.dtype == want.dtype and got.flags.owndata
     np.testing.assert_array_equal(got, want)
+
+
+def test_a_one_worker_chunked_trace_is_cancelled_within_its_first_chunk():
+    """The desktop app cancels a trace by raising from its progress callback.  On one worker a
+    chunked trace (any trace of more than 20,000 branching rays now) called it only when a chunk
+    was merged, so a cancelled trace ran on to the end of its chunk; now it is called at every
+    generation too: the exception stops the trace in its first chunk, after 3 generations.
+    The figures reported grow with every call (merged chunks plus the chunk in hand)."""
+    class Stop(Exception):
+        pass
+
+    scene = load_scene(SAMPLES["light-pipe-90"])
+    seen = []
+
+    def progress(stats):
+        seen.append((stats["chunks_done"], stats["chunks"], stats["segments"]))
+        if len(seen) == 3:
+            raise Stop
+
+    with pytest.raises(Stop):
+        trace(scene, rays=3000, chunk_size=1000, progress=progress)
+    assert [(done, chunks) for done, chunks, _ in seen] == [(0, 3)] * 3
+    assert seen[0][2] == 1000 and seen[0][2] < seen[1][2] < seen[2][2]
+
+    seen.clear()
+    progress_all = lambda stats: seen.append((stats["chunks_done"], stats["segments"]))  # noqa: E731
+    r = trace(scene, rays=3000, chunk_size=1000, progress=progress_all)
+    segments = [s for _, s in seen]
+    assert segments == sorted(segments) and seen[-1] == (3, r.stats["segments"])
+    assert sorted({done for done, _ in seen}) == [0, 1, 2, 3]
