@@ -385,9 +385,13 @@ def _media_along_segments(scene, result):
     on = shapely.distance(edges, shapely.points(mx, my)) < 1e-9 * cs.scale
     mx[on] = 0.7 * seg["x0"][ok][on] + 0.3 * seg["x1"][ok][on]
     my[on] = 0.7 * seg["y0"][ok][on] + 0.3 * seg["y1"][ok][on]
+    # a segment whose 30 % point is within the tracer's eps of a face too runs along that face
+    # (a beam aimed exactly along a face, 2e-8 mm off it in one generated scene): at the
+    # tracer's resolution it is on the face, and no point of it tells a side, so it is not judged
+    along = on & (shapely.distance(edges, shapely.points(mx, my)) < cs.eps)
     want = _innermost_medium(scene, mx, my)
     got = seg["medium"][ok]
-    bad = np.flatnonzero(want != got)
+    bad = np.flatnonzero((want != got) & ~along)
     assert len(bad) == 0, (f"{len(bad)} segment(s) in the wrong medium, e.g. midpoint "
                            f"({mx[bad[0]]:.6g}, {my[bad[0]]:.6g}) in {want[bad[0]]}, traced in {got[bad[0]]}")
 
