@@ -173,9 +173,9 @@ def _marks_svg(canvas, m: _Map) -> list[str]:
         out.append("</g>")
     if canvas.escape_xy:
         out.append(f'<g fill="none" stroke="{_hex(style.ESCAPE_MARK)}" stroke-width="2">')
-        for (x, y), (_, _, share, label) in zip(canvas.escape_xy, d.escapes):
-            out.append(f'<circle cx="{_num(m.x(x))}" cy="{_num(m.y(y))}" r="{_num(0.5 * canvas.escape_ring_px(share))}">'
-                       f"<title>{escape(label)}: {100 * share:.2f} %</title></circle>")
+        for r in canvas.escape_rings:
+            out.append(f'<circle cx="{_num(m.x(r.x))}" cy="{_num(m.y(r.y))}" r="{_num(0.5 * canvas.escape_ring_px(r.share))}">'
+                       f"<title>{escape(r.label)}: {100 * r.share:.2f} %</title></circle>")
         out.append("</g>")
     return out
 
