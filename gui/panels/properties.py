@@ -23,6 +23,7 @@ from raytrace.shapes import PARAMETERS, ShapeParameterError
 
 from .. import arcs, edits
 from ..dialogs.shape import SHAPE_LABELS, param_value, param_widget
+from ..edge_fade import add_edge_fades
 from .fit_table import fit_columns, height_for_rows, make_fitting
 from .grip_splitter import GripSplitter
 
@@ -262,6 +263,8 @@ class PartPage(_Page):
         self.fields_area.setWidgetResizable(True)
         self.fields_area.setFrameShape(QFrame.NoFrame)
         self.fields_area.setHorizontalScrollBarPolicy(Qt.ScrollBarAlwaysOff)
+        add_edge_fades(self.fields_area)
+        add_edge_fades(self.table)
         rows = QWidget()
         rows_lay = QVBoxLayout(rows)
         rows_lay.setContentsMargins(0, 0, 0, 0)
