@@ -793,8 +793,9 @@ class Canvas(QWidget):
             self._hits.setData(d.hits_x, d.hits_y)
         rings = [Ring(*self._ring_place(edge, self.escape_ring_px(share) * px), share, label, 1)
                  for (_, _, share, label), edge in zip(d.escapes, d.escape_edges)]
-        self.escape_rings = merge_crowded(rings, self.escape_ring_px, px,
-                                          ([s.position for s in self.scene.sources], style.GLYPH_PX))
+        # a merged ring keeps off each source glyph and its aim stem, which it could hide
+        glyphs = [(s.position, self.aim_handle(s)) for s in self.scene.sources]
+        self.escape_rings = merge_crowded(rings, self.escape_ring_px, px, (glyphs, 0.5 * style.GLYPH_PX))
         self.escape_xy = [(r.x, r.y) for r in self.escape_rings]
         if self.escape_xy:
             self._escapes.setData([r.x for r in self.escape_rings], [r.y for r in self.escape_rings],

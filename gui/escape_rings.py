@@ -21,11 +21,19 @@ class Ring:
     faces: int          # how many faces it stands for
 
 
-def merge_crowded(rings: list[Ring], size_px, px_mm: float, clear_of=()) -> list[Ring]:
+def _to_segment(p, a, b) -> float:
+    ax, ay = a
+    dx, dy = b[0] - ax, b[1] - ay
+    L2 = dx * dx + dy * dy
+    t = 0.0 if L2 == 0 else max(0.0, min(1.0, ((p[0] - ax) * dx + (p[1] - ay) * dy) / L2))
+    return math.dist(p, (ax + t * dx, ay + t * dy))
+
+
+def merge_crowded(rings: list[Ring], size_px, px_mm: float, clear_of=((), 0.0)) -> list[Ring]:
     """`rings` (one per face) with crowded same-named neighbours merged.  `size_px(share)` is a
     ring's diameter on screen, `px_mm` the view's mm per pixel; a merged ring sits on the member
-    nearest the group's flux-weighted centre that keeps clear of the points `clear_of` (source
-    glyphs): `clear_of` is (points, px they need around them)."""
+    nearest the group's flux-weighted centre that keeps clear of the source glyphs: `clear_of`
+    is (segments (a, b) in mm, the px they need around them)."""
     n = len(rings)
     parent = list(range(n))
 
@@ -43,6 +51,7 @@ def merge_crowded(rings: list[Ring], size_px, px_mm: float, clear_of=()) -> list
     groups: dict[int, list[Ring]] = {}
     for i in range(n):
         groups.setdefault(root(i), []).append(rings[i])
+    segments, clear_px = clear_of
     out = []
     for members in groups.values():
         if len(members) == 1:
@@ -51,11 +60,10 @@ def merge_crowded(rings: list[Ring], size_px, px_mm: float, clear_of=()) -> list
         share = sum(r.share for r in members)
         cx = sum(r.x * r.share for r in members) / share if share > 0 else members[0].x
         cy = sum(r.y * r.share for r in members) / share if share > 0 else members[0].y
-        clear_mm = (0.5 * size_px(share) + clear_of[1]) * px_mm if clear_of else 0.0
-        points = clear_of[0] if clear_of else ()
+        clear_mm = (0.5 * size_px(share) + clear_px) * px_mm
 
         def free(r):
-            return all(math.dist((r.x, r.y), q) >= clear_mm for q in points)
+            return all(_to_segment((r.x, r.y), a, b) >= clear_mm for a, b in segments)
         spots = sorted(members, key=lambda r: math.dist((r.x, r.y), (cx, cy)))
         at = next((r for r in spots if free(r)), spots[0])
         out.append(Ring(at.x, at.y, share, members[0].label, sum(r.faces for r in members)))

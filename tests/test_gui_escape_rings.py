@@ -46,6 +46,9 @@ def test_crowded_escape_rings_merge_and_come_back_when_zoomed_in(qtbot, win):
     assert win.open_file(str(FILM))
     wait_traced(qtbot, win)
     c = win.canvas
+    c.setFocus()
+    gui_events.key(Qt.Key_0, Qt.ControlModifier)      # fit the view, as the app opens it
+    qtbot.wait(400)
     faces = len(c.drawing.escapes)            # faces flux escapes through, one ring each before
     assert faces >= 20
     merged = [r for r in c.escape_rings if r.faces > 1]
@@ -64,8 +67,15 @@ def test_crowded_escape_rings_merge_and_come_back_when_zoomed_in(qtbot, win):
         row = [v for k, v in ledger.items() if k.endswith(label)]
         n_named = sum(1 for e in range(len(cs.edges)) if " / ".join(cs.face_labels[cs.face[e]]) == label)
         assert len(row) == 1 and 0 <= row[0] - share < 1e-3 * n_named, (label, row, share, n_named)
-    # the merged ring says what it stands for, at the mouse
+    # the merged ring says what it stands for, at the mouse, and keeps off the source's glyph
+    # and aim stem (the film's middle facets are right beside it)
     big = max(merged, key=lambda r: r.faces)
+    for src in win.doc.scene.sources:
+        a, b = src.position, c.aim_handle(src)
+        t = max(0.0, min(1.0, ((big.x - a[0]) * (b[0] - a[0]) + (big.y - a[1]) * (b[1] - a[1]))
+                         / math.dist(a, b) ** 2))
+        near = (a[0] + t * (b[0] - a[0]), a[1] + t * (b[1] - a[1]))
+        assert math.dist((big.x, big.y), near) > 0.5 * c.escape_ring_px(big.share) * c.pixel_mm()
     tip = _tooltip_at(qtbot, c, (big.x, big.y))
     assert f"{100 * big.share:.2f} %" in tip and f"{big.faces} faces" in tip, tip
     # zoomed in by keys, the facets spread apart and get their own rings again
@@ -78,3 +88,18 @@ def test_crowded_escape_rings_merge_and_come_back_when_zoomed_in(qtbot, win):
     x0, x1 = c.view.viewRange()[0]
     shown_faces = [r for r in c.escape_rings if x0 <= r.x <= x1]
     assert shown_faces and all(r.faces == 1 for r in shown_faces)
+
+
+def test_a_merged_ring_keeps_off_a_source_stem_at_its_centre():
+    """Eleven same-named faces 1 px apart, flux spread evenly, a source's aim stem through the
+    middle one: the merged ring stands on the nearest face whose ring clears the stem by the
+    clearance asked for (not on the stem, where the flux-weighted centre is)."""
+    from gui.escape_rings import Ring, merge_crowded
+    rings = [Ring(float(k), 0.0, 0.001, "film / facet", 1) for k in range(-5, 6)]
+    size = lambda share: 6.0 + 0.0 * share          # noqa: E731  (6 px rings, 1 mm a px)
+    stem = ((0.0, -3.0), (0.0, 3.0))
+    out = merge_crowded(rings, size, 1.0, ([stem], 1.0))
+    assert len(out) == 1 and out[0].faces == 11 and out[0].share == pytest.approx(0.011)
+    assert abs(out[0].x) == 4.0         # 3 px of ring radius and 1 px clearance: |x| >= 4
+    alone = merge_crowded(rings, size, 1.0)
+    assert alone[0].x == 0.0            # with no glyph to avoid, the centre
