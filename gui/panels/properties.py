@@ -9,7 +9,7 @@ from __future__ import annotations
 import math
 from dataclasses import replace
 
-from PySide6.QtCore import Qt, QTimer, Signal
+from PySide6.QtCore import QEvent, Qt, QTimer, Signal
 from PySide6.QtWidgets import (QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QFrame, QGroupBox,
                                QHBoxLayout, QLabel, QLineEdit, QPlainTextEdit, QPushButton, QScrollArea,
                                QSizePolicy, QSpinBox, QStackedWidget, QTableWidget,
@@ -113,8 +113,19 @@ class StoryEdit(QPlainTextEdit):
         super().__init__()
         self.setLineWrapMode(QPlainTextEdit.WidgetWidth)
         self.setTabChangesFocus(True)
-        lines = 5
-        self.setFixedHeight(int(self.fontMetrics().lineSpacing() * lines + 2 * self.frameWidth() + 10))
+        self.set_lines(5)
+
+    def set_lines(self, lines: int) -> None:
+        """Exactly `lines` whole lines tall: a longer purpose scrolls by whole lines (as a plain
+        text box does) instead of showing a line cut in half at the bottom edge."""
+        # the text starts one document margin down; the box ends where line `lines` does
+        margin = self.document().documentMargin()
+        self.setFixedHeight(round(self.fontMetrics().lineSpacing() * lines + margin) + 2 * self.frameWidth())
+
+    def changeEvent(self, ev):
+        super().changeEvent(ev)
+        if ev.type() == QEvent.FontChange:
+            self.set_lines(5)
 
     def text(self) -> str:
         return " ".join(self.toPlainText().split())
