@@ -8,6 +8,8 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+import numpy as np
+
 # rings of same-named faces closer than this many of their diameters are merged
 CROWD_DIAMETERS = 2.0
 
@@ -29,31 +31,38 @@ def _to_segment(p, a, b) -> float:
     return math.dist(p, (ax + t * dx, ay + t * dy))
 
 
+def _crowded_groups(rings: list[Ring], size_px, px_mm: float) -> list[list[Ring]]:
+    """The rings in groups: same-named rings closer than CROWD_DIAMETERS of the larger one's
+    diameter are in one group, as are their neighbours' neighbours.  Arrays, not pairs in
+    Python: a scene can have up to a thousand rings (each is at least 0.1 % of the flux)."""
+    if len(rings) < 2:
+        return [[r] for r in rings]
+    xy = np.array([(r.x, r.y) for r in rings], float)
+    size = np.array([size_px(r.share) for r in rings], float) * px_mm
+    names = {}
+    label = np.array([names.setdefault(r.label, len(names)) for r in rings])
+    near = (np.hypot(*(xy[:, None, :] - xy[None, :, :]).transpose(2, 0, 1))
+            < CROWD_DIAMETERS * np.maximum(size[:, None], size[None, :])) & (label[:, None] == label[None, :])
+    group = np.arange(len(rings))
+    while True:     # each ring takes the least group number among its neighbours, until none changes
+        new = np.where(near, group[None, :], len(rings)).min(axis=1)
+        new = np.minimum(new, group)
+        new = new[new]          # (and jumps along: a long chain of faces takes a few rounds)
+        if np.array_equal(new, group):
+            break
+        group = new
+    return [[rings[i] for i in np.flatnonzero(group == g)] for g in np.unique(group)]
+
+
 def merge_crowded(rings: list[Ring], size_px, px_mm: float, clear_of=((), 0.0)) -> list[Ring]:
     """`rings` (one per face) with crowded same-named neighbours merged.  `size_px(share)` is a
     ring's diameter on screen, `px_mm` the view's mm per pixel; a merged ring sits on the member
     nearest the group's flux-weighted centre that keeps clear of the source glyphs: `clear_of`
     is (segments (a, b) in mm, the px they need around them)."""
-    n = len(rings)
-    parent = list(range(n))
-
-    def root(i):
-        while parent[i] != i:
-            parent[i] = parent[parent[i]]
-            i = parent[i]
-        return i
-    for i in range(n):
-        for j in range(i + 1, n):
-            a, b = rings[i], rings[j]
-            reach = CROWD_DIAMETERS * max(size_px(a.share), size_px(b.share)) * px_mm
-            if a.label == b.label and math.dist((a.x, a.y), (b.x, b.y)) < reach:
-                parent[root(i)] = root(j)
-    groups: dict[int, list[Ring]] = {}
-    for i in range(n):
-        groups.setdefault(root(i), []).append(rings[i])
+    groups = _crowded_groups(rings, size_px, px_mm)
     segments, clear_px = clear_of
     out = []
-    for members in groups.values():
+    for members in groups:
         if len(members) == 1:
             out.append(members[0])
             continue
