@@ -20,6 +20,7 @@ from raytrace.scene import EMITTER, POINT, Scene
 
 from . import edits, style
 from .arcs import signed_radius
+from .escape_rings import Ring, merge_crowded
 from .flow_layout import FlowLayout
 from .marks import Dots
 from .overlay import Overlay, pass_clicks
@@ -271,6 +272,7 @@ class Canvas(QWidget):
         self._hits.setZValue(14)
         self._escapes = pg.ScatterPlotItem(pxMode=True, brush=None, pen=_pen(style.ESCAPE_MARK, 2))
         self._escapes.setZValue(11)
+        self.escape_rings: list[Ring] = []                  # the rings drawn (crowded ones merged)
         self.escape_xy: list[tuple[float, float]] = []      # where each escape ring is drawn
         self._cues = pg.PlotCurveItem(pen=_pen(style.CUE, 1.3), connect="pairs", antialias=False)
         self._cues.setZValue(10)
@@ -789,11 +791,15 @@ class Canvas(QWidget):
             self._hits.setData(d.hits_x + off * d.hits_nx, d.hits_y + off * d.hits_ny)
         else:
             self._hits.setData(d.hits_x, d.hits_y)
-        self.escape_xy = [self._ring_place(edge, self.escape_ring_px(share) * px)
-                          for (_, _, share, _), edge in zip(d.escapes, d.escape_edges)]
+        rings = [Ring(*self._ring_place(edge, self.escape_ring_px(share) * px), share, label, 1)
+                 for (_, _, share, label), edge in zip(d.escapes, d.escape_edges)]
+        # a merged ring keeps off each source glyph and its aim stem, which it could hide
+        glyphs = [(s.position, self.aim_handle(s)) for s in self.scene.sources]
+        self.escape_rings = merge_crowded(rings, self.escape_ring_px, px, (glyphs, 0.5 * style.GLYPH_PX))
+        self.escape_xy = [(r.x, r.y) for r in self.escape_rings]
         if self.escape_xy:
-            self._escapes.setData([p[0] for p in self.escape_xy], [p[1] for p in self.escape_xy],
-                                  size=[self.escape_ring_px(e[2]) for e in d.escapes])
+            self._escapes.setData([r.x for r in self.escape_rings], [r.y for r in self.escape_rings],
+                                  size=[self.escape_ring_px(r.share) for r in self.escape_rings])
         else:
             self._escapes.setData([], [])
         xs, ys = arrow_strokes(d.cue_x0, d.cue_y0, d.cue_x1, d.cue_y1, style.CUE_PX * px, 8 * style.CUE_PX * px,
@@ -894,9 +900,10 @@ class Canvas(QWidget):
     def hover_text(self, x, y) -> str:
         """What the tooltip says at (x, y): the face name and treatment, or an escape figure."""
         tol = style.PICK_PX * self.pixel_mm()
-        for (ex, ey), (_, _, share, label) in zip(self.escape_xy, self.drawing.escapes):
-            if math.dist((ex, ey), (x, y)) <= tol:
-                return f"{label}: {100 * share:.2f} % of the source flux escapes here"
+        for r in self.escape_rings:
+            if math.dist((r.x, r.y), (x, y)) <= tol:
+                where = "here" if r.faces == 1 else f"through these {r.faces} faces (zoom in to see each)"
+                return f"{r.label}: {100 * r.share:.2f} % of the source flux escapes {where}"
         f = self.face_at(x, y)
         if f is None:
             return ""

@@ -173,9 +173,9 @@ def _marks_svg(canvas, m: _Map) -> list[str]:
         out.append("</g>")
     if canvas.escape_xy:
         out.append(f'<g fill="none" stroke="{_hex(style.ESCAPE_MARK)}" stroke-width="2">')
-        for (x, y), (_, _, share, label) in zip(canvas.escape_xy, d.escapes):
-            out.append(f'<circle cx="{_num(m.x(x))}" cy="{_num(m.y(y))}" r="{_num(0.5 * canvas.escape_ring_px(share))}">'
-                       f"<title>{escape(label)}: {100 * share:.2f} %</title></circle>")
+        for r in canvas.escape_rings:
+            out.append(f'<circle cx="{_num(m.x(r.x))}" cy="{_num(m.y(r.y))}" r="{_num(0.5 * canvas.escape_ring_px(r.share))}">'
+                       f"<title>{escape(r.label)}: {100 * r.share:.2f} %</title></circle>")
         out.append("</g>")
     return out
 
@@ -229,15 +229,32 @@ def _legend_items(canvas, thinned: bool = False) -> list[tuple[str, str, str]]:
                     ("bar", _hex(style.DETECTOR), "detector")]
 
 
-def _item_width(text: str) -> float:
-    return 30 + 6.3 * len(text) + 14     # swatch, text at ~6.3 px a character (11 px font), gap
+LEGEND_FONT_PX = 11
+# each swatch's inked width: drawn flush with its item's left edge, the text a fixed step after
+# it and the next item a fixed gap after the text, so every gap on the page looks the same
+SWATCH_W = {"line": 22.0, "bar": 22.0, "dot": 9.0, "ring": 12.0, "arrow": 16.0}
+SWATCH_TEXT_GAP = 5.0
+LEGEND_GAP = 14.0
+
+
+def _text_width(text: str) -> float:
+    """The legend text's width in the figure's px, measured in the font the figure names (Qt
+    renders the PNG with it); an estimate per character left gaps from 7 to 65 px."""
+    from PySide6.QtGui import QFont, QFontMetricsF
+    font = QFont(FONT.split(",")[0].strip())
+    font.setPixelSize(LEGEND_FONT_PX)
+    return QFontMetricsF(font).horizontalAdvance(text)
+
+
+def _item_width(shape: str, text: str) -> float:
+    return SWATCH_W[shape] + SWATCH_TEXT_GAP + _text_width(text) + LEGEND_GAP
 
 
 def _legend_rows(items, width: float) -> list[list[tuple[str, str, str]]]:
     rows, row, used = [], [], 0.0
     for it in items:
-        w = _item_width(it[2])
-        if row and used + w > width:
+        w = _item_width(it[0], it[2])
+        if row and used + w - LEGEND_GAP > width:      # (no gap after the row's last item)
             rows.append(row)
             row, used = [], 0.0
         row.append(it)
@@ -246,21 +263,22 @@ def _legend_rows(items, width: float) -> list[list[tuple[str, str, str]]]:
 
 
 def _legend_svg(rows, x0: float, y0: float) -> list[str]:
-    out = ['<g font-size="11" fill="#222222">']
+    out = [f'<g font-size="{LEGEND_FONT_PX}" fill="#222222">']
     for r, row in enumerate(rows):
         x, y = x0, y0 + r * LEGEND_ROW_H + 9
         for shape, colour, text in row:
             if shape in ("line", "bar"):
                 out.append(f'<path d="M{_num(x)} {_num(y)}h22" stroke="{colour}" stroke-width="{3 if shape == "line" else 5}"/>')
             elif shape == "dot":
-                out.append(f'<circle cx="{_num(x + 11)}" cy="{_num(y)}" r="4.5" fill="{colour}"/>')
+                out.append(f'<circle cx="{_num(x + 4.5)}" cy="{_num(y)}" r="4.5" fill="{colour}"/>')
             elif shape == "ring":
-                out.append(f'<circle cx="{_num(x + 11)}" cy="{_num(y)}" r="5" fill="none" stroke="{colour}" stroke-width="2"/>')
+                out.append(f'<circle cx="{_num(x + 6)}" cy="{_num(y)}" r="5" fill="none" stroke="{colour}" stroke-width="2"/>')
             else:
-                out.append(f'<path d="M{_num(x + 4)} {_num(y)}h16M{_num(x + 14)} {_num(y - 4)}l6 4l-6 4" '
+                out.append(f'<path d="M{_num(x)} {_num(y)}h16M{_num(x + 10)} {_num(y - 4)}l6 4l-6 4" '
                            f'stroke="{colour}" stroke-width="1.3" fill="none"/>')
-            out.append(f'<text x="{_num(x + 28)}" y="{_num(y + 4)}">{escape(text)}</text>')
-            x += _item_width(text)
+            tx = x + SWATCH_W[shape] + SWATCH_TEXT_GAP
+            out.append(f'<text x="{_num(tx)}" y="{_num(y + 4)}">{escape(text)}</text>')
+            x += _item_width(shape, text)
     out.append("</g>")
     return out
 

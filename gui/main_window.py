@@ -23,6 +23,7 @@ from . import edits, gc_policy, help as help_text
 from .autosave import Autosaver, find_recoveries
 from .canvas import Canvas
 from .document import Document
+from .edge_fade import add_edge_fades
 from .export import save_figure_png, save_figure_svg, save_ray_table_csv
 from .panels.controls import TraceControls
 from .panels.ledger import LedgerPanel
@@ -64,7 +65,7 @@ def _scrolled(widget):
     area.setWidget(widget)
     area.setWidgetResizable(True)
     area.setFrameShape(QScrollArea.NoFrame)
-    return area
+    return add_edge_fades(area)
 
 
 # The Results dock's least height: the flux ledger of a sample scene (about 15 rows) without

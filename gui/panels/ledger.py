@@ -9,6 +9,8 @@ from PySide6.QtWidgets import (QHeaderView, QLabel, QStyle, QStyledItemDelegate,
 
 from raytrace.ledger import ABSORBED, DETECTOR, ESCAPED, TRUNCATED
 
+from ..edge_fade import add_edge_fades
+
 SECTIONS = ((DETECTOR, "Reached detectors"), (ESCAPED, "Escaped (by the last face met)"),
             (ABSORBED, "Absorbed"), (TRUNCATED, "Truncated"))
 
@@ -64,6 +66,7 @@ class LedgerPanel(QWidget):
         self.tree.setToolTip("Every unit of source flux ends in one of these rows; they add up to "
                              "the source flux.  \u00b1 error: the standard error of the share, in "
                              "points of % (hover the summary for what it means in this trace).")
+        add_edge_fades(self.tree)
         self.summary = QLabel("No trace yet")
         self.summary.setWordWrap(True)
         lay = QVBoxLayout(self)

@@ -5,6 +5,8 @@ from __future__ import annotations
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtWidgets import QLabel, QListWidget, QListWidgetItem, QVBoxLayout, QWidget
 
+from ..edge_fade import add_edge_fades
+
 
 class ProblemsPanel(QWidget):
     part_chosen = Signal(int)
@@ -15,6 +17,7 @@ class ProblemsPanel(QWidget):
         self.summary.setTextFormat(Qt.PlainText)
         self.summary.setWordWrap(True)
         self.list = QListWidget()
+        add_edge_fades(self.list)
         self.list.setWordWrap(True)
         self.list.setToolTip("Click a problem to select the part it concerns")
         self.list.itemClicked.connect(self._clicked)

@@ -9,7 +9,7 @@ from __future__ import annotations
 import math
 from dataclasses import replace
 
-from PySide6.QtCore import Qt, QTimer, Signal
+from PySide6.QtCore import QEvent, Qt, QTimer, Signal
 from PySide6.QtWidgets import (QCheckBox, QComboBox, QDoubleSpinBox, QFormLayout, QFrame, QGroupBox,
                                QHBoxLayout, QLabel, QLineEdit, QPlainTextEdit, QPushButton, QScrollArea,
                                QSizePolicy, QSpinBox, QStackedWidget, QTableWidget,
@@ -23,6 +23,7 @@ from raytrace.shapes import PARAMETERS, ShapeParameterError
 
 from .. import arcs, edits
 from ..dialogs.shape import SHAPE_LABELS, param_value, param_widget
+from ..edge_fade import add_edge_fades
 from .fit_table import fit_columns, height_for_rows, make_fitting
 from .grip_splitter import GripSplitter
 
@@ -112,8 +113,19 @@ class StoryEdit(QPlainTextEdit):
         super().__init__()
         self.setLineWrapMode(QPlainTextEdit.WidgetWidth)
         self.setTabChangesFocus(True)
-        lines = 5
-        self.setFixedHeight(int(self.fontMetrics().lineSpacing() * lines + 2 * self.frameWidth() + 10))
+        self.set_lines(5)
+
+    def set_lines(self, lines: int) -> None:
+        """Exactly `lines` whole lines tall: a longer purpose scrolls by whole lines (as a plain
+        text box does) instead of showing a line cut in half at the bottom edge."""
+        # the text starts one document margin down; the box ends where line `lines` does
+        margin = self.document().documentMargin()
+        self.setFixedHeight(round(self.fontMetrics().lineSpacing() * lines + margin) + 2 * self.frameWidth())
+
+    def changeEvent(self, ev):
+        super().changeEvent(ev)
+        if ev.type() == QEvent.FontChange:
+            self.set_lines(5)
 
     def text(self) -> str:
         return " ".join(self.toPlainText().split())
@@ -262,6 +274,8 @@ class PartPage(_Page):
         self.fields_area.setWidgetResizable(True)
         self.fields_area.setFrameShape(QFrame.NoFrame)
         self.fields_area.setHorizontalScrollBarPolicy(Qt.ScrollBarAlwaysOff)
+        add_edge_fades(self.fields_area)
+        add_edge_fades(self.table)
         rows = QWidget()
         rows_lay = QVBoxLayout(rows)
         rows_lay.setContentsMargins(0, 0, 0, 0)
