@@ -83,16 +83,23 @@ def _outlines_follow_parts(win):
         assert outline.toolTip().startswith(part.name)
 
 
-def test_part_outlines_follow_a_drag_a_delete_and_an_undo(qtbot, tmp_path, monkeypatch):
+def _shown_window(qtbot, tmp_path, monkeypatch):
+    """The app's main window at 1200 x 800, shown, with its settings in a fresh home."""
     pytest.importorskip("pytestqt")
     monkeypatch.setenv("RAYTRACE_GUI_HOME", str(tmp_path / "home"))
-    from PySide6.QtCore import Qt
-    from gui_events import click, drag, key
-    from test_gui import LIGHT_PIPE, make_window, wait_traced
+    from test_gui import make_window
     win = make_window(qtbot)
     win.resize(1200, 800)
     win.show()
     qtbot.waitExposed(win)
+    return win
+
+
+def test_part_outlines_follow_a_drag_a_delete_and_an_undo(qtbot, tmp_path, monkeypatch):
+    win = _shown_window(qtbot, tmp_path, monkeypatch)
+    from PySide6.QtCore import Qt
+    from gui_events import click, drag, key
+    from test_gui import LIGHT_PIPE, wait_traced
     try:
         assert win.open_file(str(LIGHT_PIPE))
         wait_traced(qtbot, win)
@@ -123,19 +130,13 @@ def test_a_source_drag_keeps_the_geometry_finding_and_a_part_drag_checks_again(q
     check is not run again at each step and the overlap stays marked; dragging the window clear
     of the guide checks again and the problem goes."""
     import json
-    pytest.importorskip("pytestqt")
-    monkeypatch.setenv("RAYTRACE_GUI_HOME", str(tmp_path / "home"))
+    win = _shown_window(qtbot, tmp_path, monkeypatch)
     from gui import problems as problems_mod
     from gui_events import drag
-    from test_gui import make_window
     data = json.loads((SAMPLES / "light-pipe-90.json").read_text())
     data["parts"][1]["shape"]["position"] = [19.5, 20.5]
     scene_file = tmp_path / "overlap.json"
     scene_file.write_text(json.dumps(data))
-    win = make_window(qtbot)
-    win.resize(1200, 800)
-    win.show()
-    qtbot.waitExposed(win)
     try:
         assert win.open_file(str(scene_file))
         assert [p.parts for p in win.problems] == [(1, 0)]
