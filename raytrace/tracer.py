@@ -282,7 +282,7 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         if compiled else None
     next_id = n + root_offset
     seg_store: dict[str, list[np.ndarray]] | None = {} if recording else None
-    hit_store = _OwnedPieces()          # field -> per-generation pieces of the detector records
+    hit_store: dict[str, list[np.ndarray]] = {}      # field -> per-generation pieces of the detector records
     hist = _Histograms(cs) if not keep_hits else None
     stats = {"segments": 0, "generations": 0, "vertex_hits": 0, "grazing_hits": 0,
              "medium_mismatches": 0, "tir_events": 0, "source_rays": n}
@@ -481,30 +481,19 @@ def trace_rays(cs: CompiledScene, start: StartRays, mode: str = BRANCHING,
         segments = None
     return RawTrace(
         bins=bins, source_flux=source_flux, segments=segments,
-        hits={k: np.concatenate(v) if join_hits else list(v) for k, v in hit_store.items()},
+        hits={k: np.concatenate(v) if join_hits else v for k, v in hit_store.items()},
         path_parent=paths.parent.copy(), path_code=paths.code.copy(),
         path_flux=paths.flux_dict() if paths.enabled else {}, wavelengths=wavelengths, stats=stats,
         histograms=hist.to_dict() if hist is not None else None,
         batch_bins=batch_bins.reshape(SUB_BATCHES, layout.size), batch_flux=batch_flux)
 
 
-class _OwnList(list):
-    """Pieces that own their memory: a view is copied as it is added.  The compiled step's
-    detector records are rows of buffers sized for all the generation's live rays (16 times
-    the records on the light pipe); kept as views until the merge, every generation's whole
+def _owned(v: np.ndarray) -> np.ndarray:
+    """`v`, copied if it is a view: a detector-record piece kept until the merge must own its
+    memory.  The compiled step's records are rows of buffers sized for all the generation's
+    live rays (16 times the records on the light pipe); kept as views, every generation's whole
     buffers would stay alive (3.9 GB instead of 1.0 GB on the 1e6-ray light pipe)."""
-
-    def append(self, v) -> None:
-        super().append(v.copy() if isinstance(v, np.ndarray) and v.base is not None else v)
-
-
-class _OwnedPieces(dict):
-    """field -> _OwnList: `store.setdefault(k, []).append(v)` keeps a compact copy of `v`."""
-
-    def setdefault(self, key, default=None):
-        if key not in self:
-            self[key] = _OwnList()
-        return self[key]
+    return v.copy() if v.base is not None else v
 
 
 def _share_text(limits: Limits) -> str:
@@ -777,7 +766,7 @@ def _after_compiled_step(cs, K, r, e, step, streams, paths, path_thr, recording,
             for k, v in (("detector", det), ("position", pos), ("angle_deg", angle), ("front", hfront.astype(bool)),
                          ("flux_s", hfs), ("flux_p", hfp), ("wavelength_nm", wavelengths[hwli]),
                          ("optical_path", hopl), ("path", hpath), ("root", hroot + root_offset)):
-                hit_store.setdefault(k, []).append(v)
+                hit_store.setdefault(k, []).append(_owned(v))
             kept_hits = HI.shape[1]
     if seg_store is not None:
         ex, ey, opl = PF
@@ -1178,4 +1167,4 @@ def _store_hits(store, hist, cs, idx, ed, hx, hy, dx, dy, fs, fp, wl, opl, path,
     for k, v in (("detector", d), ("position", s), ("angle_deg", angle), ("front", front),
                  ("flux_s", fs), ("flux_p", fp), ("wavelength_nm", wl), ("optical_path", opl),
                  ("path", path), ("root", root)):
-        store.setdefault(k, []).append(np.asarray(v))
+        store.setdefault(k, []).append(_owned(np.asarray(v)))
